@@ -1,0 +1,275 @@
+"""analyze(): compose the stages from a beam photo to a BeamReport.
+
+load -> linearise (response, ambient, flat field) -> map to the wall (pinhole) -> beam axis
+-> BeamMap (I = E D^2 / cos^3 theta) -> shape (peak, contours, spill edge, zone flux)
+-> absolute scale -> figures with uncertainties -> BeamReport.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+from dataclasses import asdict
+
+import numpy as np
+
+from . import __version__
+from .axis import find_beam_axis
+from .beammap import build_beam_map
+from .camera.flatfield import fit_flat_field
+from .camera.linearize import LinearImage, linearize
+from .camera.response import Response, parse_response
+from .errors import BeamshotError
+from .measure import beam_figures, measure_shape
+from .photo import Photo, load_photo
+from .profile import radial_profile
+from .report.model import BeamReport
+from .scale import no_scale, scale_from_exposure, scale_from_lux_meter
+from .wall import (FOCAL_35MM_CONVENTION_UNCERTAINTY, focal_px_from_35mm, focal_px_from_hfov,
+                   pinhole_mapping)
+
+__all__ = ["analyze", "DEFAULT_DISTANCE_UNCERTAINTY_M", "MIN_DISTANCE_M", "MAX_DISTANCE_M"]
+
+#: Default standard uncertainty of a tape-measured distance, m (assumption).
+DEFAULT_DISTANCE_UNCERTAINTY_M = 0.02
+MIN_DISTANCE_M = 0.3
+MAX_DISTANCE_M = 100.0
+#: IES five-times rule: the inverse-square law is within 1 % at 5x the source's largest dimension.
+FAR_FIELD_FACTOR = 5.0
+#: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
+_LOW_EXPOSURE_LEVEL = 0.15
+
+
+def _photo(obj, role: str) -> Photo:
+    if isinstance(obj, Photo):
+        return obj
+    if isinstance(obj, (str, os.PathLike)):
+        return load_photo(obj)
+    raise TypeError(f"{role}: expected a path or a Photo, not {type(obj).__name__}")
+
+
+def _check_positive(name: str, value, lo=None, hi=None, hint="") -> None:
+    if value is None:
+        return
+    if not np.isfinite(value) or value <= 0:
+        raise BeamshotError(f"{name} must be a positive number, not {value:g}{hint}")
+    if lo is not None and value < lo:
+        raise BeamshotError(f"{name} {value:g} is too small (minimum {lo:g}){hint}")
+    if hi is not None and value > hi:
+        raise BeamshotError(f"{name} {value:g} is too large (maximum {hi:g}){hint}")
+
+
+def analyze(
+    photo,
+    *,
+    distance_m: float,
+    distance_uncertainty_m: float | None = None,
+    ambient=None,
+    flat=None,
+    lux_at_peak: float | None = None,
+    lux_meter_accuracy: float | None = None,
+    reflectance: float | None = None,
+    use_exif_scale: bool = True,
+    focal_35mm: float | None = None,
+    hfov_deg: float | None = None,
+    camera_distance_m: float | None = None,
+    response: str | Response = "srgb",
+    head_diameter_mm: float | None = None,
+) -> BeamReport:
+    """Analyse one beam photo taken square to the wall; returns a :class:`BeamReport`.
+
+    ``photo``/``ambient``/``flat`` are paths or :class:`~beamshot.photo.Photo` objects.
+    ``distance_m`` is the light-to-wall distance (m); the camera is assumed beside the
+    light unless ``camera_distance_m`` (camera-to-wall, m) says otherwise.
+    """
+    # ---- validate options before any work
+    if distance_m is None:
+        raise BeamshotError("the light-to-wall distance is required (--distance, in metres)")
+    _check_positive("distance", distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m; measure from the light's lens to the wall")
+    u_d = DEFAULT_DISTANCE_UNCERTAINTY_M if distance_uncertainty_m is None else distance_uncertainty_m
+    if u_d < 0 or u_d >= distance_m:
+        raise BeamshotError(f"distance uncertainty {u_d:g} m must be at least 0 and smaller than the distance")
+    _check_positive("camera distance", camera_distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m")
+    _check_positive("lux reading", lux_at_peak, None, 2e6, " lx")
+    _check_positive("reflectance", reflectance, 0.05, 1.0)
+    _check_positive("lux-meter accuracy", lux_meter_accuracy, None, 0.5)
+    _check_positive("35 mm focal length", focal_35mm, 5.0, 800.0, " mm")
+    _check_positive("horizontal field of view", hfov_deg, 1.0, 150.0, " deg")
+    if focal_35mm is not None and hfov_deg is not None:
+        raise BeamshotError("give either --focal-35mm or --hfov, not both")
+    if lux_at_peak is not None and reflectance is not None:
+        raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
+    resp = parse_response(response) if isinstance(response, str) else response
+
+    warnings: list[str] = []
+    beam_photo = _photo(photo, "photo")
+    inputs = [_input_record("beam", beam_photo)]
+    image = linearize(beam_photo, resp)
+
+    # ---- ambient (light-off) subtraction
+    if ambient is not None:
+        amb_photo = _photo(ambient, "ambient")
+        if amb_photo.shape != beam_photo.shape:
+            raise BeamshotError(f"{amb_photo.name}: the ambient photo is {amb_photo.shape[1]}x{amb_photo.shape[0]}, "
+                                f"the beam photo {beam_photo.shape[1]}x{beam_photo.shape[0]}; take both from the same camera and position")
+        inputs.append(_input_record("ambient", amb_photo))
+        amb = linearize(amb_photo, resp)
+        ratio = 1.0
+        pb, pa = beam_photo.exif.exposure_product(), amb_photo.exif.exposure_product()
+        if pb and pa:
+            ratio = pb / pa
+        elif pb != pa:
+            warnings.append("the ambient photo's exposure is not in EXIF; assumed equal to the beam photo's")
+        image = image.with_values(np.clip(image.rgb - ratio * amb.rgb, 0.0, None))
+        amb_note = {"file": amb_photo.name, "exposure_ratio": ratio}
+    else:
+        amb_note = None
+
+    # ---- flat field
+    flat_note = None
+    if flat is not None:
+        flat_photo = _photo(flat, "flat")
+        if flat_photo.shape != beam_photo.shape:
+            raise BeamshotError(f"{flat_photo.name}: the flat-field photo is {flat_photo.shape[1]}x{flat_photo.shape[0]}, "
+                                f"the beam photo {beam_photo.shape[1]}x{beam_photo.shape[0]}; shoot it with the same camera and settings")
+        inputs.append(_input_record("flat", flat_photo))
+        ff = fit_flat_field(linearize(flat_photo, resp).luminance)
+        v = ff.evaluate(image.shape)
+        image = LinearImage(rgb=image.rgb / v[..., None], luminance=image.luminance / v,
+                            saturated=image.saturated, bin_factor=image.bin_factor, full_shape=image.full_shape)
+        flat_note = {"file": flat_photo.name, "model": "1 + a1 r^2 + a2 r^4 + a3 r^6",
+                     "coefficients": list(ff.coefficients), "residual_rms": ff.residual_rms}
+
+    # ---- wall mapping (pinhole, square to the wall)
+    shape = beam_photo.shape
+    if hfov_deg is not None:
+        f_px, f_src = focal_px_from_hfov(hfov_deg, shape), f"horizontal field of view {hfov_deg:g} deg (option)"
+        f_u = FOCAL_35MM_CONVENTION_UNCERTAINTY
+    else:
+        f35 = focal_35mm if focal_35mm is not None else beam_photo.exif.focal_35mm_mm
+        if f35 is None:
+            raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
+                                "give --focal-35mm (mm) or --hfov (degrees)")
+        src = "option" if focal_35mm is not None else "EXIF FocalLengthIn35mmFilm"
+        f_px, f_src = focal_px_from_35mm(f35, shape), f"35 mm-equivalent focal length {f35:g} mm ({src})"
+        f_u = float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35))
+    cam_d = distance_m if camera_distance_m is None else camera_distance_m
+    mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
+
+    axis = find_beam_axis(image.luminance, mapping, image.bin_factor, name=beam_photo.name)
+    if axis.ellipse_axes_mm is None:
+        warnings.append("the spill edge is not visible enough to centre on; the beam axis is the hotspot centre")
+
+    beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
+    shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+    pk = shape_.peak
+
+    # ---- absolute scale
+    if lux_at_peak is not None:
+        scale = scale_from_lux_meter(lux_at_peak, pk.value, pk.theta, distance_m, meter_accuracy=lux_meter_accuracy)
+        if pk.clipped:
+            warnings.append("the lux reading scales a clipped peak; the scale is unreliable until the hotspot is not clipped")
+    elif use_exif_scale:
+        scale = scale_from_exposure(beam_photo.exif, reflectance=reflectance)
+        if scale.kind == "none":
+            scale = no_scale(scale.description.removeprefix("no absolute scale: ") +
+                             "; give --lux-at-peak for absolute figures")
+    else:
+        scale = no_scale("no lux reading given and the exposure-metadata estimate is switched off")
+    if scale.absolute:
+        beam_out = beam.scaled(scale.lux_per_unit, "cd")
+    else:
+        beam_out = beam
+
+    figures = beam_figures(shape_, beam, scale, angle_scale_uncertainty=f_u,
+                           distance_rel_uncertainty=u_d / distance_m,
+                           axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0))
+
+    # ---- warnings a user should act on
+    if pk.clipped:
+        warnings.append("the hotspot is clipped: peak, hotspot and field figures are bounds or not measured; "
+                        "lower the exposure or bracket")
+    peak_level = float(np.nanmax(np.where(np.isfinite(image.luminance), image.luminance, 0)))
+    if not pk.clipped and peak_level < _LOW_EXPOSURE_LEVEL:
+        warnings.append(f"the brightest point is only {peak_level:.0%} of full scale; a longer exposure gives less noise")
+    if not shape_.edge.complete:
+        warnings.append(figures["spill_angle"].reason)
+    if ambient is None:
+        outside = _outside_level(beam, shape_)
+        if outside is not None and outside > 0.002 * pk.value:
+            warnings.append(f"the wall outside the beam is at {outside / pk.value:.1%} of the peak; "
+                            "room light adds to every figure - darken the room or give a light-off photo (--ambient)")
+    if np.degrees(pk.theta) > 3.0:
+        warnings.append(f"the hotspot is {np.degrees(pk.theta):.1f} deg off the spill centre")
+    if head_diameter_mm is not None and distance_m * 1000.0 < FAR_FIELD_FACTOR * head_diameter_mm:
+        warnings.append(f"the wall is closer than {FAR_FIELD_FACTOR:g}x the head diameter; the inverse-square "
+                        "law may not hold yet (IES five-times rule) - measure farther away")
+    if scale.kind == "exposure_metadata":
+        warnings.append("absolute figures are an estimate from exposure metadata "
+                        f"(±{scale.rel_uncertainty:.0%}); a lux-meter reading (--lux-at-peak) is far better")
+
+    settings = {
+        "distance_m": distance_m,
+        "distance_uncertainty_m": u_d,
+        "camera_distance_m": cam_d,
+        "camera_position": "beside the light, square to the wall" if camera_distance_m is None else "square to the wall",
+        "focal_length": f_src,
+        "focal_px": f_px,
+        "focal_relative_uncertainty": f_u,
+        "response": resp.describe(),
+        "lux_at_peak": lux_at_peak,
+        "reflectance": reflectance,
+        "use_exif_scale": use_exif_scale,
+        "head_diameter_mm": head_diameter_mm,
+        "working_bin_factor": image.bin_factor,
+        "theta_step_deg": float(np.degrees(beam.d_theta)),
+        "phi_step_deg": float(np.degrees(beam.d_phi)),
+    }
+    calibration = {
+        "camera_profile": "none (uncalibrated: parametric response, no stored camera constant)",
+        "response": resp.describe(),
+        "flat_field": flat_note or "none: vignetting not corrected (phones usually correct it in processing)",
+        "ambient": amb_note or "none: no light-off photo subtracted",
+        "absolute_scale": scale.to_dict(),
+        "wall_mapping": {"method": "pinhole camera square to the wall", "focal_px": f_px,
+                         "relative_scale_uncertainty": f_u},
+    }
+    beam_axis = {
+        "centre_mm": list(axis.centre_mm),
+        "uncertainty_mm": axis.uncertainty_mm,
+        "method": axis.method,
+        "spill_ellipse_axes_mm": list(axis.ellipse_axes_mm) if axis.ellipse_axes_mm else None,
+        "peak_direction_deg": {"theta": float(np.degrees(pk.theta)), "phi": float(np.degrees(pk.phi))},
+    }
+    return BeamReport(
+        figures=figures,
+        inputs=inputs,
+        settings=settings,
+        calibration=calibration,
+        beam_axis=beam_axis,
+        warnings=warnings,
+        profile=radial_profile(beam_out),
+        beam=beam_out,
+        contours={"hotspot": shape_.hotspot, "field": shape_.field, "edge": shape_.edge, "peak": pk},
+        created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        tool_version=__version__,
+    )
+
+
+def _outside_level(beam, shape) -> float | None:
+    """Median relative intensity beyond the spill edge (None if the edge is not complete)."""
+    edge = shape.edge
+    if not edge.complete:
+        return None
+    tt = np.broadcast_to(beam.theta[:, None], beam.intensity.shape)
+    pp = np.broadcast_to(beam.phi[None, :], beam.intensity.shape)
+    out = (tt > edge.at(pp) + np.radians(3.0)) & beam.valid
+    if out.sum() < 50:
+        return None
+    return float(np.median(beam.intensity[out]))
+
+
+def _input_record(role: str, photo: Photo) -> dict:
+    ex = asdict(photo.exif)
+    return {"role": role, "name": photo.name, "sha256": photo.sha256, "width": int(photo.shape[1]),
+            "height": int(photo.shape[0]), "bits": 8 if photo.max_code == 255 else 16, "exif": ex}

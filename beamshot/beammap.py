@@ -1,0 +1,121 @@
+"""BeamMap: luminous intensity on a regular polar angular grid about the beam axis.
+
+``intensity[k, j]`` is the intensity toward polar angle ``theta[k]`` (from the beam axis)
+and azimuth ``phi[j]`` (counter-clockwise from the right, as seen from behind the light);
+both grids hold cell *centres*, in radians, with steps ``d_theta`` and ``d_phi``.  Values
+are NaN where the photo does not cover the direction.  Units are ``unit``: ``"cd"`` with an
+absolute scale, otherwise ``"relative"`` (linear camera units times m^2).
+
+Conversion from the wall (light square to the wall, axis at the wall foot point):
+``I = E D^2 / cos^3(theta)`` (IES 9.1.1/9.1.2, see :mod:`beamshot.photometry`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import cv2
+import numpy as np
+from scipy.ndimage import map_coordinates
+
+from .camera.linearize import LinearImage
+from .photometry import intensity_from_wall_illuminance, polar_cell_solid_angles
+from .wall import WallMapping
+
+__all__ = ["THETA_STEP_DEG", "PHI_STEP_DEG", "BeamMap", "build_beam_map", "directions"]
+
+#: Polar-angle step of the grid, degrees (resolves a 2-degree hotspot with 20 steps).
+THETA_STEP_DEG = 0.05
+#: Azimuth step of the grid, degrees.
+PHI_STEP_DEG = 1.0
+#: Largest polar angle mapped, degrees.
+THETA_LIMIT_DEG = 85.0
+
+
+@dataclass(frozen=True)
+class BeamMap:
+    """Intensity on a polar grid; see the module docstring for conventions."""
+
+    theta: np.ndarray = field(repr=False)
+    phi: np.ndarray = field(repr=False)
+    intensity: np.ndarray = field(repr=False)
+    saturated: np.ndarray = field(repr=False)
+    distance_m: float
+    unit: str = "relative"
+
+    @property
+    def d_theta(self) -> float:
+        return float(self.theta[1] - self.theta[0])
+
+    @property
+    def d_phi(self) -> float:
+        return float(2 * np.pi / len(self.phi))
+
+    @property
+    def valid(self) -> np.ndarray:
+        return np.isfinite(self.intensity)
+
+    def cell_solid_angles(self) -> np.ndarray:
+        """Solid angle (sr) of each cell, shape ``(n_theta, 1)`` (broadcasts over phi)."""
+        edges = np.r_[self.theta - self.d_theta / 2, self.theta[-1] + self.d_theta / 2]
+        edges[0] = max(edges[0], 0.0)
+        return polar_cell_solid_angles(edges, len(self.phi))[:, None]
+
+    def scaled(self, factor: float, unit: str) -> "BeamMap":
+        """A copy with intensities multiplied by ``factor`` and a new unit."""
+        return replace(self, intensity=self.intensity * factor, unit=unit)
+
+    def sample(self, vectors: np.ndarray) -> np.ndarray:
+        """Bilinear intensity toward unit vectors ``(..., 3)`` in the beam frame (NaN outside)."""
+        v = np.asarray(vectors, float)
+        th = np.arccos(np.clip(v[..., 2], -1.0, 1.0))
+        ph = np.mod(np.arctan2(v[..., 1], v[..., 0]), 2 * np.pi)
+        k = (th - self.theta[0]) / self.d_theta
+        j = (ph - self.phi[0]) / self.d_phi
+        # wrap in azimuth by padding one column on each side; clamp theta below the first centre
+        padded = np.concatenate([self.intensity[:, -1:], self.intensity, self.intensity[:, :1]], axis=1)
+        k = np.clip(k, 0.0, None)
+        coords = np.stack([k.ravel(), (j + 1.0).ravel()])
+        out = map_coordinates(padded, coords, order=1, mode="constant", cval=np.nan, prefilter=False)
+        out[k.ravel() > len(self.theta) - 1] = np.nan
+        return out.reshape(th.shape)
+
+
+def directions(theta: np.ndarray, phi: np.ndarray) -> np.ndarray:
+    """Unit vectors ``(..., 3)`` for polar angle ``theta`` and azimuth ``phi`` (radians)."""
+    st = np.sin(theta)
+    return np.stack(np.broadcast_arrays(st * np.cos(phi), st * np.sin(phi), np.cos(theta)), axis=-1)
+
+
+def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[float, float],
+                   distance_m: float, *, theta_step_deg: float | None = None,
+                   phi_step_deg: float | None = None) -> BeamMap:
+    """Resample the linear luminance onto the polar grid and convert to relative intensity.
+
+    Pixel values are proportional to wall luminance, and for a Lambertian wall to
+    illuminance ``E``; intensity follows from ``I = E D^2 / cos^3(theta)``.
+    """
+    d_theta = np.radians(THETA_STEP_DEG if theta_step_deg is None else theta_step_deg)
+    d_phi = np.radians(PHI_STEP_DEG if phi_step_deg is None else phi_step_deg)
+    h_full, w_full = image.full_shape
+    corners = mapping.image_to_wall(np.array([[0, 0], [w_full - 1, 0], [0, h_full - 1], [w_full - 1, h_full - 1]], float))
+    reach_mm = float(np.max(np.hypot(corners[:, 0] - axis_mm[0], corners[:, 1] - axis_mm[1])))
+    theta_max = min(np.arctan(reach_mm / (distance_m * 1000.0)), np.radians(THETA_LIMIT_DEG))
+    n_theta = max(2, int(np.ceil(theta_max / d_theta)))
+    n_phi = int(round(2 * np.pi / d_phi))
+    theta = (np.arange(n_theta) + 0.5) * d_theta
+    phi = (np.arange(n_phi) + 0.5) * (2 * np.pi / n_phi)
+    tt, pp = np.meshgrid(theta, phi, indexing="ij")
+    rho = distance_m * 1000.0 * np.tan(tt)
+    wall = np.stack([axis_mm[0] + rho * np.cos(pp), axis_mm[1] + rho * np.sin(pp)], axis=-1)
+    full_xy = mapping.wall_to_image(wall)
+    b = image.bin_factor
+    work = (full_xy - (b - 1) / 2.0) / b
+    mx = work[..., 0].astype(np.float32)
+    my = work[..., 1].astype(np.float32)
+    lum = cv2.remap(image.luminance, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT,
+                    borderValue=float("nan"))
+    sat = cv2.remap(image.saturated.astype(np.uint8), mx, my, cv2.INTER_NEAREST,
+                    borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
+    intensity = intensity_from_wall_illuminance(lum.astype(np.float64), tt, distance_m)
+    return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m)

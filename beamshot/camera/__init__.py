@@ -1,0 +1,1 @@
+"""Camera models: response curves, exposure relations, flat field."""

@@ -1,0 +1,53 @@
+"""Flat field: a smooth vignetting model fitted to a photo of an evenly lit white target.
+
+Model (radially symmetric about the image centre, r normalised to the half-diagonal):
+``V(r) = 1 + a1 r^2 + a2 r^4 + a3 r^6``, fitted by least squares to block means of the
+linear luminance and normalised to 1 on the optical axis.  Dividing a linear image by V
+removes natural cos^4 fall-off and lens/processing vignetting (flat-field correction as in
+EMVA 1288 terminology: the gain non-uniformity part).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["FlatField", "fit_flat_field"]
+
+_BLOCKS = 48
+
+
+@dataclass(frozen=True)
+class FlatField:
+    """Coefficients ``(a1, a2, a3)`` of V(r) and the RMS residual of the fit (relative)."""
+
+    coefficients: tuple[float, float, float]
+    residual_rms: float
+    shape: tuple[int, int]
+
+    def evaluate(self, shape: tuple[int, int]) -> np.ndarray:
+        """V at the centres of an image of ``shape`` (same aspect as the flat), float32."""
+        h, w = shape
+        y, x = np.mgrid[0:h, 0:w].astype(np.float64)
+        r2 = ((x - (w - 1) / 2) ** 2 + (y - (h - 1) / 2) ** 2) / (((w - 1) / 2) ** 2 + ((h - 1) / 2) ** 2)
+        a1, a2, a3 = self.coefficients
+        return (1 + a1 * r2 + a2 * r2**2 + a3 * r2**3).astype(np.float32)
+
+
+def fit_flat_field(luminance: np.ndarray) -> FlatField:
+    """Fit V(r) to a linear luminance image of a flat target, shape ``(h, w)``."""
+    h, w = luminance.shape
+    bh, bw = max(1, h // _BLOCKS), max(1, w // _BLOCKS)
+    nh, nw = h // bh, w // bw
+    blocks = luminance[: nh * bh, : nw * bw].reshape(nh, bh, nw, bw).mean(axis=(1, 3)).astype(np.float64)
+    y = (np.arange(nh) + 0.5) * bh - 0.5
+    x = (np.arange(nw) + 0.5) * bw - 0.5
+    yy, xx = np.meshgrid(y, x, indexing="ij")
+    r2 = ((xx - (w - 1) / 2) ** 2 + (yy - (h - 1) / 2) ** 2) / (((w - 1) / 2) ** 2 + ((h - 1) / 2) ** 2)
+    a = np.c_[np.ones(r2.size), r2.ravel(), r2.ravel() ** 2, r2.ravel() ** 3]
+    coef, *_ = np.linalg.lstsq(a, blocks.ravel(), rcond=None)
+    c0 = coef[0]
+    model = a @ coef
+    resid = float(np.sqrt(np.mean((blocks.ravel() / model - 1) ** 2)))
+    return FlatField(coefficients=tuple(float(c / c0) for c in coef[1:]), residual_rms=resid, shape=(h, w))

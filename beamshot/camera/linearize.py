@@ -1,0 +1,119 @@
+"""Linearise a decoded photo: response curve, saturation mask, binning to a working size.
+
+The result is a :class:`LinearImage`: linear RGB normalised to 1 at clipping, its relative
+luminance (BT.709 weights on *linear* values), and a mask of pixels that touched clipping.
+Binning averages linear values (never encoded ones), so it is photometrically exact.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import cv2
+import numpy as np
+
+from ..photo import Photo
+from .response import LUMINANCE_WEIGHTS_BT709, Response
+
+__all__ = [
+    "WORKING_MAX_SIDE",
+    "SATURATION_CODE_FRACTION",
+    "LinearImage",
+    "linearize",
+    "bin_factor_for",
+]
+
+#: The longest side of the working image, in pixels (finer than 0.05 deg for a 70 deg view).
+WORKING_MAX_SIDE = 2048
+#: A pixel whose largest channel reaches this fraction of full code is treated as clipped
+#: (JPEG ringing spreads clipped areas over the top few codes; common practice).
+SATURATION_CODE_FRACTION = 250.0 / 255.0
+#: Rows decoded to linear per step, to bound memory on large photos.
+_STRIP_ROWS = 512
+
+
+@dataclass(frozen=True)
+class LinearImage:
+    """Linear image at working resolution.
+
+    ``rgb`` is ``(h, w, 3)`` float32 linear (1 = clipping), ``luminance`` is ``(h, w)``,
+    ``saturated`` is ``(h, w)`` bool.  Working pixel ``(row, col)`` covers full-resolution
+    pixels ``[row*b, row*b + b)`` x ``[col*b, col*b + b)`` with ``b = bin_factor``.
+    """
+
+    rgb: np.ndarray = field(repr=False)
+    luminance: np.ndarray = field(repr=False)
+    saturated: np.ndarray = field(repr=False)
+    bin_factor: int
+    full_shape: tuple[int, int]
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.luminance.shape
+
+    def with_values(self, rgb: np.ndarray) -> "LinearImage":
+        """Same geometry and saturation mask, new linear RGB (luminance recomputed)."""
+        return LinearImage(
+            rgb=rgb.astype(np.float32, copy=False),
+            luminance=relative_luminance(rgb),
+            saturated=self.saturated,
+            bin_factor=self.bin_factor,
+            full_shape=self.full_shape,
+        )
+
+
+def relative_luminance(rgb: np.ndarray) -> np.ndarray:
+    """BT.709 relative luminance of linear RGB ``(..., 3)``."""
+    w = np.asarray(LUMINANCE_WEIGHTS_BT709, dtype=np.float32)
+    return (rgb.astype(np.float32, copy=False) @ w).astype(np.float32)
+
+
+def bin_factor_for(shape: tuple[int, int], max_side: int | None = None) -> int:
+    """Integer binning so the longest side is at most ``max_side`` working pixels.
+
+    >>> bin_factor_for((3000, 4000))
+    2
+    """
+    limit = WORKING_MAX_SIDE if max_side is None else max_side
+    return max(1, int(np.ceil(max(shape) / limit)))
+
+
+def linearize(photo: Photo, response: Response, *, max_side: int | None = None) -> LinearImage:
+    """Decode the response curve and bin ``photo`` to the working resolution."""
+    pixels = photo.pixels
+    height, width = pixels.shape[:2]
+    b = bin_factor_for((height, width), max_side)
+    h, w = height // b, width // b
+    lut = response.lookup_table(photo.max_code + 1)
+    clip_code = int(np.ceil(SATURATION_CODE_FRACTION * photo.max_code))
+    rgb = np.empty((h, w, 3), np.float32)
+    saturated = np.empty((h, w), bool)
+    step = max(b, (_STRIP_ROWS // b) * b)
+    for top in range(0, h * b, step):
+        bottom = min(top + step, h * b)
+        strip = pixels[top:bottom, : w * b]
+        if strip.dtype == np.uint8:
+            lin = cv2.LUT(strip, lut.reshape(1, -1))
+        else:
+            lin = lut[strip]
+        rows = (bottom - top) // b
+        out_rows = slice(top // b, top // b + rows)
+        if b == 1:
+            rgb[out_rows] = lin
+            saturated[out_rows] = strip.max(axis=2) >= clip_code
+        else:
+            rgb[out_rows] = cv2.resize(lin, (w, rows), interpolation=cv2.INTER_AREA)
+            clipped = (strip.max(axis=2) >= clip_code).astype(np.uint8)
+            saturated[out_rows] = _any_in_blocks(clipped, b, rows, w)
+    return LinearImage(
+        rgb=rgb,
+        luminance=relative_luminance(rgb),
+        saturated=saturated,
+        bin_factor=b,
+        full_shape=(height, width),
+    )
+
+
+def _any_in_blocks(mask: np.ndarray, b: int, rows: int, cols: int) -> np.ndarray:
+    """True where any pixel of a ``b x b`` block is set; ``mask`` is ``(rows*b, cols*b)``."""
+    return mask[: rows * b, : cols * b].reshape(rows, b, cols, b).max(axis=(1, 3)) > 0

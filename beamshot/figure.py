@@ -1,0 +1,60 @@
+"""Figure: one reported number with its uncertainty, unit, method and status."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["Figure", "not_measured"]
+
+#: Status values: the number was measured; is only a bound; is an estimate from assumptions;
+#: or could not be measured (``value`` is None and ``reason`` says why).
+STATUSES = ("measured", "lower_bound", "upper_bound", "estimate", "not_measured")
+
+
+@dataclass(frozen=True)
+class Figure:
+    """A reported figure.  ``uncertainty`` is a 1-sigma standard uncertainty in ``unit``."""
+
+    value: float | None
+    uncertainty: float | None
+    unit: str
+    method: str
+    status: str = "measured"
+    reason: str | None = None
+
+    def __post_init__(self):
+        if self.status not in STATUSES:
+            raise ValueError(f"status must be one of {STATUSES}, not {self.status!r}")
+        if self.status == "not_measured" and self.value is not None:
+            raise ValueError("a figure that is not measured has no value")
+
+    @property
+    def known(self) -> bool:
+        return self.value is not None and self.status in ("measured", "estimate")
+
+    def to_dict(self) -> dict:
+        def clean(x):
+            return None if x is None else float(f"{x:.6g}")
+
+        return {
+            "value": clean(self.value),
+            "uncertainty": clean(self.uncertainty),
+            "unit": self.unit,
+            "status": self.status,
+            "method": self.method,
+            "reason": self.reason,
+        }
+
+    def text(self, digits: int = 3) -> str:
+        """Human-readable ``value ± u unit`` (or the reason it is missing)."""
+        if self.value is None:
+            return f"not measured ({self.reason})"
+        prefix = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "}.get(self.status, "")
+        u = f" ± {self.uncertainty:.{digits}g}" if self.uncertainty is not None else ""
+        unit = f" {self.unit}" if self.unit else ""
+        return f"{prefix}{self.value:.{digits}g}{u}{unit}"
+
+
+def not_measured(unit: str, method: str, reason: str) -> Figure:
+    """A figure that could not be measured, with the reason in plain words."""
+    return Figure(value=None, uncertainty=None, unit=unit, method=method, status="not_measured", reason=reason)

@@ -1,0 +1,206 @@
+"""Decoding photos (JPEG, PNG, 8/16-bit TIFF) with their EXIF exposure facts.
+
+Pixels come back as RGB, shape ``(H, W, 3)``, row 0 at the top, dtype uint8 or uint16,
+already turned upright according to the EXIF Orientation tag (Exif 2.3, tag 0x0112).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import os
+from dataclasses import dataclass, field
+
+import cv2
+import numpy as np
+from PIL import Image, UnidentifiedImageError
+
+from .errors import BeamshotError
+
+__all__ = ["MAX_MEGAPIXELS", "ExifFacts", "Photo", "load_photo", "decode_photo", "apply_orientation"]
+
+#: Largest photo accepted, in megapixels (the largest phone sensors are 200 MP).
+MAX_MEGAPIXELS = 250.0
+
+# Exif tag numbers (Exif 2.3 / CIPA DC-008).
+_TAG_ORIENTATION = 0x0112
+_TAG_MAKE = 0x010F
+_TAG_MODEL = 0x0110
+_TAG_EXIF_IFD = 0x8769
+_TAG_EXPOSURE_TIME = 0x829A
+_TAG_F_NUMBER = 0x829D
+_TAG_ISO = 0x8827
+_TAG_FOCAL_LENGTH = 0x920A
+_TAG_FOCAL_35MM = 0xA405
+
+
+@dataclass(frozen=True)
+class ExifFacts:
+    """Exposure facts read from EXIF; ``None`` where the file does not say."""
+
+    exposure_time_s: float | None = None
+    f_number: float | None = None
+    iso: float | None = None
+    focal_length_mm: float | None = None
+    focal_35mm_mm: float | None = None
+    make: str | None = None
+    model: str | None = None
+    orientation: int = 1
+
+    @property
+    def has_exposure(self) -> bool:
+        return None not in (self.exposure_time_s, self.f_number, self.iso)
+
+    def exposure_product(self) -> float | None:
+        """``t S / N^2``: linear signal scales with this for a fixed scene (s)."""
+        if not self.has_exposure:
+            return None
+        return self.exposure_time_s * self.iso / self.f_number**2
+
+
+@dataclass(frozen=True)
+class Photo:
+    """A decoded photo: upright RGB pixels and where they came from."""
+
+    pixels: np.ndarray = field(repr=False)
+    exif: ExifFacts
+    name: str
+    sha256: str
+    max_code: int
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.pixels.shape[:2]
+
+
+def _number(value) -> float | None:
+    if value is None:
+        return None
+    if isinstance(value, tuple):  # some writers store one-element tuples
+        value = value[0] if value else None
+        if value is None:
+            return None
+    try:
+        x = float(value)
+    except (TypeError, ValueError, ZeroDivisionError):
+        return None
+    return x if np.isfinite(x) and x > 0 else None
+
+
+def _text(value) -> str | None:
+    if value is None:
+        return None
+    s = str(value).strip("\x00 ").strip()
+    return s or None
+
+
+def read_exif(image: Image.Image) -> ExifFacts:
+    """Exposure facts from a Pillow image's EXIF block (missing tags give ``None``)."""
+    exif = image.getexif()
+    sub = exif.get_ifd(_TAG_EXIF_IFD)
+
+    def get(tag):
+        return sub.get(tag, exif.get(tag))
+
+    orientation = exif.get(_TAG_ORIENTATION, 1)
+    try:
+        orientation = int(orientation)
+    except (TypeError, ValueError):
+        orientation = 1
+    if orientation not in range(1, 9):
+        orientation = 1
+    return ExifFacts(
+        exposure_time_s=_number(get(_TAG_EXPOSURE_TIME)),
+        f_number=_number(get(_TAG_F_NUMBER)),
+        iso=_number(get(_TAG_ISO)),
+        focal_length_mm=_number(get(_TAG_FOCAL_LENGTH)),
+        focal_35mm_mm=_number(get(_TAG_FOCAL_35MM)),
+        make=_text(exif.get(_TAG_MAKE)),
+        model=_text(exif.get(_TAG_MODEL)),
+        orientation=orientation,
+    )
+
+
+def apply_orientation(pixels: np.ndarray, orientation: int) -> np.ndarray:
+    """Turn pixels upright for an EXIF Orientation value 1-8 (Exif 2.3 tag 0x0112).
+
+    The value says where row 0 / column 0 of the stored image belong: 3 = rotate 180,
+    6 = rotate 90 degrees clockwise to view, 8 = rotate 90 counter-clockwise, 2/4 mirror,
+    5 = transpose, 7 = transverse.
+
+    >>> a = np.arange(6).reshape(2, 3)
+    >>> apply_orientation(a, 6).tolist()
+    [[3, 0], [4, 1], [5, 2]]
+    """
+    if orientation == 2:
+        return pixels[:, ::-1]
+    if orientation == 3:
+        return pixels[::-1, ::-1]
+    if orientation == 4:
+        return pixels[::-1, :]
+    if orientation == 5:
+        return np.swapaxes(pixels, 0, 1)
+    if orientation == 6:
+        return np.rot90(pixels, k=-1)
+    if orientation == 7:
+        return np.swapaxes(pixels[::-1, ::-1], 0, 1)
+    if orientation == 8:
+        return np.rot90(pixels, k=1)
+    return pixels
+
+
+def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float | None = None) -> Photo:
+    """Decode image bytes into a :class:`Photo`; raises :class:`BeamshotError` on bad input."""
+    limit = MAX_MEGAPIXELS if max_megapixels is None else max_megapixels
+    if len(data) == 0:
+        raise BeamshotError(f"{name}: the file is empty; give a JPEG, PNG or TIFF photo")
+    try:
+        with Image.open(io.BytesIO(data)) as probe:
+            width, height = probe.size
+            fmt = probe.format
+            exif = read_exif(probe)
+    except (UnidentifiedImageError, OSError, SyntaxError, ValueError):
+        raise BeamshotError(f"{name}: not a readable image; give a JPEG, PNG or TIFF photo") from None
+    except Image.DecompressionBombError:
+        raise BeamshotError(f"{name}: the image claims an absurd size; it is refused") from None
+    if fmt not in ("JPEG", "PNG", "TIFF", "MPO"):
+        raise BeamshotError(f"{name}: {fmt} images are not supported; give a JPEG, PNG or TIFF photo")
+    megapixels = width * height / 1e6
+    if megapixels > limit:
+        raise BeamshotError(
+            f"{name}: {width}x{height} is {megapixels:.0f} MP, above the {limit:.0f} MP limit; "
+            "downscale the photo or check the file"
+        )
+    if fmt in ("JPEG", "MPO") and b"\xff\xd9" not in data[-4096:]:
+        raise BeamshotError(f"{name}: the JPEG is truncated (no end marker); copy the file again")
+    flags = cv2.IMREAD_COLOR | cv2.IMREAD_ANYDEPTH | cv2.IMREAD_IGNORE_ORIENTATION
+    bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
+    if bgr is None or bgr.size == 0:
+        raise BeamshotError(f"{name}: the image data is corrupt; copy the file again")
+    if bgr.dtype not in (np.uint8, np.uint16):
+        raise BeamshotError(f"{name}: {bgr.dtype} pixels are not supported; give 8- or 16-bit images")
+    rgb = cv2.cvtColor(bgr, cv2.COLOR_BGR2RGB)
+    rgb = np.ascontiguousarray(apply_orientation(rgb, exif.orientation))
+    max_code = 255 if rgb.dtype == np.uint8 else 65535
+    return Photo(
+        pixels=rgb,
+        exif=exif,
+        name=name,
+        sha256=hashlib.sha256(data).hexdigest(),
+        max_code=max_code,
+    )
+
+
+def load_photo(path: str | os.PathLike, *, max_megapixels: float | None = None) -> Photo:
+    """Read and decode a photo file (see :func:`decode_photo`)."""
+    name = os.path.basename(os.fspath(path))
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read()
+    except FileNotFoundError:
+        raise BeamshotError(f"{path}: no such file; check the path") from None
+    except IsADirectoryError:
+        raise BeamshotError(f"{path}: is a folder, not a photo") from None
+    except OSError as exc:
+        raise BeamshotError(f"{path}: cannot be read ({exc.strerror})") from None
+    return decode_photo(data, name, max_megapixels=max_megapixels)

@@ -1,0 +1,1 @@
+"""Report writers: JSON, CSV profile and the beam picture."""

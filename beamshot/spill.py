@@ -1,0 +1,162 @@
+"""The outer edge of the spill: where the bezel (or reflector rim) cuts the beam off.
+
+Method (this project's own, documented in docs/figures.md):
+
+1. Average the map over azimuth sectors of ``SECTOR_DEG``; smooth each sector profile.
+2. A *sharp cut-off* at ``theta`` is a drop of at least ``EDGE_MIN_CONTRAST`` times between
+   ``theta - EDGE_PROBE_DEG`` and ``theta + EDGE_PROBE_DEG``, preceded by a plateau (the
+   profile over the ``2 * EDGE_PROBE_DEG`` inside keeps at least ``EDGE_PLATEAU_RATIO`` of
+   its level) so that the flank of a hotspot is not mistaken for the rim.  The outermost
+   such drop is taken; the edge is where the profile crosses the mean of the inner and
+   outer levels (the half-level point of the cut-off).
+3. With no sharp cut-off, the edge is where the profile falls to ``SPILL_FLOOR_FRACTION`` of
+   the peak (or to 5 noise sigmas, whichever is higher), and the method says so.
+4. If the profile leaves the photo first, the edge is not in the photo for that sector.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.ndimage import gaussian_filter1d
+
+from .beammap import BeamMap
+
+__all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST", "EDGE_PLATEAU_RATIO",
+           "SPILL_FLOOR_FRACTION", "SpillEdge", "find_spill_edge"]
+
+SECTOR_DEG = 10.0
+EDGE_PROBE_DEG = 1.5
+EDGE_MIN_CONTRAST = 3.0
+EDGE_PLATEAU_RATIO = 0.5
+#: Fallback threshold for a beam with no sharp cut-off, as a fraction of peak (project choice).
+SPILL_FLOOR_FRACTION = 0.005
+_SMOOTH_DEG = 0.15
+
+
+@dataclass(frozen=True)
+class SpillEdge:
+    """Spill edge per sector: ``theta[s]`` (rad, NaN if not in the photo) at ``phi[s]``.
+
+    ``kind[s]`` is ``'cutoff'`` (sharp edge), ``'threshold'`` (fallback) or ``'outside'``;
+    ``sigma[s]`` is the 1-sigma uncertainty (rad); ``coverage[s]`` the largest polar angle
+    the photo covers in that sector (rad).
+    """
+
+    phi: np.ndarray
+    theta: np.ndarray
+    sigma: np.ndarray
+    kind: tuple[str, ...]
+    coverage: np.ndarray
+
+    @property
+    def complete(self) -> bool:
+        return bool(np.all(np.isfinite(self.theta)))
+
+    @property
+    def sharp_fraction(self) -> float:
+        return sum(k == "cutoff" for k in self.kind) / len(self.kind)
+
+    def full_angle(self) -> float:
+        """Full angle (rad) of the cone with the same solid angle as the edge encloses."""
+        return float(2.0 * np.arccos(np.mean(np.cos(self.theta))))
+
+    def full_angle_sigma(self) -> float:
+        a = self.full_angle() / 2
+        n = len(self.theta)
+        dm = np.sqrt(np.sum((np.sin(self.theta) * self.sigma / n) ** 2))
+        return float(2 * dm / max(np.sin(a), 1e-9))
+
+    def across(self, phi_deg: float) -> tuple[float, float]:
+        """Full angle (rad) across the beam axis along ``phi_deg`` and its 1-sigma."""
+        i = int(round(phi_deg / SECTOR_DEG)) % len(self.phi)
+        j = (i + len(self.phi) // 2) % len(self.phi)
+        return float(self.theta[i] + self.theta[j]), float(np.hypot(self.sigma[i], self.sigma[j]))
+
+    def at(self, phi: np.ndarray) -> np.ndarray:
+        """Edge angle (rad) interpolated periodically at azimuths ``phi`` (rad)."""
+        p = np.r_[self.phi - 2 * np.pi, self.phi, self.phi + 2 * np.pi]
+        t = np.r_[self.theta, self.theta, self.theta]
+        return np.interp(np.mod(phi, 2 * np.pi), p, t)
+
+
+def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
+    n_sec = int(round(360.0 / SECTOR_DEG))
+    phi_deg = np.degrees(beam.phi)
+    centres = np.arange(n_sec) * SECTOR_DEG
+    profiles = np.full((n_sec, len(beam.theta)), np.nan)
+    for s, c in enumerate(centres):
+        d = (phi_deg - c + 180.0) % 360.0 - 180.0
+        cols = np.abs(d) < SECTOR_DEG / 2
+        block = beam.intensity[:, cols]
+        with np.errstate(invalid="ignore"):
+            prof = block.mean(axis=1)  # NaN if any column is outside the photo
+        profiles[s] = prof
+    return np.radians(centres), profiles
+
+
+def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
+    """Find the outer spill edge in every sector (see module docstring)."""
+    phi, profiles = _sector_profiles(beam)
+    step_deg = np.degrees(beam.d_theta)
+    k = max(1, int(round(EDGE_PROBE_DEG / step_deg)))
+    sm = max(0.5, _SMOOTH_DEG / step_deg)
+    n_sec, n_t = profiles.shape
+    theta = np.full(n_sec, np.nan)
+    sigma = np.full(n_sec, np.nan)
+    coverage = np.zeros(n_sec)
+    kinds = []
+    for s in range(n_sec):
+        p = profiles[s]
+        finite = np.isfinite(p)
+        last = int(np.argmin(finite)) if not finite.all() else n_t
+        coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
+        if last < 4 * k:
+            kinds.append("outside")
+            continue
+        ps = gaussian_filter1d(p[:last], sm, mode="nearest")
+        resid = p[:last] - ps
+        noise = 1.4826 * float(np.median(np.abs(resid - np.median(resid)))) / np.sqrt(2 * np.sqrt(np.pi) * sm)
+        floor = max(5.0 * noise, peak_value * 1e-6)
+        # start beyond the half-peak point of this sector
+        start = int(np.argmax(ps < 0.5 * peak_value)) if np.any(ps < 0.5 * peak_value) else last
+        idx = np.arange(max(start, 3 * k), last - k)
+        found = None
+        if len(idx):
+            inner = ps[idx - k]
+            outer = np.maximum(ps[idx + k], floor)
+            before = ps[idx - 3 * k]
+            ok = (inner / outer >= EDGE_MIN_CONTRAST) & (inner >= 3 * floor) & (inner >= EDGE_PLATEAU_RATIO * before)
+            if np.any(ok):
+                cand = idx[ok]
+                # outermost contiguous run of candidates; the steepest log-drop inside it
+                breaks = np.nonzero(np.diff(cand) > 1)[0]
+                run = cand[breaks[-1] + 1:] if len(breaks) else cand
+                slope = -np.gradient(np.log(np.maximum(ps, floor)))[run]
+                c = int(run[np.argmax(slope)])
+                level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
+                seg = ps[c - k: c + k + 1]
+                below = np.nonzero(seg < level)[0]
+                if len(below) and below[0] > 0:
+                    i = c - k + below[0]
+                    frac = (ps[i - 1] - level) / (ps[i - 1] - ps[i])
+                    t = beam.theta[i - 1] + frac * beam.d_theta
+                    local_slope = max((ps[i - 1] - ps[i]) / beam.d_theta, 1e-30)
+                    found = (t, np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)), "cutoff")
+        if found is None:
+            level = max(SPILL_FLOOR_FRACTION * peak_value, floor)
+            j0 = start
+            below = np.nonzero(ps[j0:] < level)[0]
+            if len(below) and j0 + below[0] > 0:
+                i = j0 + below[0]
+                frac = (ps[i - 1] - level) / (ps[i - 1] - ps[i]) if ps[i - 1] != ps[i] else 0.5
+                t = beam.theta[i - 1] + frac * beam.d_theta
+                local_slope = max((ps[i - 1] - ps[i]) / beam.d_theta, 1e-30)
+                found = (t, np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)), "threshold")
+        if found is None:
+            kinds.append("outside")
+            continue
+        theta[s], sigma[s] = found[0], min(found[1], np.radians(2.0))
+        kinds.append(found[2])
+    return SpillEdge(phi=phi, theta=theta, sigma=sigma, kind=tuple(kinds), coverage=coverage)
