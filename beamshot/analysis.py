@@ -120,7 +120,7 @@ def analyze(
             ratio = pb / pa
         elif pb != pa:
             warnings.append("the ambient photo's exposure is not in EXIF; assumed equal to the beam photo's")
-        image = image.with_values(np.clip(image.rgb - ratio * amb.rgb, 0.0, None))
+        image = image.with_values(image.rgb - ratio * amb.rgb)  # no clipping: keeps noise unbiased
         amb_note = {"file": amb_photo.name, "exposure_ratio": ratio}
     else:
         amb_note = None

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 __all__ = ["Figure", "not_measured"]
 
 #: Status values: the number was measured; is only a bound; is an estimate from assumptions;
@@ -50,9 +52,22 @@ class Figure:
         if self.value is None:
             return f"not measured ({self.reason})"
         prefix = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "}.get(self.status, "")
-        u = f" ± {self.uncertainty:.{digits}g}" if self.uncertainty is not None else ""
+        u = f" ± {_number(self.uncertainty, 2)}" if self.uncertainty is not None else ""
         unit = f" {self.unit}" if self.unit else ""
-        return f"{prefix}{self.value:.{digits}g}{u}{unit}"
+        return f"{prefix}{_number(self.value, digits)}{u}{unit}"
+
+
+def _number(x: float, digits: int) -> str:
+    """``digits`` significant figures without exponent notation for everyday magnitudes.
+
+    >>> _number(9505.2, 3), _number(0.08862, 2), _number(61.95, 3)
+    ('9,510', '0.089', '62.0')
+    """
+    if x == 0 or not 1e-4 <= abs(x) < 1e9:
+        return f"{x:.{digits}g}"
+    rounded = float(f"{x:.{digits}g}")
+    decimals = max(0, digits - 1 - int(np.floor(np.log10(abs(rounded)))))
+    return f"{rounded:,.{decimals}f}"
 
 
 def not_measured(unit: str, method: str, reason: str) -> Figure:

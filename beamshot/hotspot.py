@@ -22,6 +22,8 @@ __all__ = ["Peak", "Contour", "find_peak", "trace_contour", "local_basis", "N_BE
 
 #: Number of rays (bearings) used to trace a contour.
 N_BEARINGS = 72
+#: Samples at or above this fraction of the maximum are used in the peak fit.
+PEAK_FIT_LEVEL = 0.95
 #: Smoothing along a ray before finding a crossing, in samples of the map's theta step.
 _RAY_SMOOTH_SAMPLES = 1.5
 
@@ -100,56 +102,73 @@ def _rays(centre, bearings, alphas):
 
 
 def find_peak(beam: BeamMap) -> Peak:
-    """Locate the maximum and refine its value with a local quadratic fit (least squares).
+    """Locate the maximum and refine it with a local quadratic fit (least squares).
 
-    The fit uses map samples within the region at or above 90 % of the coarse maximum (at
-    most 1 degree away), so noise does not bias the value upward the way a plain maximum does.
+    The fit uses samples at or above 95 % of the smoothed maximum on a tangent-plane patch
+    whose radius grows (0.75, 1.5, 3, 6 deg) until it reaches past the 95 % region, then is
+    re-centred on the fitted vertex once.  A broad, flat hotspot is thus located by its
+    shape rather than by its noisiest pixel, and the value is not biased upward by noise.
     """
     inten = beam.intensity
-    smooth = np.where(np.isfinite(inten), inten, -np.inf)
-    k, j = np.unravel_index(int(np.argmax(smooth)), smooth.shape)
-    theta0, phi0 = beam.theta[k], beam.phi[j]
-    centre = directions(theta0, phi0)
-    step = beam.d_theta
-    coarse = float(inten[k, j])
-    # sample a local patch on a Cartesian grid in the tangent plane
+    filled = np.where(np.isfinite(inten), inten, -np.inf)
+    # light smoothing (3 x 3 cells, wrapping in azimuth) to pick the starting point
+    pad = np.concatenate([filled[:, -1:], filled, filled[:, :1]], axis=1)
+    acc = sum(np.roll(pad, (dk, dj), axis=(0, 1)) for dk in (-1, 0, 1) for dj in (-1, 0, 1))[1:-1, 1:-1] / 9.0
+    acc[0], acc[-1] = filled[0], filled[-1]
+    k, j = np.unravel_index(int(np.argmax(acc)), acc.shape)
+    centre = directions(beam.theta[k], beam.phi[j])
+    coarse = float(acc[k, j])
+    value, rel_noise = coarse, 0.02
+    for _ in range(2):  # fit, re-centre on the vertex, fit again
+        fit = None
+        for radius_deg in (0.75, 1.5, 3.0, 6.0):
+            fit = _quadratic_peak(beam, centre, np.radians(radius_deg), coarse)
+            if fit is None or fit[3] < 0.6:
+                break
+        if fit is None:
+            break
+        value, rel_noise, centre = fit[0], fit[1], fit[2]
+    theta = float(np.arccos(np.clip(centre[2], -1, 1)))
+    phi = float(np.mod(np.arctan2(centre[1], centre[0]), 2 * np.pi))
+    near = np.isfinite(inten) & (inten >= 0.9 * value)
+    clipped = bool(np.any(beam.saturated & near))
+    return Peak(value=value, vector=centre, theta=theta, phi=phi, rel_noise=max(rel_noise, 1e-4), clipped=clipped)
+
+
+def _quadratic_peak(beam: BeamMap, centre: np.ndarray, radius: float, reference: float):
+    """Fit ``a + b.u + u^T C u`` to samples >= 95 % of ``reference`` on a patch of ``radius`` (rad).
+
+    Returns ``(value, relative noise, vertex vector, fraction of patch used)`` or None.
+    """
     n = 15
-    radius = step * n
     u = np.linspace(-radius, radius, 2 * n + 1)
     uu, vv = np.meshgrid(u, u, indexing="ij")
+    disc = np.hypot(uu, vv) <= radius
     e1, e2 = local_basis(centre)
     rr = np.hypot(uu, vv)
     vec = np.cos(rr)[..., None] * centre + np.sinc(rr / np.pi)[..., None] * (uu[..., None] * e1 + vv[..., None] * e2)
     vals = beam.sample(vec)
-    use = np.isfinite(vals) & (vals >= 0.9 * coarse)
-    value, rel_noise, offset = coarse, 0.02, (0.0, 0.0)
-    if use.sum() >= 12:
-        a = np.c_[np.ones(use.sum()), uu[use], vv[use], uu[use] ** 2, uu[use] * vv[use], vv[use] ** 2]
-        coef, *_ = np.linalg.lstsq(a, vals[use], rcond=None)
-        hess = np.array([[2 * coef[3], coef[4]], [coef[4], 2 * coef[5]]])
-        resid = vals[use] - a @ coef
-        rel_noise = float(np.std(resid) / np.sqrt(use.sum() / 6.0) / max(coarse, 1e-30))
-        try:
-            if np.all(np.linalg.eigvalsh(hess) < 0):
-                off = np.linalg.solve(hess, -coef[1:3])
-                if np.hypot(*off) <= radius:
-                    offset = (float(off[0]), float(off[1]))
-                    value = float(coef[0] + 0.5 * (coef[1] * off[0] + coef[2] * off[1]))
-                else:
-                    value = float(np.max(vals[use]))
-            else:
-                value = float(np.mean(vals[use & (vals >= np.percentile(vals[use], 75))]))
-        except np.linalg.LinAlgError:
-            value = coarse
-    rr0 = np.hypot(*offset)
-    vec0 = np.cos(rr0) * centre + np.sinc(rr0 / np.pi) * (offset[0] * e1 + offset[1] * e2)
-    vec0 = vec0 / np.linalg.norm(vec0)
-    theta = float(np.arccos(np.clip(vec0[2], -1, 1)))
-    phi = float(np.mod(np.arctan2(vec0[1], vec0[0]), 2 * np.pi))
-    # clipped if any saturated map cell lies within the >= 90 % region around the peak
-    near = np.isfinite(inten) & (inten >= 0.9 * coarse)
-    clipped = bool(np.any(beam.saturated & near))
-    return Peak(value=value, vector=vec0, theta=theta, phi=phi, rel_noise=max(rel_noise, 1e-4), clipped=clipped)
+    use = disc & np.isfinite(vals) & (vals >= PEAK_FIT_LEVEL * reference)
+    if use.sum() < 12:
+        return None
+    a = np.c_[np.ones(use.sum()), uu[use], vv[use], uu[use] ** 2, uu[use] * vv[use], vv[use] ** 2]
+    coef, *_ = np.linalg.lstsq(a, vals[use], rcond=None)
+    resid = vals[use] - a @ coef
+    rel_noise = float(np.std(resid) / np.sqrt(use.sum() / 6.0) / max(reference, 1e-30))
+    hess = np.array([[2 * coef[3], coef[4]], [coef[4], 2 * coef[5]]])
+    off = np.zeros(2)
+    try:
+        if np.all(np.linalg.eigvalsh(hess) < 0):
+            off = np.linalg.solve(hess, -coef[1:3])
+    except np.linalg.LinAlgError:
+        pass
+    if np.hypot(*off) > radius:
+        off = np.zeros(2)
+    value = float(coef[0] + coef[1] * off[0] + coef[2] * off[1] + coef[3] * off[0] ** 2
+                  + coef[4] * off[0] * off[1] + coef[5] * off[1] ** 2)
+    r0 = np.hypot(*off)
+    vec0 = np.cos(r0) * centre + np.sinc(r0 / np.pi) * (off[0] * e1 + off[1] * e2)
+    return value, rel_noise, vec0 / np.linalg.norm(vec0), float(use.sum() / disc.sum())
 
 
 def trace_contour(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: float,

@@ -4,9 +4,9 @@ Method (this project's own, documented in docs/figures.md):
 
 1. Average the map over azimuth sectors of ``SECTOR_DEG``; smooth each sector profile.
 2. A *sharp cut-off* at ``theta`` is a drop of at least ``EDGE_MIN_CONTRAST`` times between
-   ``theta - EDGE_PROBE_DEG`` and ``theta + EDGE_PROBE_DEG``, preceded by a plateau (the
-   profile over the ``2 * EDGE_PROBE_DEG`` inside keeps at least ``EDGE_PLATEAU_RATIO`` of
-   its level) so that the flank of a hotspot is not mistaken for the rim.  The outermost
+   ``theta - EDGE_PROBE_DEG`` and ``theta + EDGE_PROBE_DEG`` whose log-drop is at least
+   ``EDGE_SHARPNESS`` times the log-drop over the same width just inside (a knee, not the
+   steadily steepening flank of a hotspot, whose ratio stays near theta / (theta - 2 probe)).  The outermost
    such drop is taken; the edge is where the profile crosses the mean of the inner and
    outer levels (the half-level point of the cut-off).
 3. With no sharp cut-off, the edge is where the profile falls to ``SPILL_FLOOR_FRACTION`` of
@@ -23,13 +23,13 @@ from scipy.ndimage import gaussian_filter1d
 
 from .beammap import BeamMap
 
-__all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST", "EDGE_PLATEAU_RATIO",
-           "SPILL_FLOOR_FRACTION", "SpillEdge", "find_spill_edge"]
+__all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST",
+           "EDGE_SHARPNESS", "SPILL_FLOOR_FRACTION", "SpillEdge", "find_spill_edge"]
 
 SECTOR_DEG = 10.0
 EDGE_PROBE_DEG = 1.5
 EDGE_MIN_CONTRAST = 3.0
-EDGE_PLATEAU_RATIO = 0.5
+EDGE_SHARPNESS = 4.0
 #: Fallback threshold for a beam with no sharp cut-off, as a fraction of peak (project choice).
 SPILL_FLOOR_FRACTION = 0.005
 _SMOOTH_DEG = 0.15
@@ -127,13 +127,16 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
             inner = ps[idx - k]
             outer = np.maximum(ps[idx + k], floor)
             before = ps[idx - 3 * k]
-            ok = (inner / outer >= EDGE_MIN_CONTRAST) & (inner >= 3 * floor) & (inner >= EDGE_PLATEAU_RATIO * before)
+            before = np.maximum(before, floor)
+            drop = np.log(np.maximum(inner, floor) / outer)
+            drop_before = np.log(before / np.maximum(inner, floor))
+            ok = (drop >= np.log(EDGE_MIN_CONTRAST)) & (inner >= 3 * floor) & (drop >= EDGE_SHARPNESS * drop_before)
             if np.any(ok):
                 cand = idx[ok]
-                # outermost contiguous run of candidates; the steepest log-drop inside it
+                # outermost contiguous run of candidates; the steepest drop inside it
                 breaks = np.nonzero(np.diff(cand) > 1)[0]
                 run = cand[breaks[-1] + 1:] if len(breaks) else cand
-                slope = -np.gradient(np.log(np.maximum(ps, floor)))[run]
+                slope = -np.gradient(ps)[run]  # steepest in linear units: the mid-point of the cut-off
                 c = int(run[np.argmax(slope)])
                 level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
                 seg = ps[c - k: c + k + 1]
