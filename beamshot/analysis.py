@@ -99,7 +99,10 @@ def analyze(
         raise BeamshotError("give either --focal-35mm or --hfov, not both")
     if lux_at_peak is not None and reflectance is not None:
         raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
-    resp = parse_response(response) if isinstance(response, str) else response
+    try:
+        resp = parse_response(response) if isinstance(response, str) else response
+    except ValueError as exc:
+        raise BeamshotError(str(exc)) from None
 
     warnings: list[str] = []
     beam_photo = _photo(photo, "photo")
@@ -137,7 +140,7 @@ def analyze(
         v = ff.evaluate(image.shape)
         image = LinearImage(rgb=image.rgb / v[..., None], luminance=image.luminance / v,
                             saturated=image.saturated, bin_factor=image.bin_factor, full_shape=image.full_shape)
-        flat_note = {"file": flat_photo.name, "model": "1 + a1 r^2 + a2 r^4 + a3 r^6",
+        flat_note = {"file": flat_photo.name, "model": "1/V = 1 + b1 r^2 + b2 r^4 + b3 r^6",
                      "coefficients": list(ff.coefficients), "residual_rms": ff.residual_rms}
 
     # ---- wall mapping (pinhole, square to the wall)

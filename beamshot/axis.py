@@ -29,6 +29,8 @@ MIN_BEAM_CONTRAST = 4.0
 MIN_EDGE_COVERAGE = 0.5
 #: Darkest useful maximum (linear, 1 = clipping): below it the frame is treated as black.
 _BLACK_FRAME_LEVEL = 2e-3
+#: Lowest level considered when separating wall, spill and hotspot (fraction of peak).
+_LOG_FLOOR_FRACTION = 3e-4
 
 
 @dataclass(frozen=True)
@@ -63,7 +65,11 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
             "aim the light at the wall, darken the room, or fix the exposure"
         )
     pr, pc = np.unravel_index(int(np.argmax(smooth)), smooth.shape)
-    floor = peak * 1e-4
+    # floor the log image above the dark-wall noise, or the noise's wide spread in log
+    # units would capture the Otsu thresholds
+    resid = lum[::2, ::2] - smooth[::2, ::2]
+    noise = 1.4826 * float(np.median(np.abs(resid - np.median(resid)))) / (2.0 * np.sqrt(np.pi) * 1.5)
+    floor = max(peak * _LOG_FLOOR_FRACTION, 5.0 * noise)
     logl = np.log(np.maximum(smooth, floor))
     sample = logl[:: max(1, logl.shape[0] // 300), :: max(1, logl.shape[1] // 300)].ravel()
     try:

@@ -1,8 +1,10 @@
 """Flat field: a smooth vignetting model fitted to a photo of an evenly lit white target.
 
-Model (radially symmetric about the image centre, r normalised to the half-diagonal):
-``V(r) = 1 + a1 r^2 + a2 r^4 + a3 r^6``, fitted by least squares to block means of the
-linear luminance and normalised to 1 on the optical axis.  Dividing a linear image by V
+Model (radially symmetric about the image centre, r normalised to the half-diagonal): the
+gain that undoes the fall-off, ``G(r) = 1 / V(r) = 1 + b1 r^2 + b2 r^4 + b3 r^6``, fitted by
+weighted least squares to block means of the linear luminance and normalised to 1 on the
+optical axis.  A polynomial in r^2 for 1/V represents natural vignetting exactly:
+``1 / cos^4(alpha) = (1 + tan^2 alpha)^2`` with ``tan alpha`` proportional to r (pinhole).  Dividing a linear image by V
 removes natural cos^4 fall-off and lens/processing vignetting (flat-field correction as in
 EMVA 1288 terminology: the gain non-uniformity part).
 """
@@ -20,7 +22,7 @@ _BLOCKS = 48
 
 @dataclass(frozen=True)
 class FlatField:
-    """Coefficients ``(a1, a2, a3)`` of V(r) and the RMS residual of the fit (relative)."""
+    """Coefficients ``(b1, b2, b3)`` of G(r) = 1/V(r) and the RMS residual of the fit (relative)."""
 
     coefficients: tuple[float, float, float]
     residual_rms: float
@@ -31,8 +33,8 @@ class FlatField:
         h, w = shape
         y, x = np.mgrid[0:h, 0:w].astype(np.float64)
         r2 = ((x - (w - 1) / 2) ** 2 + (y - (h - 1) / 2) ** 2) / (((w - 1) / 2) ** 2 + ((h - 1) / 2) ** 2)
-        a1, a2, a3 = self.coefficients
-        return (1 + a1 * r2 + a2 * r2**2 + a3 * r2**3).astype(np.float32)
+        b1, b2, b3 = self.coefficients
+        return (1.0 / (1 + b1 * r2 + b2 * r2**2 + b3 * r2**3)).astype(np.float32)
 
 
 def fit_flat_field(luminance: np.ndarray) -> FlatField:
@@ -45,9 +47,15 @@ def fit_flat_field(luminance: np.ndarray) -> FlatField:
     x = (np.arange(nw) + 0.5) * bw - 0.5
     yy, xx = np.meshgrid(y, x, indexing="ij")
     r2 = ((xx - (w - 1) / 2) ** 2 + (yy - (h - 1) / 2) ** 2) / (((w - 1) / 2) ** 2 + ((h - 1) / 2) ** 2)
+    b = blocks.ravel()
+    if not np.all(b > 0):
+        from ..errors import BeamshotError
+
+        raise BeamshotError("flat field: parts of the flat photo are black; light the target evenly and expose it well")
     a = np.c_[np.ones(r2.size), r2.ravel(), r2.ravel() ** 2, r2.ravel() ** 3]
-    coef, *_ = np.linalg.lstsq(a, blocks.ravel(), rcond=None)
+    # fit 1/b ~ G/k, weighting by b so that every block counts by its relative error
+    coef, *_ = np.linalg.lstsq(a * b[:, None], np.ones_like(b), rcond=None)
     c0 = coef[0]
-    model = a @ coef
-    resid = float(np.sqrt(np.mean((blocks.ravel() / model - 1) ** 2)))
+    model = 1.0 / (a @ coef)
+    resid = float(np.sqrt(np.mean((b / model - 1) ** 2)))
     return FlatField(coefficients=tuple(float(c / c0) for c in coef[1:]), residual_rms=resid, shape=(h, w))
