@@ -20,7 +20,7 @@ from .beammap import BeamMap, directions
 from .hotspot import Contour, local_basis
 from .spill import SpillEdge
 
-__all__ = ["ZoneFlux", "zone_flux", "inside_contour"]
+__all__ = ["ZoneFlux", "zone_flux", "zone_fluxes", "inside_contour"]
 
 
 @dataclass(frozen=True)
@@ -35,18 +35,25 @@ class ZoneFlux:
     hotspot_saturated: bool
 
 
-def inside_contour(beam: BeamMap, contour: Contour, centre: np.ndarray, scale: float = 1.0) -> np.ndarray:
-    """Fraction (0-1) of each map cell inside ``contour`` (angles times ``scale``) around ``centre``.
-
-    A cell whose centre lies within half a theta step of the boundary counts in proportion
-    to its distance from it (linear anti-aliasing), which removes the bias of counting whole cells.
-    """
+def _peak_polar(beam: BeamMap, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Angular distance and bearing (rad) of every map cell from ``centre``."""
     tt, pp = np.meshgrid(beam.theta, beam.phi, indexing="ij")
     v = directions(tt, pp)
     c = np.asarray(centre, float) / np.linalg.norm(centre)
     e1, e2 = local_basis(c)
     dist = np.arccos(np.clip(v @ c, -1.0, 1.0))
     bearing = np.mod(np.arctan2(v @ e2, v @ e1), 2 * np.pi)
+    return dist, bearing
+
+
+def inside_contour(beam: BeamMap, contour: Contour, centre: np.ndarray, scale: float = 1.0,
+                   *, polar: tuple[np.ndarray, np.ndarray] | None = None) -> np.ndarray:
+    """Fraction (0-1) of each map cell inside ``contour`` (angles times ``scale``) around ``centre``.
+
+    A cell whose centre lies within half a theta step of the boundary counts in proportion
+    to its distance from it (linear anti-aliasing), which removes the bias of counting whole cells.
+    """
+    dist, bearing = _peak_polar(beam, centre) if polar is None else polar
     b = np.r_[contour.bearings - 2 * np.pi, contour.bearings, contour.bearings + 2 * np.pi]
     a = np.r_[contour.alpha, contour.alpha, contour.alpha] * scale
     return np.clip(0.5 - (dist - np.interp(bearing, b, a)) / beam.d_theta, 0.0, 1.0)
@@ -59,23 +66,35 @@ def zone_flux(beam: BeamMap, hotspot: Contour, peak_vector: np.ndarray, edge: Sp
     ``hotspot_scale``/``edge_scale`` stretch the zone boundaries (for uncertainty estimates).
     Cells outside the photo count as zero flux and are reported as a missing fraction.
     """
+    return zone_fluxes(beam, hotspot, peak_vector, edge, [(hotspot_scale, edge_scale)])[0]
+
+
+def zone_fluxes(beam: BeamMap, hotspot: Contour, peak_vector: np.ndarray, edge: SpillEdge | None,
+                scales: list[tuple[float, float]]) -> list[ZoneFlux]:
+    """:func:`zone_flux` for several ``(hotspot_scale, edge_scale)`` pairs, sharing the geometry."""
     d_omega = np.broadcast_to(beam.cell_solid_angles(), beam.intensity.shape)
     valid = beam.valid
     flux = np.where(valid, beam.intensity, 0.0) * d_omega
-    hot = inside_contour(beam, hotspot, peak_vector, hotspot_scale)
-    hot_flux = float((flux * hot).sum())
-    hot_missing = float((d_omega * hot)[~valid].sum() / max((d_omega * hot).sum(), 1e-30))
-    hot_sat = bool(np.any(beam.saturated & (hot > 0)))
+    polar = _peak_polar(beam, peak_vector)
+    edge_theta = None
     if edge is not None and edge.complete:
-        tt = np.broadcast_to(beam.theta[:, None], beam.intensity.shape)
-        pp = np.broadcast_to(beam.phi[None, :], beam.intensity.shape)
-        inside = np.clip(0.5 - (tt - edge.at(pp) * edge_scale) / beam.d_theta, 0.0, 1.0)
-        spill = np.clip(inside - hot, 0.0, 1.0)
-        spill_flux = float((flux * spill).sum())
-        spill_missing = float((d_omega * spill)[~valid].sum() / max((d_omega * spill).sum(), 1e-30))
-        outside = float((flux * (1.0 - np.maximum(inside, hot))).sum())
-    else:
-        spill_flux, spill_missing = None, None
-        outside = float((flux * (1.0 - hot)).sum())
-    return ZoneFlux(hotspot=hot_flux, spill=spill_flux, outside=outside, hotspot_missing=hot_missing,
-                    spill_missing=spill_missing, hotspot_saturated=hot_sat)
+        edge_theta = np.broadcast_to(edge.at(beam.phi)[None, :], beam.intensity.shape)
+    tt = np.broadcast_to(beam.theta[:, None], beam.intensity.shape)
+    out = []
+    for hotspot_scale, edge_scale in scales:
+        hot = inside_contour(beam, hotspot, peak_vector, hotspot_scale, polar=polar)
+        hot_flux = float((flux * hot).sum())
+        hot_missing = float((d_omega * hot)[~valid].sum() / max((d_omega * hot).sum(), 1e-30))
+        hot_sat = bool(np.any(beam.saturated & (hot > 0)))
+        if edge_theta is not None:
+            inside = np.clip(0.5 - (tt - edge_theta * edge_scale) / beam.d_theta, 0.0, 1.0)
+            spill = np.clip(inside - hot, 0.0, 1.0)
+            spill_flux = float((flux * spill).sum())
+            spill_missing = float((d_omega * spill)[~valid].sum() / max((d_omega * spill).sum(), 1e-30))
+            outside = float((flux * (1.0 - np.maximum(inside, hot))).sum())
+        else:
+            spill_flux, spill_missing = None, None
+            outside = float((flux * (1.0 - hot)).sum())
+        out.append(ZoneFlux(hotspot=hot_flux, spill=spill_flux, outside=outside, hotspot_missing=hot_missing,
+                            spill_missing=spill_missing, hotspot_saturated=hot_sat))
+    return out

@@ -14,7 +14,7 @@ import numpy as np
 
 from .beammap import BeamMap
 from .figure import Figure, not_measured
-from .flux import ZoneFlux, zone_flux
+from .flux import ZoneFlux, zone_fluxes
 from .hotspot import Contour, Peak, find_peak, trace_contour
 from .photometry import beam_distance_m
 from .scale import AbsoluteScale
@@ -61,9 +61,8 @@ def measure_shape(beam: BeamMap, *, angle_scale_uncertainty: float = 0.0) -> Bea
     edge_rel = _rel_sigma(edge.full_angle() if edge.complete else np.nan,
                           edge.full_angle_sigma() if edge.complete else np.nan, angle_scale_uncertainty)
     if hot.complete:
-        base = zone_flux(beam, hot, peak.vector, edge)
-        hot_plus = zone_flux(beam, hot, peak.vector, edge, hotspot_scale=1.0 + hot_rel)
-        edge_plus = zone_flux(beam, hot, peak.vector, edge, edge_scale=1.0 + edge_rel) if edge.complete else base
+        base, hot_plus, edge_plus = zone_fluxes(beam, hot, peak.vector, edge,
+                                                [(1.0, 1.0), (1.0 + hot_rel, 1.0), (1.0, 1.0 + edge_rel)])
     else:
         base = hot_plus = edge_plus = None
     return BeamShape(peak, hot, fld, edge, base, hot_plus, edge_plus, hot_rel, edge_rel)

@@ -98,13 +98,15 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
             lin = lut[strip]
         rows = (bottom - top) // b
         out_rows = slice(top // b, top // b + rows)
+        # 255 where every channel is below the clip code (cv2.inRange is a fast SIMD pass)
+        below = cv2.inRange(strip, (0, 0, 0), (clip_code - 1,) * 3)
         if b == 1:
             rgb[out_rows] = lin
-            saturated[out_rows] = strip.max(axis=2) >= clip_code
+            saturated[out_rows] = below == 0
         else:
             rgb[out_rows] = cv2.resize(lin, (w, rows), interpolation=cv2.INTER_AREA)
-            clipped = (strip.max(axis=2) >= clip_code).astype(np.uint8)
-            saturated[out_rows] = _any_in_blocks(clipped, b, rows, w)
+            # a block is clipped if any of its pixels is: its mean of `below` is then under 255
+            saturated[out_rows] = cv2.resize(below, (w, rows), interpolation=cv2.INTER_AREA) < 255
     return LinearImage(
         rgb=rgb,
         luminance=relative_luminance(rgb),
@@ -112,8 +114,3 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
         bin_factor=b,
         full_shape=(height, width),
     )
-
-
-def _any_in_blocks(mask: np.ndarray, b: int, rows: int, cols: int) -> np.ndarray:
-    """True where any pixel of a ``b x b`` block is set; ``mask`` is ``(rows*b, cols*b)``."""
-    return mask[: rows * b, : cols * b].reshape(rows, b, cols, b).max(axis=(1, 3)) > 0
