@@ -1,8 +1,10 @@
 """beamshot: calibrated beam photometry from photos of a flashlight beam on a white wall.
 
->>> from beamshot import analyze  # doctest: +SKIP
->>> report = analyze("beam.jpg", distance_m=5.0, lux_at_peak=412)  # doctest: +SKIP
->>> report["peak_intensity"].value  # doctest: +SKIP
+Example (``analyze`` does what ``beamshot analyze`` does)::
+
+    from beamshot import analyze
+    report = analyze("beam.jpg", distance_m=5.0, lux_at_peak=412)
+    report["peak_intensity"].text()   # e.g. '9,510 ± 480 cd'
 """
 
 __version__ = "0.1.0"

@@ -29,6 +29,8 @@ MIN_BEAM_CONTRAST = 4.0
 MIN_EDGE_COVERAGE = 0.5
 #: Darkest useful maximum (linear, 1 = clipping): below it the frame is treated as black.
 _BLACK_FRAME_LEVEL = 2e-3
+#: Longest side of the reduced image used to locate the axis, pixels.
+AXIS_MAX_SIDE = 640
 #: Lowest level considered when separating wall, spill and hotspot (fraction of peak).
 _LOG_FLOOR_FRACTION = 3e-4
 
@@ -53,7 +55,15 @@ class BeamAxis:
 def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int, *,
                    name: str = "photo") -> BeamAxis:
     """Find the beam axis in a working-resolution luminance image (see module notes)."""
-    lum = np.nan_to_num(luminance.astype(np.float32), nan=0.0)
+    lum = luminance.astype(np.float32, copy=False)
+    # work on a reduced copy: the spill edge spans hundreds of pixels, and the ellipse fit
+    # over many edge points still centres it to a small fraction of a reduced pixel
+    r = max(1, int(np.ceil(max(lum.shape) / AXIS_MAX_SIDE)))
+    if r > 1:
+        h0, w0 = (lum.shape[0] // r) * r, (lum.shape[1] // r) * r
+        lum = cv2.resize(lum[:h0, :w0], (w0 // r, h0 // r), interpolation=cv2.INTER_AREA)
+        bin_factor = bin_factor * r
+    lum = np.nan_to_num(lum, nan=0.0, posinf=0.0, neginf=0.0)
     smooth = cv2.GaussianBlur(lum, (0, 0), 1.5)
     peak = float(smooth.max())
     if not np.isfinite(peak) or peak < _BLACK_FRAME_LEVEL:

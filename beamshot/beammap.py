@@ -25,9 +25,9 @@ from .wall import WallMapping
 __all__ = ["THETA_STEP_DEG", "PHI_STEP_DEG", "BeamMap", "build_beam_map", "directions"]
 
 #: Polar-angle step of the grid, degrees (resolves a 2-degree hotspot with 20 steps).
-THETA_STEP_DEG = 0.05
+THETA_STEP_DEG = 0.1
 #: Azimuth step of the grid, degrees.
-PHI_STEP_DEG = 1.0
+PHI_STEP_DEG = 2.0
 #: Largest polar angle mapped, degrees.
 THETA_LIMIT_DEG = 85.0
 
@@ -117,5 +117,7 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
                     borderValue=float("nan"))
     sat = cv2.remap(image.saturated.astype(np.uint8), mx, my, cv2.INTER_NEAREST,
                     borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
-    intensity = intensity_from_wall_illuminance(lum.astype(np.float64), tt, distance_m)
+    # I = E D^2 / cos^3(theta): the factor depends on theta only (one value per grid row)
+    factor = intensity_from_wall_illuminance(1.0, theta, distance_m)
+    intensity = lum.astype(np.float64) * factor[:, None]
     return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m)

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .beammap import BeamMap, directions
+from .beammap import BeamMap
 from .hotspot import Contour, local_basis
 from .spill import SpillEdge
 
@@ -37,12 +37,17 @@ class ZoneFlux:
 
 def _peak_polar(beam: BeamMap, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Angular distance and bearing (rad) of every map cell from ``centre``."""
-    tt, pp = np.meshgrid(beam.theta, beam.phi, indexing="ij")
-    v = directions(tt, pp)
     c = np.asarray(centre, float) / np.linalg.norm(centre)
     e1, e2 = local_basis(c)
-    dist = np.arccos(np.clip(v @ c, -1.0, 1.0))
-    bearing = np.mod(np.arctan2(v @ e2, v @ e1), 2 * np.pi)
+    # v = (sin t cos p, sin t sin p, cos t); dot products as sums of outer products (cheap)
+    st, ct = np.sin(beam.theta)[:, None], np.cos(beam.theta)[:, None]
+    cp, sp = np.cos(beam.phi)[None, :], np.sin(beam.phi)[None, :]
+
+    def dot(e):
+        return st * (e[0] * cp + e[1] * sp) + ct * e[2]
+
+    dist = np.arccos(np.clip(dot(c), -1.0, 1.0))
+    bearing = np.mod(np.arctan2(dot(e2), dot(e1)), 2 * np.pi)
     return dist, bearing
 
 

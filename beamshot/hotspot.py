@@ -175,10 +175,21 @@ def trace_contour(beam: BeamMap, centre: np.ndarray, level: float, level_fractio
                   *, n_bearings: int | None = None) -> Contour:
     """Angles from ``centre`` at which the intensity first falls below ``level``, per bearing."""
     nb = N_BEARINGS if n_bearings is None else n_bearings
+    alpha_max = beam.theta[-1] + np.arccos(np.clip(np.asarray(centre)[2] / np.linalg.norm(centre), -1, 1))
+    alpha_max = min(alpha_max, np.radians(89.0))
+    # trace a short reach first; most contours close well inside it
+    for reach in (np.radians(12.0), np.radians(40.0), alpha_max):
+        contour = _trace(beam, centre, level, level_fraction, nb, min(reach, alpha_max))
+        if reach >= alpha_max or np.all(np.isfinite(contour.alpha) & (contour.alpha < 0.9 * reach)):
+            return contour
+    return contour
+
+
+def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: float, nb: int,
+           alpha_max: float) -> Contour:
     bearings = np.arange(nb) * 2 * np.pi / nb
     step = beam.d_theta
-    alpha_max = beam.theta[-1] + np.arccos(np.clip(np.asarray(centre)[2] / np.linalg.norm(centre), -1, 1))
-    alphas = np.arange(0.0, min(alpha_max, np.radians(89.0)), step)
+    alphas = np.arange(0.0, alpha_max, step)
     vals = beam.sample(_rays(centre, bearings, alphas))
     finite = np.isfinite(vals)
     filled = np.where(finite, vals, 0.0)

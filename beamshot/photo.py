@@ -1,7 +1,9 @@
 """Decoding photos (JPEG, PNG, 8/16-bit TIFF) with their EXIF exposure facts.
 
-Pixels come back as RGB, shape ``(H, W, 3)``, row 0 at the top, dtype uint8 or uint16,
-already turned upright according to the EXIF Orientation tag (Exif 2.3, tag 0x0112).
+Pixels are kept as decoded by OpenCV (BGR channel order, ``Photo.bgr``) to avoid a copy of a
+large photo; ``Photo.pixels`` is an RGB view of the same memory.  Shape ``(H, W, 3)``, row 0 at
+the top, dtype uint8 or uint16, turned upright according to the EXIF Orientation tag (Exif 2.3,
+tag 0x0112).
 """
 
 from __future__ import annotations
@@ -60,17 +62,22 @@ class ExifFacts:
 
 @dataclass(frozen=True)
 class Photo:
-    """A decoded photo: upright RGB pixels and where they came from."""
+    """A decoded photo: upright pixels (BGR storage, RGB view) and where they came from."""
 
-    pixels: np.ndarray = field(repr=False)
+    bgr: np.ndarray = field(repr=False)
     exif: ExifFacts
     name: str
     sha256: str
     max_code: int
 
     @property
+    def pixels(self) -> np.ndarray:
+        """RGB view ``(H, W, 3)`` of the pixels (no copy)."""
+        return self.bgr[..., ::-1]
+
+    @property
     def shape(self) -> tuple[int, int]:
-        return self.pixels.shape[:2]
+        return self.bgr.shape[:2]
 
 
 def _number(value) -> float | None:
@@ -179,11 +186,14 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         raise BeamshotError(f"{name}: the image data is corrupt; copy the file again")
     if bgr.dtype not in (np.uint8, np.uint16):
         raise BeamshotError(f"{name}: {bgr.dtype} pixels are not supported; give 8- or 16-bit images")
-    rgb = cv2.cvtColor(bgr, cv2.COLOR_BGR2RGB)
-    rgb = np.ascontiguousarray(apply_orientation(rgb, exif.orientation))
-    max_code = 255 if rgb.dtype == np.uint8 else 65535
+    if bgr.ndim == 2:
+        bgr = cv2.cvtColor(bgr, cv2.COLOR_GRAY2BGR)
+    elif bgr.shape[2] == 4:
+        bgr = cv2.cvtColor(bgr, cv2.COLOR_BGRA2BGR)
+    bgr = np.ascontiguousarray(apply_orientation(bgr, exif.orientation))
+    max_code = 255 if bgr.dtype == np.uint8 else 65535
     return Photo(
-        pixels=rgb,
+        bgr=bgr,
         exif=exif,
         name=name,
         sha256=hashlib.sha256(data).hexdigest(),
