@@ -202,7 +202,7 @@ def analyze(
         if outside is not None and outside > 0.002 * pk.value:
             warnings.append(f"the wall outside the beam is at {outside / pk.value:.1%} of the peak; "
                             "room light adds to every figure - darken the room or give a light-off photo (--ambient)")
-    if np.degrees(pk.theta) > 3.0:
+    if not pk.clipped and np.degrees(pk.theta) > 3.0:
         warnings.append(f"the hotspot is {np.degrees(pk.theta):.1f} deg off the spill centre")
     if head_diameter_mm is not None and distance_m * 1000.0 < FAR_FIELD_FACTOR * head_diameter_mm:
         warnings.append(f"the wall is closer than {FAR_FIELD_FACTOR:g}x the head diameter; the inverse-square "

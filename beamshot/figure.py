@@ -52,9 +52,11 @@ class Figure:
         if self.value is None:
             return f"not measured ({self.reason})"
         prefix = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "}.get(self.status, "")
-        u = f" ± {_number(self.uncertainty, 2)}" if self.uncertainty is not None else ""
         unit = f" {self.unit}" if self.unit else ""
-        return f"{prefix}{_number(self.value, digits)}{u}{unit}"
+        if self.uncertainty is not None and self.uncertainty > 0:
+            value, u = value_with_uncertainty(self.value, self.uncertainty)
+            return f"{prefix}{value} ± {u}{unit}"
+        return f"{prefix}{_number(self.value, digits)}{unit}"
 
 
 def _number(x: float, digits: int) -> str:
@@ -68,6 +70,22 @@ def _number(x: float, digits: int) -> str:
     rounded = float(f"{x:.{digits}g}")
     decimals = max(0, digits - 1 - int(np.floor(np.log10(abs(rounded)))))
     return f"{rounded:,.{decimals}f}"
+
+
+def value_with_uncertainty(value: float, uncertainty: float) -> tuple[str, str]:
+    """Round the uncertainty to two significant digits and the value to the same place (GUM 7.2.6).
+
+    >>> value_with_uncertainty(0.00235, 0.1107)
+    ('0.00', '0.11')
+    >>> value_with_uncertainty(10061.0, 2811.0)
+    ('10,100', '2,800')
+    """
+    exponent = int(np.floor(np.log10(uncertainty))) - 1
+    decimals = max(0, -exponent)
+    scale = 10.0**exponent
+    v = round(value / scale) * scale
+    u = round(uncertainty / scale) * scale
+    return f"{v:,.{decimals}f}", f"{u:,.{decimals}f}"
 
 
 def not_measured(unit: str, method: str, reason: str) -> Figure:

@@ -97,11 +97,11 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
         rel_u = float(np.sqrt(scale.rel_uncertainty**2 + (2 * distance_rel_uncertainty) ** 2 + pk.rel_noise**2))
         status = "lower_bound" if clipped else ("estimate" if scale.kind == "exposure_metadata" else "measured")
         value = k * pk.value
-        figs["peak_intensity"] = Figure(value, value * rel_u, "cd",
+        figs["peak_intensity"] = Figure(value, None if clipped else value * rel_u, "cd",
                                         f"maximum of the intensity map (local quadratic fit); scale: {scale.description}",
                                         status, clip_reason if clipped else None)
         d = beam_distance_m(value)
-        figs["beam_distance"] = Figure(d, d * rel_u / 2.0, "m",
+        figs["beam_distance"] = Figure(d, None if clipped else d * rel_u / 2.0, "m",
                                        "ANSI/PLATO FL 1: distance at which the peak gives 0.25 lx, d = sqrt(I / 0.25 lx)",
                                        status, clip_reason if clipped else None)
     else:
@@ -191,6 +191,9 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
     # ---- hotspot offset
     off_method = "angle between the peak direction and the beam axis (spill centre)"
     off_sigma = float(np.hypot(axis_uncertainty_rad, beam.d_theta))
+    if clipped:
+        figs["hotspot_offset"] = not_measured("deg", off_method, clip_reason)
+        return {k: figs[k] for k in FIGURE_ORDER}
     figs["hotspot_offset"] = Figure(float(np.degrees(pk.theta)), float(np.degrees(off_sigma)), "deg",
                                     off_method + f"; toward azimuth {np.degrees(pk.phi):.0f} deg (0 = right, 90 = up)")
     return {k: figs[k] for k in FIGURE_ORDER}

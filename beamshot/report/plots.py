@@ -57,11 +57,21 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     for r in np.arange(step, half + 1e-9, step):
         ax.plot(r * np.cos(t), r * np.sin(t), color="white", lw=0.4, alpha=0.5)
         ax.text(r * np.cos(np.radians(45)), r * np.sin(np.radians(45)), f"{r:g}°", color="white", fontsize=7, alpha=0.8)
+    if np.any(beam.saturated):
+        # outline of the clipped area: nearest-cell lookup of the saturation mask on the same grid
+        xx, yy = np.meshgrid(a, a)
+        th = np.radians(np.hypot(xx, yy))
+        k = np.clip(np.round((th - beam.theta[0]) / beam.d_theta).astype(int), 0, len(beam.theta) - 1)
+        j = np.round((np.mod(np.arctan2(yy, xx), 2 * np.pi) - beam.phi[0]) / beam.d_phi).astype(int) % len(beam.phi)
+        sat = beam.saturated[k, j].astype(float)
+        ax.contour(a, a, sat, levels=[0.5], colors="#00e5ff", linewidths=1.2, linestyles=":")
+        ax.plot([], [], color="#00e5ff", ls=":", label="clipped (not measured)")
+    clipped = bool(contours and contours.get("peak") is not None and contours["peak"].clipped)
     if contours:
         pk = contours.get("peak")
         for key, colour, label in (("hotspot", "#00e5ff", "hotspot 50 %"), ("field", "#7CFC00", "field 10 %")):
             c = contours.get(key)
-            if c is None or pk is None or not np.any(np.isfinite(c.alpha)):
+            if clipped or c is None or pk is None or not np.any(np.isfinite(c.alpha)):
                 continue
             xy = _contour_xy(pk.vector, c.bearings, c.alpha)
             ax.plot(xy[:, 0], xy[:, 1], color=colour, lw=1.2, label=label)
@@ -70,7 +80,7 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
             th = np.degrees(np.r_[e.theta, e.theta[:1]])
             ph = np.r_[e.phi, e.phi[:1]]
             ax.plot(th * np.cos(ph), th * np.sin(ph), color="#ff4fd8", lw=1.2, ls="--", label="spill edge")
-        if pk is not None:
+        if pk is not None and not clipped:
             x, y = np.degrees(pk.theta) * np.cos(pk.phi), np.degrees(pk.theta) * np.sin(pk.phi)
             ax.plot([x], [y], marker="+", color="#00e5ff", ms=10, mew=1.5, ls="none", label="peak")
         ax.plot([0], [0], marker="x", color="#ff4fd8", ms=6, ls="none", label="beam axis")
