@@ -192,7 +192,8 @@ def analyze(
     if pk.clipped:
         warnings.append("the hotspot is clipped: peak, hotspot and field figures are bounds or not measured; "
                         "lower the exposure or bracket")
-    peak_level = float(np.nanmax(np.where(np.isfinite(image.luminance), image.luminance, 0)))
+    with np.errstate(invalid="ignore"):
+        peak_level = float(np.nanmax(image.luminance))
     if not pk.clipped and peak_level < _LOW_EXPOSURE_LEVEL:
         warnings.append(f"the brightest point is only {peak_level:.0%} of full scale; a longer exposure gives less noise")
     if not shape_.edge.complete:

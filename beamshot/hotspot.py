@@ -11,6 +11,7 @@ the two ray pairs along the wall's horizontal and vertical through the peak.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -197,25 +198,28 @@ def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: floa
     weight = gaussian_filter1d(finite.astype(float), _RAY_SMOOTH_SAMPLES, axis=1, mode="nearest")
     with np.errstate(invalid="ignore", divide="ignore"):
         smooth = np.where(finite, smooth / weight, np.nan)
+    n = smooth.shape[1]
     alpha = np.full(nb, np.nan)
     sigma = np.full(nb, np.nan)
-    resid = vals - smooth
-    for b in range(nb):
-        row = smooth[b]
-        below = np.nonzero(~(row >= level))[0]  # first NaN or value under the level
-        if len(below) == 0 or below[0] == 0:
-            continue
-        i = below[0]
-        if not np.isfinite(row[i]):
-            continue  # left the photo before crossing
-        p0, p1 = row[i - 1], row[i]
-        frac = (p0 - level) / (p0 - p1) if p0 != p1 else 0.5
+    # first sample per ray that is NaN or under the level; a crossing needs it finite and > 0
+    under = ~(smooth >= level)
+    has = under.any(axis=1)
+    first = np.where(has, np.argmax(under, axis=1), 0)
+    rows = np.arange(nb)
+    ok = has & (first > 0)
+    ok[ok] &= np.isfinite(smooth[rows[ok], first[ok]])
+    if np.any(ok):
+        b, i = rows[ok], first[ok]
+        p0, p1 = smooth[b, i - 1], smooth[b, i]
+        frac = np.where(p0 != p1, (p0 - level) / np.where(p0 != p1, p0 - p1, 1.0), 0.5)
         alpha[b] = alphas[i - 1] + frac * step
-        lo, hi = max(0, i - 10), min(len(row), i + 10)
-        r = resid[b, lo:hi]
-        r = r[np.isfinite(r)]
-        noise = 1.4826 * np.median(np.abs(r - np.median(r))) if len(r) > 4 else 0.0
-        noise /= np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)  # noise left after smoothing
-        slope = max((p0 - p1) / step, 1e-30)
+        # noise: MAD of the residual about the smoothed ray within +-10 samples of the crossing
+        win = np.clip(i[:, None] + np.arange(-10, 10)[None, :], 0, n - 1)
+        r = (vals - smooth)[b[:, None], win]
+        with np.errstate(invalid="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            mad = np.nanmedian(np.abs(r - np.nanmedian(r, axis=1, keepdims=True)), axis=1)
+        noise = np.nan_to_num(1.4826 * mad) / np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)
+        slope = np.maximum((p0 - p1) / step, 1e-30)
         sigma[b] = np.hypot(noise / slope, step / np.sqrt(12.0))
     return Contour(level_fraction=level_fraction, bearings=bearings, alpha=alpha, sigma=sigma)

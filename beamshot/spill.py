@@ -96,6 +96,32 @@ def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
     return np.radians(centres), profiles
 
 
+def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
+    """Per-sector noise (1 sigma) of the smoothed profiles: MAD of the residual about a
+    smoothed copy, scaled to a standard deviation and reduced by the smoothing gain."""
+    finite = np.isfinite(profiles)
+    filled = np.where(finite, profiles, 0.0)
+    weight = gaussian_filter1d(finite.astype(float), sm, axis=1, mode="nearest")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        smooth = gaussian_filter1d(filled, sm, axis=1, mode="nearest") / weight
+    resid = np.where(finite, profiles - smooth, np.nan)
+    with np.errstate(invalid="ignore"), _quiet_nan():
+        mad = np.nanmedian(np.abs(resid - np.nanmedian(resid, axis=1, keepdims=True)), axis=1)
+    return np.nan_to_num(1.4826 * mad / np.sqrt(2 * np.sqrt(np.pi) * sm), nan=0.0)
+
+
+class _quiet_nan:
+    def __enter__(self):
+        import warnings
+
+        self._w = warnings.catch_warnings()
+        self._w.__enter__()
+        warnings.simplefilter("ignore", RuntimeWarning)
+
+    def __exit__(self, *exc):
+        return self._w.__exit__(*exc)
+
+
 def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
     """Find the outer spill edge in every sector (see module docstring)."""
     phi, profiles = _sector_profiles(beam)
@@ -107,6 +133,7 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
     sigma = np.full(n_sec, np.nan)
     coverage = np.zeros(n_sec)
     kinds = []
+    noises = _profile_noise(profiles, sm)
     for s in range(n_sec):
         p = profiles[s]
         finite = np.isfinite(p)
@@ -116,8 +143,7 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
             kinds.append("outside")
             continue
         ps = gaussian_filter1d(p[:last], sm, mode="nearest")
-        resid = p[:last] - ps
-        noise = 1.4826 * float(np.median(np.abs(resid - np.median(resid)))) / np.sqrt(2 * np.sqrt(np.pi) * sm)
+        noise = noises[s]
         floor = max(5.0 * noise, peak_value * 1e-6)
         # start beyond the half-peak point of this sector
         start = int(np.argmax(ps < 0.5 * peak_value)) if np.any(ps < 0.5 * peak_value) else last

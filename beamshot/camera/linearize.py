@@ -67,8 +67,11 @@ class LinearImage:
 
 def relative_luminance(rgb: np.ndarray) -> np.ndarray:
     """BT.709 relative luminance of linear RGB ``(..., 3)``."""
-    w = np.asarray(LUMINANCE_WEIGHTS_BT709, dtype=np.float32)
-    return (rgb.astype(np.float32, copy=False) @ w).astype(np.float32)
+    w = np.asarray(LUMINANCE_WEIGHTS_BT709, dtype=np.float32).reshape(1, 3)
+    rgb = np.ascontiguousarray(rgb, dtype=np.float32)
+    if rgb.ndim == 3 and rgb.shape[2] == 3:
+        return cv2.transform(rgb, w)  # weighted channel sum, one SIMD pass
+    return (rgb @ w.ravel()).astype(np.float32)
 
 
 def bin_factor_for(shape: tuple[int, int], max_side: int | None = None) -> int:
@@ -114,11 +117,11 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
             saturated[out_rows] = cv2.resize(below, (w, rows), interpolation=cv2.INTER_AREA) < 255
         else:
             saturated[out_rows] = below == 0
-        rgb[out_rows] = lin * np.float32(1.0 / 65535.0) if eight_bit else lin
+        # reverse BGR -> RGB while scaling (one pass over the small strip)
+        rgb[out_rows] = lin[..., ::-1] * np.float32(1.0 / 65535.0) if eight_bit else lin[..., ::-1]
 
     with ThreadPoolExecutor(max_workers=_WORKERS) as pool:
         list(pool.map(work, range(0, h * b, step)))
-    rgb = np.ascontiguousarray(rgb[..., ::-1])
     return LinearImage(
         rgb=rgb,
         luminance=relative_luminance(rgb),
