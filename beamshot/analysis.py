@@ -48,6 +48,14 @@ def _photo(obj, role: str) -> Photo:
     raise TypeError(f"{role}: expected a path or a Photo, not {type(obj).__name__}")
 
 
+def _same_size(other: Photo, beam: Photo, what: str, fix: str) -> Photo:
+    """Refuse a companion photo whose size differs from the beam photo's."""
+    if other.shape != beam.shape:
+        raise BeamshotError(f"{other.name}: the {what} is {other.shape[1]}x{other.shape[0]}, "
+                            f"the beam photo {beam.shape[1]}x{beam.shape[0]}; {fix}")
+    return other
+
+
 def _check_positive(name: str, value, lo=None, hi=None, hint="") -> None:
     if value is None:
         return
@@ -111,10 +119,8 @@ def analyze(
 
     # ---- ambient (light-off) subtraction
     if ambient is not None:
-        amb_photo = _photo(ambient, "ambient")
-        if amb_photo.shape != beam_photo.shape:
-            raise BeamshotError(f"{amb_photo.name}: the ambient photo is {amb_photo.shape[1]}x{amb_photo.shape[0]}, "
-                                f"the beam photo {beam_photo.shape[1]}x{beam_photo.shape[0]}; take both from the same camera and position")
+        amb_photo = _same_size(_photo(ambient, "ambient"), beam_photo, "ambient photo",
+                               "take both from the same camera and position")
         inputs.append(_input_record("ambient", amb_photo))
         amb = linearize(amb_photo, resp)
         ratio = 1.0
@@ -131,10 +137,8 @@ def analyze(
     # ---- flat field
     flat_note = None
     if flat is not None:
-        flat_photo = _photo(flat, "flat")
-        if flat_photo.shape != beam_photo.shape:
-            raise BeamshotError(f"{flat_photo.name}: the flat-field photo is {flat_photo.shape[1]}x{flat_photo.shape[0]}, "
-                                f"the beam photo {beam_photo.shape[1]}x{beam_photo.shape[0]}; shoot it with the same camera and settings")
+        flat_photo = _same_size(_photo(flat, "flat"), beam_photo, "flat-field photo",
+                                "shoot it with the same camera and settings")
         inputs.append(_input_record("flat", flat_photo))
         ff = fit_flat_field(linearize(flat_photo, resp).luminance)
         v = ff.evaluate(image.shape)

@@ -11,13 +11,14 @@ the two ray pairs along the wall's horizontal and vertical through the peak.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
+from ._quiet import quiet_nan
 from .beammap import BeamMap, directions
+from .photometry import equal_cone_full_angle
 
 __all__ = ["Peak", "Contour", "find_peak", "trace_contour", "local_basis", "N_BEARINGS"]
 
@@ -60,15 +61,11 @@ class Contour:
 
     def full_angle(self) -> float:
         """Full angle (rad) of the cone of equal solid angle."""
-        return float(2.0 * np.arccos(np.mean(np.cos(self.alpha))))
+        return equal_cone_full_angle(self.alpha)
 
     def full_angle_sigma(self) -> float:
         """1-sigma noise of :meth:`full_angle` from independent ray crossings (rad)."""
-        a_eq = self.full_angle() / 2.0
-        n = len(self.alpha)
-        # d(mean cos)/d alpha_b = -sin(alpha_b)/n ; d(2 arccos m)/dm = -2/sqrt(1-m^2)
-        dm = np.sqrt(np.sum((np.sin(self.alpha) * self.sigma / n) ** 2))
-        return float(2.0 * dm / max(np.sin(a_eq), 1e-9))
+        return equal_cone_full_angle(self.alpha, self.sigma)[1]
 
     def width_along(self, bearing_deg: float) -> float:
         """Full width (rad) along the line through the peak at ``bearing_deg`` and its opposite."""
@@ -216,8 +213,7 @@ def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: floa
         # noise: MAD of the residual about the smoothed ray within +-10 samples of the crossing
         win = np.clip(i[:, None] + np.arange(-10, 10)[None, :], 0, n - 1)
         r = (vals - smooth)[b[:, None], win]
-        with np.errstate(invalid="ignore"), warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
+        with quiet_nan():
             mad = np.nanmedian(np.abs(r - np.nanmedian(r, axis=1, keepdims=True)), axis=1)
         noise = np.nan_to_num(1.4826 * mad) / np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)
         slope = np.maximum((p0 - p1) / step, 1e-30)

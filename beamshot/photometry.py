@@ -34,6 +34,7 @@ __all__ = [
     "cone_solid_angle_sr",
     "cone_half_angle_from_solid_angle",
     "polar_cell_solid_angles",
+    "equal_cone_full_angle",
 ]
 
 #: Illuminance that defines beam distance, lx (ANSI/PLATO FL 1).
@@ -101,3 +102,22 @@ def polar_cell_solid_angles(theta_edges, n_phi):
     """
     theta_edges = np.asarray(theta_edges, dtype=float)
     return (np.cos(theta_edges[:-1]) - np.cos(theta_edges[1:])) * (2.0 * np.pi / n_phi)
+
+
+def equal_cone_full_angle(alpha, sigma=None):
+    """Full angle (rad) of the cone with the same solid angle as a star-shaped region.
+
+    The region reaches ``alpha[b]`` (rad) from its centre on equally spaced bearings, so
+    ``Omega = 2 pi (1 - mean(cos alpha))`` and the full angle is ``2 arccos(mean cos alpha)``.
+    With per-bearing 1-sigma ``sigma`` (independent), also returns the propagated 1-sigma:
+    ``d(mean cos)/d alpha_b = -sin(alpha_b)/n`` and ``d(2 arccos m)/dm = -2/sqrt(1 - m^2)``.
+
+    >>> round(float(np.degrees(equal_cone_full_angle(np.radians([10.0] * 8)))), 9)
+    20.0
+    """
+    alpha = np.asarray(alpha, float)
+    full = float(2.0 * np.arccos(np.mean(np.cos(alpha))))
+    if sigma is None:
+        return full
+    dm = np.sqrt(np.sum((np.sin(alpha) * np.asarray(sigma, float) / len(alpha)) ** 2))
+    return full, float(2.0 * dm / max(np.sin(full / 2.0), 1e-9))

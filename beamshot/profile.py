@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._quiet import quiet_nan
 from .beammap import BeamMap
 
 __all__ = ["RadialProfile", "radial_profile", "plane_profile"]
@@ -34,7 +35,7 @@ def radial_profile(beam: BeamMap, *, min_coverage: float = 0.5) -> RadialProfile
     inten = beam.intensity
     count = np.isfinite(inten).sum(axis=1)
     ok = count >= min_coverage * inten.shape[1]
-    with np.errstate(invalid="ignore"), _quiet():
+    with quiet_nan():
         mean = np.where(ok, np.nanmean(inten, axis=1), np.nan)
         std = np.where(ok, np.nanstd(inten, axis=1), np.nan)
         lo = np.where(ok, np.nanmin(np.where(np.isfinite(inten), inten, np.inf), axis=1), np.nan)
@@ -55,14 +56,3 @@ def plane_profile(beam: BeamMap, phi_deg: float) -> tuple[np.ndarray, np.ndarray
     values = np.r_[beam.intensity[::-1, k], beam.intensity[:, j]]
     return angles, values
 
-
-class _quiet:
-    def __enter__(self):
-        import warnings
-
-        self._w = warnings.catch_warnings()
-        self._w.__enter__()
-        warnings.simplefilter("ignore", RuntimeWarning)
-
-    def __exit__(self, *exc):
-        return self._w.__exit__(*exc)

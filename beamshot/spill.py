@@ -21,7 +21,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
+from ._quiet import quiet_nan
 from .beammap import BeamMap
+from .photometry import equal_cone_full_angle
 
 __all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST",
            "EDGE_SHARPNESS", "SPILL_FLOOR_FRACTION", "SpillEdge", "find_spill_edge"]
@@ -60,13 +62,11 @@ class SpillEdge:
 
     def full_angle(self) -> float:
         """Full angle (rad) of the cone with the same solid angle as the edge encloses."""
-        return float(2.0 * np.arccos(np.mean(np.cos(self.theta))))
+        return equal_cone_full_angle(self.theta)
 
     def full_angle_sigma(self) -> float:
-        a = self.full_angle() / 2
-        n = len(self.theta)
-        dm = np.sqrt(np.sum((np.sin(self.theta) * self.sigma / n) ** 2))
-        return float(2 * dm / max(np.sin(a), 1e-9))
+        """1-sigma of :meth:`full_angle` from the per-sector edge uncertainties (rad)."""
+        return equal_cone_full_angle(self.theta, self.sigma)[1]
 
     def across(self, phi_deg: float) -> tuple[float, float]:
         """Full angle (rad) across the beam axis along ``phi_deg`` and its 1-sigma."""
@@ -105,21 +105,10 @@ def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         smooth = gaussian_filter1d(filled, sm, axis=1, mode="nearest") / weight
     resid = np.where(finite, profiles - smooth, np.nan)
-    with np.errstate(invalid="ignore"), _quiet_nan():
+    with quiet_nan():
         mad = np.nanmedian(np.abs(resid - np.nanmedian(resid, axis=1, keepdims=True)), axis=1)
     return np.nan_to_num(1.4826 * mad / np.sqrt(2 * np.sqrt(np.pi) * sm), nan=0.0)
 
-
-class _quiet_nan:
-    def __enter__(self):
-        import warnings
-
-        self._w = warnings.catch_warnings()
-        self._w.__enter__()
-        warnings.simplefilter("ignore", RuntimeWarning)
-
-    def __exit__(self, *exc):
-        return self._w.__exit__(*exc)
 
 
 def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
