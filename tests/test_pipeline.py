@@ -159,3 +159,15 @@ def test_spill_running_off_the_photo(reflector_beam):
     assert rep["ra"].value is None
     assert _rel(rep["hotspot_angle"], truth["hotspot_angle_deg"]) <= 0.02
     assert _rel(rep["peak_intensity"], truth["peak_cd"]) <= 0.03
+
+
+def test_tabulated_beam():
+    # a tabulated, rotationally symmetric beam (linear between points) with a cut-off at 24 deg
+    from beamshot.synth import TabulatedBeam
+
+    ang = (0, 2, 4, 6, 8, 10, 14, 20, 23.6, 24.4, 30)
+    cd = (20000, 17000, 10000, 4000, 1500, 700, 450, 380, 340, 0, 0)
+    pattern = TabulatedBeam(ang, cd, edge_deg=24.0)
+    scene, cam, truth = make_shot(pattern)
+    rep = analyze(_jpeg(pattern, scene, cam), distance_m=scene.distance_m, lux_at_peak=truth["peak_lux_on_wall"])
+    _check_tolerances(rep, truth)
