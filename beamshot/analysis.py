@@ -18,13 +18,15 @@ from .axis import find_beam_axis
 from .beammap import build_beam_map
 from .camera.flatfield import fit_flat_field
 from .camera.linearize import LinearImage, linearize
+from .camera.hdr import merge_bracket
+from .camera.profile import CameraProfile, load_profile
 from .camera.response import Response, parse_response
 from .errors import BeamshotError
 from .measure import beam_figures, measure_shape
 from .photo import Photo, load_photo
 from .profile import radial_profile
 from .report.model import BeamReport
-from .scale import no_scale, scale_from_exposure, scale_from_lux_meter
+from .scale import no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_meter
 from .wall import (FOCAL_35MM_CONVENTION_UNCERTAINTY, focal_px_from_35mm, focal_px_from_hfov,
                    pinhole_mapping)
 
@@ -81,12 +83,16 @@ def analyze(
     focal_35mm: float | None = None,
     hfov_deg: float | None = None,
     camera_distance_m: float | None = None,
-    response: str | Response = "srgb",
+    response: str | Response | None = None,
     head_diameter_mm: float | None = None,
+    camera: str | CameraProfile | None = None,
+    dark=None,
 ) -> BeamReport:
-    """Analyse one beam photo taken square to the wall; returns a :class:`BeamReport`.
+    """Analyse a beam photo (or a bracket of them) taken square to the wall; returns a :class:`BeamReport`.
 
-    ``photo``/``ambient``/``flat`` are paths or :class:`~beamshot.photo.Photo` objects.
+    ``photo`` is a path or :class:`~beamshot.photo.Photo`, or a list of them (a bracket, merged
+    into one linear image); ``ambient``/``flat``/``dark`` are paths or Photos.  ``camera`` is a
+    camera profile (name, path or object; default: the uncalibrated sRGB profile).
     ``distance_m`` is the light-to-wall distance (m); the camera is assumed beside the
     light unless ``camera_distance_m`` (camera-to-wall, m) says otherwise.
     """
@@ -107,15 +113,47 @@ def analyze(
         raise BeamshotError("give either --focal-35mm or --hfov, not both")
     if lux_at_peak is not None and reflectance is not None:
         raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
+    profile = camera if isinstance(camera, CameraProfile) else load_profile(camera)
+    if response is not None and profile.response.kind == "table":
+        raise BeamshotError(f"camera profile '{profile.name}' has a measured response; drop --response")
     try:
-        resp = parse_response(response) if isinstance(response, str) else response
+        resp = parse_response(response) if isinstance(response, str) else (response or profile.response)
     except ValueError as exc:
         raise BeamshotError(str(exc)) from None
 
     warnings: list[str] = []
-    beam_photo = _photo(photo, "photo")
-    inputs = [_input_record("beam", beam_photo)]
-    image = linearize(beam_photo, resp)
+    sources = list(photo) if isinstance(photo, (list, tuple)) else [photo]
+    if not sources:
+        raise BeamshotError("no beam photo given")
+    beam_photos = [_photo(p, "photo") for p in sources]
+    for other in beam_photos[1:]:
+        _same_size(other, beam_photos[0], "bracket photo", "a bracket must come from one camera and position")
+    if any(p.linear for p in beam_photos) and resp.kind != "linear":
+        resp = parse_response("linear")  # raw files are decoded to linear values
+    frames = [linearize(p, resp) for p in beam_photos]
+    if profile.black_level:
+        frames = [f.with_values(f.rgb - np.float32(profile.black_level)) for f in frames]
+    inputs = [_input_record("beam", p) for p in beam_photos]
+    dark_note = None
+    if dark is not None:
+        dark_photo = _same_size(_photo(dark, "dark"), beam_photos[0], "dark frame", "use the same camera and settings")
+        inputs.append(_input_record("dark", dark_photo))
+        d = linearize(dark_photo, resp)
+        frames = [f.with_values(f.rgb - d.rgb) for f in frames]
+        dark_note = {"file": dark_photo.name, "subtracted": "per pixel from every frame"}
+    hdr_note = None
+    if len(frames) > 1:
+        merged = merge_bracket(frames, [p.exif.exposure_product() for p in beam_photos], resp,
+                               names=[p.name for p in beam_photos])
+        image = merged.image
+        beam_photo = beam_photos[merged.reference]
+        warnings.extend(merged.warnings)
+        hdr_note = {"frames": len(frames), "reference": beam_photo.name,
+                    "ratios_used": list(merged.ratios_used), "ratios_exif": list(merged.ratios_exif),
+                    "ratios_measured": list(merged.ratios_measured),
+                    "method": "hat-weighted mean times relative exposure (Debevec & Malik 1997 weights)"}
+    else:
+        image, beam_photo = frames[0], beam_photos[0]
 
     # ---- ambient (light-off) subtraction
     if ambient is not None:
@@ -146,6 +184,17 @@ def analyze(
                             saturated=image.saturated, bin_factor=image.bin_factor, full_shape=image.full_shape)
         flat_note = {"file": flat_photo.name, "model": "1/V = 1 + b1 r^2 + b2 r^4 + b3 r^6",
                      "coefficients": list(ff.coefficients), "residual_rms": ff.residual_rms}
+    elif profile.flat is not None:
+        fh, fw = profile.flat.shape
+        bh, bw = beam_photos[0].shape
+        if (fh, fw) not in ((bh, bw), (bw, bh)):
+            raise BeamshotError(f"the flat field of profile '{profile.name}' is for {fw}x{fh} photos, this one is "
+                                f"{bw}x{bh}; use the camera's profile or shoot a flat field for it")
+        v = profile.flat.evaluate(image.shape)
+        image = LinearImage(rgb=image.rgb / v[..., None], luminance=image.luminance / v,
+                            saturated=image.saturated, bin_factor=image.bin_factor, full_shape=image.full_shape)
+        flat_note = {"from_profile": profile.name, "coefficients": list(profile.flat.coefficients),
+                     "residual_rms": profile.flat.residual_rms}
 
     # ---- wall mapping (pinhole, square to the wall)
     shape = beam_photo.shape
@@ -176,6 +225,9 @@ def analyze(
         scale = scale_from_lux_meter(lux_at_peak, pk.value, pk.theta, distance_m, meter_accuracy=lux_meter_accuracy)
         if pk.clipped:
             warnings.append("the lux reading scales a clipped peak; the scale is unreliable until the hotspot is not clipped")
+    elif profile.scale_constant is not None and reflectance is None:
+        scale = scale_from_camera_constant(beam_photo.exif, profile.scale_constant,
+                                           profile.scale_uncertainty or 0.0, profile.name)
     elif use_exif_scale:
         scale = scale_from_exposure(beam_photo.exif, reflectance=reflectance)
         if scale.kind == "none":
@@ -234,7 +286,11 @@ def analyze(
         "phi_step_deg": float(np.degrees(beam.d_phi)),
     }
     calibration = {
-        "camera_profile": "none (uncalibrated: parametric response, no stored camera constant)",
+        "camera_profile": {"name": profile.name, "calibrated": profile.calibrated,
+                           "provenance": list(profile.provenance)},
+        "response_quality": profile.response_quality,
+        "hdr_merge": hdr_note or "single photo",
+        "dark_frame": dark_note or "none",
         "response": resp.describe(),
         "flat_field": flat_note or "none: vignetting not corrected (phones usually correct it in processing)",
         "ambient": amb_note or "none: no light-off photo subtracted",

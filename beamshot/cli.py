@@ -55,7 +55,7 @@ def cli():
 
 
 @cli.command()
-@click.argument("photo", type=click.Path(dir_okay=False))
+@click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--distance", "distance_m", type=float, required=True, help="Light-to-wall distance in metres.")
 @click.option("--distance-uncertainty", "distance_u", type=float, default=None,
               help="Standard uncertainty of the distance in metres [default 0.02].")
@@ -73,30 +73,39 @@ def cli():
 @click.option("--hfov", type=float, default=None, help="Horizontal field of view of the photo (degrees).")
 @click.option("--camera-distance", type=float, default=None,
               help="Camera-to-wall distance (m) if the camera is not beside the light.")
-@click.option("--response", default="srgb", show_default=True, help="Tone curve: srgb, linear or gamma:<exponent>.")
+@click.option("--response", default=None,
+              help="Tone curve: srgb, linear, s-curve or gamma:<exponent> [default: the camera profile's, sRGB].")
+@click.option("--camera", default=None, help="Camera profile: a name (see 'beamshot camera list') or a JSON file.")
+@click.option("--dark", type=click.Path(dir_okay=False), default=None,
+              help="Dark frame (lens capped, same settings), subtracted per pixel from every photo.")
 @click.option("--head-diameter", "head_mm", type=float, default=None,
               help="Diameter of the light's head (mm), for the far-field check.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for report.json, profile.csv and beam.png.")
 @click.option("--json", "as_json", is_flag=True, help="Print the report as JSON instead of a table.")
-def analyze(photo, distance_m, distance_u, ambient, flat, lux_at_peak, meter_accuracy, reflectance, no_exif_scale,
-            focal_35mm, hfov, camera_distance, response, head_mm, out_dir, as_json):
-    """Analyse PHOTO, a beam on a white wall shot square to the wall beside the light."""
+def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_accuracy, reflectance, no_exif_scale,
+            focal_35mm, hfov, camera_distance, response, camera, dark, head_mm, out_dir, as_json):
+    """Analyse PHOTOS of a beam on a white wall, shot square to the wall beside the light.
+
+    Several photos are a bracket (same scene, different exposures) and are merged first.
+    """
     from .analysis import analyze as run
     from .report.output import write_report
 
     try:
-        report = run(photo, distance_m=distance_m, distance_uncertainty_m=distance_u, ambient=ambient, flat=flat,
+        report = run(list(photos) if len(photos) > 1 else photos[0], distance_m=distance_m, distance_uncertainty_m=distance_u, ambient=ambient, flat=flat,
                      lux_at_peak=lux_at_peak, lux_meter_accuracy=meter_accuracy, reflectance=reflectance,
                      use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
-                     camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm)
+                     camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
+                     camera=camera, dark=dark)
         written = write_report(report, out_dir) if out_dir else []
     except BeamshotError as exc:
         _fail(str(exc))
     if as_json:
         click.echo(json.dumps(report.to_dict(), indent=2, ensure_ascii=False))
         return
-    click.echo(f"{os.path.basename(photo)} at {distance_m:g} m")
+    names = ", ".join(os.path.basename(p) for p in photos)
+    click.echo(f"{names} at {distance_m:g} m")
     _print_figures(report)
     if written:
         click.echo(f"wrote {', '.join(written)}")
@@ -141,6 +150,168 @@ def demo(out_dir):
             click.echo(f"  {key:18s} {fig.text(3):>24s} {truth:>10.4g} {err:>+8.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}/")
     click.echo(f"\ndone in {time.perf_counter() - start:.1f} s; open {out_dir}/*/beam.png")
+
+
+@cli.group()
+def camera():
+    """Calibrate a camera once, keep what was learned in a profile, and inspect profiles."""
+
+
+def _profile_for_update(name: str, out: str | None):
+    """The profile a calibration step updates: ``out`` (a file) if given, else the named one."""
+    from .camera.profile import CameraProfile, find_profile, load_profile
+
+    target = out if out is not None else name
+    if find_profile(target) is not None:
+        return load_profile(target)
+    import datetime as dt
+
+    return CameraProfile(name=name, created_utc=dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds"))
+
+
+def _file_records(photos) -> list[dict]:
+    return [{"name": p.name, "sha256": p.sha256, "width": p.shape[1], "height": p.shape[0]} for p in photos]
+
+
+def _save(profile, out):
+    from .camera.profile import save_profile
+
+    try:
+        path = save_profile(profile, out)
+    except OSError as exc:
+        _fail(f"cannot write the profile ({exc.strerror})")
+    click.echo(f"saved camera profile '{profile.name}' to {path}")
+
+
+@camera.command("response")
+@click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("--name", required=True, help="Profile name (created or updated).")
+@click.option("--method", type=click.Choice(["debevec", "robertson"]), default="debevec", show_default=True)
+@click.option("--times", default=None, help="Exposure times in seconds, comma-separated, if EXIF lacks them.")
+@click.option("--out", "out", type=click.Path(dir_okay=False), default=None, help="Write the profile to this file.")
+def camera_response(photos, name, method, times, out):
+    """Recover the response curve from a bracket (5-9 photos of a still scene, tripod)."""
+    from .camera.bracket import recover_response
+    from .photo import load_photo
+
+    try:
+        t = None if times is None else [float(x) for x in times.split(",")]
+    except ValueError:
+        _fail("--times takes numbers in seconds separated by commas, e.g. 0.01,0.02,0.04")
+    try:
+        loaded = [load_photo(p) for p in photos]
+        fit = recover_response(loaded, method=method, times=t)
+        profile = _profile_for_update(name, out)
+    except BeamshotError as exc:
+        _fail(str(exc))
+    profile = profile.with_step("response", _file_records(loaded), response=fit.response,
+                                response_quality=fit.quality(), make=loaded[0].exif.make,
+                                model=loaded[0].exif.model)
+    click.echo(f"response from {len(loaded)} photos ({fit.method}): frames agree within "
+               f"{fit.consistency_rms:.2%} (RMS) after linearisation")
+    for w in fit.warnings:
+        click.echo(f"  ! {w}")
+    _save(profile, out)
+
+
+@camera.command("flat")
+@click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("--name", required=True, help="Profile name (created or updated).")
+@click.option("--dark", type=click.Path(dir_okay=False), default=None, help="Dark frame subtracted first.")
+@click.option("--out", "out", type=click.Path(dir_okay=False), default=None, help="Write the profile to this file.")
+def camera_flat(photos, name, dark, out):
+    """Fit the vignetting model to photos of an evenly lit white target filling the view."""
+    import numpy as np
+
+    from .camera.flatfield import fit_flat_field
+    from .camera.linearize import linearize
+    from .photo import load_photo
+
+    try:
+        profile = _profile_for_update(name, out)
+        loaded = [load_photo(p) for p in photos]
+        for p in loaded[1:]:
+            if p.shape != loaded[0].shape:
+                raise BeamshotError(f"{p.name}: {p.shape[1]}x{p.shape[0]} differs from {loaded[0].name}")
+        lum = np.mean([linearize(p, profile.response).luminance for p in loaded], axis=0)
+        if dark is not None:
+            d = load_photo(dark)
+            if d.shape != loaded[0].shape:
+                raise BeamshotError(f"{d.name}: the dark frame is {d.shape[1]}x{d.shape[0]}, "
+                                    f"the flat {loaded[0].shape[1]}x{loaded[0].shape[0]}")
+            lum = lum - linearize(d, profile.response).luminance
+        ff = fit_flat_field(lum)
+    except BeamshotError as exc:
+        _fail(str(exc))
+    ff = type(ff)(coefficients=ff.coefficients, residual_rms=ff.residual_rms, shape=loaded[0].shape)
+    r2 = 1.0
+    corner = 1.0 / (1 + sum(c * r2 ** (k + 1) for k, c in enumerate(ff.coefficients)))
+    profile = profile.with_step("flat", _file_records(loaded), flat=ff)
+    click.echo(f"flat field from {len(loaded)} photo(s): corners at {corner:.0%} of the centre; "
+               f"model residual {ff.residual_rms:.2%} RMS")
+    _save(profile, out)
+
+
+@camera.command("scale")
+@click.argument("photo", type=click.Path(dir_okay=False))
+@click.option("--lux", type=float, required=True, help="Lux-meter reading on the wall at the metered point.")
+@click.option("--at", "at", default=None, help="Metered point as X,Y pixels in the photo [default: centre].")
+@click.option("--meter-accuracy", type=float, default=0.05, show_default=True, help="Relative 1-sigma of the meter.")
+@click.option("--name", required=True, help="Profile name (created or updated).")
+@click.option("--out", "out", type=click.Path(dir_okay=False), default=None, help="Write the profile to this file.")
+def camera_scale(photo, lux, at, meter_accuracy, name, out):
+    """Keep the camera's absolute constant from one photo of a lit wall and a lux reading."""
+    from .camera.constant import camera_constant
+    from .camera.linearize import LinearImage, linearize
+    from .photo import load_photo
+
+    try:
+        xy = None
+        if at is not None:
+            try:
+                xy = tuple(float(v) for v in at.split(","))
+                if len(xy) != 2:
+                    raise ValueError
+            except ValueError:
+                raise BeamshotError("--at takes X,Y in pixels, e.g. 2016,1512") from None
+        profile = _profile_for_update(name, out)
+        p = load_photo(photo)
+        img = linearize(p, profile.response)
+        if profile.flat is not None:
+            v = profile.flat.evaluate(img.shape)
+            img = LinearImage(rgb=img.rgb / v[..., None], luminance=img.luminance / v, saturated=img.saturated,
+                              bin_factor=img.bin_factor, full_shape=img.full_shape)
+        k, rel, notes = camera_constant(img, p.exif, lux, xy, meter_accuracy=meter_accuracy, name=p.name)
+    except BeamshotError as exc:
+        _fail(str(exc))
+    profile = profile.with_step("scale", _file_records([p]), scale_constant=k, scale_uncertainty=rel,
+                                scale_notes=notes)
+    click.echo(f"camera constant K = {k:.5g} lx (± {rel:.1%}); E = K v N^2 / (t S)")
+    if "warning" in notes:
+        click.echo(f"  ! {notes['warning']}")
+    _save(profile, out)
+
+
+@camera.command("show")
+@click.argument("name")
+def camera_show(name):
+    """Print a camera profile (a name or a file)."""
+    from .camera.profile import load_profile
+
+    try:
+        profile = load_profile(name)
+    except BeamshotError as exc:
+        _fail(str(exc))
+    click.echo(json.dumps(profile.to_dict(), indent=2))
+
+
+@camera.command("list")
+def camera_list():
+    """List the camera profiles that can be used with --camera."""
+    from .camera.profile import list_profiles
+
+    for name, path in list_profiles():
+        click.echo(f"{name:28s} {path}")
 
 
 def main():

@@ -204,8 +204,9 @@ def _coverage_reason(edge: SpillEdge, phi_deg: float | None = None) -> str:
     if phi_deg is not None:
         i = int(round(phi_deg / 10.0)) % len(edge.phi)
         j = (i + len(edge.phi) // 2) % len(edge.phi)
-        return (f"the spill edge is not in the photo along this line (the photo covers {cov[i]:.1f} and "
-                f"{cov[j]:.1f} deg from the axis); step back or use a wider lens")
+        return (f"no spill edge found along this line (the photo covers {cov[i]:.1f} and {cov[j]:.1f} deg "
+                "from the axis); step back or use a wider lens, and subtract a light-off photo")
     missing = [i for i, k in enumerate(edge.kind) if k == "outside"]
-    return (f"the spill edge is not in the photo in {len(missing)} of {len(edge.kind)} directions "
-            f"(the photo covers {cov.min():.1f} to {cov.max():.1f} deg from the axis); step back or use a wider lens")
+    return (f"no spill edge found in {len(missing)} of {len(edge.kind)} directions (the photo covers "
+            f"{cov.min():.1f} to {cov.max():.1f} deg from the axis): the edge lies outside the photo, or room "
+            "light or noise hides it; step back or use a wider lens, and subtract a light-off photo (--ambient)")

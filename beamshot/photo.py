@@ -69,6 +69,7 @@ class Photo:
     name: str
     sha256: str
     max_code: int
+    linear: bool = False
 
     @property
     def pixels(self) -> np.ndarray:

@@ -30,6 +30,7 @@ __all__ = [
     "scale_from_lux_meter",
     "scale_from_exposure",
     "no_scale",
+    "scale_from_camera_constant",
 ]
 
 #: Assumed reflectance of a matte white wall (assumption; white emulsion paints are ~0.8-0.9).
@@ -50,7 +51,7 @@ class AbsoluteScale:
     """``lux_per_unit`` converts linear camera units to lux; ``None`` when there is no scale.
 
     ``rel_uncertainty`` is the relative 1-sigma uncertainty of the factor; ``kind`` is
-    ``'lux_meter'``, ``'exposure_metadata'`` or ``'none'``.
+    ``'lux_meter'``, ``'camera_constant'``, ``'exposure_metadata'`` or ``'none'``.
     """
 
     lux_per_unit: float | None
@@ -111,6 +112,22 @@ def scale_from_exposure(exif: ExifFacts, *, reflectance: float | None = None,
             f"lens factor q = {q:.4f} ± {Q_FACTOR_UNCERTAINTY:.0%} (ISO 12232 typical lens)",
             "the response curve maps clipping to 1.0",
         ),
+    )
+
+
+def scale_from_camera_constant(exif: ExifFacts, constant_lx: float, rel_uncertainty: float,
+                               profile_name: str) -> AbsoluteScale:
+    """Scale from a camera profile's kept constant: ``lux_per_unit = K N^2 / (t S)``."""
+    if not exif.has_exposure:
+        return no_scale("the photo's EXIF lacks exposure time, f-number or ISO, which the camera constant needs")
+    return AbsoluteScale(
+        lux_per_unit=float(constant_lx * exif.f_number**2 / (exif.exposure_time_s * exif.iso)),
+        rel_uncertainty=float(rel_uncertainty),
+        kind="camera_constant",
+        description=(f"camera constant K = {constant_lx:.5g} lx of profile '{profile_name}' at t = "
+                     f"{exif.exposure_time_s:.4g} s, f/{exif.f_number:g}, ISO {exif.iso:g} (E = K v N^2 / (t S))"),
+        assumptions=("the wall has the reflectance of the wall used for the calibration",
+                     "the ISO and aperture behave as at calibration"),
     )
 
 

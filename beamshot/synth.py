@@ -42,6 +42,7 @@ __all__ = [
     "encode_png16",
     "exposure_time_for_peak",
     "truth_figures",
+    "render_bracket",
 ]
 
 #: Lens transmission T and vignetting factor f_v of the simulated camera (ISO 12232 typical).
@@ -339,3 +340,33 @@ def truth_figures(pattern, distance_m: float, *, theta_max_deg: float = 80.0,
     k = np.argmax(i)
     out["peak_offset_deg"] = float(np.degrees(tt.flat[k]))
     return out
+
+
+def render_bracket(pattern, scene: Scene, camera: SynthCamera, stops, *, seed: int = 0, quality: int = 95,
+                   moved_frame: int | None = None, move_px: int = 0) -> list[bytes]:
+    """JPEG bytes of a bracket: the same scene at exposure time ``t * 2**stop`` for each stop.
+
+    The noise-free signal is rendered once; each frame gets its own noise and EXIF.  With
+    ``moved_frame`` set, that frame is shifted right by ``move_px`` pixels (a bumped tripod).
+    """
+    from dataclasses import replace
+
+    rng = np.random.default_rng(seed)
+    colour = np.asarray(scene.light_rgb, float)
+    colour = colour / float(np.dot(colour, LUMINANCE_WEIGHTS_BT709))
+    base = np.concatenate([render_linear(pattern, scene, camera, rows=slice(top, min(top + 256, camera.height_px)))
+                           for top in range(0, camera.height_px, 256)])
+    frames = []
+    for k, stop in enumerate(stops):
+        cam = replace(camera, exposure_time_s=camera.exposure_time_s * 2.0**stop)
+        v = base * 2.0**stop
+        if moved_frame == k and move_px:
+            v = np.roll(v, move_px, axis=1)
+        rgb = np.empty(v.shape + (3,), np.float32)
+        for c in range(3):
+            e = np.clip(v * colour[c], 0.0, None) * cam.full_well_e
+            e = e + rng.standard_normal(e.shape) * np.sqrt(e + cam.read_noise_e**2)
+            rgb[..., c] = np.clip(e / cam.full_well_e, 0.0, 1.0)
+        pixels = np.round(cam.response.encode(rgb) * 255.0).astype(np.uint8)
+        frames.append(encode_jpeg(pixels, cam, quality=quality))
+    return frames

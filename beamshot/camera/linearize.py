@@ -96,8 +96,13 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
     b = bin_factor_for((height, width), max_side)
     h, w = height // b, width // b
     lut = response.lookup_table(photo.max_code + 1)
+    if lut.ndim == 2:
+        lut = lut[:, ::-1]  # per-channel table, R G B -> the photo's B G R storage order
     eight_bit = pixels.dtype == np.uint8
-    lut16 = np.round(np.clip(lut, 0.0, 1.0) * 65535.0).astype(np.uint16).reshape(1, -1) if eight_bit else None
+    lut16 = None
+    if eight_bit:
+        lut16 = np.round(np.clip(lut, 0.0, 1.0) * 65535.0).astype(np.uint16)
+        lut16 = lut16.reshape(1, 256, 3) if lut16.ndim == 2 else lut16.reshape(1, -1)
     clip_code = int(np.ceil(SATURATION_CODE_FRACTION * photo.max_code))
     rgb = np.empty((h, w, 3), np.float32)
     saturated = np.empty((h, w), bool)
@@ -106,7 +111,12 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
     def work(top: int) -> None:
         bottom = min(top + step, h * b)
         strip = pixels[top:bottom, : w * b]
-        lin = cv2.LUT(strip, lut16) if eight_bit else lut[strip]
+        if eight_bit:
+            lin = cv2.LUT(strip, lut16)
+        elif lut.ndim == 2:
+            lin = np.stack([lut[strip[..., c], c] for c in range(3)], axis=-1)
+        else:
+            lin = lut[strip]
         rows = (bottom - top) // b
         out_rows = slice(top // b, top // b + rows)
         # 255 where every channel is below the clip code (cv2.inRange is a fast SIMD pass)
