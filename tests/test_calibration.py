@@ -174,7 +174,7 @@ def test_bad_calibration_inputs(tmp_path):
     assert CliRunner().invoke(cli, ["camera", "flat", str(other), "--name", "flatcam", "--out", str(flat_prof)]).exit_code == 0
     assert "flat field" in _run(["analyze", paths[0], "--distance", "5", "--camera", str(flat_prof)])
     # a bracket of different sizes in analyze
-    assert "same camera" in _run(["analyze", paths[0], str(other), "--distance", "5"])
+    assert "one camera and position" in _run(["analyze", paths[0], str(other), "--distance", "5"])
     # a corrupt profile and a profile from a newer beamshot
     bad = tmp_path / "bad.json"
     bad.write_text("{ not json")
