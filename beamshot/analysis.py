@@ -240,7 +240,13 @@ def analyze(
     else:
         beam_out = beam
 
-    figures = beam_figures(shape_, beam, scale, angle_scale_uncertainty=f_u,
+    cal_terms = []
+    if resp.kind == "table" and profile.response_quality:
+        cal_terms.append(float(profile.response_quality.get("consistency_rms", 0.0)))
+    if isinstance(flat_note, dict):
+        cal_terms.append(float(flat_note.get("residual_rms", 0.0)))
+    cal_u = float(np.sqrt(np.sum(np.square(cal_terms)))) if cal_terms else 0.0
+    figures = beam_figures(shape_, beam, scale, angle_scale_uncertainty=f_u, calibration_rel_uncertainty=cal_u,
                            distance_rel_uncertainty=u_d / distance_m,
                            axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0))
 
@@ -290,6 +296,7 @@ def analyze(
                            "provenance": list(profile.provenance)},
         "response_quality": profile.response_quality,
         "hdr_merge": hdr_note or "single photo",
+        "calibration_relative_uncertainty": cal_u,
         "dark_frame": dark_note or "none",
         "response": resp.describe(),
         "flat_field": flat_note or "none: vignetting not corrected (phones usually correct it in processing)",

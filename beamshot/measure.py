@@ -84,8 +84,14 @@ def _angle_figure(full_rad: float, noise_rad: float, scale_u: float, method: str
 
 def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
                  angle_scale_uncertainty: float, distance_rel_uncertainty: float,
-                 axis_uncertainty_rad: float) -> dict[str, Figure]:
-    """All reported figures (see FIGURE_ORDER) from a measured shape and a scale."""
+                 axis_uncertainty_rad: float, calibration_rel_uncertainty: float = 0.0) -> dict[str, Figure]:
+    """All reported figures (see FIGURE_ORDER) from a measured shape and a scale.
+
+    ``calibration_rel_uncertainty`` is the relative 1-sigma error of intensity *ratios* left by
+    the camera calibration (response-curve consistency and flat-field residual); it enters the
+    peak, the fluxes and Ra.
+    """
+    cal_u = float(calibration_rel_uncertainty)
     figs: dict[str, Figure] = {}
     pk = shape.peak
     clipped = pk.clipped
@@ -94,7 +100,8 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
     # ---- peak intensity and beam distance
     if scale.absolute:
         k = scale.lux_per_unit
-        rel_u = float(np.sqrt(scale.rel_uncertainty**2 + (2 * distance_rel_uncertainty) ** 2 + pk.rel_noise**2))
+        rel_u = float(np.sqrt(scale.rel_uncertainty**2 + (2 * distance_rel_uncertainty) ** 2 + pk.rel_noise**2
+                              + cal_u**2))
         status = "lower_bound" if clipped else ("estimate" if scale.kind == "exposure_metadata" else "measured")
         value = k * pk.value
         figs["peak_intensity"] = Figure(value, None if clipped else value * rel_u, "cd",
@@ -153,7 +160,7 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
         dh = abs(shape.flux_hot_plus.hotspot - fx.hotspot)
         if scale.absolute:
             k = scale.lux_per_unit
-            rel_s = float(np.hypot(scale.rel_uncertainty, 2 * distance_rel_uncertainty))
+            rel_s = float(np.sqrt(scale.rel_uncertainty**2 + (2 * distance_rel_uncertainty) ** 2 + cal_u**2))
             st = "estimate" if scale.kind == "exposure_metadata" else "measured"
             hv = k * fx.hotspot
             figs["hotspot_flux"] = (Figure(hv, None, "lm", flux_method + " inside the 50 % contour", "lower_bound", clip_reason)
@@ -187,7 +194,7 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
             ra = fx.spill / fx.hotspot
             ra_h = shape.flux_hot_plus.spill / shape.flux_hot_plus.hotspot
             ra_e = shape.flux_edge_plus.spill / shape.flux_edge_plus.hotspot
-            figs["ra"] = Figure(ra, float(np.hypot(ra_h - ra, ra_e - ra)), "", ra_method)
+            figs["ra"] = Figure(ra, float(np.sqrt((ra_h - ra) ** 2 + (ra_e - ra) ** 2 + (cal_u * ra) ** 2)), "", ra_method)
     # ---- hotspot offset
     off_method = "angle between the peak direction and the beam axis (spill centre)"
     off_sigma = float(np.hypot(axis_uncertainty_rad, beam.d_theta))

@@ -19,10 +19,14 @@ from PIL import Image, UnidentifiedImageError
 
 from .errors import BeamshotError
 
-__all__ = ["MAX_MEGAPIXELS", "ExifFacts", "Photo", "load_photo", "decode_photo", "apply_orientation"]
+__all__ = ["MAX_MEGAPIXELS", "RAW_EXTENSIONS", "ExifFacts", "Photo", "load_photo", "decode_photo", "decode_raw",
+           "apply_orientation"]
 
 #: Largest photo accepted, in megapixels (the largest phone sensors are 200 MP).
 MAX_MEGAPIXELS = 250.0
+#: File endings decoded as raw sensor data through LibRaw (rawpy).
+RAW_EXTENSIONS = frozenset({".dng", ".cr2", ".cr3", ".nef", ".nrw", ".arw", ".raf", ".orf", ".rw2", ".pef",
+                            ".srw", ".3fr", ".iiq", ".rwl"})
 
 # Exif tag numbers (Exif 2.3 / CIPA DC-008).
 _TAG_ORIENTATION = 0x0112
@@ -105,8 +109,36 @@ def _text(value) -> str | None:
 def read_exif(image: Image.Image) -> ExifFacts:
     """Exposure facts from a Pillow image's EXIF block (missing tags give ``None``)."""
     exif = image.getexif()
-    sub = exif.get_ifd(_TAG_EXIF_IFD)
+    return _facts(exif, exif.get_ifd(_TAG_EXIF_IFD))
 
+
+def _tiff_exif(data: bytes) -> ExifFacts:
+    """Exposure facts from the TIFF structure of a TIFF-based raw file (DNG, NEF, CR2, ...).
+
+    Reads IFD0 and its Exif sub-IFD with Pillow's TIFF tag reader (TIFF/EP allows the exposure
+    tags in IFD0 too); returns empty facts for other files.
+    """
+    from PIL import TiffImagePlugin
+
+    if data[:4] not in (b"II*\x00", b"MM\x00*"):
+        return ExifFacts()
+    try:
+        fp = io.BytesIO(data)
+        ifd0 = TiffImagePlugin.ImageFileDirectory_v2(ifh=data[:8])
+        fp.seek(ifd0.next)
+        ifd0.load(fp)
+        sub = {}
+        if _TAG_EXIF_IFD in ifd0:
+            sub_ifd = TiffImagePlugin.ImageFileDirectory_v2(ifh=data[:8])
+            fp.seek(int(ifd0[_TAG_EXIF_IFD]))
+            sub_ifd.load(fp)
+            sub = dict(sub_ifd)
+        return _facts(dict(ifd0), sub)
+    except (OSError, ValueError, KeyError, TypeError, SyntaxError):
+        return ExifFacts()
+
+
+def _facts(exif, sub) -> ExifFacts:
     def get(tag):
         return sub.get(tag, exif.get(tag))
 
@@ -157,11 +189,43 @@ def apply_orientation(pixels: np.ndarray, orientation: int) -> np.ndarray:
     return pixels
 
 
+def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | None = None) -> Photo:
+    """Decode a raw file (DNG and common camera raws) with LibRaw through rawpy, as linear data.
+
+    Black and white levels come from the file; demosaicing without auto-brightening, gamma
+    (1, 1), 16-bit output, the camera's white balance and sRGB primaries.  ``linear`` is set,
+    so no response curve is applied; 1.0 is LibRaw's white level.
+    """
+    import rawpy
+
+    limit = MAX_MEGAPIXELS if max_megapixels is None else max_megapixels
+    try:
+        with rawpy.imread(io.BytesIO(data)) as raw:
+            h, w = raw.sizes.height, raw.sizes.width
+            if h * w / 1e6 > limit:
+                raise BeamshotError(f"{name}: {w}x{h} is above the {limit:.0f} MP limit")
+            rgb = raw.postprocess(gamma=(1, 1), no_auto_bright=True, output_bps=16, use_camera_wb=True,
+                                  output_color=rawpy.ColorSpace.sRGB)
+    except (rawpy.LibRawError, OSError, ValueError) as exc:
+        raise BeamshotError(f"{name}: not a readable raw file ({type(exc).__name__}); copy the file again") from None
+    exif = _tiff_exif(data)
+    from dataclasses import replace
+
+    exif = replace(exif, orientation=1)  # LibRaw has already turned the image upright
+    return Photo(bgr=np.ascontiguousarray(rgb[..., ::-1]), exif=exif, name=name,
+                 sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True)
+
+
 def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float | None = None) -> Photo:
-    """Decode image bytes into a :class:`Photo`; raises :class:`BeamshotError` on bad input."""
+    """Decode image bytes into a :class:`Photo`; raises :class:`BeamshotError` on bad input.
+
+    Raw files (by their ending, see ``RAW_EXTENSIONS``) go to :func:`decode_raw`.
+    """
     limit = MAX_MEGAPIXELS if max_megapixels is None else max_megapixels
     if len(data) == 0:
         raise BeamshotError(f"{name}: the file is empty; give a JPEG, PNG or TIFF photo")
+    if os.path.splitext(name)[1].lower() in RAW_EXTENSIONS:
+        return decode_raw(data, name, max_megapixels=max_megapixels)
     try:
         with Image.open(io.BytesIO(data)) as probe:
             width, height = probe.size

@@ -190,3 +190,23 @@ def test_bad_calibration_inputs(tmp_path):
     # nothing was overwritten
     assert prof.read_bytes() == before
     assert newer.read_text().startswith('{"schema"')
+
+
+def test_raw_beam_photo_end_to_end(tmp_path):
+    # a beam recorded as linear raw (DNG through LibRaw): no response curve involved
+    from beamshot.synth import render_rgb_linear
+    from test_photo import _linear_dng
+
+    scene = Scene(distance_m=5.0)
+    cam = SynthCamera(width_px=900, height_px=675, focal_35mm_mm=16)
+    truth = truth_figures(BEAM, 5.0)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(BEAM, scene, cam, target=0.7))
+    rgb = render_rgb_linear(BEAM, scene, cam, seed=2)
+    codes = np.round(256 + rgb * (16383 - 256)).astype(np.uint16)
+    path = tmp_path / "beam.dng"
+    _linear_dng(path, codes, exposure=(cam.exposure_time_s, cam.f_number, cam.iso))
+    rep = analyze(str(path), distance_m=5.0, focal_35mm=16, lux_at_peak=truth["peak_lux_on_wall"])
+    assert rep.inputs[0]["bits"] == 16
+    assert abs(rep["hotspot_angle"].value / truth["hotspot_angle_deg"] - 1) <= 0.02
+    assert abs(rep["spill_angle"].value / truth["spill_angle_deg"] - 1) <= 0.03
+    assert abs(rep["ra"].value / truth["ra"] - 1) <= 0.05

@@ -80,3 +80,50 @@ def test_missing_file_and_folder(tmp_path):
         load_photo(tmp_path / "nope.jpg")
     with pytest.raises(BeamshotError, match="folder"):
         load_photo(tmp_path)
+
+
+def _linear_dng(path, rgb16, exposure=(1 / 100, 2.0, 100)):
+    """A minimal LinearRaw DNG (DNG 1.4 tags) written with tifffile; exposure facts in IFD0 (TIFF/EP)."""
+    import tifffile
+
+    t, n, iso = exposure
+    from fractions import Fraction
+
+    ft, fn = Fraction(t).limit_denominator(100000), Fraction(n).limit_denominator(1000)
+    tags = [
+        (50706, "B", 4, (1, 4, 0, 0), True),  # DNGVersion
+        (50707, "B", 4, (1, 1, 0, 0), True),  # DNGBackwardVersion
+        (50708, "s", 0, "beamshot synthetic", True),  # UniqueCameraModel
+        (50714, "H", 3, (256, 256, 256), True),  # BlackLevel
+        (50717, "H", 3, (16383, 16383, 16383), True),  # WhiteLevel
+        (50721, "2i", 9, (1, 1, 0, 1, 0, 1, 0, 1, 1, 1, 0, 1, 0, 1, 0, 1, 1, 1), True),  # ColorMatrix1 = I
+        (50778, "H", 1, 21, True),  # CalibrationIlluminant1 = D65
+        (33434, "2I", 1, (ft.numerator, ft.denominator), True),  # ExposureTime
+        (33437, "2I", 1, (fn.numerator, fn.denominator), True),  # FNumber
+        (34855, "H", 1, int(iso), True),  # ISOSpeedRatings
+    ]
+    tifffile.imwrite(path, rgb16, photometric=34892, planarconfig="contig", extratags=tags)
+
+
+def test_raw_dng_decodes_linear(tmp_path):
+    # LibRaw (rawpy) applies the file's black (256) and white (16383) levels, no gamma:
+    # a grey ramp comes out proportional to (code - black)
+    x = np.linspace(400, 15000, 96)
+    grey = np.repeat(np.tile(x, (64, 1))[..., None], 3, axis=2).astype(np.uint16)
+    path = tmp_path / "ramp.dng"
+    _linear_dng(path, grey)
+    photo = load_photo(path)
+    assert photo.linear and photo.max_code == 65535
+    assert photo.exif.exposure_time_s == pytest.approx(0.01) and photo.exif.iso == 100
+    out = photo.pixels[32].astype(float).mean(axis=1)
+    expected = x - 256
+    slope, offset = np.polyfit(expected, out, 1)
+    assert np.max(np.abs(out - (slope * expected + offset))) / out.max() < 0.005  # linear within 0.5 %
+    assert abs(offset) / out.max() < 0.005  # black level removed
+
+
+def test_corrupt_raw(tmp_path):
+    path = tmp_path / "broken.dng"
+    path.write_bytes(b"II*\x00" + b"\x00" * 100)
+    with pytest.raises(BeamshotError, match="not a readable raw"):
+        load_photo(path)
