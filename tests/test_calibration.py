@@ -210,3 +210,22 @@ def test_raw_beam_photo_end_to_end(tmp_path):
     assert abs(rep["hotspot_angle"].value / truth["hotspot_angle_deg"] - 1) <= 0.02
     assert abs(rep["spill_angle"].value / truth["spill_angle_deg"] - 1) <= 0.03
     assert abs(rep["ra"].value / truth["ra"] - 1) <= 0.05
+
+
+def test_merge_checks_exif_ratios_against_pixels():
+    from beamshot.camera.hdr import merge_bracket
+
+    _, _, frames = _bracket("srgb", [0, 2, 4], target=0.6)
+    photos = [decode_photo(b, f"e{i}.jpg") for i, b in enumerate(frames)]
+    lin = [linearize(p, Response()) for p in photos]
+    exif = [p.exif.exposure_product() for p in photos]
+    ok = merge_bracket(lin, exif, Response())
+    assert not ok.warnings
+    assert ok.ratios_measured[1] == pytest.approx(4.0, rel=0.03)  # 2 stops, measured from pixels
+    # EXIF claims a wrong exposure for frame 3: reported, EXIF still used
+    wrong = merge_bracket(lin, [exif[0], exif[1], exif[2] * 1.3], Response())
+    assert any("EXIF says" in w for w in wrong.warnings)
+    # no EXIF for frame 2: the measured ratio is used instead
+    missing = merge_bracket(lin, [exif[0], None, exif[2]], Response())
+    assert missing.ratios_used[1] == pytest.approx(4.0, rel=0.03)
+    assert any("no exposure in EXIF" in w for w in missing.warnings)
