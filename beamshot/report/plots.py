@@ -46,8 +46,16 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     half = half_width_deg or min(cov, 89.0)
     a, vals = _azimuthal_grid(beam, half)
     peak = np.nanmax(vals)
-    norm = LogNorm(vmin=peak * 10 ** (-MAP_DECADES), vmax=peak)
-    shown = np.where(np.isfinite(vals), np.clip(vals, peak * 10 ** (-MAP_DECADES), None), np.nan)
+    floor = peak * 10 ** (-MAP_DECADES)
+    edge = (contours or {}).get("edge")
+    if edge is not None and np.all(np.isfinite(edge.theta)):
+        # reach down to a deep spill: a third of its median level, at most 5 decades below peak
+        rr = np.radians(np.hypot(*np.meshgrid(a, a)))
+        inner = np.isfinite(vals) & (rr < 0.9 * np.min(edge.theta)) & (vals < 0.1 * peak)
+        if inner.sum() > 50:
+            floor = max(min(floor, np.median(vals[inner]) / 3.0), peak * 1e-5)
+    norm = LogNorm(vmin=floor, vmax=peak)
+    shown = np.where(np.isfinite(vals), np.clip(vals, floor, None), np.nan)
     im = ax.imshow(shown, origin="lower", extent=(a[0], a[-1], a[0], a[-1]), cmap="inferno", norm=norm)
     ax.set_facecolor("#d9d9d9")
     unit = "cd" if beam.unit == "cd" else "relative"
@@ -141,7 +149,10 @@ def beam_figure(report, path=None):
     plot_radial_profile(report.profile, report.figures, ax=ax_log, log=True, unit=unit)
     plot_radial_profile(report.profile, report.figures, ax=ax_lin, log=False, unit=unit)
     ax_lin.get_legend().remove()
-    name = report.inputs[0]["name"] if report.inputs else ""
+    beams = [i["name"] for i in report.inputs if i.get("role") == "beam"]
+    name = beams[0] if beams else ""
+    if len(beams) > 1:
+        name += f" (+{len(beams) - 1} bracket photos)"
     pk = report.figures.get("peak_intensity")
     title = f"{name} — peak {pk.text(3)}" if pk is not None else name
     fig.suptitle(title, fontsize=11)
