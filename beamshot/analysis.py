@@ -27,8 +27,9 @@ from .photo import Photo, load_photo
 from .profile import radial_profile
 from .report.model import BeamReport
 from .scale import no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_meter
-from .wall import (FOCAL_35MM_CONVENTION_UNCERTAINTY, focal_px_from_35mm, focal_px_from_hfov,
-                   pinhole_mapping)
+from .target import detect_markers
+from .wall import (FOCAL_35MM_CONVENTION_UNCERTAINTY, focal_px_from_35mm, focal_px_from_hfov, homography_mapping,
+                   parse_wall_points, pinhole_mapping, pose_mapping)
 
 __all__ = ["analyze", "DEFAULT_DISTANCE_UNCERTAINTY_M", "MIN_DISTANCE_M", "MAX_DISTANCE_M"]
 
@@ -48,6 +49,57 @@ def _photo(obj, role: str) -> Photo:
     if isinstance(obj, (str, os.PathLike)):
         return load_photo(obj)
     raise TypeError(f"{role}: expected a path or a Photo, not {type(obj).__name__}")
+
+
+def _focal(photo: Photo, focal_35mm, hfov_deg) -> tuple[float | None, float, str]:
+    """Focal length in pixels, its relative uncertainty, and where it came from (None if unknown)."""
+    if hfov_deg is not None:
+        return (focal_px_from_hfov(hfov_deg, photo.shape), FOCAL_35MM_CONVENTION_UNCERTAINTY,
+                f"horizontal field of view {hfov_deg:g} deg (option)")
+    f35 = focal_35mm if focal_35mm is not None else photo.exif.focal_35mm_mm
+    if f35 is None:
+        return None, 0.0, "unknown"
+    src = "option" if focal_35mm is not None else "EXIF FocalLengthIn35mmFilm"
+    return (focal_px_from_35mm(f35, photo.shape), float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35)),
+            f"35 mm-equivalent focal length {f35:g} mm ({src})")
+
+
+def _marker_mapping(det, photo: Photo, focal_35mm, hfov_deg, method: str, warnings: list):
+    """Pose-based mapping when the focal length is known, else a plain homography (with a warning)."""
+    f_px, f_u, _ = _focal(photo, focal_35mm, hfov_deg)
+    if f_px is not None:
+        return pose_mapping(det.image_xy, det.target_mm, photo.shape, f_px, method=method, name=photo.name,
+                            focal_uncertainty=f_u)
+    warnings.append("no focal length known: the wall mapping is a plain homography from the small target, "
+                    "which extrapolates less well; give --focal-35mm")
+    return homography_mapping(det.image_xy, det.target_mm, method=method, name=photo.name)
+
+
+def _grey(photo: Photo) -> np.ndarray:
+    """8-bit grey version of a photo for marker detection."""
+    import cv2
+
+    bgr = photo.bgr if photo.bgr.dtype == np.uint8 else (photo.bgr >> 8).astype(np.uint8)
+    return cv2.cvtColor(bgr, cv2.COLOR_BGR2GRAY)
+
+
+def _mask_quads(image: LinearImage, quads, grow: float = 0.15) -> LinearImage:
+    """Set working pixels inside (slightly grown) marker quads to NaN: they are not measured."""
+    import cv2
+
+    mask = np.zeros(image.shape, np.uint8)
+    b = image.bin_factor
+    for q in quads:
+        c = q.mean(axis=0)
+        grown = c + (q - c) * (1.0 + grow)
+        pts = ((grown - (b - 1) / 2.0) / b).round().astype(np.int32)
+        cv2.fillConvexPoly(mask, pts, 1)
+    bad = mask.astype(bool)
+    rgb = image.rgb.copy()
+    rgb[bad] = np.nan
+    lum = image.luminance.copy()
+    lum[bad] = np.nan
+    return LinearImage(rgb=rgb, luminance=lum, saturated=image.saturated, bin_factor=b, full_shape=image.full_shape)
 
 
 def _same_size(other: Photo, beam: Photo, what: str, fix: str) -> Photo:
@@ -87,6 +139,9 @@ def analyze(
     head_diameter_mm: float | None = None,
     camera: str | CameraProfile | None = None,
     dark=None,
+    geometry=None,
+    wall_points=None,
+    target_scale: float = 1.0,
 ) -> BeamReport:
     """Analyse a beam photo (or a bracket of them) taken square to the wall; returns a :class:`BeamReport`.
 
@@ -196,21 +251,52 @@ def analyze(
         flat_note = {"from_profile": profile.name, "coefficients": list(profile.flat.coefficients),
                      "residual_rms": profile.flat.residual_rms}
 
-    # ---- wall mapping (pinhole, square to the wall)
+    # ---- wall mapping: target markers, given points, or the pinhole model
     shape = beam_photo.shape
-    if hfov_deg is not None:
-        f_px, f_src = focal_px_from_hfov(hfov_deg, shape), f"horizontal field of view {hfov_deg:g} deg (option)"
-        f_u = FOCAL_35MM_CONVENTION_UNCERTAINTY
+    geometry_note = None
+    if geometry is not None and wall_points is not None:
+        raise BeamshotError("give either --geometry or --wall-points, not both")
+    beam_markers = detect_markers(_grey(beam_photos[0]), name=beam_photos[0].name, target_scale=target_scale,
+                                  required=False)
+    if geometry is not None:
+        geo = _same_size(_photo(geometry, "geometry"), beam_photos[0], "geometry photo",
+                         "take it from the same tripod position with the same camera")
+        inputs.append(_input_record("geometry", geo))
+        det = detect_markers(_grey(geo), name=geo.name, target_scale=target_scale)
+        mapping = _marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings)
+        geometry_note = {"file": geo.name, "markers": list(det.ids), "target_scale": target_scale}
+    elif wall_points is not None:
+        img_pts, wall_pts = parse_wall_points(wall_points) if isinstance(wall_points, str) else wall_points
+        mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
+        geometry_note = {"points": len(img_pts)}
+    elif beam_markers is not None:
+        mapping = _marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
+                                  "target markers in the beam photo", warnings)
+        geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids), "target_scale": target_scale}
     else:
-        f35 = focal_35mm if focal_35mm is not None else beam_photo.exif.focal_35mm_mm
-        if f35 is None:
-            raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
-                                "give --focal-35mm (mm) or --hfov (degrees)")
-        src = "option" if focal_35mm is not None else "EXIF FocalLengthIn35mmFilm"
-        f_px, f_src = focal_px_from_35mm(f35, shape), f"35 mm-equivalent focal length {f35:g} mm ({src})"
-        f_u = float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35))
-    cam_d = distance_m if camera_distance_m is None else camera_distance_m
-    mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
+        mapping = None
+    if mapping is not None:
+        f_u = mapping.scale_uncertainty
+        f_px, f_src = None, "not needed (homography)"
+        cam_d = None
+    else:
+        if hfov_deg is not None:
+            f_px, f_src = focal_px_from_hfov(hfov_deg, shape), f"horizontal field of view {hfov_deg:g} deg (option)"
+            f_u = FOCAL_35MM_CONVENTION_UNCERTAINTY
+        else:
+            f35 = focal_35mm if focal_35mm is not None else beam_photo.exif.focal_35mm_mm
+            if f35 is None:
+                raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
+                                    "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
+            src = "option" if focal_35mm is not None else "EXIF FocalLengthIn35mmFilm"
+            f_px, f_src = focal_px_from_35mm(f35, shape), f"35 mm-equivalent focal length {f35:g} mm ({src})"
+            f_u = float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35))
+        cam_d = distance_m if camera_distance_m is None else camera_distance_m
+        mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
+    if beam_markers is not None:
+        image = _mask_quads(image, beam_markers.quads)
+        warnings.append(f"target markers found in {beam_photos[0].name} were masked out; remove the target "
+                        "before the beam photos")
 
     axis = find_beam_axis(image.luminance, mapping, image.bin_factor, name=beam_photo.name)
     if axis.ellipse_axes_mm is None:
@@ -278,7 +364,8 @@ def analyze(
         "distance_m": distance_m,
         "distance_uncertainty_m": u_d,
         "camera_distance_m": cam_d,
-        "camera_position": "beside the light, square to the wall" if camera_distance_m is None else "square to the wall",
+        "camera_position": ("anywhere (wall mapped by homography)" if geometry_note is not None else
+                            "beside the light, square to the wall" if camera_distance_m is None else "square to the wall"),
         "focal_length": f_src,
         "focal_px": f_px,
         "focal_relative_uncertainty": f_u,
@@ -302,8 +389,9 @@ def analyze(
         "flat_field": flat_note or "none: vignetting not corrected (phones usually correct it in processing)",
         "ambient": amb_note or "none: no light-off photo subtracted",
         "absolute_scale": scale.to_dict(),
-        "wall_mapping": {"method": "pinhole camera square to the wall", "focal_px": f_px,
-                         "relative_scale_uncertainty": f_u},
+        "wall_mapping": {"method": mapping.method if mapping.method != "pinhole" else
+                         "pinhole camera square to the wall", "focal_px": f_px,
+                         "relative_scale_uncertainty": f_u, "geometry": geometry_note},
     }
     beam_axis = {
         "centre_mm": list(axis.centre_mm),

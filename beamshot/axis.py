@@ -56,6 +56,15 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
                    name: str = "photo") -> BeamAxis:
     """Find the beam axis in a working-resolution luminance image (see module notes)."""
     lum = luminance.astype(np.float32, copy=False)
+    holes = ~np.isfinite(lum)
+    if np.any(holes):
+        # masked areas (markers left on the wall) are filled from their surroundings
+        valid = (~holes).astype(np.float32)
+        filled = np.where(holes, 0.0, lum).astype(np.float32)
+        sigma = 0.02 * max(lum.shape)
+        num = cv2.GaussianBlur(filled, (0, 0), sigma)
+        den = cv2.GaussianBlur(valid, (0, 0), sigma)
+        lum = np.where(holes, num / np.maximum(den, 1e-6), lum).astype(np.float32)
     # work on a reduced copy: the spill edge spans hundreds of pixels, and the ellipse fit
     # over many edge points still centres it to a small fraction of a reduced pixel
     r = max(1, int(np.ceil(max(lum.shape) / AXIS_MAX_SIDE)))

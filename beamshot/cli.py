@@ -78,13 +78,20 @@ def cli():
 @click.option("--camera", default=None, help="Camera profile: a name (see 'beamshot camera list') or a JSON file.")
 @click.option("--dark", type=click.Path(dir_okay=False), default=None,
               help="Dark frame (lens capped, same settings), subtracted per pixel from every photo.")
+@click.option("--geometry", type=click.Path(dir_okay=False), default=None,
+              help="Photo of the printed wall target from the same tripod position (room lights on).")
+@click.option("--wall-points", default=None,
+              help="Four or more known wall points: 'x,y=X,Y;...' (image px = wall mm) or a JSON file.")
+@click.option("--target-scale", type=float, default=1.0, show_default=True,
+              help="Measured length of the target's 100 mm scale bar, divided by 100.")
 @click.option("--head-diameter", "head_mm", type=float, default=None,
               help="Diameter of the light's head (mm), for the far-field check.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for report.json, profile.csv and beam.png.")
 @click.option("--json", "as_json", is_flag=True, help="Print the report as JSON instead of a table.")
 def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_accuracy, reflectance, no_exif_scale,
-            focal_35mm, hfov, camera_distance, response, camera, dark, head_mm, out_dir, as_json):
+            focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points, target_scale, head_mm,
+            out_dir, as_json):
     """Analyse PHOTOS of a beam on a white wall, shot square to the wall beside the light.
 
     Several photos are a bracket (same scene, different exposures) and are merged first.
@@ -97,7 +104,8 @@ def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_ac
                      lux_at_peak=lux_at_peak, lux_meter_accuracy=meter_accuracy, reflectance=reflectance,
                      use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
                      camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
-                     camera=camera, dark=dark)
+                     camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
+                     target_scale=target_scale)
         written = write_report(report, out_dir) if out_dir else []
     except BeamshotError as exc:
         _fail(str(exc))
@@ -150,6 +158,43 @@ def demo(out_dir):
             click.echo(f"  {key:18s} {fig.text(3):>24s} {truth:>10.4g} {err:>+8.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}/")
     click.echo(f"\ndone in {time.perf_counter() - start:.1f} s; open {out_dir}/*/beam.png")
+
+
+@cli.command()
+@click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True)
+@click.option("--out", "stem", default="beamshot-target", show_default=True,
+              help="File name without extension; writes .pdf and .png.")
+def target(paper, stem):
+    """Write the printable wall target (fiducial markers and a scale bar) as PDF and PNG."""
+    from .target import write_target
+
+    try:
+        written = write_target(stem, paper)
+    except BeamshotError as exc:
+        _fail(str(exc))
+    except OSError as exc:
+        _fail(f"cannot write the target ({exc.strerror})")
+    click.echo(f"wrote {', '.join(written)}")
+    click.echo("print at 100 % (no 'fit to page'), measure the 100 mm scale bar, pin the sheet upright with "
+               "its cross at the aim point, photograph it from the tripod with room lights on, then remove it")
+
+
+@cli.command("far-field")
+@click.argument("near", type=click.Path(dir_okay=False))
+@click.argument("far", type=click.Path(dir_okay=False))
+def far_field(near, far):
+    """Compare two report.json files of one light at two distances (is the wall far enough?)."""
+    from .farfield import compare_distances
+    from .report.output import read_report_json
+
+    try:
+        result = compare_distances(read_report_json(near), read_report_json(far))
+    except BeamshotError as exc:
+        _fail(str(exc))
+    for line in result["lines"]:
+        click.echo(line)
+    if not result["consistent"]:
+        sys.exit(1)
 
 
 @cli.group()

@@ -125,6 +125,10 @@ class Scene:
     light_yaw_deg: float = 0.0
     light_pitch_deg: float = 0.0
     light_rgb: tuple[float, float, float] = (1.0, 1.0, 1.0)
+    #: Centre of the pinned paper target on the wall (mm, light frame), or None for no target.
+    target_at_mm: tuple[float, float] | None = None
+    #: Scale of the printed target relative to 100 % (a printer that shrinks prints 0.98).
+    target_print_scale: float = 1.0
 
 
 @dataclass(frozen=True)
@@ -212,6 +216,12 @@ def render_linear(pattern, scene: Scene, camera: SynthCamera, *, rows: slice | N
             t = (scene.distance_m - cam[2]) / wz
             px, py = cam[0] + t * wx, cam[1] + t * wy
             lum = scene.wall_reflectance * _wall_illuminance(pattern, scene, px, py) / np.pi
+            if scene.target_at_mm is not None:
+                from .target import target_albedo
+
+                k = scene.target_print_scale
+                lum = lum * target_albedo((px * 1000.0 - scene.target_at_mm[0]) / k,
+                                          (py * 1000.0 - scene.target_at_mm[1]) / k)
             fall = np.ones_like(dx)
             if camera.natural_vignetting:
                 fall = fall / (1.0 + dx**2 + dy**2) ** 2  # cos^4 of the ray angle

@@ -1,0 +1,57 @@
+"""Far-field check: the same light analysed at two wall distances must give the same peak
+intensity and hotspot angle within their uncertainties.
+
+The inverse-square law holds for a point source; IES (definition 9.1.1) gives the
+"five-times rule" (within 1 % at five times the largest dimension of a source of uniform
+luminance) and CIE ILV 17-25-104 asks that the approximation be verified by measurement at
+the distance used.  Focusing reflectors converge much farther out (common practice: a large
+thrower may need 10 m or more); the two-distance comparison is the measurement that settles it.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .errors import BeamshotError
+
+__all__ = ["AGREEMENT_SIGMAS", "compare_distances"]
+
+#: Figures agree when they differ by less than this many combined standard uncertainties.
+AGREEMENT_SIGMAS = 2.0
+
+
+def _fig(report: dict, key: str):
+    f = report.get("figures", {}).get(key)
+    if not f or f.get("value") is None or f.get("uncertainty") is None:
+        return None
+    return float(f["value"]), float(f["uncertainty"])
+
+
+def compare_distances(near: dict, far: dict) -> dict:
+    """Compare two reports (dicts from report.json); the nearer one is detected by distance."""
+    d1 = float(near["settings"]["distance_m"])
+    d2 = float(far["settings"]["distance_m"])
+    if abs(d1 - d2) < 0.1 * max(d1, d2):
+        raise BeamshotError(f"the two reports are at {d1:g} m and {d2:g} m; compare distances at least 10 % apart "
+                            "(better 2x)")
+    if d1 > d2:
+        near, far, d1, d2 = far, near, d2, d1
+    lines = [f"near {d1:g} m vs far {d2:g} m"]
+    consistent = True
+    for key, label in (("peak_intensity", "peak intensity"), ("hotspot_angle", "hotspot angle")):
+        a, b = _fig(near, key), _fig(far, key)
+        if a is None or b is None:
+            lines.append(f"  {label}: not measured in both reports")
+            continue
+        diff = b[0] - a[0]
+        sigma = float(np.hypot(a[1], b[1]))
+        ok = abs(diff) <= AGREEMENT_SIGMAS * sigma
+        consistent &= ok
+        lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g} ({diff / a[0]:+.1%}, {abs(diff) / sigma:.1f} sigma) "
+                     + ("agree" if ok else "DISAGREE"))
+    if not consistent:
+        lines.append("the near wall is not in the far field of this light (a focusing reflector lowers the peak "
+                     "and widens the hotspot up close): measure at the larger distance or farther")
+    else:
+        lines.append("the two distances agree within their uncertainties: the near distance is far enough")
+    return {"consistent": consistent, "lines": lines}
