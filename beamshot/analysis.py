@@ -14,6 +14,7 @@ from dataclasses import asdict
 import numpy as np
 
 from . import __version__
+from .aim import TILT_WARN_DEG, edge_to_wall, fit_light_pose
 from .axis import find_beam_axis
 from .beammap import build_beam_map
 from .camera.flatfield import fit_flat_field
@@ -142,6 +143,7 @@ def analyze(
     geometry=None,
     wall_points=None,
     target_scale: float = 1.0,
+    assume_square: bool = False,
 ) -> BeamReport:
     """Analyse a beam photo (or a bracket of them) taken square to the wall; returns a :class:`BeamReport`.
 
@@ -304,6 +306,37 @@ def analyze(
 
     beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
     shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+    # ---- light tilt: fit a cone to the spill edge, re-fit on the half-level edge, apply if significant
+    pose = None
+    if assume_square is False and shape_.edge.complete:
+        edge = shape_.edge
+        pts = edge_to_wall(edge.theta, edge.phi, axis.centre_mm, None, distance_m)
+        peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), axis.centre_mm,
+                                     None, distance_m)[0])
+        # a square pinhole view scales both wall axes alike; a homography from a target may not
+        aniso = 0.0 if geometry_note is None else mapping.scale_uncertainty
+        pose = fit_light_pose(pts, distance_m, axis.centre_mm, peak_mm, anisotropy=aniso)
+        for _ in range(2):
+            if pose is None or not pose.significant:
+                break
+            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
+            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+            if not shape_.edge.complete:
+                break
+            pts = edge_to_wall(shape_.edge.theta, shape_.edge.phi, pose.foot_mm, pose.axis, distance_m)
+            peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), pose.foot_mm,
+                                         pose.axis, distance_m)[0])
+            pose = fit_light_pose(pts, distance_m, tuple(np.mean(pts, axis=0)), peak_mm, anisotropy=aniso)
+        if pose is not None and pose.significant:
+            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
+            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+        else:
+            beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
+            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+        if pose is not None and pose.significant:
+            if pose.tilt_deg > TILT_WARN_DEG:
+                warnings.append(f"the light is tilted {pose.tilt_deg:.1f} deg against the wall's normal; the "
+                                "figures are corrected for it, but aim the light square to the wall for best results")
     pk = shape_.peak
 
     # ---- absolute scale
@@ -335,6 +368,7 @@ def analyze(
     figures = beam_figures(shape_, beam, scale, angle_scale_uncertainty=f_u, calibration_rel_uncertainty=cal_u,
                            distance_rel_uncertainty=u_d / distance_m,
                            axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0))
+    figures["light_tilt"] = _tilt_figure(pose, assume_square)
 
     # ---- warnings a user should act on
     if pk.clipped:
@@ -394,6 +428,7 @@ def analyze(
                          "relative_scale_uncertainty": f_u, "geometry": geometry_note},
     }
     beam_axis = {
+        "light_foot_mm": list(pose.foot_mm) if pose is not None and pose.significant else list(axis.centre_mm),
         "centre_mm": list(axis.centre_mm),
         "uncertainty_mm": axis.uncertainty_mm,
         "method": axis.method,
@@ -413,6 +448,20 @@ def analyze(
         created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         tool_version=__version__,
     )
+
+
+def _tilt_figure(pose, assume_square: bool):
+    from .figure import Figure, not_measured
+
+    method = ("right circular cone fitted to the spill edge (least squares on angular residuals); "
+              "applied to the map when above 3 sigma and 1.5 deg")
+    if assume_square:
+        return not_measured("deg", method, "the light was declared square to the wall (--square)")
+    if pose is None:
+        return not_measured("deg", method, "the spill edge is not complete in the photo")
+    return Figure(pose.tilt_deg, pose.tilt_sigma_deg, "deg",
+                  method + f"; toward {pose.tilt_direction_deg:.0f} deg (0 = right, 90 = up); "
+                  f"{'applied' if pose.significant else 'not significant, not applied'}")
 
 
 def _outside_level(beam, shape) -> float | None:

@@ -50,6 +50,7 @@ class BeamAxis:
     ellipse_axes_mm: tuple[float, float] | None
     ellipse_angle_deg: float | None
     peak_px: tuple[float, float]
+    edge_points_mm: np.ndarray | None = None
 
 
 def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int, *,
@@ -133,6 +134,7 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
             ellipse_axes_mm=(float(a1), float(a2)),
             ellipse_angle_deg=float(ang),
             peak_px=(float(pc), float(pr)),
+            edge_points_mm=wall,
         )
     # Fallback: intensity-weighted centroid of the region at or above half of the peak.
     hot = smooth >= 0.5 * peak

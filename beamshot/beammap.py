@@ -89,35 +89,50 @@ def directions(theta: np.ndarray, phi: np.ndarray) -> np.ndarray:
 
 def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[float, float],
                    distance_m: float, *, theta_step_deg: float | None = None,
-                   phi_step_deg: float | None = None) -> BeamMap:
+                   phi_step_deg: float | None = None, axis_dir: np.ndarray | None = None) -> BeamMap:
     """Resample the linear luminance onto the polar grid and convert to relative intensity.
 
-    Pixel values are proportional to wall luminance, and for a Lambertian wall to
-    illuminance ``E``; intensity follows from ``I = E D^2 / cos^3(theta)``.
+    ``axis_mm`` is the light's foot point on the wall (mm) and ``axis_dir`` the beam axis as a
+    unit vector in the wall frame (+z toward the wall; default square to the wall).  Pixel
+    values are proportional to wall luminance, and for a Lambertian wall to illuminance ``E``;
+    intensity follows from the general form ``I = E r^2 / cos(incidence)`` with ``r`` and the
+    incidence from the light's position, which for a square light is ``E D^2 / cos^3(theta)``.
     """
     d_theta = np.radians(THETA_STEP_DEG if theta_step_deg is None else theta_step_deg)
     d_phi = np.radians(PHI_STEP_DEG if phi_step_deg is None else phi_step_deg)
     h_full, w_full = image.full_shape
     corners = mapping.image_to_wall(np.array([[0, 0], [w_full - 1, 0], [0, h_full - 1], [w_full - 1, h_full - 1]], float))
     reach_mm = float(np.max(np.hypot(corners[:, 0] - axis_mm[0], corners[:, 1] - axis_mm[1])))
-    theta_max = min(np.arctan(reach_mm / (distance_m * 1000.0)), np.radians(THETA_LIMIT_DEG))
+    tilt = 0.0 if axis_dir is None else float(np.arccos(np.clip(np.asarray(axis_dir)[2], -1, 1)))
+    theta_max = min(np.arctan(reach_mm / (distance_m * 1000.0)) + tilt, np.radians(THETA_LIMIT_DEG))
     n_theta = max(2, int(np.ceil(theta_max / d_theta)))
     n_phi = int(round(2 * np.pi / d_phi))
     theta = (np.arange(n_theta) + 0.5) * d_theta
     phi = (np.arange(n_phi) + 0.5) * (2 * np.pi / n_phi)
     tt, pp = np.meshgrid(theta, phi, indexing="ij")
-    rho = distance_m * 1000.0 * np.tan(tt)
-    wall = np.stack([axis_mm[0] + rho * np.cos(pp), axis_mm[1] + rho * np.sin(pp)], axis=-1)
+    if axis_dir is None:
+        rho = distance_m * 1000.0 * np.tan(tt)
+        wall = np.stack([axis_mm[0] + rho * np.cos(pp), axis_mm[1] + rho * np.sin(pp)], axis=-1)
+        factor = intensity_from_wall_illuminance(1.0, theta, distance_m)[:, None]
+    else:
+        a = np.asarray(axis_dir, float) / np.linalg.norm(axis_dir)
+        e1 = np.array([1.0, 0.0, 0.0]) - a[0] * a
+        e1 /= np.linalg.norm(e1)
+        e2 = np.cross(a, e1)
+        d = directions(tt, pp)
+        w = d[..., :1] * e1 + d[..., 1:2] * e2 + d[..., 2:3] * a  # beam frame -> wall frame
+        wz = np.where(w[..., 2] > 1e-6, w[..., 2], np.nan)
+        t_mm = distance_m * 1000.0 / wz
+        wall = np.stack([axis_mm[0] + t_mm * w[..., 0], axis_mm[1] + t_mm * w[..., 1]], axis=-1)
+        factor = (t_mm / 1000.0) ** 2 / wz  # r^2 / cos(incidence), r in m
     full_xy = mapping.wall_to_image(wall)
     b = image.bin_factor
     work = (full_xy - (b - 1) / 2.0) / b
-    mx = work[..., 0].astype(np.float32)
-    my = work[..., 1].astype(np.float32)
+    mx = np.nan_to_num(work[..., 0], nan=-10.0).astype(np.float32)  # NaN: ray misses the wall
+    my = np.nan_to_num(work[..., 1], nan=-10.0).astype(np.float32)
     lum = cv2.remap(image.luminance, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT,
                     borderValue=float("nan"))
     sat = cv2.remap(image.saturated.astype(np.uint8), mx, my, cv2.INTER_NEAREST,
                     borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
-    # I = E D^2 / cos^3(theta): the factor depends on theta only (one value per grid row)
-    factor = intensity_from_wall_illuminance(1.0, theta, distance_m)
-    intensity = lum.astype(np.float64) * factor[:, None]
+    intensity = lum.astype(np.float64) * factor
     return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m)

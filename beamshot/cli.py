@@ -29,6 +29,7 @@ _FIGURE_LABELS = {
     "beam_flux": "beam flux (in edge)",
     "ra": "Ra spill/hotspot",
     "hotspot_offset": "hotspot offset",
+    "light_tilt": "light tilt (to the wall)",
 }
 
 
@@ -84,14 +85,16 @@ def cli():
               help="Four or more known wall points: 'x,y=X,Y;...' (image px = wall mm) or a JSON file.")
 @click.option("--target-scale", type=float, default=1.0, show_default=True,
               help="Measured length of the target's 100 mm scale bar, divided by 100.")
+@click.option("--square", "assume_square", is_flag=True,
+              help="The light is aimed square to the wall: do not estimate its tilt.")
 @click.option("--head-diameter", "head_mm", type=float, default=None,
               help="Diameter of the light's head (mm), for the far-field check.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for report.json, profile.csv and beam.png.")
 @click.option("--json", "as_json", is_flag=True, help="Print the report as JSON instead of a table.")
 def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_accuracy, reflectance, no_exif_scale,
-            focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points, target_scale, head_mm,
-            out_dir, as_json):
+            focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points, target_scale,
+            assume_square, head_mm, out_dir, as_json):
     """Analyse PHOTOS of a beam on a white wall, shot square to the wall beside the light.
 
     Several photos are a bracket (same scene, different exposures) and are merged first.
@@ -105,7 +108,7 @@ def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_ac
                      use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
                      camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
                      camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
-                     target_scale=target_scale)
+                     target_scale=target_scale, assume_square=assume_square)
         written = write_report(report, out_dir) if out_dir else []
     except BeamshotError as exc:
         _fail(str(exc))

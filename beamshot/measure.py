@@ -31,7 +31,7 @@ FIELD_LEVEL = 0.1
 FIGURE_ORDER = (
     "peak_intensity", "beam_distance", "hotspot_angle", "hotspot_angle_horizontal",
     "hotspot_angle_vertical", "field_angle", "spill_angle", "spill_angle_horizontal",
-    "spill_angle_vertical", "hotspot_flux", "spill_flux", "beam_flux", "ra", "hotspot_offset",
+    "spill_angle_vertical", "hotspot_flux", "spill_flux", "beam_flux", "ra", "hotspot_offset", "light_tilt",
 )
 
 
@@ -200,10 +200,10 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
     off_sigma = float(np.hypot(axis_uncertainty_rad, beam.d_theta))
     if clipped:
         figs["hotspot_offset"] = not_measured("deg", off_method, clip_reason)
-        return {k: figs[k] for k in FIGURE_ORDER}
+        return {k: figs[k] for k in FIGURE_ORDER if k in figs}
     figs["hotspot_offset"] = Figure(float(np.degrees(pk.theta)), float(np.degrees(off_sigma)), "deg",
                                     off_method + f"; toward azimuth {np.degrees(pk.phi):.0f} deg (0 = right, 90 = up)")
-    return {k: figs[k] for k in FIGURE_ORDER}
+    return {k: figs[k] for k in FIGURE_ORDER if k in figs}
 
 
 def _coverage_reason(edge: SpillEdge, phi_deg: float | None = None) -> str:

@@ -154,3 +154,28 @@ def test_far_field_check(tmp_path):
     assert not close["consistent"] and any("far field" in line for line in close["lines"])
     with pytest.raises(BeamshotError, match="10 %"):
         compare_distances(_report(5, 1, 1, 1, 1), _report(5.2, 1, 1, 1, 1))
+
+
+@pytest.mark.parametrize("yaw, pitch", [(5.0, 0.0), (0.0, -5.0), (3.5, 3.5)])
+def test_tilted_light_is_recovered_and_corrected(yaw, pitch):
+    # the spill edge of a tilted cone is an ellipse on the wall; tilt within 1 deg, hotspot within 3 %
+    scene = Scene(distance_m=5.0, light_yaw_deg=yaw, light_pitch_deg=pitch)
+    cam = SynthCamera(width_px=1600, height_px=1200, focal_35mm_mm=16, position_m=(0.15, 0.0, 0.0))
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(BEAM, Scene(distance_m=5.0), cam, target=0.8))
+    photo = decode_photo(encode_jpeg(render_photo(BEAM, scene, cam), cam), "tilted.jpg")
+    truth = truth_figures(BEAM, 5.0)
+    rep = analyze(photo, distance_m=5.0, use_exif_scale=False)
+    assert abs(rep["light_tilt"].value - np.hypot(yaw, pitch)) <= 1.0
+    assert abs(rep["hotspot_angle"].value / truth["hotspot_angle_deg"] - 1) <= 0.03
+    assert abs(rep["spill_angle"].value / truth["spill_angle_deg"] - 1) <= 0.03
+    assert rep["hotspot_offset"].value <= 0.3
+    assert any("tilted" in w for w in rep.warnings)
+
+
+def test_square_light_reports_no_significant_tilt():
+    cam = SynthCamera(width_px=1600, height_px=1200, focal_35mm_mm=16, position_m=(0.15, 0.0, 0.0))
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(BEAM, Scene(distance_m=5.0), cam, target=0.8))
+    photo = decode_photo(encode_jpeg(render_photo(BEAM, Scene(distance_m=5.0), cam), cam), "square.jpg")
+    rep = analyze(photo, distance_m=5.0, use_exif_scale=False)
+    assert "not applied" in rep["light_tilt"].method
+    assert not any("tilted" in w for w in rep.warnings)

@@ -1,0 +1,150 @@
+"""Where the light stands and where it points: a right circular cone fitted to the spill edge.
+
+The bezel cuts the beam at a fixed angle alpha from the light's optical axis, so the spill edge
+on the wall is the intersection of a right circular cone (apex at the light, D metres in
+front of the wall) with the wall plane: a circle when the light is square to the wall, an
+ellipse displaced from the axis when it is tilted.  The five parameters — the light's foot
+point on the wall (x0, y0), the axis tilt (yaw right, pitch up) and alpha — are fitted by
+least squares to the angular residuals ``angle(P_i - L, a) - alpha`` of the edge points P_i
+(SciPy ``least_squares``); their covariance follows from the Jacobian.
+
+The tilt shows mainly in the ellipse's elongation (0.5 % for 5 degrees at alpha = 30 deg),
+so it is only as good as the beam is round; a reflector that is not round reads as a tilt.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import least_squares
+
+__all__ = ["TILT_WARN_DEG", "TILT_APPLY_SIGMAS", "LightPose", "fit_light_pose", "axis_vector", "edge_to_wall",
+           "tilt_floor_deg"]
+
+#: Tilts above this are reported as a warning (aim the light square to the wall).
+TILT_WARN_DEG = 2.0
+#: A fitted tilt is applied only when it exceeds this many standard uncertainties and
+#: ``TILT_APPLY_MIN_DEG``: smaller tilts are within what an out-of-round beam mimics.
+TILT_APPLY_SIGMAS = 3.0
+TILT_APPLY_MIN_DEG = 1.5
+#: Edge residuals of neighbouring sectors are correlated; the Jacobian's sigma is scaled by this.
+_CORRELATION_INFLATION = 2.0
+
+
+@dataclass(frozen=True)
+class LightPose:
+    """Fitted light pose: foot point (mm, wall frame), axis unit vector, tilt and its 1-sigma (deg)."""
+
+    foot_mm: tuple[float, float]
+    axis: np.ndarray
+    tilt_deg: float
+    tilt_sigma_deg: float
+    tilt_direction_deg: float
+    half_angle_deg: float
+    rms_deg: float
+    points: int
+
+    @property
+    def significant(self) -> bool:
+        return self.tilt_deg > TILT_APPLY_SIGMAS * self.tilt_sigma_deg and self.tilt_deg > TILT_APPLY_MIN_DEG
+
+
+#: Elongation of the spill ellipse per squared tilt (rad^2), ~0.6 for bezel angles of 20-30 deg
+#: (derived numerically from the cone-plane intersection).
+ELONGATION_PER_TILT2 = 0.6
+
+
+def tilt_floor_deg(anisotropy: float) -> float:
+    """Smallest tilt (deg) distinguishable from a wall mapping whose two axes may differ in scale
+    by ``anisotropy`` (relative): the ellipse's elongation grows with the square of the tilt."""
+    return float(np.degrees(np.sqrt(max(anisotropy, 0.0) / ELONGATION_PER_TILT2)))
+
+
+def axis_vector(yaw: float, pitch: float) -> np.ndarray:
+    """Unit axis for a light turned ``yaw`` to the right and ``pitch`` up (radians)."""
+    v = np.array([np.sin(yaw) * np.cos(pitch), np.sin(pitch), np.cos(yaw) * np.cos(pitch)])
+    return v / np.linalg.norm(v)
+
+
+def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[float, float],
+                   peak_mm: tuple[float, float] | None = None, *, anisotropy: float = 0.0) -> LightPose | None:
+    """Fit the cone to edge points on the wall (mm); None with fewer than 20 points.
+
+    An ellipse is cut by two cones whose apexes, at a given distance, mirror each other across
+    the ellipse's minor axis, so the fit starts from both sides and keeps the solution whose
+    axis passes nearer the peak (``peak_mm``, a point on the wall): a reflector's hotspot sits
+    on its axis.  Without a peak the smaller tilt is kept.
+    """
+    p = np.asarray(edge_mm, float).reshape(-1, 2)
+    if len(p) < 20:
+        return None
+    d = distance_m * 1000.0
+    c = np.asarray(centre_mm, float)
+    starts = [c]
+    if peak_mm is not None:
+        h = np.asarray(peak_mm, float)
+        u = (h - c) / max(np.linalg.norm(h - c), 1e-9)
+        # the foot lies beyond the peak as seen from the edge's centre; the mirror apex opposite
+        starts += [c + sgn * m * d * u for m in (0.05, 0.15, 0.3) for sgn in (1.0, -1.0)]
+    fits = [f for f in (_fit_from(p, d, c, start) for start in starts) if f is not None]
+    if not fits:
+        return None
+    # keep the fits that explain the edge as well as the best one (the mirror pair ties), then
+    # break the tie with the peak (or the smaller tilt)
+    best_rms = min(f.rms_deg for f in fits)
+    fits = [f for f in fits if f.rms_deg <= 1.02 * best_rms + 1e-6]
+
+    def score(pose):
+        if peak_mm is None:
+            return pose.tilt_deg
+        v = np.r_[np.asarray(peak_mm) - np.asarray(pose.foot_mm), d]
+        return float(np.degrees(np.arccos(np.clip(v @ pose.axis / np.linalg.norm(v), -1, 1))))
+
+    best = min(fits, key=score)
+    # the mapping's possible anisotropy limits what the ellipse can tell
+    from dataclasses import replace
+
+    return replace(best, tilt_sigma_deg=float(np.hypot(best.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
+
+
+def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) -> LightPose | None:
+    r = np.hypot(p[:, 0] - centre[0], p[:, 1] - centre[1])
+    g = (centre - foot0) / d  # aim the starting axis at the edge's centre
+    x0 = np.array([foot0[0], foot0[1], np.arctan(g[0]), np.arctan(g[1]), np.arctan(np.median(r) / d)])
+
+    def residuals(q):
+        foot = q[:2]
+        a = axis_vector(q[2], q[3])
+        v = np.c_[p - foot, np.full(len(p), d)]
+        v /= np.linalg.norm(v, axis=1, keepdims=True)
+        return np.arccos(np.clip(v @ a, -1.0, 1.0)) - q[4]
+
+    sol = least_squares(residuals, x0, x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
+    res = sol.fun
+    dof = max(1, len(p) - 5)
+    s2 = float(res @ res) / dof
+    try:
+        cov = np.linalg.inv(sol.jac.T @ sol.jac) * s2
+    except np.linalg.LinAlgError:
+        return None
+    yaw, pitch = sol.x[2], sol.x[3]
+    tilt = float(np.degrees(np.hypot(yaw, pitch)))
+    g = np.array([yaw, pitch]) / max(np.hypot(yaw, pitch), 1e-12)
+    tilt_sigma = _CORRELATION_INFLATION * float(np.degrees(np.sqrt(max(g @ cov[2:4, 2:4] @ g, 0.0))))
+    return LightPose(foot_mm=(float(sol.x[0]), float(sol.x[1])), axis=axis_vector(yaw, pitch), tilt_deg=tilt,
+                     tilt_sigma_deg=tilt_sigma, tilt_direction_deg=float(np.degrees(np.arctan2(pitch, yaw))),
+                     half_angle_deg=float(np.degrees(sol.x[4])), rms_deg=float(np.degrees(np.sqrt(s2))),
+                     points=len(p))
+
+
+def edge_to_wall(theta: np.ndarray, phi: np.ndarray, foot_mm, axis: np.ndarray | None, distance_m: float) -> np.ndarray:
+    """Wall points (mm) of beam-frame directions ``(theta, phi)`` for a light at ``foot_mm``."""
+    a = np.array([0.0, 0.0, 1.0]) if axis is None else np.asarray(axis, float)
+    e1 = np.array([1.0, 0.0, 0.0]) - a[0] * a
+    e1 /= np.linalg.norm(e1)
+    e2 = np.cross(a, e1)
+    st = np.sin(theta)
+    w = (st * np.cos(phi))[:, None] * e1 + (st * np.sin(phi))[:, None] * e2 + np.cos(theta)[:, None] * a
+    t = distance_m * 1000.0 / w[:, 2]
+    return np.c_[foot_mm[0] + t * w[:, 0], foot_mm[1] + t * w[:, 1]]
