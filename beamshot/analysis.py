@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-from dataclasses import asdict
+from dataclasses import asdict, replace
 
 import numpy as np
 
@@ -65,9 +65,15 @@ def _focal(photo: Photo, focal_35mm, hfov_deg) -> tuple[float | None, float, str
             f"35 mm-equivalent focal length {f35:g} mm ({src})")
 
 
-def _marker_mapping(det, photo: Photo, focal_35mm, hfov_deg, method: str, warnings: list):
+def _marker_mapping(det, photo: Photo, focal_35mm, hfov_deg, method: str, warnings: list, lens=None):
     """Pose-based mapping when the focal length is known, else a plain homography (with a warning)."""
     f_px, f_u, _ = _focal(photo, focal_35mm, hfov_deg)
+    if lens is not None:
+        from .target import MarkerDetection
+
+        det = MarkerDetection(image_xy=lens.undistort(det.image_xy), target_mm=det.target_mm, ids=det.ids,
+                              quads=det.quads)
+        f_px, f_u = 0.5 * (lens.fx + lens.fy), 0.002
     if f_px is not None:
         return pose_mapping(det.image_xy, det.target_mm, photo.shape, f_px, method=method, name=photo.name,
                             focal_uncertainty=f_u)
@@ -258,6 +264,7 @@ def analyze(
     geometry_note = None
     if geometry is not None and wall_points is not None:
         raise BeamshotError("give either --geometry or --wall-points, not both")
+    lens = None if profile.distortion is None else profile.distortion.for_shape(shape)
     beam_markers = detect_markers(_grey(beam_photos[0]), name=beam_photos[0].name, target_scale=target_scale,
                                   required=False)
     if geometry is not None:
@@ -265,15 +272,17 @@ def analyze(
                          "take it from the same tripod position with the same camera")
         inputs.append(_input_record("geometry", geo))
         det = detect_markers(_grey(geo), name=geo.name, target_scale=target_scale)
-        mapping = _marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings)
+        mapping = _marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings, lens)
         geometry_note = {"file": geo.name, "markers": list(det.ids), "target_scale": target_scale}
     elif wall_points is not None:
         img_pts, wall_pts = parse_wall_points(wall_points) if isinstance(wall_points, str) else wall_points
+        if lens is not None:
+            img_pts = lens.undistort(img_pts)
         mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
         geometry_note = {"points": len(img_pts)}
     elif beam_markers is not None:
         mapping = _marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
-                                  "target markers in the beam photo", warnings)
+                                  "target markers in the beam photo", warnings, lens)
         geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids), "target_scale": target_scale}
     else:
         mapping = None
@@ -294,7 +303,12 @@ def analyze(
             f_px, f_src = focal_px_from_35mm(f35, shape), f"35 mm-equivalent focal length {f35:g} mm ({src})"
             f_u = float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35))
         cam_d = distance_m if camera_distance_m is None else camera_distance_m
+        if lens is not None:
+            f_px = 0.5 * (lens.fx + lens.fy)
+            f_src = f"camera profile '{profile.name}' (calibrated camera matrix)"
         mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
+    if lens is not None:
+        mapping = replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
     if beam_markers is not None:
         image = _mask_quads(image, beam_markers.quads)
         warnings.append(f"target markers found in {beam_photos[0].name} were masked out; remove the target "

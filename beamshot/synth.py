@@ -160,6 +160,8 @@ class SynthCamera:
     orientation: int = 1
     make: str = "beamshot-synth"
     model: str = "virtual camera"
+    #: OpenCV distortion coefficients (k1, k2, p1, p2, k3) of the lens; None for an ideal pinhole.
+    distortion: tuple[float, ...] | None = None
 
     @property
     def focal_px(self) -> float:
@@ -210,6 +212,15 @@ def render_linear(pattern, scene: Scene, camera: SynthCamera, *, rows: slice | N
         for ox in offsets:
             dx = (xx + ox - cx) / f
             dy = (yy + oy - cy) / f
+            if camera.distortion is not None:
+                import cv2
+
+                k = np.array([[f, 0, cx], [0, f, cy], [0, 0, 1.0]])
+                pts = np.stack([xx + ox, yy + oy], axis=-1).reshape(-1, 1, 2)
+                und = cv2.undistortPoints(pts, k, np.asarray(camera.distortion, float), None, None, None,
+                                              (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 30, 1e-10))
+                dx = und[:, 0, 0].reshape(xx.shape)
+                dy = und[:, 0, 1].reshape(xx.shape)
             wx = rot[0, 0] * dx + rot[0, 1] * dy + rot[0, 2]
             wy = rot[1, 0] * dx + rot[1, 1] * dy + rot[1, 2]
             wz = rot[2, 0] * dx + rot[2, 1] * dy + rot[2, 2]

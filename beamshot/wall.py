@@ -88,14 +88,22 @@ class WallMapping:
     method: str
     scale_uncertainty: float
     focal_px: float | None = None
+    #: Lens distortion (``beamshot.camera.distortion.Distortion``); the homography then relates
+    #: *undistorted* pixel positions to the wall.
+    distortion: object | None = None
 
     def image_to_wall(self, xy: np.ndarray) -> np.ndarray:
         """Map ``(..., 2)`` pixel coordinates ``(x, y)`` to wall millimetres."""
+        if self.distortion is not None:
+            xy = self.distortion.undistort(xy)
         return _apply_h(self.homography, xy)
 
     def wall_to_image(self, xy_mm: np.ndarray) -> np.ndarray:
         """Map ``(..., 2)`` wall millimetres to pixel coordinates ``(x, y)``."""
-        return _apply_h(np.linalg.inv(self.homography), xy_mm)
+        xy = _apply_h(np.linalg.inv(self.homography), xy_mm)
+        if self.distortion is not None:
+            xy = self.distortion.distort(xy)
+        return xy
 
 
 def _apply_h(h: np.ndarray, xy: np.ndarray) -> np.ndarray:

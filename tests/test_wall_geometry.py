@@ -179,3 +179,27 @@ def test_square_light_reports_no_significant_tilt():
     rep = analyze(photo, distance_m=5.0, use_exif_scale=False)
     assert "not applied" in rep["light_tilt"].method
     assert not any("tilted" in w for w in rep.warnings)
+
+
+def test_lens_distortion_from_profile(tmp_path):
+    # a lens with barrel distortion (OpenCV k1 = -0.15, k2 = 0.03): with its coefficients in the
+    # camera profile the spill edge is right all around; without, it is not
+    import json
+
+    k = (-0.15, 0.03, 0.0, 0.0, 0.0)
+    cam = SynthCamera(width_px=1600, height_px=1200, focal_35mm_mm=16, position_m=(0.15, 0.0, 0.0), distortion=k)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(BEAM, Scene(distance_m=5.0), cam, target=0.8))
+    photo = decode_photo(encode_jpeg(render_photo(BEAM, Scene(distance_m=5.0), cam), cam), "barrel.jpg")
+    f = cam.focal_px
+    profile = {"schema": "beamshot.camera", "schema_version": "1.0", "name": "barrel", "calibrated": True,
+               "response": {"kind": "srgb"},
+               "distortion": {"fx": f, "fy": f, "cx": 799.5, "cy": 599.5, "coefficients": list(k),
+                              "image_size": [1600, 1200]}}
+    path = tmp_path / "barrel.json"
+    path.write_text(json.dumps(profile))
+    good = analyze(photo, distance_m=5.0, camera=str(path), use_exif_scale=False, assume_square=True)
+    bad = analyze(photo, distance_m=5.0, use_exif_scale=False, assume_square=True)
+    err_good = np.max(np.abs(np.degrees(good.contours["edge"].theta) - 24.0))
+    err_bad = np.max(np.abs(np.degrees(bad.contours["edge"].theta) - 24.0))
+    assert err_good <= 0.2 < err_bad
+    assert "distortion corrected" in good.calibration["wall_mapping"]["method"]

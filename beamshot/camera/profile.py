@@ -20,6 +20,7 @@ import tempfile
 from dataclasses import dataclass, field, replace
 
 from ..errors import BeamshotError
+from .distortion import Distortion
 from .flatfield import FlatField
 from .response import Response
 
@@ -48,6 +49,7 @@ class CameraProfile:
     calibrated: bool = False
     created_utc: str = ""
     provenance: tuple = ()
+    distortion: Distortion | None = None
 
     def with_step(self, step: str, files: list[dict], **changes) -> "CameraProfile":
         """A copy with ``changes`` applied and a provenance entry for ``step``."""
@@ -78,6 +80,7 @@ class CameraProfile:
                 "image_size": [self.flat.shape[1], self.flat.shape[0]],
             },
             "black_level": self.black_level,
+            "distortion": None if self.distortion is None else self.distortion.to_dict(),
             "absolute_scale": None if self.scale_constant is None else {
                 "constant_lx": self.scale_constant,
                 "relative_uncertainty": self.scale_uncertainty,
@@ -124,7 +127,9 @@ class CameraProfile:
             notes = None
             if sc:
                 notes = {k: v for k, v in sc.items() if k not in ("constant_lx", "relative_uncertainty", "relation")}
+            dist = data.get("distortion")
             return cls(
+                distortion=None if not dist else Distortion.from_dict(dist),
                 name=str(data["name"]),
                 response=response,
                 response_quality=data.get("response_quality"),
