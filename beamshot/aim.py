@@ -14,7 +14,7 @@ so it is only as good as the beam is round; a reflector that is not round reads 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.optimize import least_squares
@@ -86,10 +86,13 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
         h = np.asarray(peak_mm, float)
         u = (h - c) / max(np.linalg.norm(h - c), 1e-9)
         # the foot lies beyond the peak as seen from the edge's centre; the mirror apex opposite
-        starts += [c + sgn * m * d * u for m in (0.05, 0.15, 0.3) for sgn in (1.0, -1.0)]
-    fits = [f for f in (_fit_from(p, d, c, start) for start in starts) if f is not None]
-    if not fits:
+        starts += [c + sgn * m * d * u for m in (0.08, 0.25) for sgn in (1.0, -1.0)]
+    first = _fit_from(p, d, c, c)
+    if first is None:
         return None
+    if first.tilt_deg <= TILT_APPLY_MIN_DEG and len(starts) > 1:
+        return replace(first, tilt_sigma_deg=float(np.hypot(first.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
+    fits = [first] + [f for f in (_fit_from(p, d, c, start) for start in starts[1:]) if f is not None]
     # keep the fits that explain the edge as well as the best one (the mirror pair ties), then
     # break the tie with the peak (or the smaller tilt)
     best_rms = min(f.rms_deg for f in fits)
@@ -103,8 +106,6 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
 
     best = min(fits, key=score)
     # the mapping's possible anisotropy limits what the ellipse can tell
-    from dataclasses import replace
-
     return replace(best, tilt_sigma_deg=float(np.hypot(best.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
 
 
@@ -120,7 +121,7 @@ def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) ->
         v /= np.linalg.norm(v, axis=1, keepdims=True)
         return np.arccos(np.clip(v @ a, -1.0, 1.0)) - q[4]
 
-    sol = least_squares(residuals, x0, x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
+    sol = least_squares(residuals, x0, method="lm", x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
     res = sol.fun
     dof = max(1, len(p) - 5)
     s2 = float(res @ res) / dof

@@ -82,6 +82,38 @@ def _marker_mapping(det, photo: Photo, focal_35mm, hfov_deg, method: str, warnin
     return homography_mapping(det.image_xy, det.target_mm, method=method, name=photo.name)
 
 
+def _markers_still_there(photo: Photo, geometry_markers, target_scale: float):
+    """Markers of the geometry photo still on the wall in a beam photo: checked in crops around
+    their known places (same tripod position), which is cheap."""
+    grey = _grey(photo)
+    h, w = grey.shape
+    for quad in geometry_markers.quads:
+        c = quad.mean(axis=0)
+        r = 1.5 * float(np.max(np.linalg.norm(quad - c, axis=1)))
+        x0, y0 = int(max(0, c[0] - r)), int(max(0, c[1] - r))
+        x1, y1 = int(min(w, c[0] + r)), int(min(h, c[1] + r))
+        crop = np.ascontiguousarray(grey[y0:y1, x0:x1])
+        found = detect_markers(crop, name=photo.name, target_scale=target_scale, required=False, min_markers=1)
+        if found is not None:
+            return geometry_markers
+    return None
+
+
+def _markers_left_in(photo: Photo, image: LinearImage, target_scale: float):
+    """Target markers left in a beam photo: a quick look at the working image (about 1024 px),
+    full resolution only if any turn up."""
+    import cv2
+
+    lum = np.nan_to_num(image.luminance, nan=0.0)
+    f = min(1.0, 1024.0 / max(lum.shape))
+    small = cv2.resize(lum, None, fx=f, fy=f, interpolation=cv2.INTER_AREA) if f < 1.0 else lum
+    peak = float(np.percentile(small, 99.9)) or 1.0
+    codes = np.clip(np.sqrt(np.clip(small / peak, 0, 1)) * 255, 0, 255).astype(np.uint8)
+    if detect_markers(codes, name=photo.name, target_scale=target_scale, required=False, quick=True) is None:
+        return None
+    return detect_markers(_grey(photo), name=photo.name, target_scale=target_scale, required=False)
+
+
 def _grey(photo: Photo) -> np.ndarray:
     """8-bit grey version of a photo for marker detection."""
     import cv2
@@ -265,13 +297,13 @@ def analyze(
     if geometry is not None and wall_points is not None:
         raise BeamshotError("give either --geometry or --wall-points, not both")
     lens = None if profile.distortion is None else profile.distortion.for_shape(shape)
-    beam_markers = detect_markers(_grey(beam_photos[0]), name=beam_photos[0].name, target_scale=target_scale,
-                                  required=False)
+    beam_markers = None
     if geometry is not None:
         geo = _same_size(_photo(geometry, "geometry"), beam_photos[0], "geometry photo",
                          "take it from the same tripod position with the same camera")
         inputs.append(_input_record("geometry", geo))
         det = detect_markers(_grey(geo), name=geo.name, target_scale=target_scale)
+        beam_markers = _markers_still_there(beam_photos[0], det, target_scale)
         mapping = _marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings, lens)
         geometry_note = {"file": geo.name, "markers": list(det.ids), "target_scale": target_scale}
     elif wall_points is not None:
@@ -280,7 +312,7 @@ def analyze(
             img_pts = lens.undistort(img_pts)
         mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
         geometry_note = {"points": len(img_pts)}
-    elif beam_markers is not None:
+    elif (beam_markers := _markers_left_in(beam_photos[0], image, target_scale)) is not None:
         mapping = _marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
                                   "target markers in the beam photo", warnings, lens)
         geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids), "target_scale": target_scale}
@@ -330,9 +362,11 @@ def analyze(
         # a square pinhole view scales both wall axes alike; a homography from a target may not
         aniso = 0.0 if geometry_note is None else mapping.scale_uncertainty
         pose = fit_light_pose(pts, distance_m, axis.centre_mm, peak_mm, anisotropy=aniso)
+        rebuilt = False
         for _ in range(2):
             if pose is None or not pose.significant:
                 break
+            rebuilt = True
             beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
             shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
             if not shape_.edge.complete:
@@ -344,7 +378,7 @@ def analyze(
         if pose is not None and pose.significant:
             beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
             shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
-        else:
+        elif rebuilt:
             beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
             shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
         if pose is not None and pose.significant:

@@ -113,11 +113,11 @@ class MarkerDetection:
     quads: tuple[np.ndarray, ...]
 
 
-def _detector(dictionary) -> cv2.aruco.ArucoDetector:
+def _detector(dictionary, quick: bool = False) -> cv2.aruco.ArucoDetector:
     params = cv2.aruco.DetectorParameters()
     params.cornerRefinementMethod = cv2.aruco.CORNER_REFINE_SUBPIX
     params.minMarkerPerimeterRate = 0.005
-    params.adaptiveThreshWinSizeMax = 53
+    params.adaptiveThreshWinSizeMax = 23 if quick else 53
     return cv2.aruco.ArucoDetector(cv2.aruco.getPredefinedDictionary(dictionary), params)
 
 
@@ -182,15 +182,18 @@ def refine_corners(grey: np.ndarray, quad: np.ndarray) -> np.ndarray:
 
 
 def detect_markers(grey: np.ndarray, *, name: str = "photo", target_scale: float = 1.0,
-                   required: bool = True) -> MarkerDetection | None:
-    """Find the target's markers in an 8-bit grey photo; explain clearly when they are not there."""
-    corners, ids, _ = _detector(DICTIONARY).detectMarkers(grey)
+                   required: bool = True, min_markers: int = 2, quick: bool = False) -> MarkerDetection | None:
+    """Find the target's markers in an 8-bit grey photo; explain clearly when they are not there.
+
+    ``quick`` uses fewer threshold windows (a first look before a full-resolution search).
+    """
+    corners, ids, _ = _detector(DICTIONARY, quick).detectMarkers(grey)
     found = {}
     if ids is not None:
         for c, i in zip(corners, ids.ravel()):
             if int(i) in MARKER_IDS:
                 found[int(i)] = c.reshape(4, 2).astype(np.float64)
-    if len(found) < 2:
+    if len(found) < min_markers:
         if not required:
             return None
         flipped, fids, _ = _detector(DICTIONARY).detectMarkers(np.ascontiguousarray(grey[:, ::-1]))
@@ -202,7 +205,8 @@ def detect_markers(grey: np.ndarray, *, name: str = "photo", target_scale: float
             if i2 is not None and len(i2):
                 raise BeamshotError(f"{name}: found markers of another kind than beamshot's target; "
                                     "print the target with 'beamshot target' and pin that one")
-        raise BeamshotError(f"{name}: the target's markers were not found ({len(found)} of 4); light the "
+        raise BeamshotError(f"{name}: the target's markers were not found ({len(found)} of 4, at least "
+                            f"{min_markers} needed); light the "
                             "room, make the target larger in the frame, and keep it sharp and unobstructed")
     grey_f = grey.astype(np.float32)
     for mid in found:
