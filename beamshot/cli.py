@@ -95,9 +95,10 @@ def cli():
 def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_accuracy, reflectance, no_exif_scale,
             focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points, target_scale,
             assume_square, head_mm, out_dir, as_json):
-    """Analyse PHOTOS of a beam on a white wall, shot square to the wall beside the light.
+    """Analyse PHOTOS of a beam on a white wall: calibrated figures, report files.
 
     Several photos are a bracket (same scene, different exposures) and are merged first.
+    The camera stands beside the light square to the wall, or anywhere with --geometry.
     """
     from .analysis import analyze as run
     from .report.output import write_report

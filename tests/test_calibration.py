@@ -117,13 +117,19 @@ def test_kept_constant_gives_absolute_peak_at_other_settings(tmp_path):
     assert abs(f.value / truth["peak_cd"] - 1) <= 0.05
 
 
-def test_cli_calibration_round_trip(tmp_path):
-    _, cam, frames = _bracket("gamma", [0, 2, 4, 6, 8])
+def _write(folder, frames, prefix):
+    """Write JPEG bytes to files; returns their paths."""
     paths = []
     for i, b in enumerate(frames):
-        p = tmp_path / f"r{i}.jpg"
+        p = folder / f"{prefix}{i}.jpg"
         p.write_bytes(b)
         paths.append(str(p))
+    return paths
+
+
+def test_cli_calibration_round_trip(tmp_path):
+    _, cam, frames = _bracket("gamma", [0, 2, 4, 6, 8])
+    paths = _write(tmp_path, frames, "r")
     prof = tmp_path / "cam.json"
     res = CliRunner().invoke(cli, ["camera", "response", *paths, "--name", "cam", "--out", str(prof)])
     assert res.exit_code == 0, res.output
@@ -146,11 +152,7 @@ def _run(args):
 
 def test_bad_calibration_inputs(tmp_path):
     _, cam, frames = _bracket("srgb", [0, 2, 4, 6, 8])
-    paths = []
-    for i, b in enumerate(frames):
-        p = tmp_path / f"r{i}.jpg"
-        p.write_bytes(b)
-        paths.append(str(p))
+    paths = _write(tmp_path, frames, "r")
     small = SynthCamera(width_px=450, height_px=338, exposure_time_s=0.02)
     other = tmp_path / "other.jpg"
     other.write_bytes(encode_jpeg(np.full((338, 450, 3), 90, np.uint8), small))
@@ -161,11 +163,7 @@ def test_bad_calibration_inputs(tmp_path):
     assert "differs" in _run(["camera", "response", *paths[:3], str(other), "--name", "keep", "--out", str(prof)])
     # a bracket with a moved frame
     _, _, moved = _bracket("srgb", [0, 2, 4, 6, 8], moved_frame=3, move_px=25)
-    mpaths = []
-    for i, b in enumerate(moved):
-        p = tmp_path / f"m{i}.jpg"
-        p.write_bytes(b)
-        mpaths.append(str(p))
+    mpaths = _write(tmp_path, moved, "m")
     assert "moved" in _run(["camera", "response", *mpaths, "--name", "keep", "--out", str(prof)])
     # too few frames
     assert "at least 3" in _run(["camera", "response", *paths[:2], "--name", "keep", "--out", str(prof)])
