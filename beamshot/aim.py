@@ -86,7 +86,7 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
         h = np.asarray(peak_mm, float)
         u = (h - c) / max(np.linalg.norm(h - c), 1e-9)
         # the foot lies beyond the peak as seen from the edge's centre; the mirror apex opposite
-        starts += [c + sgn * m * d * u for m in (0.08, 0.25) for sgn in (1.0, -1.0)]
+        starts += [c + sgn * 0.15 * d * u for sgn in (1.0, -1.0)]
     first = _fit_from(p, d, c, c)
     if first is None:
         return None

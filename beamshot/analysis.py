@@ -100,16 +100,24 @@ def _markers_still_there(photo: Photo, geometry_markers, target_scale: float):
 
 
 def _markers_left_in(photo: Photo, image: LinearImage, target_scale: float):
-    """Target markers left in a beam photo: a quick look at the working image (about 1024 px),
-    full resolution only if any turn up."""
+    """Target markers left on the wall in a beam photo.
+
+    The target is pinned at the aim point, where the hotspot is, so a quick look covers a
+    square of the working image around its brightest area; only if markers turn up there is
+    the whole photo searched at full resolution.
+    """
     import cv2
 
-    lum = np.nan_to_num(image.luminance, nan=0.0)
-    f = min(1.0, 1024.0 / max(lum.shape))
-    small = cv2.resize(lum, None, fx=f, fy=f, interpolation=cv2.INTER_AREA) if f < 1.0 else lum
-    peak = float(np.percentile(small, 99.9)) or 1.0
-    codes = np.clip(np.sqrt(np.clip(small / peak, 0, 1)) * 255, 0, 255).astype(np.uint8)
-    if detect_markers(codes, name=photo.name, target_scale=target_scale, required=False, quick=True) is None:
+    lum = image.luminance
+    small = np.nan_to_num(cv2.resize(lum, None, fx=0.25, fy=0.25, interpolation=cv2.INTER_AREA), nan=0.0)
+    r, c = np.unravel_index(int(np.argmax(cv2.GaussianBlur(small, (0, 0), 1.0))), small.shape)
+    r, c = 4 * r + 2, 4 * c + 2
+    half = max(128, max(lum.shape) // 6)
+    crop = np.nan_to_num(lum[max(0, r - half): r + half, max(0, c - half): c + half], nan=0.0)
+    peak = float(crop.max()) or 1.0
+    codes = np.clip(np.sqrt(np.clip(crop / peak, 0, 1)) * 255, 0, 255).astype(np.uint8)
+    if detect_markers(codes, name=photo.name, target_scale=target_scale, required=False, quick=True,
+                      min_markers=1) is None:
         return None
     return detect_markers(_grey(photo), name=photo.name, target_scale=target_scale, required=False)
 

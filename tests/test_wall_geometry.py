@@ -203,3 +203,16 @@ def test_lens_distortion_from_profile(tmp_path):
     err_bad = np.max(np.abs(np.degrees(bad.contours["edge"].theta) - 24.0))
     assert err_good <= 0.2 < err_bad
     assert "distortion corrected" in good.calibration["wall_mapping"]["method"]
+
+
+def test_markers_left_in_the_beam_photo_are_masked():
+    # the target left at the aim point: found, used for the mapping, and its area not measured
+    pattern = HotspotSpillBeam(peak_cd=3000, hotspot_fwhm_deg=20, spill_fraction=0.05, cutoff_deg=30)
+    scene = Scene(distance_m=2.0, target_at_mm=(0.0, 0.0), ambient_lux=20.0)
+    cam = SynthCamera(width_px=2000, height_px=1500, focal_35mm_mm=26, position_m=(0.1, 0.0, 0.0), supersample=3)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(pattern, Scene(distance_m=2.0), cam, target=0.5))
+    photo = decode_photo(encode_jpeg(render_photo(pattern, scene, cam), cam), "left-on.jpg")
+    rep = analyze(photo, distance_m=2.0, use_exif_scale=False, assume_square=True)
+    assert any("masked out" in w for w in rep.warnings)
+    assert "target markers in the beam photo" in rep.calibration["wall_mapping"]["method"]
+    assert np.isnan(rep.beam.intensity).any()
