@@ -90,9 +90,12 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
     first = _fit_from(p, d, c, c)
     if first is None:
         return None
-    if first.tilt_deg <= TILT_APPLY_MIN_DEG and len(starts) > 1:
-        return replace(first, tilt_sigma_deg=float(np.hypot(first.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
-    fits = [first] + [f for f in (_fit_from(p, d, c, start) for start in starts[1:]) if f is not None]
+    first = replace(first, tilt_sigma_deg=float(np.hypot(first.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
+    if not first.significant or len(starts) == 1:
+        return first  # the mirror ambiguity matters only for a tilt that will be applied
+    others = [f for f in (_fit_from(p, d, c, start) for start in starts[1:]) if f is not None]
+    fits = [first] + [replace(f, tilt_sigma_deg=float(np.hypot(f.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
+                      for f in others]
     # keep the fits that explain the edge as well as the best one (the mirror pair ties), then
     # break the tie with the peak (or the smaller tilt)
     best_rms = min(f.rms_deg for f in fits)
@@ -104,9 +107,7 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
         v = np.r_[np.asarray(peak_mm) - np.asarray(pose.foot_mm), d]
         return float(np.degrees(np.arccos(np.clip(v @ pose.axis / np.linalg.norm(v), -1, 1))))
 
-    best = min(fits, key=score)
-    # the mapping's possible anisotropy limits what the ellipse can tell
-    return replace(best, tilt_sigma_deg=float(np.hypot(best.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
+    return min(fits, key=score)
 
 
 def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) -> LightPose | None:
