@@ -28,6 +28,9 @@ TILT_WARN_DEG = 2.0
 #: ``TILT_APPLY_MIN_DEG``: smaller tilts are within what an out-of-round beam mimics.
 TILT_APPLY_SIGMAS = 3.0
 TILT_APPLY_MIN_DEG = 1.5
+#: A tilted reflector's hotspot lies on its axis; a fitted axis that misses the hotspot by more
+#: than this (or a fifth of the tilt) is an out-of-round spill, not a tilt.
+PEAK_MISS_LIMIT_DEG = 0.5
 #: Edge residuals of neighbouring sectors are correlated; the Jacobian's sigma is scaled by this.
 _CORRELATION_INFLATION = 2.0
 
@@ -44,10 +47,16 @@ class LightPose:
     half_angle_deg: float
     rms_deg: float
     points: int
+    #: Angle (deg) between the fitted axis and the direction of the hotspot; None if not checked.
+    peak_miss_deg: float | None = None
 
     @property
     def significant(self) -> bool:
-        return self.tilt_deg > TILT_APPLY_SIGMAS * self.tilt_sigma_deg and self.tilt_deg > TILT_APPLY_MIN_DEG
+        """Large against its uncertainty, and (when checked) confirmed by the hotspot lying on the axis."""
+        big = self.tilt_deg > TILT_APPLY_SIGMAS * self.tilt_sigma_deg and self.tilt_deg > TILT_APPLY_MIN_DEG
+        if not big or self.peak_miss_deg is None:
+            return big
+        return self.peak_miss_deg <= max(PEAK_MISS_LIMIT_DEG, 0.2 * self.tilt_deg)
 
 
 #: Elongation of the spill ellipse per squared tilt (rad^2), ~0.6 for bezel angles of 20-30 deg
@@ -107,7 +116,8 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
         v = np.r_[np.asarray(peak_mm) - np.asarray(pose.foot_mm), d]
         return float(np.degrees(np.arccos(np.clip(v @ pose.axis / np.linalg.norm(v), -1, 1))))
 
-    return min(fits, key=score)
+    best = min(fits, key=score)
+    return replace(best, peak_miss_deg=score(best)) if peak_mm is not None else best
 
 
 def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) -> LightPose | None:

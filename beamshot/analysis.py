@@ -40,6 +40,9 @@ MIN_DISTANCE_M = 0.3
 MAX_DISTANCE_M = 100.0
 #: IES five-times rule: the inverse-square law is within 1 % at 5x the source's largest dimension.
 FAR_FIELD_FACTOR = 5.0
+#: The tilt is fitted only to a bezel cut-off seen in at least this fraction of directions (a
+#: threshold contour of a smooth beam follows the beam's shape, not the light's aim).
+TILT_MIN_SHARP_FRACTION = 0.9
 #: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
 _LOW_EXPOSURE_LEVEL = 0.15
 
@@ -362,7 +365,7 @@ def analyze(
     shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
     # ---- light tilt: fit a cone to the spill edge, re-fit on the half-level edge, apply if significant
     pose = None
-    if assume_square is False and shape_.edge.complete:
+    if assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION:
         edge = shape_.edge
         pts = edge_to_wall(edge.theta, edge.phi, axis.centre_mm, None, distance_m)
         peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), axis.centre_mm,
@@ -424,7 +427,7 @@ def analyze(
     figures = beam_figures(shape_, beam, scale, angle_scale_uncertainty=f_u, calibration_rel_uncertainty=cal_u,
                            distance_rel_uncertainty=u_d / distance_m,
                            axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0))
-    figures["light_tilt"] = _tilt_figure(pose, assume_square)
+    figures["light_tilt"] = _tilt_figure(pose, assume_square, shape_.edge)
 
     # ---- warnings a user should act on
     if pk.clipped:
@@ -506,7 +509,7 @@ def analyze(
     )
 
 
-def _tilt_figure(pose, assume_square: bool):
+def _tilt_figure(pose, assume_square: bool, edge=None):
     from .figure import Figure, not_measured
 
     method = ("right circular cone fitted to the spill edge (least squares on angular residuals); "
@@ -514,10 +517,19 @@ def _tilt_figure(pose, assume_square: bool):
     if assume_square:
         return not_measured("deg", method, "the light was declared square to the wall (--square)")
     if pose is None:
+        if edge is not None and edge.complete:
+            return not_measured("deg", method, "the spill has no sharp cut-off all around to fit (a smooth or "
+                                "out-of-round beam); the light is assumed square to the wall")
         return not_measured("deg", method, "the spill edge is not complete in the photo")
+    if pose.significant:
+        verdict = "applied"
+    elif pose.peak_miss_deg is not None and pose.tilt_deg > 3 * pose.tilt_sigma_deg and pose.tilt_deg > 1.5:
+        verdict = (f"not applied: the fitted axis misses the hotspot by {pose.peak_miss_deg:.1f} deg, so the "
+                   "spill is out of round rather than tilted")
+    else:
+        verdict = "not significant, not applied"
     return Figure(pose.tilt_deg, pose.tilt_sigma_deg, "deg",
-                  method + f"; toward {pose.tilt_direction_deg:.0f} deg (0 = right, 90 = up); "
-                  f"{'applied' if pose.significant else 'not significant, not applied'}")
+                  method + f"; toward {pose.tilt_direction_deg:.0f} deg (0 = right, 90 = up); {verdict}")
 
 
 def _outside_level(beam, shape) -> float | None:
