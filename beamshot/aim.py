@@ -132,7 +132,27 @@ def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) ->
         v /= np.linalg.norm(v, axis=1, keepdims=True)
         return np.arccos(np.clip(v @ a, -1.0, 1.0)) - q[4]
 
-    sol = least_squares(residuals, x0, method="lm", x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
+    def jacobian(q):
+        # d arccos(u.a)/dq = -(du/dq . a + u . da/dq) / sqrt(1 - (u.a)^2); u = v/|v|, v = (P - foot, d)
+        yaw, pitch = q[2], q[3]
+        a = axis_vector(yaw, pitch)
+        v = np.c_[p - q[:2], np.full(len(p), d)]
+        n = np.linalg.norm(v, axis=1)
+        u = v / n[:, None]
+        c = np.clip(u @ a, -1.0, 1.0)
+        k = -1.0 / np.sqrt(np.maximum(1.0 - c * c, 1e-12))
+        da_yaw = np.array([np.cos(yaw) * np.cos(pitch), 0.0, -np.sin(yaw) * np.cos(pitch)])
+        da_pitch = np.array([-np.sin(yaw) * np.sin(pitch), np.cos(pitch), -np.cos(yaw) * np.sin(pitch)])
+        jac = np.empty((len(p), 5))
+        jac[:, 0] = k * (-a[0] + c * u[:, 0]) / n
+        jac[:, 1] = k * (-a[1] + c * u[:, 1]) / n
+        jac[:, 2] = k * (u @ da_yaw)
+        jac[:, 3] = k * (u @ da_pitch)
+        jac[:, 4] = -1.0
+        return jac
+
+    sol = least_squares(residuals, x0, jac=jacobian, method="lm",
+                        x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
     res = sol.fun
     dof = max(1, len(p) - 5)
     s2 = float(res @ res) / dof

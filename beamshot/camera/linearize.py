@@ -26,7 +26,7 @@ __all__ = [
 ]
 
 #: The longest side of the working image, in pixels (about 0.05 deg per pixel for a 80 deg view).
-WORKING_MAX_SIDE = 1600
+WORKING_MAX_SIDE = 2000
 #: A pixel whose largest channel reaches this fraction of full code is treated as clipped
 #: (JPEG ringing spreads clipped areas over the top few codes; common practice).
 SATURATION_CODE_FRACTION = 250.0 / 255.0
@@ -78,7 +78,7 @@ def bin_factor_for(shape: tuple[int, int], max_side: int | None = None) -> int:
     """Integer binning so the longest side is at most ``max_side`` working pixels.
 
     >>> bin_factor_for((3000, 4000))
-    3
+    2
     """
     limit = WORKING_MAX_SIDE if max_side is None else max_side
     return max(1, int(np.ceil(max(shape) / limit)))
