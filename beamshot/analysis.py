@@ -285,9 +285,7 @@ def analyze(
                                 "shoot it with the same camera and settings")
         inputs.append(_input_record("flat", flat_photo))
         ff = fit_flat_field(linearize(flat_photo, resp).luminance)
-        v = ff.evaluate(image.shape)
-        image = LinearImage(rgb=image.rgb / v[..., None], luminance=image.luminance / v,
-                            saturated=image.saturated, bin_factor=image.bin_factor, full_shape=image.full_shape)
+        image = image.divided_by(ff.evaluate(image.shape))
         flat_note = {"file": flat_photo.name, "model": "1/V = 1 + b1 r^2 + b2 r^4 + b3 r^6",
                      "coefficients": list(ff.coefficients), "residual_rms": ff.residual_rms}
     elif profile.flat is not None:
@@ -296,9 +294,7 @@ def analyze(
         if (fh, fw) not in ((bh, bw), (bw, bh)):
             raise BeamshotError(f"the flat field of profile '{profile.name}' is for {fw}x{fh} photos, this one is "
                                 f"{bw}x{bh}; use the camera's profile or shoot a flat field for it")
-        v = profile.flat.evaluate(image.shape)
-        image = LinearImage(rgb=image.rgb / v[..., None], luminance=image.luminance / v,
-                            saturated=image.saturated, bin_factor=image.bin_factor, full_shape=image.full_shape)
+        image = image.divided_by(profile.flat.evaluate(image.shape))
         flat_note = {"from_profile": profile.name, "coefficients": list(profile.flat.coefficients),
                      "residual_rms": profile.flat.residual_rms}
 
@@ -334,17 +330,10 @@ def analyze(
         f_px, f_src = None, "not needed (homography)"
         cam_d = None
     else:
-        if hfov_deg is not None:
-            f_px, f_src = focal_px_from_hfov(hfov_deg, shape), f"horizontal field of view {hfov_deg:g} deg (option)"
-            f_u = FOCAL_35MM_CONVENTION_UNCERTAINTY
-        else:
-            f35 = focal_35mm if focal_35mm is not None else beam_photo.exif.focal_35mm_mm
-            if f35 is None:
-                raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
-                                    "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
-            src = "option" if focal_35mm is not None else "EXIF FocalLengthIn35mmFilm"
-            f_px, f_src = focal_px_from_35mm(f35, shape), f"35 mm-equivalent focal length {f35:g} mm ({src})"
-            f_u = float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35))
+        f_px, f_u, f_src = _focal(beam_photo, focal_35mm, hfov_deg)
+        if f_px is None and lens is None:
+            raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
+                                "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
         cam_d = distance_m if camera_distance_m is None else camera_distance_m
         if lens is not None:
             f_px = 0.5 * (lens.fx + lens.fy)

@@ -311,7 +311,7 @@ def camera_flat(photos, name, dark, out):
 def camera_scale(photo, lux, at, meter_accuracy, name, out):
     """Keep the camera's absolute constant from one photo of a lit wall and a lux reading."""
     from .camera.constant import camera_constant
-    from .camera.linearize import LinearImage, linearize
+    from .camera.linearize import linearize
     from .photo import load_photo
 
     try:
@@ -327,9 +327,7 @@ def camera_scale(photo, lux, at, meter_accuracy, name, out):
         p = load_photo(photo)
         img = linearize(p, profile.response)
         if profile.flat is not None:
-            v = profile.flat.evaluate(img.shape)
-            img = LinearImage(rgb=img.rgb / v[..., None], luminance=img.luminance / v, saturated=img.saturated,
-                              bin_factor=img.bin_factor, full_shape=img.full_shape)
+            img = img.divided_by(profile.flat.evaluate(img.shape))
         k, rel, notes = camera_constant(img, p.exif, lux, xy, meter_accuracy=meter_accuracy, name=p.name)
     except BeamshotError as exc:
         _fail(str(exc))

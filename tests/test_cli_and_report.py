@@ -10,7 +10,7 @@ from click.testing import CliRunner
 
 from beamshot.cli import cli
 from beamshot.report.output import read_report_json
-from beamshot.synth import HotspotSpillBeam, SynthCamera, encode_jpeg, render_photo
+from beamshot.synth import SynthCamera, encode_jpeg, render_photo
 
 from conftest import make_shot
 

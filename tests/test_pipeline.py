@@ -9,7 +9,7 @@ import pytest
 from beamshot import analyze
 from beamshot.camera.response import Response
 from beamshot.photo import decode_photo
-from beamshot.synth import HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, encode_png16, render_photo, render_rgb_linear
+from beamshot.synth import HotspotSpillBeam, Scene, encode_jpeg, encode_png16, render_photo, render_rgb_linear
 
 from conftest import make_shot
 

@@ -15,7 +15,7 @@ over pixels well exposed in both (10-90 % of code).  A disagreement above
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -119,8 +119,7 @@ def merge_bracket(frames: list[LinearImage], exposures: list[float | None], resp
         fill = np.where(frames[ref].saturated[..., None], frames[ref].rgb,
                         frames[longest].rgb / np.float32(ratios_used[longest]))
         merged[empty] = fill[empty]
-    saturated = frames[ref].saturated.copy()
-    out = LinearImage(rgb=merged, luminance=frames[0].luminance, saturated=saturated,
-                      bin_factor=frames[0].bin_factor, full_shape=frames[0].full_shape).with_values(merged)
+    # clipped only where even the shortest exposure clipped
+    out = replace(frames[ref].with_values(merged), saturated=frames[ref].saturated.copy())
     return MergeResult(image=out, reference=ref, ratios_used=tuple(ratios_used), ratios_exif=tuple(ratios_exif),
                        ratios_measured=tuple(ratios_meas), warnings=tuple(warnings))

@@ -54,6 +54,11 @@ class LinearImage:
     def shape(self) -> tuple[int, int]:
         return self.luminance.shape
 
+    def divided_by(self, gain: np.ndarray) -> "LinearImage":
+        """Same image with every channel divided by ``gain`` ``(h, w)`` (a flat-field correction)."""
+        return LinearImage(rgb=self.rgb / gain[..., None], luminance=self.luminance / gain, saturated=self.saturated,
+                           bin_factor=self.bin_factor, full_shape=self.full_shape)
+
     def with_values(self, rgb: np.ndarray) -> "LinearImage":
         """Same geometry and saturation mask, new linear RGB (luminance recomputed)."""
         return LinearImage(
