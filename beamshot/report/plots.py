@@ -120,11 +120,11 @@ def plot_radial_profile(profile, figures: dict, *, ax=None, log=True, unit="rela
     t = profile.theta_deg[ok]
     (line,) = ax.plot(t, profile.mean[ok], color="#1f4e79", lw=1.2, label="azimuthal mean")
     ax.fill_between(t, profile.min[ok], profile.max[ok], color="#1f4e79", alpha=0.18, lw=0, label="min-max over azimuth")
-    marks = (("hotspot_angle", "#0097a7", "hotspot"), ("field_angle", "#2e7d32", "field"), ("spill_angle", "#c2185b", "spill edge"))
+    marks = (("hotspot_angle", "#0097a7", "hotspot"), ("field_angle", "#2e7d32", "field"), ("spill_angle", "#c2185b", "spill"))
     for key, colour, label in marks:
         f = figures.get(key)
         if f is not None and f.value is not None:
-            ax.axvline(f.value / 2.0, color=colour, ls="--", lw=1.0, label=f"{label} ({f.value:.1f}° full)")
+            ax.axvline(f.value / 2.0, color=colour, ls="--", lw=1.0, label=f"{label} edge at {f.value / 2:.1f}° ({f.value:.1f}° full angle)")
     if log and np.any(profile.mean[ok] > 0):
         ax.set_yscale("log")
         top = np.nanmax(profile.max[ok])
