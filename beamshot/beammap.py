@@ -13,6 +13,7 @@ Conversion from the wall (light square to the wall, axis at the wall foot point)
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import cv2
 import numpy as np
@@ -65,6 +66,11 @@ class BeamMap:
         """A copy with intensities multiplied by ``factor`` and a new unit."""
         return replace(self, intensity=self.intensity * factor, unit=unit)
 
+    @cached_property
+    def _wrapped(self) -> np.ndarray:
+        """The intensity with one azimuth column repeated on each side (for wrapping interpolation)."""
+        return np.concatenate([self.intensity[:, -1:], self.intensity, self.intensity[:, :1]], axis=1)
+
     def sample(self, vectors: np.ndarray) -> np.ndarray:
         """Bilinear intensity toward unit vectors ``(..., 3)`` in the beam frame (NaN outside)."""
         v = np.asarray(vectors, float)
@@ -72,11 +78,10 @@ class BeamMap:
         ph = np.mod(np.arctan2(v[..., 1], v[..., 0]), 2 * np.pi)
         k = (th - self.theta[0]) / self.d_theta
         j = (ph - self.phi[0]) / self.d_phi
-        # wrap in azimuth by padding one column on each side; clamp theta below the first centre
-        padded = np.concatenate([self.intensity[:, -1:], self.intensity, self.intensity[:, :1]], axis=1)
+        # clamp theta below the first centre; azimuth wraps through the padded copy
         k = np.clip(k, 0.0, None)
         coords = np.stack([k.ravel(), (j + 1.0).ravel()])
-        out = map_coordinates(padded, coords, order=1, mode="constant", cval=np.nan, prefilter=False)
+        out = map_coordinates(self._wrapped, coords, order=1, mode="constant", cval=np.nan, prefilter=False)
         out[k.ravel() > len(self.theta) - 1] = np.nan
         return out.reshape(th.shape)
 
@@ -109,16 +114,18 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     n_phi = int(round(2 * np.pi / d_phi))
     theta = (np.arange(n_theta) + 0.5) * d_theta
     phi = (np.arange(n_phi) + 0.5) * (2 * np.pi / n_phi)
-    tt, pp = np.meshgrid(theta, phi, indexing="ij")
     if axis_dir is None:
-        rho = distance_m * 1000.0 * np.tan(tt)
-        wall = np.stack([axis_mm[0] + rho * np.cos(pp), axis_mm[1] + rho * np.sin(pp)], axis=-1)
+        rho = distance_m * 1000.0 * np.tan(theta)[:, None]
+        wall = np.empty((n_theta, n_phi, 2))
+        np.add(axis_mm[0], rho * np.cos(phi)[None, :], out=wall[..., 0])
+        np.add(axis_mm[1], rho * np.sin(phi)[None, :], out=wall[..., 1])
         factor = intensity_from_wall_illuminance(1.0, theta, distance_m)[:, None]
     else:
         a = np.asarray(axis_dir, float) / np.linalg.norm(axis_dir)
         e1 = np.array([1.0, 0.0, 0.0]) - a[0] * a
         e1 /= np.linalg.norm(e1)
         e2 = np.cross(a, e1)
+        tt, pp = np.meshgrid(theta, phi, indexing="ij")
         d = directions(tt, pp)
         w = d[..., :1] * e1 + d[..., 1:2] * e2 + d[..., 2:3] * a  # beam frame -> wall frame
         wz = np.where(w[..., 2] > 1e-6, w[..., 2], np.nan)

@@ -35,12 +35,13 @@ class ZoneFlux:
     hotspot_saturated: bool
 
 
-def _peak_polar(beam: BeamMap, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Angular distance and bearing (rad) of every map cell from ``centre``."""
+def _peak_polar(beam: BeamMap, centre: np.ndarray, rows: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Angular distance and bearing (rad) from ``centre`` of the map cells in the first ``rows`` theta rows."""
     c = np.asarray(centre, float) / np.linalg.norm(centre)
     e1, e2 = local_basis(c)
+    theta = beam.theta[:rows]
     # v = (sin t cos p, sin t sin p, cos t); dot products as sums of outer products (cheap)
-    st, ct = np.sin(beam.theta)[:, None], np.cos(beam.theta)[:, None]
+    st, ct = np.sin(theta)[:, None], np.cos(theta)[:, None]
     cp, sp = np.cos(beam.phi)[None, :], np.sin(beam.phi)[None, :]
 
     def dot(e):
@@ -57,6 +58,8 @@ def inside_contour(beam: BeamMap, contour: Contour, centre: np.ndarray, scale: f
 
     A cell whose centre lies within half a theta step of the boundary counts in proportion
     to its distance from it (linear anti-aliasing), which removes the bias of counting whole cells.
+    ``polar`` (from :func:`_peak_polar`) may cover only the first rows of the map; the result
+    then has those rows.
     """
     dist, bearing = _peak_polar(beam, centre) if polar is None else polar
     b = np.r_[contour.bearings - 2 * np.pi, contour.bearings, contour.bearings + 2 * np.pi]
@@ -76,30 +79,41 @@ def zone_flux(beam: BeamMap, hotspot: Contour, peak_vector: np.ndarray, edge: Sp
 
 def zone_fluxes(beam: BeamMap, hotspot: Contour, peak_vector: np.ndarray, edge: SpillEdge | None,
                 scales: list[tuple[float, float]]) -> list[ZoneFlux]:
-    """:func:`zone_flux` for several ``(hotspot_scale, edge_scale)`` pairs, sharing the geometry."""
-    d_omega = np.broadcast_to(beam.cell_solid_angles(), beam.intensity.shape)
+    """:func:`zone_flux` for several ``(hotspot_scale, edge_scale)`` pairs, sharing the geometry.
+
+    Only the theta rows a zone can reach are weighted (a cell's angular distance from the peak is
+    at least the difference of their polar angles); the rest of the map counts as outside.
+    """
+    d_omega_col = beam.cell_solid_angles()
     valid = beam.valid
-    flux = np.where(valid, beam.intensity, 0.0) * d_omega
-    polar = _peak_polar(beam, peak_vector)
+    flux = np.where(valid, beam.intensity, 0.0) * d_omega_col
+    total = float(flux.sum())
+    peak_theta = float(np.arccos(np.clip(peak_vector[2] / np.linalg.norm(peak_vector), -1.0, 1.0)))
+    reach = peak_theta + float(np.nanmax(hotspot.alpha)) * max(s[0] for s in scales)
     edge_theta = None
     if edge is not None and edge.complete:
-        edge_theta = np.broadcast_to(edge.at(beam.phi)[None, :], beam.intensity.shape)
-    tt = np.broadcast_to(beam.theta[:, None], beam.intensity.shape)
+        edge_theta = edge.at(beam.phi)[None, :]
+        reach = max(reach, float(np.max(edge_theta)) * max(s[1] for s in scales))
+    rows = min(len(beam.theta), int(np.searchsorted(beam.theta, reach + beam.d_theta)) + 1)
+    flux, valid = flux[:rows], valid[:rows]
+    d_omega = np.broadcast_to(d_omega_col[:rows], flux.shape)
+    polar = _peak_polar(beam, peak_vector, rows)
+    tt = beam.theta[:rows, None]
     out = []
     for hotspot_scale, edge_scale in scales:
         hot = inside_contour(beam, hotspot, peak_vector, hotspot_scale, polar=polar)
         hot_flux = float((flux * hot).sum())
         hot_missing = float((d_omega * hot)[~valid].sum() / max((d_omega * hot).sum(), 1e-30))
-        hot_sat = bool(np.any(beam.saturated & (hot > 0)))
+        hot_sat = bool(np.any(beam.saturated[:rows] & (hot > 0)))
         if edge_theta is not None:
             inside = np.clip(0.5 - (tt - edge_theta * edge_scale) / beam.d_theta, 0.0, 1.0)
             spill = np.clip(inside - hot, 0.0, 1.0)
             spill_flux = float((flux * spill).sum())
             spill_missing = float((d_omega * spill)[~valid].sum() / max((d_omega * spill).sum(), 1e-30))
-            outside = float((flux * (1.0 - np.maximum(inside, hot))).sum())
+            outside = total - float((flux * np.maximum(inside, hot)).sum())
         else:
             spill_flux, spill_missing = None, None
-            outside = float((flux * (1.0 - hot)).sum())
+            outside = total - hot_flux
         out.append(ZoneFlux(hotspot=hot_flux, spill=spill_flux, outside=outside, hotspot_missing=hot_missing,
                             spill_missing=spill_missing, hotspot_saturated=hot_sat))
     return out

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
-from ._quiet import quiet_nan
+from .robust import row_mad_sigma
 from .beammap import BeamMap, directions
 from .photometry import equal_cone_full_angle
 
@@ -111,8 +111,9 @@ def find_peak(beam: BeamMap) -> Peak:
     filled = np.where(np.isfinite(inten), inten, -np.inf)
     # light smoothing (3 x 3 cells, wrapping in azimuth) to pick the starting point
     pad = np.concatenate([filled[:, -1:], filled, filled[:, :1]], axis=1)
-    acc = sum(np.roll(pad, (dk, dj), axis=(0, 1)) for dk in (-1, 0, 1) for dj in (-1, 0, 1))[1:-1, 1:-1] / 9.0
-    acc[0], acc[-1] = filled[0], filled[-1]
+    across = pad[:, :-2] + pad[:, 1:-1] + pad[:, 2:]  # separable 3 x 3 box sum: azimuth, then theta
+    acc = filled.copy()
+    acc[1:-1] = (across[:-2] + across[1:-1] + across[2:]) / 9.0
     k, j = np.unravel_index(int(np.argmax(acc)), acc.shape)
     centre = directions(beam.theta[k], beam.phi[j])
     coarse = float(acc[k, j])
@@ -213,9 +214,7 @@ def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: floa
         # noise: MAD of the residual about the smoothed ray within +-10 samples of the crossing
         win = np.clip(i[:, None] + np.arange(-10, 10)[None, :], 0, n - 1)
         r = (vals - smooth)[b[:, None], win]
-        with quiet_nan():
-            mad = np.nanmedian(np.abs(r - np.nanmedian(r, axis=1, keepdims=True)), axis=1)
-        noise = np.nan_to_num(1.4826 * mad) / np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)
+        noise = np.nan_to_num(row_mad_sigma(r)) / np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)
         slope = np.maximum((p0 - p1) / step, 1e-30)
         sigma[b] = np.hypot(noise / slope, step / np.sqrt(12.0))
     return Contour(level_fraction=level_fraction, bearings=bearings, alpha=alpha, sigma=sigma)

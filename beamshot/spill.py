@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
-from ._quiet import quiet_nan
+from .robust import row_mad_sigma
 from .beammap import BeamMap
 from .photometry import equal_cone_full_angle
 
@@ -82,18 +82,23 @@ class SpillEdge:
 
 
 def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
+    """Mean radial profile ``(n_sectors, n_theta)`` of each azimuth sector (NaN where any column is outside)."""
     n_sec = int(round(360.0 / SECTOR_DEG))
     phi_deg = np.degrees(beam.phi)
     centres = np.arange(n_sec) * SECTOR_DEG
-    profiles = np.full((n_sec, len(beam.theta)), np.nan)
-    for s, c in enumerate(centres):
-        d = (phi_deg - c + 180.0) % 360.0 - 180.0
-        cols = np.abs(d) < SECTOR_DEG / 2
-        block = beam.intensity[:, cols]
+    d = (phi_deg[None, :] - centres[:, None] + 180.0) % 360.0 - 180.0
+    member = np.abs(d) < SECTOR_DEG / 2  # (n_sec, n_phi)
+    counts = member.sum(axis=1)
+    if np.all(counts == counts[0]):  # one gather for all sectors
+        cols = np.nonzero(member)[1].reshape(n_sec, counts[0])
         with np.errstate(invalid="ignore"):
-            prof = block.mean(axis=1)  # NaN if any column is outside the photo
-        profiles[s] = prof
-    return np.radians(centres), profiles
+            profiles = beam.intensity[:, cols].mean(axis=2).T
+    else:
+        profiles = np.full((n_sec, len(beam.theta)), np.nan)
+        for s in range(n_sec):
+            with np.errstate(invalid="ignore"):
+                profiles[s] = beam.intensity[:, member[s]].mean(axis=1)
+    return np.radians(centres), np.ascontiguousarray(profiles)
 
 
 def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
@@ -105,9 +110,7 @@ def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         smooth = gaussian_filter1d(filled, sm, axis=1, mode="nearest") / weight
     resid = np.where(finite, profiles - smooth, np.nan)
-    with quiet_nan():
-        mad = np.nanmedian(np.abs(resid - np.nanmedian(resid, axis=1, keepdims=True)), axis=1)
-    return np.nan_to_num(1.4826 * mad / np.sqrt(2 * np.sqrt(np.pi) * sm), nan=0.0)
+    return np.nan_to_num(row_mad_sigma(resid) / np.sqrt(2 * np.sqrt(np.pi) * sm), nan=0.0)
 
 
 
@@ -123,15 +126,20 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
     coverage = np.zeros(n_sec)
     kinds = []
     noises = _profile_noise(profiles, sm)
+    finite = np.isfinite(profiles)
+    lasts = np.where(finite.all(axis=1), n_t, np.argmin(finite, axis=1))
+    # smooth each sector's finite head, continued by its last value (as mode="nearest" would)
+    head = np.where(np.arange(n_t)[None, :] < lasts[:, None], profiles, np.nan)
+    fill = profiles[np.arange(n_sec), np.maximum(lasts - 1, 0)]
+    head = np.where(np.isnan(head), fill[:, None], head)
+    smoothed = gaussian_filter1d(np.nan_to_num(head), sm, axis=1, mode="nearest")
     for s in range(n_sec):
-        p = profiles[s]
-        finite = np.isfinite(p)
-        last = int(np.argmin(finite)) if not finite.all() else n_t
+        last = int(lasts[s])
         coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
         if last < 4 * k:
             kinds.append("outside")
             continue
-        ps = gaussian_filter1d(p[:last], sm, mode="nearest")
+        ps = smoothed[s, :last]
         noise = noises[s]
         floor = max(5.0 * noise, peak_value * 1e-6)
         # start beyond the half-peak point of this sector
@@ -151,7 +159,7 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
                 # outermost contiguous run of candidates; the steepest drop inside it
                 breaks = np.nonzero(np.diff(cand) > 1)[0]
                 run = cand[breaks[-1] + 1:] if len(breaks) else cand
-                slope = -np.gradient(ps)[run]  # steepest in linear units: the mid-point of the cut-off
+                slope = ps[run - 1] - ps[run + 1]  # steepest in linear units: the mid-point of the cut-off
                 c = int(run[np.argmax(slope)])
                 level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
                 seg = ps[c - k: c + k + 1]

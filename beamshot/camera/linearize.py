@@ -89,6 +89,22 @@ def bin_factor_for(shape: tuple[int, int], max_side: int | None = None) -> int:
     return max(1, int(np.ceil(max(shape) / limit)))
 
 
+def _any_clipped(strip: np.ndarray, clip_code: int, b: int) -> np.ndarray:
+    """``(rows/b, cols/b)`` bool: True where any channel of any pixel in a ``b`` x ``b`` block reaches ``clip_code``.
+
+    One threshold pass marks clipped channel values; an area resize by ``b`` keeps a block's
+    mark above zero if any of its pixels was marked; a block is clear when all three channels are 0.
+    """
+    rows, cols = strip.shape[0] // b, strip.shape[1] // b
+    if strip.dtype == np.uint8:
+        hit = cv2.threshold(strip, clip_code - 1, 255, cv2.THRESH_BINARY)[1]
+    else:
+        hit = (strip >= clip_code).astype(np.uint8) * np.uint8(255)
+    if b > 1:
+        hit = cv2.resize(hit, (cols, rows), interpolation=cv2.INTER_AREA)  # mean > 0 iff any pixel hit
+    return cv2.inRange(hit, (0, 0, 0), (0, 0, 0)) == 0
+
+
 def linearize(photo: Photo, response: Response, *, max_side: int | None = None) -> LinearImage:
     """Decode the response curve and bin ``photo`` to the working resolution.
 
@@ -108,38 +124,38 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
     if eight_bit:
         lut16 = np.round(np.clip(lut, 0.0, 1.0) * 65535.0).astype(np.uint16)
         lut16 = lut16.reshape(1, 256, 3) if lut16.ndim == 2 else lut16.reshape(1, -1)
+    lut = lut.astype(np.float32)  # 24-bit mantissa: far finer than any 16-bit code step
     clip_code = int(np.ceil(SATURATION_CODE_FRACTION * photo.max_code))
     rgb = np.empty((h, w, 3), np.float32)
     saturated = np.empty((h, w), bool)
+    luminance = np.empty((h, w), np.float32)
     step = max(b, (_STRIP_ROWS // b) * b)
 
     def work(top: int) -> None:
         bottom = min(top + step, h * b)
         strip = pixels[top:bottom, : w * b]
+        rows = (bottom - top) // b
+        out_rows = slice(top // b, top // b + rows)
         if eight_bit:
             lin = cv2.LUT(strip, lut16)
         elif lut.ndim == 2:
             lin = np.stack([lut[strip[..., c], c] for c in range(3)], axis=-1)
         else:
             lin = lut[strip]
-        rows = (bottom - top) // b
-        out_rows = slice(top // b, top // b + rows)
-        # 255 where every channel is below the clip code (cv2.inRange is a fast SIMD pass)
-        below = cv2.inRange(strip, (0, 0, 0), (clip_code - 1,) * 3)
         if b > 1:
             lin = cv2.resize(lin, (w, rows), interpolation=cv2.INTER_AREA)
-            # a block is clipped if any of its pixels is: its mean of `below` is then under 255
-            saturated[out_rows] = cv2.resize(below, (w, rows), interpolation=cv2.INTER_AREA) < 255
-        else:
-            saturated[out_rows] = below == 0
-        # reverse BGR -> RGB while scaling (one pass over the small strip)
-        rgb[out_rows] = lin[..., ::-1] * np.float32(1.0 / 65535.0) if eight_bit else lin[..., ::-1]
+        saturated[out_rows] = _any_clipped(strip, clip_code, b)
+        # BGR -> RGB on the small strip, then scale into the float output in one pass
+        lin = cv2.cvtColor(lin, cv2.COLOR_BGR2RGB)
+        out = rgb[out_rows]
+        np.multiply(lin, np.float32(1.0 / 65535.0) if eight_bit else np.float32(1.0), out=out, casting="unsafe")
+        luminance[out_rows] = relative_luminance(out)
 
     with ThreadPoolExecutor(max_workers=_WORKERS) as pool:
         list(pool.map(work, range(0, h * b, step)))
     return LinearImage(
         rgb=rgb,
-        luminance=relative_luminance(rgb),
+        luminance=luminance,
         saturated=saturated,
         bin_factor=b,
         full_shape=(height, width),
