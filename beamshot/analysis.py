@@ -112,13 +112,16 @@ def _markers_left_in(photo: Photo, image: LinearImage, target_scale: float):
     import cv2
 
     lum = image.luminance
-    small = np.nan_to_num(cv2.resize(lum, None, fx=0.25, fy=0.25, interpolation=cv2.INTER_AREA), nan=0.0)
-    r, c = np.unravel_index(int(np.argmax(cv2.GaussianBlur(small, (0, 0), 1.0))), small.shape)
+    small = np.fmax(lum[2::4, 2::4], 0.0)  # every 4th pixel finds the bright area; fmax: NaN -> 0
+    r, c = np.unravel_index(int(np.argmax(cv2.GaussianBlur(small, (0, 0), 1.5))), small.shape)
     r, c = 4 * r + 2, 4 * c + 2
     half = max(128, max(lum.shape) // 6)
-    crop = np.nan_to_num(lum[max(0, r - half): r + half, max(0, c - half): c + half], nan=0.0)
+    crop = np.fmax(lum[max(0, r - half): r + half, max(0, c - half): c + half], 0.0)
     peak = float(crop.max()) or 1.0
-    codes = np.clip(np.sqrt(np.clip(crop / peak, 0, 1)) * 255, 0, 255).astype(np.uint8)
+    # square-root coding (roughly perceptual, like the photo's own) on the 0-255 scale, in place
+    np.multiply(crop, np.float32(1.0 / peak), out=crop)
+    np.sqrt(crop, out=crop)
+    codes = (crop * np.float32(255.0)).astype(np.uint8)
     if detect_markers(codes, name=photo.name, target_scale=target_scale, required=False, quick=True,
                       min_markers=1) is None:
         return None
@@ -149,7 +152,7 @@ def _mask_quads(image: LinearImage, quads, grow: float = 0.15) -> LinearImage:
     rgb[bad] = np.nan
     lum = image.luminance.copy()
     lum[bad] = np.nan
-    return LinearImage(rgb=rgb, luminance=lum, saturated=image.saturated, bin_factor=b, full_shape=image.full_shape)
+    return LinearImage(rgb_values=rgb, luminance=lum, saturated=image.saturated, bin_factor=b, full_shape=image.full_shape)
 
 
 def _same_size(other: Photo, beam: Photo, what: str, fix: str) -> Photo:
@@ -526,9 +529,7 @@ def _outside_level(beam, shape) -> float | None:
     edge = shape.edge
     if not edge.complete:
         return None
-    tt = np.broadcast_to(beam.theta[:, None], beam.intensity.shape)
-    pp = np.broadcast_to(beam.phi[None, :], beam.intensity.shape)
-    out = (tt > edge.at(pp) + np.radians(3.0)) & beam.valid
+    out = (beam.theta[:, None] > edge.at(beam.phi)[None, :] + np.radians(3.0)) & beam.valid
     if out.sum() < 50:
         return None
     return float(np.median(beam.intensity[out]))

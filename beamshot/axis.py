@@ -31,6 +31,8 @@ MIN_EDGE_COVERAGE = 0.5
 _BLACK_FRAME_LEVEL = 2e-3
 #: Longest side of the reduced image used to locate the axis, pixels.
 AXIS_MAX_SIDE = 640
+#: Number of pixels sampled for the multi-level Otsu thresholds (a histogram needs no more).
+_OTSU_SAMPLES = 40000
 #: Lowest level considered when separating wall, spill and hotspot (fraction of peak).
 _LOG_FLOOR_FRACTION = 3e-4
 
@@ -57,6 +59,13 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
                    name: str = "photo") -> BeamAxis:
     """Find the beam axis in a working-resolution luminance image (see module notes)."""
     lum = luminance.astype(np.float32, copy=False)
+    # work on a reduced copy: the spill edge spans hundreds of pixels, and the ellipse fit
+    # over many edge points still centres it to a small fraction of a reduced pixel
+    r = max(1, int(np.ceil(max(lum.shape) / AXIS_MAX_SIDE)))
+    if r > 1:
+        h0, w0 = (lum.shape[0] // r) * r, (lum.shape[1] // r) * r
+        lum = cv2.resize(lum[:h0, :w0], (w0 // r, h0 // r), interpolation=cv2.INTER_AREA)  # NaN spreads to its block
+        bin_factor = bin_factor * r
     holes = ~np.isfinite(lum)
     if np.any(holes):
         # masked areas (markers left on the wall) are filled from their surroundings
@@ -66,13 +75,6 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
         num = cv2.GaussianBlur(filled, (0, 0), sigma)
         den = cv2.GaussianBlur(valid, (0, 0), sigma)
         lum = np.where(holes, num / np.maximum(den, 1e-6), lum).astype(np.float32)
-    # work on a reduced copy: the spill edge spans hundreds of pixels, and the ellipse fit
-    # over many edge points still centres it to a small fraction of a reduced pixel
-    r = max(1, int(np.ceil(max(lum.shape) / AXIS_MAX_SIDE)))
-    if r > 1:
-        h0, w0 = (lum.shape[0] // r) * r, (lum.shape[1] // r) * r
-        lum = cv2.resize(lum[:h0, :w0], (w0 // r, h0 // r), interpolation=cv2.INTER_AREA)
-        bin_factor = bin_factor * r
     lum = np.nan_to_num(lum, nan=0.0, posinf=0.0, neginf=0.0)
     smooth = cv2.GaussianBlur(lum, (0, 0), 1.5)
     peak = float(smooth.max())
@@ -92,13 +94,14 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
     noise = 1.4826 * float(np.median(np.abs(resid - np.median(resid)))) / (2.0 * np.sqrt(np.pi) * 1.5)
     floor = max(peak * _LOG_FLOOR_FRACTION, 5.0 * noise)
     logl = np.log(np.maximum(smooth, floor))
-    sample = logl[:: max(1, logl.shape[0] // 300), :: max(1, logl.shape[1] // 300)].ravel()
+    stride = max(1, int(np.sqrt(logl.size / _OTSU_SAMPLES)))
+    sample = logl[::stride, ::stride].ravel()
     try:
         low, _high = threshold_multiotsu(sample, classes=3)
     except ValueError:
         low = float(np.log(peak * 0.05))
     level = float(np.exp(low))
-    contours = find_contours(smooth, level)
+    contours = _contours_around(smooth, level, pr, pc)
     h, w = smooth.shape
     pts = []
     for c in contours:
@@ -154,6 +157,20 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
         ellipse_angle_deg=None,
         peak_px=(float(pc), float(pr)),
     )
+
+
+def _contours_around(smooth: np.ndarray, level: float, pr: int, pc: int) -> list[np.ndarray]:
+    """Sub-pixel iso-contours at ``level`` (rows, cols) within the bounding box of the region
+    above ``level`` that holds the peak ``(pr, pc)`` - noise blobs elsewhere are not traced."""
+    above = (smooth >= level).astype(np.uint8)
+    _n, labels, stats, _c = cv2.connectedComponentsWithStats(above, connectivity=8)
+    label = labels[pr, pc]
+    if label == 0:
+        return find_contours(smooth, level)
+    x, y, w, h = stats[label, :4]
+    r0, c0 = max(0, y - 2), max(0, x - 2)
+    r1, c1 = min(smooth.shape[0], y + h + 2), min(smooth.shape[1], x + w + 2)
+    return [c + (r0, c0) for c in find_contours(smooth[r0:r1, c0:c1], level)]
 
 
 def _encloses(contour: np.ndarray, r: float, c: float) -> bool:

@@ -89,19 +89,25 @@ def zone_fluxes(beam: BeamMap, hotspot: Contour, peak_vector: np.ndarray, edge: 
     flux = np.where(valid, beam.intensity, 0.0) * d_omega_col
     total = float(flux.sum())
     peak_theta = float(np.arccos(np.clip(peak_vector[2] / np.linalg.norm(peak_vector), -1.0, 1.0)))
-    reach = peak_theta + float(np.nanmax(hotspot.alpha)) * max(s[0] for s in scales)
+    n_t = len(beam.theta)
+
+    def rows_to(reach: float) -> int:
+        return min(n_t, int(np.searchsorted(beam.theta, reach + beam.d_theta)) + 1)
+
+    hot_rows = rows_to(peak_theta + float(np.nanmax(hotspot.alpha)) * max(s[0] for s in scales))
+    rows = hot_rows
     edge_theta = None
     if edge is not None and edge.complete:
         edge_theta = edge.at(beam.phi)[None, :]
-        reach = max(reach, float(np.max(edge_theta)) * max(s[1] for s in scales))
-    rows = min(len(beam.theta), int(np.searchsorted(beam.theta, reach + beam.d_theta)) + 1)
+        rows = max(rows, rows_to(float(np.max(edge_theta)) * max(s[1] for s in scales)))
     flux, valid = flux[:rows], valid[:rows]
     d_omega = np.broadcast_to(d_omega_col[:rows], flux.shape)
-    polar = _peak_polar(beam, peak_vector, rows)
+    polar = _peak_polar(beam, peak_vector, hot_rows)
     tt = beam.theta[:rows, None]
     out = []
     for hotspot_scale, edge_scale in scales:
-        hot = inside_contour(beam, hotspot, peak_vector, hotspot_scale, polar=polar)
+        hot = np.zeros(flux.shape)
+        hot[:hot_rows] = inside_contour(beam, hotspot, peak_vector, hotspot_scale, polar=polar)
         hot_flux = float((flux * hot).sum())
         hot_missing = float((d_omega * hot)[~valid].sum() / max((d_omega * hot).sum(), 1e-30))
         hot_sat = bool(np.any(beam.saturated[:rows] & (hot > 0)))

@@ -108,11 +108,13 @@ class WallMapping:
 
 def _apply_h(h: np.ndarray, xy: np.ndarray) -> np.ndarray:
     xy = np.asarray(xy, dtype=np.float64)
-    pts = xy.reshape(-1, 2)
-    hom = np.c_[pts, np.ones(len(pts))] @ h.T
+    x, y = xy[..., 0], xy[..., 1]
+    out = np.empty(xy.shape)
     with np.errstate(divide="ignore", invalid="ignore"):
-        out = hom[:, :2] / hom[:, 2:3]
-    return out.reshape(xy.shape)
+        w = 1.0 / (h[2, 0] * x + h[2, 1] * y + h[2, 2])
+        out[..., 0] = (h[0, 0] * x + h[0, 1] * y + h[0, 2]) * w
+        out[..., 1] = (h[1, 0] * x + h[1, 1] * y + h[1, 2]) * w
+    return out
 
 
 def pinhole_mapping(

@@ -10,6 +10,7 @@ from __future__ import annotations
 import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import cv2
 import numpy as np
@@ -42,13 +43,24 @@ class LinearImage:
     ``rgb`` is ``(h, w, 3)`` float32 linear (1 = clipping), ``luminance`` is ``(h, w)``,
     ``saturated`` is ``(h, w)`` bool.  Working pixel ``(row, col)`` covers full-resolution
     pixels ``[row*b, row*b + b)`` x ``[col*b, col*b + b)`` with ``b = bin_factor``.
+    The colour is held either as float values (``rgb_values``) or, straight from an 8-bit
+    photo, as 16-bit counts (``rgb_counts``, 65535 = clipping) that become ``rgb`` on first use;
+    the luminance is always float.
     """
 
-    rgb: np.ndarray = field(repr=False)
     luminance: np.ndarray = field(repr=False)
     saturated: np.ndarray = field(repr=False)
     bin_factor: int
     full_shape: tuple[int, int]
+    rgb_values: np.ndarray | None = field(default=None, repr=False)
+    rgb_counts: np.ndarray | None = field(default=None, repr=False)
+
+    @cached_property
+    def rgb(self) -> np.ndarray:
+        """``(h, w, 3)`` float32 linear RGB, 1 = clipping."""
+        if self.rgb_values is not None:
+            return self.rgb_values
+        return np.multiply(self.rgb_counts, np.float32(1.0 / 65535.0), dtype=np.float32)
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -56,13 +68,13 @@ class LinearImage:
 
     def divided_by(self, gain: np.ndarray) -> "LinearImage":
         """Same image with every channel divided by ``gain`` ``(h, w)`` (a flat-field correction)."""
-        return LinearImage(rgb=self.rgb / gain[..., None], luminance=self.luminance / gain, saturated=self.saturated,
-                           bin_factor=self.bin_factor, full_shape=self.full_shape)
+        return LinearImage(rgb_values=self.rgb / gain[..., None], luminance=self.luminance / gain,
+                           saturated=self.saturated, bin_factor=self.bin_factor, full_shape=self.full_shape)
 
     def with_values(self, rgb: np.ndarray) -> "LinearImage":
         """Same geometry and saturation mask, new linear RGB (luminance recomputed)."""
         return LinearImage(
-            rgb=rgb.astype(np.float32, copy=False),
+            rgb_values=rgb.astype(np.float32, copy=False),
             luminance=relative_luminance(rgb),
             saturated=self.saturated,
             bin_factor=self.bin_factor,
@@ -96,6 +108,8 @@ def _any_clipped(strip: np.ndarray, clip_code: int, b: int) -> np.ndarray:
     mark above zero if any of its pixels was marked; a block is clear when all three channels are 0.
     """
     rows, cols = strip.shape[0] // b, strip.shape[1] // b
+    if strip.max() < clip_code:  # most strips of a well-exposed photo: one fast reduction
+        return np.zeros((rows, cols), bool)
     if strip.dtype == np.uint8:
         hit = cv2.threshold(strip, clip_code - 1, 255, cv2.THRESH_BINARY)[1]
     else:
@@ -126,10 +140,14 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
         lut16 = lut16.reshape(1, 256, 3) if lut16.ndim == 2 else lut16.reshape(1, -1)
     lut = lut.astype(np.float32)  # 24-bit mantissa: far finer than any 16-bit code step
     clip_code = int(np.ceil(SATURATION_CODE_FRACTION * photo.max_code))
-    rgb = np.empty((h, w, 3), np.float32)
+    counts = np.empty((h, w, 3), np.uint16) if eight_bit else None
+    values = None if eight_bit else np.empty((h, w, 3), np.float32)
     saturated = np.empty((h, w), bool)
     luminance = np.empty((h, w), np.float32)
     step = max(b, (_STRIP_ROWS // b) * b)
+    weights = np.asarray(LUMINANCE_WEIGHTS_BT709, np.float32).reshape(1, 3)
+    if eight_bit:
+        weights = weights / np.float32(65535.0)
 
     def work(top: int) -> None:
         bottom = min(top + step, h * b)
@@ -145,18 +163,12 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
         if b > 1:
             lin = cv2.resize(lin, (w, rows), interpolation=cv2.INTER_AREA)
         saturated[out_rows] = _any_clipped(strip, clip_code, b)
-        # BGR -> RGB on the small strip, then scale into the float output in one pass
-        lin = cv2.cvtColor(lin, cv2.COLOR_BGR2RGB)
-        out = rgb[out_rows]
-        np.multiply(lin, np.float32(1.0 / 65535.0) if eight_bit else np.float32(1.0), out=out, casting="unsafe")
-        luminance[out_rows] = relative_luminance(out)
+        out = (counts if eight_bit else values)[out_rows]
+        cv2.cvtColor(lin, cv2.COLOR_BGR2RGB, dst=out)
+        # BT.709 weighted channel sum (cv2.transform keeps the input depth, so go through float)
+        luminance[out_rows] = cv2.transform(out.astype(np.float32, copy=False), weights)
 
     with ThreadPoolExecutor(max_workers=_WORKERS) as pool:
         list(pool.map(work, range(0, h * b, step)))
-    return LinearImage(
-        rgb=rgb,
-        luminance=luminance,
-        saturated=saturated,
-        bin_factor=b,
-        full_shape=(height, width),
-    )
+    return LinearImage(luminance=luminance, saturated=saturated, bin_factor=b, full_shape=(height, width),
+                       rgb_values=values, rgb_counts=counts)
