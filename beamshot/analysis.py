@@ -9,7 +9,8 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-from dataclasses import asdict, replace
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 
@@ -322,72 +323,56 @@ def analyze(
             img_pts = lens.undistort(img_pts)
         mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
         geometry_note = {"points": len(img_pts)}
-    elif (beam_markers := _markers_left_in(beam_photos[0], image, target_scale)) is not None:
-        mapping = _marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
-                                  "target markers in the beam photo", warnings, lens)
-        geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids), "target_scale": target_scale}
     else:
         mapping = None
-    if mapping is not None:
+    measured = None
+    if mapping is None:
+        # the quick look for target markers left on the wall runs beside the usual measurement
+        # with the pinhole mapping; if markers turn up, that measurement is dropped
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            look = pool.submit(_markers_left_in, beam_photos[0], image, target_scale)
+            f_px, f_u, f_src = _focal(beam_photo, focal_35mm, hfov_deg)
+            cam_d = distance_m if camera_distance_m is None else camera_distance_m
+            if lens is not None:
+                f_px = 0.5 * (lens.fx + lens.fy)
+                f_src = f"camera profile '{profile.name}' (calibrated camera matrix)"
+            failure = None
+            if f_px is not None:
+                mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
+                if lens is not None:
+                    mapping = replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
+                try:
+                    measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name,
+                                             assume_square=assume_square, target_based=False)
+                except BeamshotError as exc:
+                    failure = exc
+            beam_markers = look.result()
+        if beam_markers is not None:
+            mapping = _marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
+                                      "target markers in the beam photo", warnings, lens)
+            geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids),
+                             "target_scale": target_scale}
+            measured = None
+        elif failure is not None:
+            raise failure
+        elif f_px is None:
+            raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
+                                "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
+    if geometry_note is not None:
         f_u = mapping.scale_uncertainty
         f_px, f_src = None, "not needed (homography)"
         cam_d = None
-    else:
-        f_px, f_u, f_src = _focal(beam_photo, focal_35mm, hfov_deg)
-        if f_px is None and lens is None:
-            raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
-                                "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
-        cam_d = distance_m if camera_distance_m is None else camera_distance_m
-        if lens is not None:
-            f_px = 0.5 * (lens.fx + lens.fy)
-            f_src = f"camera profile '{profile.name}' (calibrated camera matrix)"
-        mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
-    if lens is not None:
+    if lens is not None and mapping.distortion is None:
         mapping = replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
     if beam_markers is not None:
         image = _mask_quads(image, beam_markers.quads)
         warnings.append(f"target markers found in {beam_photos[0].name} were masked out; remove the target "
                         "before the beam photos")
-
-    axis = find_beam_axis(image.luminance, mapping, image.bin_factor, name=beam_photo.name)
-    if axis.ellipse_axes_mm is None:
-        warnings.append("the spill edge is not visible enough to centre on; the beam axis is the hotspot centre")
-
-    beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
-    shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
-    # ---- light tilt: fit a cone to the spill edge, re-fit on the half-level edge, apply if significant
-    pose = None
-    if assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION:
-        edge = shape_.edge
-        pts = edge_to_wall(edge.theta, edge.phi, axis.centre_mm, None, distance_m)
-        peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), axis.centre_mm,
-                                     None, distance_m)[0])
-        # a square pinhole view scales both wall axes alike; a homography from a target may not
-        aniso = 0.0 if geometry_note is None else mapping.scale_uncertainty
-        pose = fit_light_pose(pts, distance_m, axis.centre_mm, peak_mm, anisotropy=aniso)
-        rebuilt = False
-        for _ in range(2):
-            if pose is None or not pose.significant:
-                break
-            rebuilt = True
-            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
-            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
-            if not shape_.edge.complete:
-                break
-            pts = edge_to_wall(shape_.edge.theta, shape_.edge.phi, pose.foot_mm, pose.axis, distance_m)
-            peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), pose.foot_mm,
-                                         pose.axis, distance_m)[0])
-            pose = fit_light_pose(pts, distance_m, tuple(np.mean(pts, axis=0)), peak_mm, anisotropy=aniso)
-        if pose is not None and pose.significant:
-            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
-            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
-        elif rebuilt:
-            beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
-            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
-        if pose is not None and pose.significant:
-            if pose.tilt_deg > TILT_WARN_DEG:
-                warnings.append(f"the light is tilted {pose.tilt_deg:.1f} deg against the wall's normal; the "
-                                "figures are corrected for it, but aim the light square to the wall for best results")
+    if measured is None:
+        measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name, assume_square=assume_square,
+                                 target_based=geometry_note is not None)
+    axis, beam, shape_, pose = measured.axis, measured.beam, measured.shape, measured.pose
+    warnings.extend(measured.warnings)
     pk = shape_.peak
 
     # ---- absolute scale
@@ -499,6 +484,61 @@ def analyze(
         created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         tool_version=__version__,
     )
+
+
+@dataclass(frozen=True)
+class _Measured:
+    """What the wall-to-intensity chain gives: beam axis, intensity map, its shape, light pose."""
+
+    axis: object
+    beam: object
+    shape: object
+    pose: object
+    warnings: list
+
+
+def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, name: str, *,
+                  assume_square: bool, target_based: bool) -> _Measured:
+    """Beam axis -> intensity map -> shape, then the light's tilt: a cone fitted to the spill edge,
+    re-fitted on the re-mapped edge, and applied to the map if significant."""
+    warnings = []
+    axis = find_beam_axis(image.luminance, mapping, image.bin_factor, name=name)
+    if axis.ellipse_axes_mm is None:
+        warnings.append("the spill edge is not visible enough to centre on; the beam axis is the hotspot centre")
+    beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
+    shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+    pose = None
+    if assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION:
+        edge = shape_.edge
+        pts = edge_to_wall(edge.theta, edge.phi, axis.centre_mm, None, distance_m)
+        peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), axis.centre_mm,
+                                     None, distance_m)[0])
+        # a square pinhole view scales both wall axes alike; a homography from a target may not
+        aniso = mapping.scale_uncertainty if target_based else 0.0
+        pose = fit_light_pose(pts, distance_m, axis.centre_mm, peak_mm, anisotropy=aniso)
+        rebuilt = False
+        for _ in range(2):
+            if pose is None or not pose.significant:
+                break
+            rebuilt = True
+            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
+            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+            if not shape_.edge.complete:
+                break
+            pts = edge_to_wall(shape_.edge.theta, shape_.edge.phi, pose.foot_mm, pose.axis, distance_m)
+            peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), pose.foot_mm,
+                                         pose.axis, distance_m)[0])
+            pose = fit_light_pose(pts, distance_m, tuple(np.mean(pts, axis=0)), peak_mm, anisotropy=aniso)
+        if pose is not None and pose.significant:
+            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
+            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+        elif rebuilt:
+            beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
+            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+        if pose is not None and pose.significant and pose.tilt_deg > TILT_WARN_DEG:
+            warnings.append(f"the light is tilted {pose.tilt_deg:.1f} deg against the wall's normal; the "
+                            "figures are corrected for it, but aim the light square to the wall for best results")
+    return _Measured(axis, beam, shape_, pose, warnings)
 
 
 def _tilt_figure(pose, assume_square: bool, edge=None):

@@ -5,7 +5,7 @@ Run:  python benchmarks/bench_analysis.py [--sizes 12 48] [--repeat 3]
 Photos are rendered once by beamshot.synth into benchmarks/_cache/.  For each size the
 script times, in the same process and run: (a) plain decoding with OpenCV, (b) beamshot's
 decode (EXIF, orientation, hash), (c) analyze() without pictures; and reports the ratio of
-(c) to (a) plus the peak resident memory (VmHWM) of a separate process that runs (c) once.
+(c) to (a) - of the minimum times, and the median of the ratios of each repeat - plus the peak resident memory (VmHWM) of a separate process that runs (c) once.
 The photos carry phone-like sensor noise so that they compress (and decode) like real ones.
 """
 
@@ -76,7 +76,7 @@ def main() -> None:
     from beamshot.photo import load_photo
 
     print(f"cores: {os.cpu_count()}, numpy {np.__version__}, opencv {cv2.__version__}")
-    print(f"{'size':>6} {'file MB':>8} {'decode s':>9} {'load s':>8} {'analyze s':>10} {'ratio':>6} {'peak RSS MB':>12}")
+    print(f"{'size':>6} {'file MB':>8} {'decode s':>9} {'load s':>8} {'analyze s':>10} {'ratio':>6} {'median':>7} {'peak RSS MB':>12}")
     for mp in args.sizes:
         path = subprocess.run([sys.executable, __file__, "--render", str(mp)], capture_output=True, text=True,
                               check=True).stdout.strip().splitlines()[-1]
@@ -94,9 +94,12 @@ def main() -> None:
             load.append(t2 - t1)
             ana.append(t3 - t2)
         d, lo, a = min(dec), min(load), min(ana)
+        # each repeat times decode and analysis back to back, so the median of the per-repeat
+        # ratios follows the machine's speed as it drifts (shared machines are noisy)
+        pair = float(np.median(np.asarray(ana) / np.asarray(dec)))
         rss = subprocess.run([sys.executable, __file__, "--child", path], capture_output=True, text=True, check=True)
-        print(f"{mp:>4}MP {size_mb:>8.1f} {d:>9.3f} {lo:>8.3f} {a:>10.3f} {a / d:>6.2f} {float(rss.stdout.strip().splitlines()[-1]):>12.0f}")
-
+        print(f"{mp:>4}MP {size_mb:>8.1f} {d:>9.3f} {lo:>8.3f} {a:>10.3f} {a / d:>6.2f} {pair:>7.2f} "
+              f"{float(rss.stdout.strip().splitlines()[-1]):>12.0f}")
 
 if __name__ == "__main__":
     main()

@@ -32,7 +32,7 @@ WORKING_MAX_SIDE = 2000
 #: (JPEG ringing spreads clipped areas over the top few codes; common practice).
 SATURATION_CODE_FRACTION = 250.0 / 255.0
 #: Rows decoded to linear per step, to bound memory on large photos.
-_STRIP_ROWS = 512
+_STRIP_ROWS = 128
 _WORKERS = max(1, min(4, os.cpu_count() or 1))
 
 
