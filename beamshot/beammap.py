@@ -139,7 +139,7 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     my = np.nan_to_num(work[..., 1], nan=-10.0).astype(np.float32)
     lum = cv2.remap(image.luminance, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT,
                     borderValue=float("nan"))
-    sat = cv2.remap(image.saturated.astype(np.uint8), mx, my, cv2.INTER_NEAREST,
+    sat = cv2.remap(image.saturated.view(np.uint8), mx, my, cv2.INTER_NEAREST,
                     borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
     intensity = lum.astype(np.float64) * factor
     return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m)

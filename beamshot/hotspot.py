@@ -20,7 +20,7 @@ from .robust import row_mad_sigma
 from .beammap import BeamMap, directions
 from .photometry import equal_cone_full_angle
 
-__all__ = ["Peak", "Contour", "find_peak", "trace_contour", "local_basis", "N_BEARINGS"]
+__all__ = ["Peak", "Contour", "find_peak", "trace_contour", "trace_contours", "local_basis", "N_BEARINGS"]
 
 #: Number of rays (bearings) used to trace a contour.
 N_BEARINGS = 72
@@ -118,10 +118,13 @@ def find_peak(beam: BeamMap) -> Peak:
     centre = directions(beam.theta[k], beam.phi[j])
     coarse = float(acc[k, j])
     value, rel_noise = coarse, 0.02
-    for _ in range(2):  # fit, re-centre on the vertex, fit again
+    radii = (0.75, 1.5, 3.0, 6.0)
+    first = 0
+    for _ in range(2):  # fit, re-centre on the vertex, fit again (from the radius reached)
         fit = None
-        for radius_deg in (0.75, 1.5, 3.0, 6.0):
-            fit = _quadratic_peak(beam, centre, np.radians(radius_deg), coarse)
+        for n in range(first, len(radii)):
+            fit = _quadratic_peak(beam, centre, np.radians(radii[n]), coarse)
+            first = n
             if fit is None or fit[3] < 0.6:
                 break
         if fit is None:
@@ -173,19 +176,33 @@ def _quadratic_peak(beam: BeamMap, centre: np.ndarray, radius: float, reference:
 def trace_contour(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: float,
                   *, n_bearings: int | None = None) -> Contour:
     """Angles from ``centre`` at which the intensity first falls below ``level``, per bearing."""
+    return trace_contours(beam, centre, [(level, level_fraction)], n_bearings=n_bearings)[0]
+
+
+def trace_contours(beam: BeamMap, centre: np.ndarray, levels: list[tuple[float, float]],
+                   *, n_bearings: int | None = None) -> list[Contour]:
+    """:func:`trace_contour` for several ``(level, level_fraction)`` pairs, sharing the ray samples."""
     nb = N_BEARINGS if n_bearings is None else n_bearings
     alpha_max = beam.theta[-1] + np.arccos(np.clip(np.asarray(centre)[2] / np.linalg.norm(centre), -1, 1))
     alpha_max = min(alpha_max, np.radians(89.0))
+    found: list[Contour | None] = [None] * len(levels)
     # trace a short reach first; most contours close well inside it
     for reach in (np.radians(12.0), np.radians(40.0), alpha_max):
-        contour = _trace(beam, centre, level, level_fraction, nb, min(reach, alpha_max))
-        if reach >= alpha_max or np.all(np.isfinite(contour.alpha) & (contour.alpha < 0.9 * reach)):
-            return contour
-    return contour
+        reach = min(reach, alpha_max)
+        rays = _sample_rays(beam, centre, nb, reach)
+        for n, (level, fraction) in enumerate(levels):
+            if found[n] is not None:
+                continue
+            contour = _crossings(rays, level, fraction)
+            if reach >= alpha_max or np.all(np.isfinite(contour.alpha) & (contour.alpha < 0.9 * reach)):
+                found[n] = contour
+        if all(c is not None for c in found):
+            break
+    return found
 
 
-def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: float, nb: int,
-           alpha_max: float) -> Contour:
+def _sample_rays(beam: BeamMap, centre: np.ndarray, nb: int, alpha_max: float):
+    """Intensity along ``nb`` rays from ``centre`` out to ``alpha_max`` (rad), raw and smoothed."""
     bearings = np.arange(nb) * 2 * np.pi / nb
     step = beam.d_theta
     alphas = np.arange(0.0, alpha_max, step)
@@ -196,6 +213,13 @@ def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: floa
     weight = gaussian_filter1d(finite.astype(float), _RAY_SMOOTH_SAMPLES, axis=1, mode="nearest")
     with np.errstate(invalid="ignore", divide="ignore"):
         smooth = np.where(finite, smooth / weight, np.nan)
+    return bearings, alphas, step, vals, smooth
+
+
+def _crossings(rays, level: float, level_fraction: float) -> Contour:
+    """First fall below ``level`` along each sampled ray, with its 1-sigma from the ray's noise."""
+    bearings, alphas, step, vals, smooth = rays
+    nb = len(bearings)
     n = smooth.shape[1]
     alpha = np.full(nb, np.nan)
     sigma = np.full(nb, np.nan)
@@ -213,7 +237,7 @@ def _trace(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: floa
         alpha[b] = alphas[i - 1] + frac * step
         # noise: MAD of the residual about the smoothed ray within +-10 samples of the crossing
         win = np.clip(i[:, None] + np.arange(-10, 10)[None, :], 0, n - 1)
-        r = (vals - smooth)[b[:, None], win]
+        r = vals[b[:, None], win] - smooth[b[:, None], win]
         noise = np.nan_to_num(row_mad_sigma(r)) / np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)
         slope = np.maximum((p0 - p1) / step, 1e-30)
         sigma[b] = np.hypot(noise / slope, step / np.sqrt(12.0))

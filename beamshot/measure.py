@@ -15,7 +15,7 @@ import numpy as np
 from .beammap import BeamMap
 from .figure import Figure, not_measured
 from .flux import ZoneFlux, zone_fluxes
-from .hotspot import Contour, Peak, find_peak, trace_contour
+from .hotspot import Contour, Peak, find_peak, trace_contours
 from .photometry import beam_distance_m
 from .scale import AbsoluteScale
 from .spill import SpillEdge, find_spill_edge
@@ -53,8 +53,8 @@ class BeamShape:
 def measure_shape(beam: BeamMap, *, angle_scale_uncertainty: float = 0.0) -> BeamShape:
     """Peak, contours, spill edge and zone fluxes of a relative map."""
     peak = find_peak(beam)
-    hot = trace_contour(beam, peak.vector, HOTSPOT_LEVEL * peak.value, HOTSPOT_LEVEL)
-    fld = trace_contour(beam, peak.vector, FIELD_LEVEL * peak.value, FIELD_LEVEL)
+    hot, fld = trace_contours(beam, peak.vector, [(HOTSPOT_LEVEL * peak.value, HOTSPOT_LEVEL),
+                                                  (FIELD_LEVEL * peak.value, FIELD_LEVEL)])
     edge = find_spill_edge(beam, peak.value)
     hot_rel = _rel_sigma(hot.full_angle() if hot.complete else np.nan,
                          hot.full_angle_sigma() if hot.complete else np.nan, angle_scale_uncertainty)

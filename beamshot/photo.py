@@ -11,6 +11,7 @@ from __future__ import annotations
 import hashlib
 import io
 import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import cv2
@@ -246,7 +247,9 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
     if fmt in ("JPEG", "MPO") and b"\xff\xd9" not in data[-4096:]:
         raise BeamshotError(f"{name}: the JPEG is truncated (no end marker); copy the file again")
     flags = cv2.IMREAD_COLOR | cv2.IMREAD_ANYDEPTH | cv2.IMREAD_IGNORE_ORIENTATION
-    bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
+    with ThreadPoolExecutor(max_workers=1) as pool:  # hash on the other core while decoding
+        digest = pool.submit(lambda: hashlib.sha256(data).hexdigest())
+        bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
     if bgr is None or bgr.size == 0:
         raise BeamshotError(f"{name}: the image data is corrupt; copy the file again")
     if bgr.dtype not in (np.uint8, np.uint16):
@@ -261,7 +264,7 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         bgr=bgr,
         exif=exif,
         name=name,
-        sha256=hashlib.sha256(data).hexdigest(),
+        sha256=digest.result(),
         max_code=max_code,
     )
 

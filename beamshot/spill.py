@@ -82,23 +82,23 @@ class SpillEdge:
 
 
 def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
-    """Mean radial profile ``(n_sectors, n_theta)`` of each azimuth sector (NaN where any column is outside)."""
+    """Mean radial profile ``(n_sectors, n_theta)`` of each azimuth sector (NaN where any column is outside).
+
+    Each map column counts with the fraction of its azimuth width that lies inside the sector,
+    so a column straddling a sector boundary is shared between the two sectors.
+    """
     n_sec = int(round(360.0 / SECTOR_DEG))
-    phi_deg = np.degrees(beam.phi)
     centres = np.arange(n_sec) * SECTOR_DEG
-    d = (phi_deg[None, :] - centres[:, None] + 180.0) % 360.0 - 180.0
-    member = np.abs(d) < SECTOR_DEG / 2  # (n_sec, n_phi)
-    counts = member.sum(axis=1)
-    if np.all(counts == counts[0]):  # one gather for all sectors
-        cols = np.nonzero(member)[1].reshape(n_sec, counts[0])
-        with np.errstate(invalid="ignore"):
-            profiles = beam.intensity[:, cols].mean(axis=2).T
-    else:
-        profiles = np.full((n_sec, len(beam.theta)), np.nan)
-        for s in range(n_sec):
-            with np.errstate(invalid="ignore"):
-                profiles[s] = beam.intensity[:, member[s]].mean(axis=1)
-    return np.radians(centres), np.ascontiguousarray(profiles)
+    col = np.degrees(beam.d_phi)
+    d = np.abs((np.degrees(beam.phi)[None, :] - centres[:, None] + 180.0) % 360.0 - 180.0)
+    overlap = np.clip(SECTOR_DEG / 2 - d + col / 2, 0.0, col) / col  # (n_sec, n_phi)
+    overlap[overlap < 1e-9] = 0.0
+    weights = overlap / overlap.sum(axis=1, keepdims=True)
+    inten = beam.intensity
+    missing = ~np.isfinite(inten)
+    profiles = np.nan_to_num(inten, nan=0.0, posinf=0.0, neginf=0.0) @ weights.T
+    profiles[(missing.astype(float) @ (weights > 0).T.astype(float)) > 0] = np.nan
+    return np.radians(centres), np.ascontiguousarray(profiles.T)
 
 
 def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
@@ -112,6 +112,41 @@ def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
     resid = np.where(finite, profiles - smooth, np.nan)
     return np.nan_to_num(row_mad_sigma(resid) / np.sqrt(2 * np.sqrt(np.pi) * sm), nan=0.0)
 
+
+
+def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray, lasts: np.ndarray,
+                   k: int) -> np.ndarray:
+    """Per sector, the index of the steepest point of the outermost sharp cut-off (-1 if none).
+
+    A candidate ``j`` (from ``max(start, 3k)`` to ``last - k - 1``) drops at least
+    ``EDGE_MIN_CONTRAST`` times from ``j - k`` to ``j + k``, by at least ``EDGE_SHARPNESS``
+    times the log-drop from ``j - 3k`` to ``j - k``, and starts at least 3 floors up.  Of the
+    outermost contiguous run of candidates, the point of steepest fall is returned.
+    """
+    n_sec, n_t = smoothed.shape
+    j = np.arange(n_t)
+    out = np.full(n_sec, -1)
+    if n_t < 4 * k + 1:
+        return out
+    f = floors[:, None]
+    lo = 3 * k
+    jj = j[lo: n_t - k]
+    inner = smoothed[:, jj - k]
+    outer = np.maximum(smoothed[:, jj + k], f)
+    before = np.maximum(smoothed[:, jj - 3 * k], f)
+    inner_f = np.maximum(inner, f)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        drop = np.log(inner_f / outer)
+        drop_before = np.log(before / inner_f)
+    ok = (drop >= np.log(EDGE_MIN_CONTRAST)) & (inner >= 3 * f) & (drop >= EDGE_SHARPNESS * drop_before)
+    ok &= (jj[None, :] >= starts[:, None]) & (jj[None, :] < lasts[:, None] - k)
+    for s in np.nonzero(ok.any(axis=1))[0]:
+        cand = jj[ok[s]]
+        breaks = np.nonzero(np.diff(cand) > 1)[0]
+        run = cand[breaks[-1] + 1:] if len(breaks) else cand
+        slope = smoothed[s, run - 1] - smoothed[s, run + 1]  # steepest in linear units: mid-point of the cut-off
+        out[s] = int(run[np.argmax(slope)])
+    return out
 
 
 def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
@@ -133,6 +168,12 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
     fill = profiles[np.arange(n_sec), np.maximum(lasts - 1, 0)]
     head = np.where(np.isnan(head), fill[:, None], head)
     smoothed = gaussian_filter1d(np.nan_to_num(head), sm, axis=1, mode="nearest")
+    floors = np.maximum(5.0 * noises, peak_value * 1e-6)
+    # beyond the half-peak point of each sector
+    below_half = smoothed < 0.5 * peak_value
+    starts = np.where(below_half.any(axis=1), np.argmax(below_half, axis=1), lasts)
+    starts = np.minimum(starts, lasts)
+    chosen = _cutoff_points(smoothed, floors, starts, lasts, k)
     for s in range(n_sec):
         last = int(lasts[s])
         coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
@@ -140,36 +181,19 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
             kinds.append("outside")
             continue
         ps = smoothed[s, :last]
-        noise = noises[s]
-        floor = max(5.0 * noise, peak_value * 1e-6)
-        # start beyond the half-peak point of this sector
-        start = int(np.argmax(ps < 0.5 * peak_value)) if np.any(ps < 0.5 * peak_value) else last
-        idx = np.arange(max(start, 3 * k), last - k)
+        noise, floor, start = noises[s], floors[s], int(starts[s])
         found = None
-        if len(idx):
-            inner = ps[idx - k]
-            outer = np.maximum(ps[idx + k], floor)
-            before = ps[idx - 3 * k]
-            before = np.maximum(before, floor)
-            drop = np.log(np.maximum(inner, floor) / outer)
-            drop_before = np.log(before / np.maximum(inner, floor))
-            ok = (drop >= np.log(EDGE_MIN_CONTRAST)) & (inner >= 3 * floor) & (drop >= EDGE_SHARPNESS * drop_before)
-            if np.any(ok):
-                cand = idx[ok]
-                # outermost contiguous run of candidates; the steepest drop inside it
-                breaks = np.nonzero(np.diff(cand) > 1)[0]
-                run = cand[breaks[-1] + 1:] if len(breaks) else cand
-                slope = ps[run - 1] - ps[run + 1]  # steepest in linear units: the mid-point of the cut-off
-                c = int(run[np.argmax(slope)])
-                level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
-                seg = ps[c - k: c + k + 1]
-                below = np.nonzero(seg < level)[0]
-                if len(below) and below[0] > 0:
-                    i = c - k + below[0]
-                    frac = (ps[i - 1] - level) / (ps[i - 1] - ps[i])
-                    t = beam.theta[i - 1] + frac * beam.d_theta
-                    local_slope = max((ps[i - 1] - ps[i]) / beam.d_theta, 1e-30)
-                    found = (t, np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)), "cutoff")
+        if chosen[s] >= 0:
+            c = int(chosen[s])
+            level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
+            seg = ps[c - k: c + k + 1]
+            below = np.nonzero(seg < level)[0]
+            if len(below) and below[0] > 0:
+                i = c - k + below[0]
+                frac = (ps[i - 1] - level) / (ps[i - 1] - ps[i])
+                t = beam.theta[i - 1] + frac * beam.d_theta
+                local_slope = max((ps[i - 1] - ps[i]) / beam.d_theta, 1e-30)
+                found = (t, np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)), "cutoff")
         if found is None:
             level = max(SPILL_FLOOR_FRACTION * peak_value, floor)
             j0 = start
