@@ -45,7 +45,28 @@ def _print_figures(report) -> None:
         click.echo(f"  ! {w}")
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+class _Command(click.Command):
+    """A command whose unknown-option message suggests the options that start with what was typed
+    (``--lux`` -> ``--lux-at-peak``), before click's spelling-based guesses."""
+
+    def parse_args(self, ctx, args):
+        try:
+            return super().parse_args(ctx, args)
+        except click.NoSuchOption as exc:
+            names = sorted({n for p in self.get_params(ctx) for n in (*p.opts, *p.secondary_opts)
+                            if n.startswith("--")})
+            starting = [n for n in names if n.startswith(exc.option_name)]
+            if starting:
+                exc.possibilities = starting
+            raise
+
+
+class _Group(click.Group):
+    command_class = _Command
+    group_class = type
+
+
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="beamshot")
 def cli():
     """Calibrated beam figures from photos of a flashlight beam on a white wall.
