@@ -16,23 +16,26 @@ def _photo(bgr: np.ndarray) -> Photo:
     return decode_photo(buf.tobytes(), name="t.png")
 
 
+@pytest.mark.parametrize("bits", [8, 16])
 @pytest.mark.parametrize("b", [1, 2, 3])
-def test_binning_averages_linear_values_and_marks_any_clipped_pixel(b):
+def test_binning_averages_linear_values_and_marks_any_clipped_pixel(b, bits):
     rng = np.random.default_rng(3)
     h, w = 6 * b * 10, 8 * b * 10
-    bgr = rng.integers(0, 240, (h, w, 3), dtype=np.uint8)
+    top = 2**bits - 1
+    dtype = np.uint8 if bits == 8 else np.uint16
+    bgr = rng.integers(0, int(0.94 * top), (h, w, 3)).astype(dtype)
     # scattered clipped values, one channel at a time
     for _ in range(40):
         r, c, ch = rng.integers(0, h), rng.integers(0, w), rng.integers(0, 3)
-        bgr[r, c, ch] = 255
+        bgr[r, c, ch] = top
     photo = _photo(bgr)
     img = linearize(photo, parse_response("srgb"), max_side=max(h, w) // b)
     assert img.bin_factor == b
     # reference: decode each code with the IEC 61966-2-1 formula, then average b x b blocks
-    lin = srgb_decode(bgr[..., ::-1].astype(float) / 255.0)
+    lin = srgb_decode(bgr[..., ::-1].astype(float) / top)
     ref = lin.reshape(h // b, b, w // b, b, 3).mean(axis=(1, 3))
     assert_allclose(img.rgb, ref, atol=1.0 / 65535)  # 16-bit lookup table
-    clipped = (bgr >= 250).any(axis=2).reshape(h // b, b, w // b, b).any(axis=(1, 3))
+    clipped = (bgr >= np.ceil(250 / 255 * top)).any(axis=2).reshape(h // b, b, w // b, b).any(axis=(1, 3))
     assert_array_equal(img.saturated, clipped)
     # BT.709 relative luminance of linear RGB
     assert_allclose(img.luminance, ref @ np.array([0.2126, 0.7152, 0.0722]), atol=2.0 / 65535)
