@@ -43,6 +43,9 @@ class BeamMap:
     saturated: np.ndarray = field(repr=False)
     distance_m: float
     unit: str = "relative"
+    #: Outline of the photo's view as ``(n, 2)`` azimuthal-equidistant angles in degrees
+    #: (``theta cos phi``, ``theta sin phi``), for pictures; None if unknown.
+    footprint_deg: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def d_theta(self) -> float:
@@ -142,4 +145,31 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     sat = cv2.remap(image.saturated.view(np.uint8), mx, my, cv2.INTER_NEAREST,
                     borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
     intensity = lum.astype(np.float64) * factor
-    return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m)
+    frame = np.eye(3) if axis_dir is None else np.stack([e1, e2, a])
+    footprint = _footprint_deg(mapping, image.full_shape, axis_mm, distance_m, frame, theta_max)
+    return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m,
+                   footprint_deg=footprint)
+
+
+def _footprint_deg(mapping: WallMapping, full_shape: tuple[int, int], axis_mm, distance_m: float,
+                   frame: np.ndarray, theta_max: float, per_side: int = 200) -> np.ndarray | None:
+    """The photo's border seen from the light, in azimuthal-equidistant degrees about the beam axis.
+
+    ``frame`` holds the beam frame's unit vectors (rows e1, e2, axis) in the wall frame.  Border
+    points beyond ``theta_max`` (or off the wall) are pulled in to it, so the outline stays closed.
+    """
+    h, w = full_shape
+    t = np.linspace(0.0, 1.0, per_side, endpoint=False)
+    x, y = (w - 1) * t, (h - 1) * t
+    border = np.concatenate([np.c_[x, np.zeros_like(x)], np.c_[np.full_like(y, w - 1), y],
+                             np.c_[(w - 1) - x, np.full_like(x, h - 1)], np.c_[np.zeros_like(y), (h - 1) - y]])
+    wall = mapping.image_to_wall(border)
+    v = np.c_[wall[:, 0] - axis_mm[0], wall[:, 1] - axis_mm[1], np.full(len(wall), distance_m * 1000.0)]
+    ok = np.all(np.isfinite(v), axis=1)
+    if ok.sum() < 8:
+        return None
+    v = v[ok] / np.linalg.norm(v[ok], axis=1, keepdims=True)
+    b = v @ frame.T  # components along e1, e2, axis
+    th = np.minimum(np.degrees(np.arccos(np.clip(b[:, 2], -1.0, 1.0))), np.degrees(theta_max))
+    ph = np.arctan2(b[:, 1], b[:, 0])
+    return np.c_[th * np.cos(ph), th * np.sin(ph)]

@@ -27,12 +27,25 @@ def _pyplot():
 
 
 def _azimuthal_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
-    """Sample the map on a square grid of azimuthal-equidistant angles (deg, right/up positive)."""
+    """Sample the map on a square grid of azimuthal-equidistant angles (deg, right/up positive).
+
+    With the photo's outline known, the picture shows exactly the photo's view: grid points
+    inside it that fall between the map's coarse azimuth cells at the rim take the nearest
+    sampled value, and points outside are blank.
+    """
     a = np.linspace(-half_width_deg, half_width_deg, n)
     xx, yy = np.meshgrid(a, a)
     theta = np.radians(np.hypot(xx, yy))
     phi = np.arctan2(yy, xx)
-    return a, beam.sample(directions(theta, phi))
+    vals = beam.sample(directions(theta, phi))
+    if beam.footprint_deg is not None and np.any(np.isfinite(vals)):
+        from matplotlib.path import Path
+        from scipy.ndimage import distance_transform_edt
+
+        inside = Path(beam.footprint_deg).contains_points(np.c_[xx.ravel(), yy.ravel()]).reshape(xx.shape)
+        _, (ri, ci) = distance_transform_edt(~np.isfinite(vals), return_indices=True)
+        vals = np.where(inside, vals[ri, ci], np.nan)
+    return a, vals
 
 
 def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, half_width_deg=None):
