@@ -114,3 +114,21 @@ def test_edge_outside_coverage():
     beam = analytic_map(lambda t, p: np.where(t < np.radians(30), 100.0, 0.0), theta_max_deg=20)
     edge = find_spill_edge(beam, 100.0)
     assert not edge.complete and set(edge.kind) == {"outside"}
+
+
+def test_footprint_is_the_photo_border_seen_from_the_light():
+    # camera beside the light, square to the wall: a photo corner at (dx, dy) px from the centre
+    # lies at (dx, dy) D / f on the wall, i.e. at theta = atan(hypot(dx, dy) / f) from the axis
+    from beamshot.beammap import build_beam_map
+    from beamshot.camera.linearize import LinearImage
+
+    h, w, f, d = 600, 800, 700.0, 3.0
+    m = pinhole_mapping((h, w), f, d)
+    img = LinearImage(luminance=np.ones((h, w), np.float32), saturated=np.zeros((h, w), bool), bin_factor=1,
+                      full_shape=(h, w), rgb_values=np.ones((h, w, 3), np.float32))
+    fp = build_beam_map(img, m, (0.0, 0.0), d).footprint_deg
+    r = np.hypot(fp[:, 0], fp[:, 1])
+    assert r.max() == pytest.approx(np.degrees(np.arctan(np.hypot(399.5, 299.5) / f)), rel=1e-9)
+    assert np.abs(fp[:, 0]).max() == pytest.approx(np.degrees(np.arctan(399.5 / f)), rel=1e-9)  # on the x axis
+    top = fp[np.argmax(fp[:, 1])]
+    assert top[1] == pytest.approx(np.degrees(np.arctan(299.5 / f)), rel=1e-3)  # middle of the top edge
