@@ -1,6 +1,7 @@
 """analyze(): compose the stages from a beam photo to a BeamReport.
 
-load -> linearise (response, ambient, flat field) -> map to the wall (pinhole) -> beam axis
+load -> linearise (response, dark, bracket, ambient, flat field: prepare.py) -> map to the wall
+(pinhole, target markers or given points: wall_setup.py) -> beam axis
 -> BeamMap (I = E D^2 / cos^3 theta) -> shape (peak, contours, spill edge, zone flux)
 -> absolute scale -> figures with uncertainties -> BeamReport.
 """
@@ -8,9 +9,8 @@ load -> linearise (response, ambient, flat field) -> map to the wall (pinhole) -
 from __future__ import annotations
 
 import datetime as _dt
-import os
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import asdict, dataclass, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -18,20 +18,18 @@ from . import __version__
 from .aim import TILT_WARN_DEG, edge_to_wall, fit_light_pose
 from .axis import find_beam_axis
 from .beammap import build_beam_map
-from .camera.flatfield import fit_flat_field
-from .camera.linearize import LinearImage, linearize
-from .camera.hdr import merge_bracket
+from .camera.linearize import LinearImage
 from .camera.profile import CameraProfile, load_profile
 from .camera.response import Response, parse_response
 from .errors import BeamshotError
 from .measure import beam_figures, measure_shape
-from .photo import Photo, load_photo
+from .prepare import input_record, load_input, prepare_image, same_size
 from .profile import radial_profile
 from .report.model import BeamReport
 from .scale import no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_meter
 from .target import detect_markers
-from .wall import (FOCAL_35MM_CONVENTION_UNCERTAINTY, focal_px_from_35mm, focal_px_from_hfov, homography_mapping,
-                   parse_wall_points, pinhole_mapping, pose_mapping)
+from .wall import homography_mapping, parse_wall_points, pinhole_mapping
+from .wall_setup import focal_for, grey, markers_left_in, markers_still_there, marker_mapping, mask_quads
 
 __all__ = ["analyze", "DEFAULT_DISTANCE_UNCERTAINTY_M", "MIN_DISTANCE_M", "MAX_DISTANCE_M"]
 
@@ -46,122 +44,6 @@ FAR_FIELD_FACTOR = 5.0
 TILT_MIN_SHARP_FRACTION = 0.9
 #: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
 _LOW_EXPOSURE_LEVEL = 0.15
-
-
-def _photo(obj, role: str) -> Photo:
-    if isinstance(obj, Photo):
-        return obj
-    if isinstance(obj, (str, os.PathLike)):
-        return load_photo(obj)
-    raise TypeError(f"{role}: expected a path or a Photo, not {type(obj).__name__}")
-
-
-def _focal(photo: Photo, focal_35mm, hfov_deg) -> tuple[float | None, float, str]:
-    """Focal length in pixels, its relative uncertainty, and where it came from (None if unknown)."""
-    if hfov_deg is not None:
-        return (focal_px_from_hfov(hfov_deg, photo.shape), FOCAL_35MM_CONVENTION_UNCERTAINTY,
-                f"horizontal field of view {hfov_deg:g} deg (option)")
-    f35 = focal_35mm if focal_35mm is not None else photo.exif.focal_35mm_mm
-    if f35 is None:
-        return None, 0.0, "unknown"
-    src = "option" if focal_35mm is not None else "EXIF FocalLengthIn35mmFilm"
-    return (focal_px_from_35mm(f35, photo.shape), float(np.hypot(FOCAL_35MM_CONVENTION_UNCERTAINTY, 0.5 / np.sqrt(3) / f35)),
-            f"35 mm-equivalent focal length {f35:g} mm ({src})")
-
-
-def _marker_mapping(det, photo: Photo, focal_35mm, hfov_deg, method: str, warnings: list, lens=None):
-    """Pose-based mapping when the focal length is known, else a plain homography (with a warning)."""
-    f_px, f_u, _ = _focal(photo, focal_35mm, hfov_deg)
-    if lens is not None:
-        from .target import MarkerDetection
-
-        det = MarkerDetection(image_xy=lens.undistort(det.image_xy), target_mm=det.target_mm, ids=det.ids,
-                              quads=det.quads)
-        f_px, f_u = 0.5 * (lens.fx + lens.fy), 0.002
-    if f_px is not None:
-        return pose_mapping(det.image_xy, det.target_mm, photo.shape, f_px, method=method, name=photo.name,
-                            focal_uncertainty=f_u)
-    warnings.append("no focal length known: the wall mapping is a plain homography from the small target, "
-                    "which extrapolates less well; give --focal-35mm")
-    return homography_mapping(det.image_xy, det.target_mm, method=method, name=photo.name)
-
-
-def _markers_still_there(photo: Photo, geometry_markers, target_scale: float):
-    """Markers of the geometry photo still on the wall in a beam photo: checked in crops around
-    their known places (same tripod position), which is cheap."""
-    grey = _grey(photo)
-    h, w = grey.shape
-    for quad in geometry_markers.quads:
-        c = quad.mean(axis=0)
-        r = 1.5 * float(np.max(np.linalg.norm(quad - c, axis=1)))
-        x0, y0 = int(max(0, c[0] - r)), int(max(0, c[1] - r))
-        x1, y1 = int(min(w, c[0] + r)), int(min(h, c[1] + r))
-        crop = np.ascontiguousarray(grey[y0:y1, x0:x1])
-        found = detect_markers(crop, name=photo.name, target_scale=target_scale, required=False, min_markers=1)
-        if found is not None:
-            return geometry_markers
-    return None
-
-
-def _markers_left_in(photo: Photo, image: LinearImage, target_scale: float):
-    """Target markers left on the wall in a beam photo.
-
-    The target is pinned at the aim point, where the hotspot is, so a quick look covers a
-    square of the working image around its brightest area; only if markers turn up there is
-    the whole photo searched at full resolution.
-    """
-    import cv2
-
-    lum = image.luminance
-    small = np.fmax(lum[2::4, 2::4], 0.0)  # every 4th pixel finds the bright area; fmax: NaN -> 0
-    r, c = np.unravel_index(int(np.argmax(cv2.GaussianBlur(small, (0, 0), 1.5))), small.shape)
-    r, c = 4 * r + 2, 4 * c + 2
-    half = max(128, max(lum.shape) // 6)
-    crop = np.fmax(lum[max(0, r - half): r + half, max(0, c - half): c + half], 0.0)
-    peak = float(crop.max()) or 1.0
-    # square-root coding (roughly perceptual, like the photo's own) on the 0-255 scale, in place
-    np.multiply(crop, np.float32(1.0 / peak), out=crop)
-    np.sqrt(crop, out=crop)
-    codes = (crop * np.float32(255.0)).astype(np.uint8)
-    if detect_markers(codes, name=photo.name, target_scale=target_scale, required=False, quick=True,
-                      min_markers=1) is None:
-        return None
-    return detect_markers(_grey(photo), name=photo.name, target_scale=target_scale, required=False)
-
-
-def _grey(photo: Photo) -> np.ndarray:
-    """8-bit grey version of a photo for marker detection."""
-    import cv2
-
-    bgr = photo.bgr if photo.bgr.dtype == np.uint8 else (photo.bgr >> 8).astype(np.uint8)
-    return cv2.cvtColor(bgr, cv2.COLOR_BGR2GRAY)
-
-
-def _mask_quads(image: LinearImage, quads, grow: float = 0.15) -> LinearImage:
-    """Set working pixels inside (slightly grown) marker quads to NaN: they are not measured."""
-    import cv2
-
-    mask = np.zeros(image.shape, np.uint8)
-    b = image.bin_factor
-    for q in quads:
-        c = q.mean(axis=0)
-        grown = c + (q - c) * (1.0 + grow)
-        pts = ((grown - (b - 1) / 2.0) / b).round().astype(np.int32)
-        cv2.fillConvexPoly(mask, pts, 1)
-    bad = mask.astype(bool)
-    rgb = image.rgb.copy()
-    rgb[bad] = np.nan
-    lum = image.luminance.copy()
-    lum[bad] = np.nan
-    return LinearImage(rgb_values=rgb, luminance=lum, saturated=image.saturated, bin_factor=b, full_shape=image.full_shape)
-
-
-def _same_size(other: Photo, beam: Photo, what: str, fix: str) -> Photo:
-    """Refuse a companion photo whose size differs from the beam photo's."""
-    if other.shape != beam.shape:
-        raise BeamshotError(f"{other.name}: the {what} is {other.shape[1]}x{other.shape[0]}, "
-                            f"the beam photo {beam.shape[1]}x{beam.shape[0]}; {fix}")
-    return other
 
 
 def _check_positive(name: str, value, lo=None, hi=None, hint="") -> None:
@@ -223,6 +105,8 @@ def analyze(
         raise BeamshotError("give either --focal-35mm or --hfov, not both")
     if lux_at_peak is not None and reflectance is not None:
         raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
+    if geometry is not None and wall_points is not None:
+        raise BeamshotError("give either --geometry or --wall-points, not both")
     profile = camera if isinstance(camera, CameraProfile) else load_profile(camera)
     if response is not None and profile.response.kind == "table":
         raise BeamshotError(f"camera profile '{profile.name}' has a measured response; drop --response")
@@ -231,91 +115,23 @@ def analyze(
     except ValueError as exc:
         raise BeamshotError(str(exc)) from None
 
-    warnings: list[str] = []
-    sources = list(photo) if isinstance(photo, (list, tuple)) else [photo]
-    if not sources:
-        raise BeamshotError("no beam photo given")
-    beam_photos = [_photo(p, "photo") for p in sources]
-    for other in beam_photos[1:]:
-        _same_size(other, beam_photos[0], "bracket photo", "a bracket must come from one camera and position")
-    if any(p.linear for p in beam_photos) and resp.kind != "linear":
-        resp = parse_response("linear")  # raw files are decoded to linear values
-    frames = [linearize(p, resp) for p in beam_photos]
-    if profile.black_level:
-        frames = [f.with_values(f.rgb - np.float32(profile.black_level)) for f in frames]
-    inputs = [_input_record("beam", p) for p in beam_photos]
-    dark_note = None
-    if dark is not None:
-        dark_photo = _same_size(_photo(dark, "dark"), beam_photos[0], "dark frame", "use the same camera and settings")
-        inputs.append(_input_record("dark", dark_photo))
-        d = linearize(dark_photo, resp)
-        frames = [f.with_values(f.rgb - d.rgb) for f in frames]
-        dark_note = {"file": dark_photo.name, "subtracted": "per pixel from every frame"}
-    hdr_note = None
-    if len(frames) > 1:
-        merged = merge_bracket(frames, [p.exif.exposure_product() for p in beam_photos], resp,
-                               names=[p.name for p in beam_photos])
-        image = merged.image
-        beam_photo = beam_photos[merged.reference]
-        warnings.extend(merged.warnings)
-        hdr_note = {"frames": len(frames), "reference": beam_photo.name,
-                    "ratios_used": list(merged.ratios_used), "ratios_exif": list(merged.ratios_exif),
-                    "ratios_measured": list(merged.ratios_measured),
-                    "method": "hat-weighted mean times relative exposure (Debevec & Malik 1997 weights)"}
-    else:
-        image, beam_photo = frames[0], beam_photos[0]
-
-    # ---- ambient (light-off) subtraction
-    if ambient is not None:
-        amb_photo = _same_size(_photo(ambient, "ambient"), beam_photo, "ambient photo",
-                               "take both from the same camera and position")
-        inputs.append(_input_record("ambient", amb_photo))
-        amb = linearize(amb_photo, resp)
-        ratio = 1.0
-        pb, pa = beam_photo.exif.exposure_product(), amb_photo.exif.exposure_product()
-        if pb and pa:
-            ratio = pb / pa
-        elif pb != pa:
-            warnings.append("the ambient photo's exposure is not in EXIF; assumed equal to the beam photo's")
-        image = image.with_values(image.rgb - ratio * amb.rgb)  # no clipping: keeps noise unbiased
-        amb_note = {"file": amb_photo.name, "exposure_ratio": ratio}
-    else:
-        amb_note = None
-
-    # ---- flat field
-    flat_note = None
-    if flat is not None:
-        flat_photo = _same_size(_photo(flat, "flat"), beam_photo, "flat-field photo",
-                                "shoot it with the same camera and settings")
-        inputs.append(_input_record("flat", flat_photo))
-        ff = fit_flat_field(linearize(flat_photo, resp).luminance)
-        image = image.divided_by(ff.evaluate(image.shape))
-        flat_note = {"file": flat_photo.name, "model": "1/V = 1 + b1 r^2 + b2 r^4 + b3 r^6",
-                     "coefficients": list(ff.coefficients), "residual_rms": ff.residual_rms}
-    elif profile.flat is not None:
-        fh, fw = profile.flat.shape
-        bh, bw = beam_photos[0].shape
-        if (fh, fw) not in ((bh, bw), (bw, bh)):
-            raise BeamshotError(f"the flat field of profile '{profile.name}' is for {fw}x{fh} photos, this one is "
-                                f"{bw}x{bh}; use the camera's profile or shoot a flat field for it")
-        image = image.divided_by(profile.flat.evaluate(image.shape))
-        flat_note = {"from_profile": profile.name, "coefficients": list(profile.flat.coefficients),
-                     "residual_rms": profile.flat.residual_rms}
+    prep = prepare_image(photo, ambient=ambient, flat=flat, dark=dark, profile=profile, resp=resp)
+    image, beam_photos, beam_photo, inputs, resp = prep.image, prep.beam_photos, prep.beam_photo, prep.inputs, prep.resp
+    warnings = list(prep.warnings)
+    hdr_note, dark_note, amb_note, flat_note = prep.hdr_note, prep.dark_note, prep.ambient_note, prep.flat_note
 
     # ---- wall mapping: target markers, given points, or the pinhole model
     shape = beam_photo.shape
     geometry_note = None
-    if geometry is not None and wall_points is not None:
-        raise BeamshotError("give either --geometry or --wall-points, not both")
     lens = None if profile.distortion is None else profile.distortion.for_shape(shape)
     beam_markers = None
     if geometry is not None:
-        geo = _same_size(_photo(geometry, "geometry"), beam_photos[0], "geometry photo",
+        geo = same_size(load_input(geometry, "geometry"), beam_photos[0], "geometry photo",
                          "take it from the same tripod position with the same camera")
-        inputs.append(_input_record("geometry", geo))
-        det = detect_markers(_grey(geo), name=geo.name, target_scale=target_scale)
-        beam_markers = _markers_still_there(beam_photos[0], det, target_scale)
-        mapping = _marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings, lens)
+        inputs.append(input_record("geometry", geo))
+        det = detect_markers(grey(geo), name=geo.name, target_scale=target_scale)
+        beam_markers = markers_still_there(beam_photos[0], det, target_scale)
+        mapping = marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings, lens)
         geometry_note = {"file": geo.name, "markers": list(det.ids), "target_scale": target_scale}
     elif wall_points is not None:
         img_pts, wall_pts = parse_wall_points(wall_points) if isinstance(wall_points, str) else wall_points
@@ -330,8 +146,8 @@ def analyze(
         # the quick look for target markers left on the wall runs beside the usual measurement
         # with the pinhole mapping; if markers turn up, that measurement is dropped
         with ThreadPoolExecutor(max_workers=1) as pool:
-            look = pool.submit(_markers_left_in, beam_photos[0], image, target_scale)
-            f_px, f_u, f_src = _focal(beam_photo, focal_35mm, hfov_deg)
+            look = pool.submit(markers_left_in, beam_photos[0], image, target_scale)
+            f_px, f_u, f_src = focal_for(beam_photo, focal_35mm, hfov_deg)
             cam_d = distance_m if camera_distance_m is None else camera_distance_m
             if lens is not None:
                 f_px = 0.5 * (lens.fx + lens.fy)
@@ -348,7 +164,7 @@ def analyze(
                     failure = exc
             beam_markers = look.result()
         if beam_markers is not None:
-            mapping = _marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
+            mapping = marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
                                       "target markers in the beam photo", warnings, lens)
             geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids),
                              "target_scale": target_scale}
@@ -365,7 +181,7 @@ def analyze(
     if lens is not None and mapping.distortion is None:
         mapping = replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
     if beam_markers is not None:
-        image = _mask_quads(image, beam_markers.quads)
+        image = mask_quads(image, beam_markers.quads)
         warnings.append(f"target markers found in {beam_photos[0].name} were masked out; remove the target "
                         "before the beam photos")
     if measured is None:
@@ -573,9 +389,3 @@ def _outside_level(beam, shape) -> float | None:
     if out.sum() < 50:
         return None
     return float(np.median(beam.intensity[out]))
-
-
-def _input_record(role: str, photo: Photo) -> dict:
-    ex = asdict(photo.exif)
-    return {"role": role, "name": photo.name, "sha256": photo.sha256, "width": int(photo.shape[1]),
-            "height": int(photo.shape[0]), "bits": 8 if photo.max_code == 255 else 16, "exif": ex}
