@@ -125,9 +125,10 @@ def analyze(
     geometry_note = None
     lens = None if profile.distortion is None else profile.distortion.for_shape(shape)
     beam_markers = None
+    mapping = None
     if geometry is not None:
         geo = same_size(load_input(geometry, "geometry"), beam_photos[0], "geometry photo",
-                         "take it from the same tripod position with the same camera")
+                        "take it from the same tripod position with the same camera")
         inputs.append(input_record("geometry", geo))
         det = detect_markers(grey(geo), name=geo.name, target_scale=target_scale)
         beam_markers = markers_still_there(beam_photos[0], det, target_scale)
@@ -139,24 +140,20 @@ def analyze(
             img_pts = lens.undistort(img_pts)
         mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
         geometry_note = {"points": len(img_pts)}
-    else:
-        mapping = None
     measured = None
     if mapping is None:
-        # the quick look for target markers left on the wall runs beside the usual measurement
-        # with the pinhole mapping; if markers turn up, that measurement is dropped
+        f_px, f_u, f_src = focal_for(beam_photo, focal_35mm, hfov_deg)
+        if lens is not None:
+            f_px, f_src = 0.5 * (lens.fx + lens.fy), f"camera profile '{profile.name}' (calibrated camera matrix)"
+        cam_d = distance_m if camera_distance_m is None else camera_distance_m
+        if f_px is not None:
+            mapping = _with_lens(pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u), lens)
+        # the quick look for target markers left on the wall runs on the second core beside the
+        # usual measurement with the pinhole mapping; if markers turn up, that measurement is dropped
         with ThreadPoolExecutor(max_workers=1) as pool:
             look = pool.submit(markers_left_in, beam_photos[0], image, target_scale)
-            f_px, f_u, f_src = focal_for(beam_photo, focal_35mm, hfov_deg)
-            cam_d = distance_m if camera_distance_m is None else camera_distance_m
-            if lens is not None:
-                f_px = 0.5 * (lens.fx + lens.fy)
-                f_src = f"camera profile '{profile.name}' (calibrated camera matrix)"
             failure = None
-            if f_px is not None:
-                mapping = pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u)
-                if lens is not None:
-                    mapping = replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
+            if mapping is not None:
                 try:
                     measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name,
                                              assume_square=assume_square, target_based=False)
@@ -165,21 +162,20 @@ def analyze(
             beam_markers = look.result()
         if beam_markers is not None:
             mapping = marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
-                                      "target markers in the beam photo", warnings, lens)
+                                     "target markers in the beam photo", warnings, lens)
             geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids),
                              "target_scale": target_scale}
             measured = None
         elif failure is not None:
             raise failure
-        elif f_px is None:
+        elif mapping is None:
             raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
                                 "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
-    if geometry_note is not None:
+    if geometry_note is not None:  # mapped from markers or given points
+        mapping = _with_lens(mapping, lens)
         f_u = mapping.scale_uncertainty
         f_px, f_src = None, "not needed (homography)"
         cam_d = None
-    if lens is not None and mapping.distortion is None:
-        mapping = replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
     if beam_markers is not None:
         image = mask_quads(image, beam_markers.quads)
         warnings.append(f"target markers found in {beam_photos[0].name} were masked out; remove the target "
@@ -300,6 +296,13 @@ def analyze(
         created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         tool_version=__version__,
     )
+
+
+def _with_lens(mapping, lens):
+    """The mapping with the camera profile's lens distortion attached (pixels are undistorted first)."""
+    if lens is None:
+        return mapping
+    return replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
 
 
 @dataclass(frozen=True)

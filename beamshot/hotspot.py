@@ -14,9 +14,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import gaussian_filter1d
 
-from .robust import row_mad_sigma
+from .robust import nan_smooth_rows, smoothed_noise_sigma
 from .beammap import BeamMap, directions
 from .photometry import equal_cone_full_angle
 
@@ -207,13 +206,7 @@ def _sample_rays(beam: BeamMap, centre: np.ndarray, nb: int, alpha_max: float):
     step = beam.d_theta
     alphas = np.arange(0.0, alpha_max, step)
     vals = beam.sample(_rays(centre, bearings, alphas))
-    finite = np.isfinite(vals)
-    filled = np.where(finite, vals, 0.0)
-    smooth = gaussian_filter1d(filled, _RAY_SMOOTH_SAMPLES, axis=1, mode="nearest")
-    weight = gaussian_filter1d(finite.astype(float), _RAY_SMOOTH_SAMPLES, axis=1, mode="nearest")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        smooth = np.where(finite, smooth / weight, np.nan)
-    return bearings, alphas, step, vals, smooth
+    return bearings, alphas, step, vals, nan_smooth_rows(vals, _RAY_SMOOTH_SAMPLES)
 
 
 def _crossings(rays, level: float, level_fraction: float) -> Contour:
@@ -238,7 +231,7 @@ def _crossings(rays, level: float, level_fraction: float) -> Contour:
         # noise: MAD of the residual about the smoothed ray within +-10 samples of the crossing
         win = np.clip(i[:, None] + np.arange(-10, 10)[None, :], 0, n - 1)
         r = vals[b[:, None], win] - smooth[b[:, None], win]
-        noise = np.nan_to_num(row_mad_sigma(r)) / np.sqrt(2 * np.sqrt(np.pi) * _RAY_SMOOTH_SAMPLES)
+        noise = smoothed_noise_sigma(r, _RAY_SMOOTH_SAMPLES)
         slope = np.maximum((p0 - p1) / step, 1e-30)
         sigma[b] = np.hypot(noise / slope, step / np.sqrt(12.0))
     return Contour(level_fraction=level_fraction, bearings=bearings, alpha=alpha, sigma=sigma)

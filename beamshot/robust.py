@@ -7,8 +7,9 @@ loops here; a sort with NaN last and a pick of the middle finite element is exac
 from __future__ import annotations
 
 import numpy as np
+from scipy.ndimage import gaussian_filter1d
 
-__all__ = ["row_nanmedian", "row_mad_sigma"]
+__all__ = ["row_nanmedian", "row_mad_sigma", "nan_smooth_rows", "smoothed_noise_sigma"]
 
 #: Scale from the median absolute deviation to the standard deviation of a normal
 #: distribution, 1 / Phi^-1(3/4) (Rousseeuw & Croux 1993).
@@ -32,3 +33,20 @@ def row_mad_sigma(a: np.ndarray) -> np.ndarray:
     a = np.asarray(a, float)
     dev = np.abs(a - row_nanmedian(a)[:, None])
     return MAD_TO_SIGMA * row_nanmedian(dev)
+
+
+def nan_smooth_rows(a: np.ndarray, sigma: float) -> np.ndarray:
+    """Gaussian smoothing (``sigma`` samples) along each row that ignores NaN samples
+    (normalised convolution: smoothed values over smoothed weights); NaN stays NaN."""
+    finite = np.isfinite(a)
+    num = gaussian_filter1d(np.where(finite, a, 0.0), sigma, axis=1, mode="nearest")
+    den = gaussian_filter1d(finite.astype(float), sigma, axis=1, mode="nearest")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(finite, num / den, np.nan)
+
+
+def smoothed_noise_sigma(resid: np.ndarray, sigma: float) -> np.ndarray:
+    """Per-row 1-sigma noise left after Gaussian smoothing of ``sigma`` samples, from the raw
+    residuals: white noise of std s becomes s / sqrt(2 sqrt(pi) sigma) (variance of the
+    Gaussian kernel's squared sum).  NaN rows give 0."""
+    return np.nan_to_num(row_mad_sigma(resid) / np.sqrt(2.0 * np.sqrt(np.pi) * sigma), nan=0.0)

@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
-from .robust import row_mad_sigma
+from .robust import nan_smooth_rows, smoothed_noise_sigma
 from .beammap import BeamMap
 from .photometry import equal_cone_full_angle
 
@@ -102,16 +102,19 @@ def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
-    """Per-sector noise (1 sigma) of the smoothed profiles: MAD of the residual about a
-    smoothed copy, scaled to a standard deviation and reduced by the smoothing gain."""
-    finite = np.isfinite(profiles)
-    filled = np.where(finite, profiles, 0.0)
-    weight = gaussian_filter1d(finite.astype(float), sm, axis=1, mode="nearest")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        smooth = gaussian_filter1d(filled, sm, axis=1, mode="nearest") / weight
-    resid = np.where(finite, profiles - smooth, np.nan)
-    return np.nan_to_num(row_mad_sigma(resid) / np.sqrt(2 * np.sqrt(np.pi) * sm), nan=0.0)
+    """Per-sector noise (1 sigma) of the smoothed profiles, from the residual about a smoothed copy."""
+    return smoothed_noise_sigma(profiles - nan_smooth_rows(profiles, sm), sm)
 
+
+def _crossing(ps: np.ndarray, i: int, level: float, beam: BeamMap, noise: float) -> tuple[float, float]:
+    """Polar angle (rad) where the profile ``ps`` falls through ``level`` between samples ``i - 1``
+    and ``i`` (linear interpolation), and its 1-sigma from the noise over the local slope and the
+    grid step (uniform quantisation, step / sqrt(12))."""
+    drop = ps[i - 1] - ps[i]
+    frac = (ps[i - 1] - level) / drop if drop != 0 else 0.5
+    t = beam.theta[i - 1] + frac * beam.d_theta
+    local_slope = max(drop / beam.d_theta, 1e-30)
+    return t, float(np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)))
 
 
 def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray, lasts: np.ndarray,
@@ -164,9 +167,8 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
     finite = np.isfinite(profiles)
     lasts = np.where(finite.all(axis=1), n_t, np.argmin(finite, axis=1))
     # smooth each sector's finite head, continued by its last value (as mode="nearest" would)
-    head = np.where(np.arange(n_t)[None, :] < lasts[:, None], profiles, np.nan)
     fill = profiles[np.arange(n_sec), np.maximum(lasts - 1, 0)]
-    head = np.where(np.isnan(head), fill[:, None], head)
+    head = np.where(np.arange(n_t)[None, :] < lasts[:, None], profiles, fill[:, None])
     smoothed = gaussian_filter1d(np.nan_to_num(head), sm, axis=1, mode="nearest")
     floors = np.maximum(5.0 * noises, peak_value * 1e-6)
     # beyond the half-peak point of each sector
@@ -189,21 +191,13 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
             seg = ps[c - k: c + k + 1]
             below = np.nonzero(seg < level)[0]
             if len(below) and below[0] > 0:
-                i = c - k + below[0]
-                frac = (ps[i - 1] - level) / (ps[i - 1] - ps[i])
-                t = beam.theta[i - 1] + frac * beam.d_theta
-                local_slope = max((ps[i - 1] - ps[i]) / beam.d_theta, 1e-30)
-                found = (t, np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)), "cutoff")
+                found = (*_crossing(ps, c - k + below[0], level, beam, noise), "cutoff")
         if found is None:
             level = max(SPILL_FLOOR_FRACTION * peak_value, floor)
             j0 = start
             below = np.nonzero(ps[j0:] < level)[0]
             if len(below) and j0 + below[0] > 0:
-                i = j0 + below[0]
-                frac = (ps[i - 1] - level) / (ps[i - 1] - ps[i]) if ps[i - 1] != ps[i] else 0.5
-                t = beam.theta[i - 1] + frac * beam.d_theta
-                local_slope = max((ps[i - 1] - ps[i]) / beam.d_theta, 1e-30)
-                found = (t, np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)), "threshold")
+                found = (*_crossing(ps, j0 + below[0], level, beam, noise), "threshold")
         if found is None:
             kinds.append("outside")
             continue
