@@ -19,6 +19,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 from scipy.optimize import least_squares
 
+from .frames import beam_to_wall
+
 __all__ = ["TILT_WARN_DEG", "TILT_APPLY_SIGMAS", "LightPose", "fit_light_pose", "axis_vector", "edge_to_wall",
            "tilt_floor_deg"]
 
@@ -172,11 +174,7 @@ def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) ->
 
 def edge_to_wall(theta: np.ndarray, phi: np.ndarray, foot_mm, axis: np.ndarray | None, distance_m: float) -> np.ndarray:
     """Wall points (mm) of beam-frame directions ``(theta, phi)`` for a light at ``foot_mm``."""
-    a = np.array([0.0, 0.0, 1.0]) if axis is None else np.asarray(axis, float)
-    e1 = np.array([1.0, 0.0, 0.0]) - a[0] * a
-    e1 /= np.linalg.norm(e1)
-    e2 = np.cross(a, e1)
     st = np.sin(theta)
-    w = (st * np.cos(phi))[:, None] * e1 + (st * np.sin(phi))[:, None] * e2 + np.cos(theta)[:, None] * a
+    w = beam_to_wall(np.c_[st * np.cos(phi), st * np.sin(phi), np.cos(theta)], axis)
     t = distance_m * 1000.0 / w[:, 2]
     return np.c_[foot_mm[0] + t * w[:, 0], foot_mm[1] + t * w[:, 1]]

@@ -30,6 +30,10 @@ from .scale import no_scale, scale_from_camera_constant, scale_from_exposure, sc
 from .target import detect_markers
 from .wall import homography_mapping, parse_wall_points, pinhole_mapping
 from .wall_setup import focal_for, grey, markers_left_in, markers_still_there, marker_mapping, mask_quads
+from .frames import beam_to_wall
+from .measure import shape_values
+from .uncertainty import (ASSUMED_RESPONSE_EXPONENT_SIGMA, RATIO_SPAN, SHADING_CORNER_ENVELOPE, absolute_values,
+                          build_budget, scale_factor, shading_gain, tone_bent)
 
 __all__ = ["analyze", "DEFAULT_DISTANCE_UNCERTAINTY_M", "MIN_DISTANCE_M", "MAX_DISTANCE_M"]
 
@@ -120,6 +124,10 @@ def analyze(
     warnings = list(prep.warnings)
     hdr_note, dark_note, amb_note, flat_note = prep.hdr_note, prep.dark_note, prep.ambient_note, prep.flat_note
 
+    # ---- raw and linear photos keep the lens's natural cos^4 fall-off, which the focal length fixes
+    shading_fix = "pending" if prep.resp.kind == "linear" and flat_note is None else None
+    wall_points_used = None
+
     # ---- wall mapping: target markers, given points, or the pinhole model
     shape = beam_photo.shape
     geometry_note = None
@@ -140,9 +148,12 @@ def analyze(
             img_pts = lens.undistort(img_pts)
         mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
         geometry_note = {"points": len(img_pts)}
+        wall_points_used = (np.asarray(img_pts, float), np.asarray(wall_pts, float))
     measured = None
     if mapping is None:
         f_px, f_u, f_src = focal_for(beam_photo, focal_35mm, hfov_deg)
+        if shading_fix is not None and f_px is not None:
+            image, shading_fix = _natural_falloff_removed(image, f_px), "natural cos^4 fall-off divided out"
         if lens is not None:
             f_px, f_src = 0.5 * (lens.fx + lens.fy), f"camera profile '{profile.name}' (calibrated camera matrix)"
         cam_d = distance_m if camera_distance_m is None else camera_distance_m
@@ -172,6 +183,10 @@ def analyze(
             raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
                                 "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
     if geometry_note is not None:  # mapped from markers or given points
+        if shading_fix == "pending":
+            f_fix = mapping.focal_px or focal_for(beam_photo, focal_35mm, hfov_deg)[0]
+            if f_fix is not None:
+                image, shading_fix = _natural_falloff_removed(image, f_fix), "natural cos^4 fall-off divided out"
         mapping = _with_lens(mapping, lens)
         f_u = mapping.scale_uncertainty
         f_px, f_src = None, "not needed (homography)"
@@ -184,12 +199,18 @@ def analyze(
         measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name, assume_square=assume_square,
                                  target_based=geometry_note is not None)
     axis, beam, shape_, pose = measured.axis, measured.beam, measured.shape, measured.pose
+    if shading_fix == "pending":
+        warnings.append("a linear photo keeps the lens's natural cos^4 fall-off, but no focal length is known to "
+                        "remove it; give --focal-35mm, or a flat field")
+    focal_shading = f_px or mapping.focal_px or focal_for(beam_photo, focal_35mm, hfov_deg)[0]
     warnings.extend(measured.warnings)
     pk = shape_.peak
 
     # ---- absolute scale
     if lux_at_peak is not None:
-        scale = scale_from_lux_meter(lux_at_peak, pk.value, pk.theta, distance_m, meter_accuracy=lux_meter_accuracy)
+        cos_inc = measured.cos_incidence(pk)
+        scale = scale_from_lux_meter(lux_at_peak, pk.value, float(np.arccos(cos_inc)), distance_m,
+                                     meter_accuracy=lux_meter_accuracy)
         if pk.clipped:
             warnings.append("the lux reading scales a clipped peak; the scale is unreliable until the hotspot is not clipped")
     elif profile.scale_constant is not None and reflectance is None:
@@ -207,16 +228,33 @@ def analyze(
     else:
         beam_out = beam
 
-    cal_terms = []
-    if resp.kind == "table" and profile.response_quality:
-        cal_terms.append(float(profile.response_quality.get("consistency_rms", 0.0)))
-    if isinstance(flat_note, dict):
-        cal_terms.append(float(flat_note.get("residual_rms", 0.0)))
-    cal_u = float(np.sqrt(np.sum(np.square(cal_terms)))) if cal_terms else 0.0
-    figures = beam_figures(shape_, beam, scale, angle_scale_uncertainty=f_u, calibration_rel_uncertainty=cal_u,
-                           distance_rel_uncertainty=u_d / distance_m,
+    # ---- uncertainty: every known source, propagated by re-measuring (beamshot.uncertainty)
+    ratio_delta, ratio_source = _ratio_error(prep, resp, profile)
+    shading = _shading_plan(prep, flat_note, profile)
+    budget = build_budget(measured, scale=scale, lux_at_peak=lux_at_peak, distance_m=distance_m, distance_u_m=u_d,
+                          camera_distance_m=camera_distance_m if geometry_note is None else None,
+                          camera_beside=geometry_note is None and camera_distance_m is None,
+                          wall_scale_u=f_u, wall_points=wall_points_used, ratio_delta=ratio_delta,
+                          ratio_assumed=ratio_source == "assumed", shading=shading, focal_px=focal_shading,
+                          pixel_deg=_pixel_deg(measured))
+    values = measured.values(scale, lux_at_peak)
+    keys = [k for k in values if k != "peak_rel" and not k.endswith("_rel")]
+    estimates = budget.estimates(keys)
+    if scale.kind == "exposure_metadata":
+        estimates |= {"peak_intensity", "beam_distance", "hotspot_flux", "spill_flux", "beam_flux"}
+    figures = beam_figures(shape_, beam, scale, values, budget.sigmas(keys), estimates,
                            axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0))
+    figures = {k: (replace(f, budget=tuple(budget.of(k).items())) if f.value is not None and f.uncertainty else f)
+               for k, f in figures.items()}
     figures["light_tilt"] = _tilt_figure(pose, assume_square, shape_.edge)
+    cal_u = ratio_delta
+    if shading["kind"] == "envelope":
+        warnings.append("no flat field: lens shading may be left in the photo, and its possible effect is carried "
+                        "in the uncertainties; shoot a flat field (camera flat), turn the camera between two beam "
+                        "photos (camera flat-from-turns), or use a camera profile that has one")
+    if ratio_source == "assumed":
+        warnings.append(f"the tone curve ({resp.describe()}) is assumed, not measured; its possible error is carried in "
+                        "the uncertainties - calibrate the camera's response (camera response) or shoot a bracket")
 
     # ---- warnings a user should act on
     if pk.clipped:
@@ -268,7 +306,9 @@ def analyze(
         "calibration_relative_uncertainty": cal_u,
         "dark_frame": dark_note or "none",
         "response": resp.describe(),
-        "flat_field": flat_note or "none: vignetting not corrected (phones usually correct it in processing)",
+        "flat_field": flat_note or (shading_fix if isinstance(shading_fix, str) and shading_fix != "pending" else
+                                    "none: lens shading not corrected; its possible effect is in the uncertainties"),
+        "uncertainty_terms": [t.to_dict() for t in budget.terms],
         "ambient": amb_note or "none: no light-off photo subtracted",
         "absolute_scale": scale.to_dict(),
         "wall_mapping": {"method": mapping.method if mapping.method != "pinhole" else
@@ -307,13 +347,41 @@ def _with_lens(mapping, lens):
 
 @dataclass(frozen=True)
 class _Measured:
-    """What the wall-to-intensity chain gives: beam axis, intensity map, its shape, light pose."""
+    """What the wall-to-intensity chain gives: beam axis, intensity map, its shape, light pose, and
+    what it was built from (so that it can be re-measured with one input moved)."""
 
     axis: object
     beam: object
     shape: object
     pose: object
     warnings: list
+    image: LinearImage
+    mapping: object
+    distance_m: float
+    foot_mm: tuple
+    axis_dir: object
+
+    def cos_incidence(self, peak) -> float:
+        """Cosine of the angle between the ray to the peak's wall point and the wall's normal."""
+        w = beam_to_wall(peak.vector, self.axis_dir)
+        return float(w[2] / np.linalg.norm(w))
+
+    def remeasure(self, *, image=None, mapping=None, distance_m=None, tone: float = 0.0):
+        """Shape of the map rebuilt with any of the inputs replaced, and optionally a tone error."""
+        beam = build_beam_map(self.image if image is None else image, self.mapping if mapping is None else mapping,
+                              self.foot_mm, self.distance_m if distance_m is None else distance_m,
+                              axis_dir=self.axis_dir)
+        if tone:
+            beam = tone_bent(beam, self.shape.peak.value, tone)
+        return measure_shape(beam, boundary_noise=False)
+
+    def values(self, scale, lux_at_peak, shape=None, distance_m=None) -> dict:
+        """Scale-free and absolute values of a shape (default: this one)."""
+        shape = self.shape if shape is None else shape
+        d = self.distance_m if distance_m is None else distance_m
+        rel = shape_values(shape)
+        k = scale_factor(scale, rel["peak_rel"], self.cos_incidence(shape.peak), d, lux_at_peak)
+        return absolute_values(rel, k)
 
 
 def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, name: str, *,
@@ -325,7 +393,7 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
     if axis.ellipse_axes_mm is None:
         warnings.append("the spill edge is not visible enough to centre on; the beam axis is the hotspot centre")
     beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
-    shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+    shape_ = measure_shape(beam)
     pose = None
     if assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION:
         edge = shape_.edge
@@ -341,7 +409,7 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
                 break
             rebuilt = True
             beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
-            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+            shape_ = measure_shape(beam)
             if not shape_.edge.complete:
                 break
             pts = edge_to_wall(shape_.edge.theta, shape_.edge.phi, pose.foot_mm, pose.axis, distance_m)
@@ -350,14 +418,16 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
             pose = fit_light_pose(pts, distance_m, tuple(np.mean(pts, axis=0)), peak_mm, anisotropy=aniso)
         if pose is not None and pose.significant:
             beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
-            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+            shape_ = measure_shape(beam)
         elif rebuilt:
             beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
-            shape_ = measure_shape(beam, angle_scale_uncertainty=f_u)
+            shape_ = measure_shape(beam)
         if pose is not None and pose.significant and pose.tilt_deg > TILT_WARN_DEG:
             warnings.append(f"the light is tilted {pose.tilt_deg:.1f} deg against the wall's normal; the "
                             "figures are corrected for it, but aim the light square to the wall for best results")
-    return _Measured(axis, beam, shape_, pose, warnings)
+    applied = pose is not None and pose.significant
+    return _Measured(axis, beam, shape_, pose, warnings, image, mapping, distance_m,
+                     tuple(pose.foot_mm) if applied else tuple(axis.centre_mm), pose.axis if applied else None)
 
 
 def _tilt_figure(pose, assume_square: bool, edge=None):
@@ -392,3 +462,53 @@ def _outside_level(beam, shape) -> float | None:
     if out.sum() < 50:
         return None
     return float(np.median(beam.intensity[out]))
+
+
+def _natural_falloff_removed(image: LinearImage, focal_px: float) -> LinearImage:
+    """Divide out natural vignetting, cos^4 of the field angle (tan = r / f; the cos^4 law, as in ISO 12232's q)."""
+    gain = shading_gain(image.shape, image.bin_factor, image.full_shape, focal_px, natural=True, corner_depth=0.0)
+    return image.divided_by(gain)
+
+
+def _ratio_error(prep, resp, profile) -> tuple[float, str]:
+    """Relative error of intensity ratios left by the linearisation, and where it comes from."""
+    source = getattr(prep, "response_source", None)
+    lin = getattr(prep, "linearity_rel", None)
+    if source is None:  # until prepare reports it: infer
+        source = ("linear (raw or linear file)" if resp.kind == "linear" else
+                  "camera profile" if resp.kind == "table" else "assumed")
+    terms = []
+    if lin is not None:
+        terms.append(float(lin))
+    if source == "camera profile" and profile.response_quality:
+        terms.append(float(profile.response_quality.get("consistency_rms", 0.0)))
+    if source == "assumed" and lin is None:
+        return float(ASSUMED_RESPONSE_EXPONENT_SIGMA * np.log(RATIO_SPAN)), "assumed"
+    return float(np.sqrt(np.sum(np.square(terms)))) if terms else 0.0, source
+
+
+def _shading_plan(prep, flat_note, profile) -> dict:
+    """How lens shading enters the uncertainty: a flat's residual, or the envelope of what may be left in."""
+    if isinstance(flat_note, dict):
+        res = float(flat_note.get("residual_rms", 0.0) or 0.0)
+        return {"kind": "flat", "natural": False, "corner_depth": 2.0 * res, "factor": 1.0,
+                "acts": "a residual shading of twice the flat fit's RMS residual at the corner, divided out",
+                "size": f"{2 * res:.2%} at the corner"}
+    linear = prep.resp.kind == "linear"
+    return {"kind": "envelope", "natural": not linear, "corner_depth": SHADING_CORNER_ENVELOPE, "factor": 0.5,
+            "acts": ("half the change when the envelope of uncorrected shading is divided out "
+                     "(+-2 sigma spans none to all of it)"),
+            "size": (f"{SHADING_CORNER_ENVELOPE:.0%} lens shading at the corner beyond cos^4" if linear else
+                     f"cos^4 fall-off plus {SHADING_CORNER_ENVELOPE:.0%} at the corner")}
+
+
+def _pixel_deg(measured) -> float:
+    """Angular size (deg) of one working pixel on the wall at the beam's foot, seen from the light."""
+    foot = np.asarray(measured.foot_mm, float)
+    px = measured.mapping.wall_to_image(foot[None, :])[0]
+    step = measured.image.bin_factor
+    mm = measured.mapping.image_to_wall(np.array([px + (step, 0.0), px + (0.0, step)]))
+    d = np.linalg.norm(mm - foot[None, :], axis=1)
+    if not np.all(np.isfinite(d)):
+        return 0.0
+    return float(np.degrees(np.mean(d) / (measured.distance_m * 1000.0)))

@@ -20,6 +20,7 @@ import numpy as np
 from scipy.ndimage import map_coordinates
 
 from .camera.linearize import LinearImage
+from .frames import beam_frame, beam_to_wall
 from .photometry import intensity_from_wall_illuminance, polar_cell_solid_angles
 from .wall import WallMapping
 
@@ -124,13 +125,8 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
         np.add(axis_mm[1], rho * np.sin(phi)[None, :], out=wall[..., 1])
         factor = intensity_from_wall_illuminance(1.0, theta, distance_m)[:, None]
     else:
-        a = np.asarray(axis_dir, float) / np.linalg.norm(axis_dir)
-        e1 = np.array([1.0, 0.0, 0.0]) - a[0] * a
-        e1 /= np.linalg.norm(e1)
-        e2 = np.cross(a, e1)
         tt, pp = np.meshgrid(theta, phi, indexing="ij")
-        d = directions(tt, pp)
-        w = d[..., :1] * e1 + d[..., 1:2] * e2 + d[..., 2:3] * a  # beam frame -> wall frame
+        w = beam_to_wall(directions(tt, pp), axis_dir)
         wz = np.where(w[..., 2] > 1e-6, w[..., 2], np.nan)
         t_mm = distance_m * 1000.0 / wz
         wall = np.stack([axis_mm[0] + t_mm * w[..., 0], axis_mm[1] + t_mm * w[..., 1]], axis=-1)
@@ -145,7 +141,7 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     sat = cv2.remap(image.saturated.view(np.uint8), mx, my, cv2.INTER_NEAREST,
                     borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
     intensity = lum.astype(np.float64) * factor
-    frame = np.eye(3) if axis_dir is None else np.stack([e1, e2, a])
+    frame = beam_frame(axis_dir)
     footprint = _footprint_deg(mapping, image.full_shape, axis_mm, distance_m, frame, theta_max)
     return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m,
                    footprint_deg=footprint)

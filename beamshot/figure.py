@@ -23,6 +23,8 @@ class Figure:
     method: str
     status: str = "measured"
     reason: str | None = None
+    #: ``((source, 1-sigma contribution in unit), ...)``: the terms of the uncertainty budget.
+    budget: tuple = ()
 
     def __post_init__(self):
         if self.status not in STATUSES:
@@ -45,6 +47,7 @@ class Figure:
             "status": self.status,
             "method": self.method,
             "reason": self.reason,
+            "budget": {name: clean(u) for name, u in self.budget} if self.budget else None,
         }
 
     def text(self, digits: int = 3) -> str:

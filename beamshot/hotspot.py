@@ -17,6 +17,7 @@ import numpy as np
 
 from .robust import nan_smooth_rows, smoothed_noise_sigma
 from .beammap import BeamMap, directions
+from .frames import local_basis, opposite_index
 from .photometry import equal_cone_full_angle
 
 __all__ = ["Peak", "Contour", "find_peak", "trace_contour", "trace_contours", "local_basis", "N_BEARINGS"]
@@ -68,26 +69,12 @@ class Contour:
 
     def width_along(self, bearing_deg: float) -> float:
         """Full width (rad) along the line through the peak at ``bearing_deg`` and its opposite."""
-        deg = np.degrees(self.bearings)
-        i = int(np.argmin(np.abs((deg - bearing_deg + 180) % 360 - 180)))
-        j = int(np.argmin(np.abs((deg - bearing_deg - 180 + 180) % 360 - 180)))
+        i, j = opposite_index(np.degrees(self.bearings), bearing_deg)
         return float(self.alpha[i] + self.alpha[j])
 
     def width_sigma_along(self, bearing_deg: float) -> float:
-        deg = np.degrees(self.bearings)
-        i = int(np.argmin(np.abs((deg - bearing_deg + 180) % 360 - 180)))
-        j = int(np.argmin(np.abs((deg - bearing_deg - 180 + 180) % 360 - 180)))
+        i, j = opposite_index(np.degrees(self.bearings), bearing_deg)
         return float(np.hypot(self.sigma[i], self.sigma[j]))
-
-
-def local_basis(centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Unit vectors ``(e_right, e_up)`` perpendicular to ``centre``, aligned with the wall axes."""
-    c = np.asarray(centre, float) / np.linalg.norm(centre)
-    x = np.array([1.0, 0.0, 0.0])
-    e1 = x - np.dot(x, c) * c
-    e1 /= np.linalg.norm(e1)
-    e2 = np.cross(c, e1)
-    return e1, e2
 
 
 def _rays(centre, bearings, alphas):

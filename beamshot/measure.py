@@ -16,11 +16,11 @@ from .beammap import BeamMap
 from .figure import Figure, not_measured
 from .flux import ZoneFlux, zone_fluxes
 from .hotspot import Contour, Peak, find_peak, trace_contours
-from .photometry import beam_distance_m
 from .scale import AbsoluteScale
 from .spill import SpillEdge, find_spill_edge
 
-__all__ = ["HOTSPOT_LEVEL", "FIELD_LEVEL", "BeamShape", "measure_shape", "beam_figures", "FIGURE_ORDER"]
+__all__ = ["HOTSPOT_LEVEL", "FIELD_LEVEL", "BeamShape", "measure_shape", "shape_values", "noise_deltas",
+           "beam_figures", "FIGURE_ORDER", "ANGLE_KEYS"]
 
 #: Hotspot (beam angle) threshold: 50 % of maximum intensity (IES; CIE ILV 17-27-077 uses centre-beam).
 HOTSPOT_LEVEL = 0.5
@@ -50,67 +50,128 @@ class BeamShape:
     edge_rel_sigma: float
 
 
-def measure_shape(beam: BeamMap, *, angle_scale_uncertainty: float = 0.0) -> BeamShape:
-    """Peak, contours, spill edge and zone fluxes of a relative map."""
+def measure_shape(beam: BeamMap, *, boundary_noise: bool = True) -> BeamShape:
+    """Peak, contours, spill edge and zone fluxes of a relative map.
+
+    With ``boundary_noise`` the zone fluxes are also integrated with each zone boundary moved out
+    by its own 1-sigma noise (``flux_hot_plus``, ``flux_edge_plus``), for the pixel-noise term of
+    the flux uncertainties; re-measurements for other error sources skip that.
+    """
     peak = find_peak(beam)
     hot, fld = trace_contours(beam, peak.vector, [(HOTSPOT_LEVEL * peak.value, HOTSPOT_LEVEL),
                                                   (FIELD_LEVEL * peak.value, FIELD_LEVEL)])
     edge = find_spill_edge(beam, peak.value)
     hot_rel = _rel_sigma(hot.full_angle() if hot.complete else np.nan,
-                         hot.full_angle_sigma() if hot.complete else np.nan, angle_scale_uncertainty)
+                         hot.full_angle_sigma() if hot.complete else np.nan)
     edge_rel = _rel_sigma(edge.full_angle() if edge.complete else np.nan,
-                          edge.full_angle_sigma() if edge.complete else np.nan, angle_scale_uncertainty)
+                          edge.full_angle_sigma() if edge.complete else np.nan)
     if hot.complete:
-        base, hot_plus, edge_plus = zone_fluxes(beam, hot, peak.vector, edge,
-                                                [(1.0, 1.0), (1.0 + hot_rel, 1.0), (1.0, 1.0 + edge_rel)])
+        scales = [(1.0, 1.0), (1.0 + hot_rel, 1.0), (1.0, 1.0 + edge_rel)] if boundary_noise else [(1.0, 1.0)]
+        fluxes = zone_fluxes(beam, hot, peak.vector, edge, scales)
+        base = fluxes[0]
+        hot_plus, edge_plus = (fluxes[1], fluxes[2]) if boundary_noise else (base, base)
     else:
         base = hot_plus = edge_plus = None
     return BeamShape(peak, hot, fld, edge, base, hot_plus, edge_plus, hot_rel, edge_rel)
 
 
-def _rel_sigma(full: float, sigma: float, scale_u: float) -> float:
-    if not np.isfinite(full) or full <= 0:
+def _rel_sigma(full: float, sigma: float) -> float:
+    if not np.isfinite(full) or full <= 0 or not np.isfinite(sigma):
         return 0.0
-    return float(np.hypot(sigma / full, scale_u))
+    return float(sigma / full)
 
 
-def _angle_figure(full_rad: float, noise_rad: float, scale_u: float, method: str) -> Figure:
-    """Full angle in degrees; a relative scale error ``scale_u`` of tan(angle) is propagated."""
-    half = full_rad / 2.0
-    # angle = atan(k tan a): d angle / d ln k = sin a cos a  (for the half-angle)
-    scale_term = 2.0 * np.sin(half) * np.cos(half) * scale_u
-    return Figure(float(np.degrees(full_rad)), float(np.degrees(np.hypot(noise_rad, scale_term))), "deg", method)
+#: Keys of :func:`shape_values` that are angles in degrees (full angles, or the offset).
+ANGLE_KEYS = ("hotspot_angle", "hotspot_angle_horizontal", "hotspot_angle_vertical", "field_angle",
+              "spill_angle", "spill_angle_horizontal", "spill_angle_vertical", "hotspot_offset")
 
 
-def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
-                 angle_scale_uncertainty: float, distance_rel_uncertainty: float,
-                 axis_uncertainty_rad: float, calibration_rel_uncertainty: float = 0.0) -> dict[str, Figure]:
-    """All reported figures (see FIGURE_ORDER) from a measured shape and a scale.
+def shape_values(shape: BeamShape) -> dict[str, float]:
+    """The scale-free numbers of a shape: angles (deg), relative peak and fluxes, Ra (NaN if unmeasurable).
 
-    ``calibration_rel_uncertainty`` is the relative 1-sigma error of intensity *ratios* left by
-    the camera calibration (response-curve consistency and flat-field residual); it enters the
-    peak, the fluxes and Ra.
+    ``peak_rel`` and ``*_flux_rel`` are in map units (times sr for fluxes).
     """
-    cal_u = float(calibration_rel_uncertainty)
+    nan = float("nan")
+    hot, fld, edge, fx = shape.hotspot, shape.field, shape.edge, shape.flux
+    deg = lambda rad: float(np.degrees(rad)) if np.isfinite(rad) else nan  # noqa: E731
+    v = {
+        "peak_rel": float(shape.peak.value),
+        "hotspot_angle": deg(hot.full_angle()) if hot.complete else nan,
+        "hotspot_angle_horizontal": deg(hot.width_along(0.0)),
+        "hotspot_angle_vertical": deg(hot.width_along(90.0)),
+        "field_angle": deg(fld.full_angle()) if fld.complete else nan,
+        "spill_angle": deg(edge.full_angle()) if edge.complete else nan,
+        "spill_angle_horizontal": deg(edge.across(0.0)[0]),
+        "spill_angle_vertical": deg(edge.across(90.0)[0]),
+        "hotspot_offset": deg(shape.peak.theta),
+    }
+    if fx is None:
+        v.update(hotspot_flux_rel=nan, spill_flux_rel=nan, beam_flux_rel=nan, ra=nan)
+    else:
+        spill = nan if fx.spill is None else float(fx.spill)
+        v.update(hotspot_flux_rel=float(fx.hotspot), spill_flux_rel=spill, beam_flux_rel=float(fx.hotspot) + spill,
+                 ra=spill / float(fx.hotspot) if fx.hotspot > 0 else nan)
+    return v
+
+
+def noise_deltas(shape: BeamShape) -> dict[str, float]:
+    """1-sigma effect of pixel noise on each scale-free value (same keys as :func:`shape_values`).
+
+    Angles: the crossings' own noise along each ray (independent rays).  Fluxes and Ra: each zone
+    boundary moved out by its noise.  ``peak_rel``: the residual noise of the peak fit.
+    """
+    hot, fld, edge, fx = shape.hotspot, shape.field, shape.edge, shape.flux
+    deg = lambda rad: float(np.degrees(rad))  # noqa: E731
+    d = {
+        "peak_rel": float(shape.peak.rel_noise * shape.peak.value),
+        "hotspot_angle": deg(hot.full_angle_sigma()) if hot.complete else 0.0,
+        "hotspot_angle_horizontal": deg(hot.width_sigma_along(0.0)),
+        "hotspot_angle_vertical": deg(hot.width_sigma_along(90.0)),
+        "field_angle": deg(fld.full_angle_sigma()) if fld.complete else 0.0,
+        "spill_angle": deg(edge.full_angle_sigma()) if edge.complete else 0.0,
+        "spill_angle_horizontal": deg(edge.across(0.0)[1]),
+        "spill_angle_vertical": deg(edge.across(90.0)[1]),
+    }
+    if fx is not None:
+        hp, ep = shape.flux_hot_plus, shape.flux_edge_plus
+        d["hotspot_flux_rel"] = abs(hp.hotspot - fx.hotspot)
+        if fx.spill is not None:
+            d["spill_flux_rel"] = float(np.hypot(hp.spill - fx.spill, ep.spill - fx.spill))
+            d["beam_flux_rel"] = abs((ep.hotspot + ep.spill) - (fx.hotspot + fx.spill))
+            ra = fx.spill / fx.hotspot
+            d["ra"] = float(np.hypot(hp.spill / hp.hotspot - ra, ep.spill / ep.hotspot - ra))
+    return {k: (v if np.isfinite(v) else 0.0) for k, v in d.items()}
+
+
+def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: dict[str, float],
+                 sigmas: dict[str, float], estimates: set[str] | frozenset = frozenset(), *,
+                 axis_uncertainty_rad: float = 0.0) -> dict[str, Figure]:
+    """All reported figures (see FIGURE_ORDER) from a measured shape, its absolute ``values`` and
+    their combined 1-sigma ``sigmas`` (from :mod:`beamshot.uncertainty`).
+
+    ``estimates`` names the figures whose uncertainty is mostly an assumption (an assumed tone
+    curve or lens shading, an exposure-metadata scale); their status is ``estimate``.
+    """
     figs: dict[str, Figure] = {}
     pk = shape.peak
     clipped = pk.clipped
     clip_reason = ("the hotspot is clipped (overexposed) in the photo; lower the exposure "
                    "(shorter time or lower ISO) or give a bracket")
+
+    def fig(key: str, unit: str, method: str) -> Figure:
+        st = "estimate" if key in estimates else "measured"
+        return Figure(float(values[key]), float(sigmas.get(key, 0.0)), unit, method, st)
+
     # ---- peak intensity and beam distance
     if scale.absolute:
-        k = scale.lux_per_unit
-        rel_u = float(np.sqrt(scale.rel_uncertainty**2 + (2 * distance_rel_uncertainty) ** 2 + pk.rel_noise**2
-                              + cal_u**2))
-        status = "lower_bound" if clipped else ("estimate" if scale.kind == "exposure_metadata" else "measured")
-        value = k * pk.value
-        figs["peak_intensity"] = Figure(value, None if clipped else value * rel_u, "cd",
-                                        f"maximum of the intensity map (local quadratic fit); scale: {scale.description}",
-                                        status, clip_reason if clipped else None)
-        d = beam_distance_m(value)
-        figs["beam_distance"] = Figure(d, None if clipped else d * rel_u / 2.0, "m",
-                                       "ANSI/PLATO FL 1: distance at which the peak gives 0.25 lx, d = sqrt(I / 0.25 lx)",
-                                       status, clip_reason if clipped else None)
+        peak_method = f"maximum of the intensity map (local quadratic fit); scale: {scale.description}"
+        dist_method = "ANSI/PLATO FL 1: distance at which the peak gives 0.25 lx, d = sqrt(I / 0.25 lx)"
+        if clipped:
+            figs["peak_intensity"] = Figure(values["peak_intensity"], None, "cd", peak_method, "lower_bound", clip_reason)
+            figs["beam_distance"] = Figure(values["beam_distance"], None, "m", dist_method, "lower_bound", clip_reason)
+        else:
+            figs["peak_intensity"] = fig("peak_intensity", "cd", peak_method)
+            figs["beam_distance"] = fig("beam_distance", "m", dist_method)
     else:
         figs["peak_intensity"] = not_measured("cd", "maximum of the intensity map", scale.description)
         figs["beam_distance"] = not_measured("m", "ANSI/PLATO FL 1 (0.25 lx)", scale.description)
@@ -123,86 +184,66 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, *,
         elif not contour.complete:
             figs[key] = not_measured("deg", method, f"the {label} contour runs off the photo; step back or use a wider lens")
         else:
-            figs[key] = _angle_figure(contour.full_angle(), contour.full_angle_sigma(), angle_scale_uncertainty, method)
-    for key, bearing, word in (("hotspot_angle_horizontal", 0.0, "horizontal"), ("hotspot_angle_vertical", 90.0, "vertical")):
+            figs[key] = fig(key, "deg", method)
+    for key, word in (("hotspot_angle_horizontal", "horizontal"), ("hotspot_angle_vertical", "vertical")):
         method = f"full width at 50 % of maximum along the wall's {word} through the peak"
-        width = shape.hotspot.width_along(bearing)
         if clipped:
             figs[key] = not_measured("deg", method, clip_reason)
-        elif not np.isfinite(width):
+        elif not np.isfinite(values[key]):
             figs[key] = not_measured("deg", method, "the 50 % contour runs off the photo")
         else:
-            figs[key] = _angle_figure(width, shape.hotspot.width_sigma_along(bearing), angle_scale_uncertainty, method)
+            figs[key] = fig(key, "deg", method)
     # ---- spill angle
     edge = shape.edge
-    sharp = edge.sharp_fraction
     edge_method = ("outer spill edge: half-level point of the sharpest outer cut-off in 36 azimuth sectors "
-                   f"({sharp:.0%} of sectors show a sharp cut-off; the rest use the 0.5 % of peak threshold); "
-                   "full angle of the cone of equal solid angle")
+                   f"({edge.sharp_fraction:.0%} of sectors show a sharp cut-off; the rest use the 0.5 % of peak "
+                   "threshold); full angle of the cone of equal solid angle")
     if edge.complete:
-        figs["spill_angle"] = _angle_figure(edge.full_angle(), edge.full_angle_sigma(), angle_scale_uncertainty, edge_method)
+        figs["spill_angle"] = fig("spill_angle", "deg", edge_method)
     else:
         figs["spill_angle"] = not_measured("deg", edge_method, _coverage_reason(edge))
     for key, phi, word in (("spill_angle_horizontal", 0.0, "horizontal"), ("spill_angle_vertical", 90.0, "vertical")):
-        full, sig = edge.across(phi)
         method = f"spill edge to spill edge across the beam axis along the wall's {word}"
-        if np.isfinite(full):
-            figs[key] = _angle_figure(full, sig, angle_scale_uncertainty, method)
+        if np.isfinite(values[key]):
+            figs[key] = fig(key, "deg", method)
         else:
             figs[key] = not_measured("deg", method, _coverage_reason(edge, phi))
     # ---- flux
     fx = shape.flux
     flux_method = "sum of I dOmega over map cells (exact cell solid angles)"
+    zones = {"hotspot_flux": " inside the 50 % contour", "spill_flux": " between the 50 % contour and the spill edge",
+             "beam_flux": " inside the spill edge"}
     if fx is None:
         for key in ("hotspot_flux", "spill_flux", "beam_flux", "ra"):
             figs[key] = not_measured("lm" if key != "ra" else "", flux_method, "the hotspot contour is not complete")
     else:
-        dh = abs(shape.flux_hot_plus.hotspot - fx.hotspot)
-        if scale.absolute:
-            k = scale.lux_per_unit
-            rel_s = float(np.sqrt(scale.rel_uncertainty**2 + (2 * distance_rel_uncertainty) ** 2 + cal_u**2))
-            st = "estimate" if scale.kind == "exposure_metadata" else "measured"
-            hv = k * fx.hotspot
-            figs["hotspot_flux"] = (Figure(hv, None, "lm", flux_method + " inside the 50 % contour", "lower_bound", clip_reason)
-                                    if clipped else
-                                    Figure(hv, float(np.hypot(hv * rel_s, k * dh)), "lm", flux_method + " inside the 50 % contour", st))
-            if fx.spill is None:
-                figs["spill_flux"] = not_measured("lm", flux_method, _coverage_reason(edge))
-                figs["beam_flux"] = not_measured("lm", flux_method, _coverage_reason(edge))
-            else:
-                sv = k * fx.spill
-                ds = np.hypot(shape.flux_hot_plus.spill - fx.spill, shape.flux_edge_plus.spill - fx.spill)
-                bv = k * (fx.hotspot + fx.spill)
-                db = abs((shape.flux_edge_plus.hotspot + shape.flux_edge_plus.spill) - (fx.hotspot + fx.spill))
-                if clipped:
-                    figs["spill_flux"] = not_measured("lm", flux_method, clip_reason)
-                    figs["beam_flux"] = Figure(bv, None, "lm", flux_method + " inside the spill edge", "lower_bound", clip_reason)
-                else:
-                    figs["spill_flux"] = Figure(sv, float(np.hypot(sv * rel_s, k * ds)), "lm",
-                                                flux_method + " between the 50 % contour and the spill edge", st)
-                    figs["beam_flux"] = Figure(bv, float(np.hypot(bv * rel_s, k * db)), "lm",
-                                               flux_method + " inside the spill edge", st)
-        else:
-            for key in ("hotspot_flux", "spill_flux", "beam_flux"):
+        for key, zone in zones.items():
+            method = flux_method + zone
+            if not scale.absolute:
                 figs[key] = not_measured("lm", flux_method, scale.description)
+            elif key != "hotspot_flux" and fx.spill is None:
+                figs[key] = not_measured("lm", method, _coverage_reason(edge))
+            elif clipped and key == "spill_flux":
+                figs[key] = not_measured("lm", method, clip_reason)
+            elif clipped:
+                figs[key] = Figure(values[key], None, "lm", method, "lower_bound", clip_reason)
+            else:
+                figs[key] = fig(key, "lm", method)
         ra_method = "Ra = spill-zone flux / hotspot-zone flux (this project's spill-to-hotspot ratio, not a colour index)"
         if clipped:
             figs["ra"] = not_measured("", ra_method, clip_reason)
         elif fx.spill is None:
             figs["ra"] = not_measured("", ra_method, _coverage_reason(edge))
         else:
-            ra = fx.spill / fx.hotspot
-            ra_h = shape.flux_hot_plus.spill / shape.flux_hot_plus.hotspot
-            ra_e = shape.flux_edge_plus.spill / shape.flux_edge_plus.hotspot
-            figs["ra"] = Figure(ra, float(np.sqrt((ra_h - ra) ** 2 + (ra_e - ra) ** 2 + (cal_u * ra) ** 2)), "", ra_method)
+            figs["ra"] = fig("ra", "", ra_method)
     # ---- hotspot offset
     off_method = "angle between the peak direction and the beam axis (spill centre)"
-    off_sigma = float(np.hypot(axis_uncertainty_rad, beam.d_theta))
     if clipped:
         figs["hotspot_offset"] = not_measured("deg", off_method, clip_reason)
-        return {k: figs[k] for k in FIGURE_ORDER if k in figs}
-    figs["hotspot_offset"] = Figure(float(np.degrees(pk.theta)), float(np.degrees(off_sigma)), "deg",
-                                    off_method + f"; toward azimuth {np.degrees(pk.phi):.0f} deg (0 = right, 90 = up)")
+    else:
+        off_sigma = float(np.degrees(np.hypot(axis_uncertainty_rad, beam.d_theta)))
+        figs["hotspot_offset"] = Figure(values["hotspot_offset"], off_sigma, "deg",
+                                        off_method + f"; toward azimuth {np.degrees(pk.phi):.0f} deg (0 = right, 90 = up)")
     return {k: figs[k] for k in FIGURE_ORDER if k in figs}
 
 

@@ -48,7 +48,7 @@ def test_analyze_writes_report(photos, tmp_path):
     assert data["schema"] == "beamshot.report" and data["schema_version"].startswith("1.")
     assert data["inputs"][0]["sha256"] and data["inputs"][0]["exif"]["iso"] == 100.0
     for name, fig in data["figures"].items():
-        assert set(fig) == {"value", "uncertainty", "unit", "status", "method", "reason"}
+        assert set(fig) == {"value", "uncertainty", "unit", "status", "method", "reason", "budget"}
         assert (fig["value"] is None) == (fig["status"] == "not_measured")
     assert data["cautions"] and "IEC 62471" in " ".join(data["cautions"])
     with open(out / "profile.csv") as fh:

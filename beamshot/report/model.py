@@ -14,7 +14,7 @@ __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "CAUTIONS", "BeamReport"]
 
 SCHEMA_NAME = "beamshot.report"
 #: Major.minor; a reader accepts the same major version and refuses a newer major.
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 
 #: Safety cautions printed in every report (own wording; see docs/safety.md).
 CAUTIONS = (
