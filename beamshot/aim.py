@@ -14,22 +14,28 @@ so it is only as good as the beam is round; a reflector that is not round reads 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.optimize import least_squares
 
 from .frames import beam_to_wall
 
-__all__ = ["TILT_WARN_DEG", "TILT_APPLY_SIGMAS", "LightPose", "fit_light_pose", "axis_vector", "edge_to_wall",
+__all__ = ["TILT_WARN_DEG", "TILT_APPLY_SIGMAS", "TILT_SIGNIFICANCE_CHI2", "LightPose", "fit_light_pose", "axis_vector", "edge_to_wall",
            "tilt_floor_deg"]
 
 #: Tilts above this are reported as a warning (aim the light square to the wall).
 TILT_WARN_DEG = 2.0
-#: A fitted tilt is applied only when it exceeds this many standard uncertainties and
-#: ``TILT_APPLY_MIN_DEG``: smaller tilts are within what an out-of-round beam mimics.
-TILT_APPLY_SIGMAS = 3.0
+#: A fitted tilt is applied only when (yaw, pitch) is significant jointly, ``v^T C^-1 v`` above the
+#: chi-square quantile with 2 degrees of freedom at 99.73 % (the "3 sigma" level): for 2 degrees of
+#: freedom ``P(chi2 > x) = exp(-x / 2)``, so ``x = -2 ln(0.0027) = 11.83`` (textbook).  Testing the
+#: components jointly avoids the bias of a magnitude, which for a zero tilt is about 1.25 sigma
+#: (Rayleigh distribution).
+TILT_SIGNIFICANCE_CHI2 = float(-2.0 * np.log(0.0027))
+#: ... and exceeds this angle: smaller tilts are within what an out-of-round beam mimics.
 TILT_APPLY_MIN_DEG = 1.5
+#: Kept for the warning text: the direction-wise sigmas a tilt must exceed.
+TILT_APPLY_SIGMAS = 3.0
 #: A tilted reflector's hotspot lies on its axis; a fitted axis that misses the hotspot by more
 #: than this (or a fifth of the tilt) is an out-of-round spill, not a tilt.
 PEAK_MISS_LIMIT_DEG = 0.5
@@ -51,14 +57,41 @@ class LightPose:
     points: int
     #: Angle (deg) between the fitted axis and the direction of the hotspot; None if not checked.
     peak_miss_deg: float | None = None
+    #: Components: yaw (right) and pitch (up), deg, and their 2 x 2 covariance (deg^2).
+    yaw_deg: float = 0.0
+    pitch_deg: float = 0.0
+    cov_deg2: np.ndarray = field(default_factory=lambda: np.zeros((2, 2)), repr=False)
+
+    @property
+    def chi2(self) -> float:
+        """``v^T C^-1 v`` of the components (large = a tilt the fit can tell from zero)."""
+        v = np.array([self.yaw_deg, self.pitch_deg])
+        try:
+            return float(v @ np.linalg.solve(self.cov_deg2, v))
+        except np.linalg.LinAlgError:
+            return 0.0
+
+    @property
+    def large(self) -> bool:
+        """Jointly significant (chi-square, 2 degrees of freedom) and above the minimum angle."""
+        return self.chi2 > TILT_SIGNIFICANCE_CHI2 and self.tilt_deg > TILT_APPLY_MIN_DEG
 
     @property
     def significant(self) -> bool:
         """Large against its uncertainty, and (when checked) confirmed by the hotspot lying on the axis."""
-        big = self.tilt_deg > TILT_APPLY_SIGMAS * self.tilt_sigma_deg and self.tilt_deg > TILT_APPLY_MIN_DEG
-        if not big or self.peak_miss_deg is None:
-            return big
+        if not self.large or self.peak_miss_deg is None:
+            return self.large
         return self.peak_miss_deg <= max(PEAK_MISS_LIMIT_DEG, 0.2 * self.tilt_deg)
+
+    @property
+    def tilt_unbiased_deg(self) -> float:
+        """Magnitude corrected for the noise of its components: ``E|v|^2 = |mu|^2 + tr C``."""
+        return float(np.sqrt(max(self.tilt_deg**2 - np.trace(self.cov_deg2), 0.0)))
+
+    @property
+    def tilt_bound_deg(self) -> float:
+        """An upper bound (about 95 %) on the tilt: the fitted magnitude plus 2 sigma of its widest direction."""
+        return float(self.tilt_deg + 2.0 * np.sqrt(max(np.linalg.eigvalsh(self.cov_deg2).max(), 0.0)))
 
 
 #: Elongation of the spill ellipse per squared tilt (rad^2), ~0.6 for bezel angles of 20-30 deg
@@ -101,12 +134,11 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
     first = _fit_from(p, d, c, c)
     if first is None:
         return None
-    first = replace(first, tilt_sigma_deg=float(np.hypot(first.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
+    first = _with_floor(first, anisotropy)
     if not first.significant or len(starts) == 1:
         return first  # the mirror ambiguity matters only for a tilt that will be applied
     others = [f for f in (_fit_from(p, d, c, start) for start in starts[1:]) if f is not None]
-    fits = [first] + [replace(f, tilt_sigma_deg=float(np.hypot(f.tilt_sigma_deg, tilt_floor_deg(anisotropy))))
-                      for f in others]
+    fits = [first] + [_with_floor(f, anisotropy) for f in others]
     # keep the fits that explain the edge as well as the best one (the mirror pair ties), then
     # break the tie with the peak (or the smaller tilt)
     best_rms = min(f.rms_deg for f in fits)
@@ -120,6 +152,13 @@ def fit_light_pose(edge_mm: np.ndarray, distance_m: float, centre_mm: tuple[floa
 
     best = min(fits, key=score)
     return replace(best, peak_miss_deg=score(best)) if peak_mm is not None else best
+
+
+def _with_floor(pose: LightPose, anisotropy: float) -> LightPose:
+    """Add the mapping's anisotropy floor (independent, in every direction) to the tilt's uncertainty."""
+    floor = tilt_floor_deg(anisotropy)
+    return replace(pose, tilt_sigma_deg=float(np.hypot(pose.tilt_sigma_deg, floor)),
+                   cov_deg2=pose.cov_deg2 + floor**2 * np.eye(2))
 
 
 def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) -> LightPose | None:
@@ -166,10 +205,12 @@ def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) ->
     tilt = float(np.degrees(np.hypot(yaw, pitch)))
     g = np.array([yaw, pitch]) / max(np.hypot(yaw, pitch), 1e-12)
     tilt_sigma = _CORRELATION_INFLATION * float(np.degrees(np.sqrt(max(g @ cov[2:4, 2:4] @ g, 0.0))))
+    cov_deg2 = _CORRELATION_INFLATION**2 * np.degrees(np.degrees(cov[2:4, 2:4]))
     return LightPose(foot_mm=(float(sol.x[0]), float(sol.x[1])), axis=axis_vector(yaw, pitch), tilt_deg=tilt,
                      tilt_sigma_deg=tilt_sigma, tilt_direction_deg=float(np.degrees(np.arctan2(pitch, yaw))),
                      half_angle_deg=float(np.degrees(sol.x[4])), rms_deg=float(np.degrees(np.sqrt(s2))),
-                     points=len(p))
+                     points=len(p), yaw_deg=float(np.degrees(yaw)), pitch_deg=float(np.degrees(pitch)),
+                     cov_deg2=cov_deg2)
 
 
 def edge_to_wall(theta: np.ndarray, phi: np.ndarray, foot_mm, axis: np.ndarray | None, distance_m: float) -> np.ndarray:

@@ -15,7 +15,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from . import __version__
-from .aim import TILT_WARN_DEG, edge_to_wall, fit_light_pose
+from .aim import TILT_SIGNIFICANCE_CHI2, TILT_WARN_DEG, edge_to_wall, fit_light_pose
 from .axis import find_beam_axis
 from .beammap import build_beam_map
 from .camera.linearize import LinearImage
@@ -322,6 +322,10 @@ def analyze(
         "method": axis.method,
         "spill_ellipse_axes_mm": list(axis.ellipse_axes_mm) if axis.ellipse_axes_mm else None,
         "peak_direction_deg": {"theta": float(np.degrees(pk.theta)), "phi": float(np.degrees(pk.phi))},
+        "light_tilt_components": None if pose is None else {
+            "yaw_deg": pose.yaw_deg, "pitch_deg": pose.pitch_deg,
+            "covariance_deg2": [[float(x) for x in row] for row in pose.cov_deg2], "chi2": pose.chi2,
+            "applied": bool(pose.significant)},
     }
     return BeamReport(
         figures=figures,
@@ -434,7 +438,8 @@ def _tilt_figure(pose, assume_square: bool, edge=None):
     from .figure import Figure, not_measured
 
     method = ("right circular cone fitted to the spill edge (least squares on angular residuals); "
-              "applied to the map when above 3 sigma and 1.5 deg")
+              "applied to the map when yaw and pitch are jointly significant (chi-square, 2 degrees of freedom, "
+              "99.73 %) and the tilt exceeds 1.5 deg")
     if assume_square:
         return not_measured("deg", method, "the light was declared square to the wall (--square)")
     if pose is None:
@@ -442,15 +447,20 @@ def _tilt_figure(pose, assume_square: bool, edge=None):
             return not_measured("deg", method, "the spill has no sharp cut-off all around to fit (a smooth or "
                                 "out-of-round beam); the light is assumed square to the wall")
         return not_measured("deg", method, "the spill edge is not complete in the photo")
+    comps = (f"yaw {pose.yaw_deg:+.1f} ± {np.sqrt(pose.cov_deg2[0, 0]):.1f} deg (right), pitch {pose.pitch_deg:+.1f} "
+             f"± {np.sqrt(pose.cov_deg2[1, 1]):.1f} deg (up); chi-square {pose.chi2:.1f} against "
+             f"{TILT_SIGNIFICANCE_CHI2:.1f} for significance")
     if pose.significant:
-        verdict = "applied"
-    elif pose.peak_miss_deg is not None and pose.tilt_deg > 3 * pose.tilt_sigma_deg and pose.tilt_deg > 1.5:
+        return Figure(pose.tilt_unbiased_deg, pose.tilt_sigma_deg, "deg",
+                      method + f"; toward {pose.tilt_direction_deg:.0f} deg (0 = right, 90 = up); {comps}; applied")
+    if pose.large and pose.peak_miss_deg is not None:
         verdict = (f"not applied: the fitted axis misses the hotspot by {pose.peak_miss_deg:.1f} deg, so the "
                    "spill is out of round rather than tilted")
     else:
         verdict = "not significant, not applied"
-    return Figure(pose.tilt_deg, pose.tilt_sigma_deg, "deg",
-                  method + f"; toward {pose.tilt_direction_deg:.0f} deg (0 = right, 90 = up); {verdict}")
+    return Figure(pose.tilt_bound_deg, None, "deg", method + f"; {comps}; {verdict}", "upper_bound",
+                  "the tilt is not distinguishable from zero; the value is an upper bound (about 95 %)"
+                  if not pose.large else "the spill is out of round; the value is an upper bound on a tilt")
 
 
 def _outside_level(beam, shape) -> float | None:

@@ -21,7 +21,7 @@ from scipy.ndimage import map_coordinates
 
 from .camera.linearize import LinearImage
 from .frames import beam_frame, beam_to_wall
-from .photometry import intensity_from_wall_illuminance, polar_cell_solid_angles
+from .photometry import intensity_from_illuminance, intensity_from_wall_illuminance, polar_cell_solid_angles
 from .wall import WallMapping
 
 __all__ = ["THETA_STEP_DEG", "PHI_STEP_DEG", "BeamMap", "build_beam_map", "directions"]
@@ -130,7 +130,7 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
         wz = np.where(w[..., 2] > 1e-6, w[..., 2], np.nan)
         t_mm = distance_m * 1000.0 / wz
         wall = np.stack([axis_mm[0] + t_mm * w[..., 0], axis_mm[1] + t_mm * w[..., 1]], axis=-1)
-        factor = (t_mm / 1000.0) ** 2 / wz  # r^2 / cos(incidence), r in m
+        factor = intensity_from_illuminance(1.0, t_mm / 1000.0, np.arccos(np.clip(wz, -1.0, 1.0)))  # r^2 / cos(inc)
     full_xy = mapping.wall_to_image(wall)
     b = image.bin_factor
     work = (full_xy - (b - 1) / 2.0) / b

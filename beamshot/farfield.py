@@ -14,17 +14,52 @@ import numpy as np
 
 from .errors import BeamshotError
 
-__all__ = ["AGREEMENT_SIGMAS", "compare_distances"]
+__all__ = ["AGREEMENT_SIGMAS", "SHARED_SCALE_TERMS", "combined_sigma", "compare_distances"]
 
 #: Figures agree when they differ by less than this many combined standard uncertainties.
 AGREEMENT_SIGMAS = 2.0
+
+
+#: Budget terms that are the same error in both reports of one light when both used the same
+#: instrument: the lux meter's calibration, or the camera constant of one camera profile.
+SHARED_SCALE_TERMS = ("lux meter", "camera constant")
 
 
 def _fig(report: dict, key: str):
     f = report.get("figures", {}).get(key)
     if not f or f.get("value") is None or f.get("uncertainty") is None:
         return None
-    return float(f["value"]), float(f["uncertainty"])
+    return float(f["value"]), float(f["uncertainty"]), dict(f.get("budget") or {})
+
+
+def _same_instrument(near: dict, far: dict, term: str) -> bool:
+    """Whether a scale term is one shared error: same kind of scale and, for a constant, the same profile."""
+    def scale(rep):
+        return rep.get("calibration", {}).get("absolute_scale", {}) or {}
+
+    def profile(rep):
+        cp = rep.get("calibration", {}).get("camera_profile")
+        return cp.get("name") if isinstance(cp, dict) else cp
+
+    kind = {"lux meter": "lux_meter", "camera constant": "camera_constant"}[term]
+    if scale(near).get("kind") != kind or scale(far).get("kind") != kind:
+        return False
+    return term == "lux meter" or profile(near) == profile(far)
+
+
+def combined_sigma(a: tuple, b: tuple, shared: tuple[str, ...]) -> float:
+    """Standard uncertainty of ``b - a``: independent terms add in quadrature, a term shared by both
+    (the same error in each, proportional to the value) enters as the difference of its two
+    contributions (GUM 5.2.2 with correlation 1).
+
+    >>> round(combined_sigma((100.0, 5.0, {"lux meter": 5.0}), (100.0, 5.0, {"lux meter": 5.0}), ("lux meter",)), 9)
+    0.0
+    """
+    var = a[1] ** 2 + b[1] ** 2
+    for term in shared:
+        ua, ub = a[2].get(term, 0.0) or 0.0, b[2].get(term, 0.0) or 0.0
+        var += (ub - ua) ** 2 - ua**2 - ub**2
+    return float(np.sqrt(max(var, 0.0)))
 
 
 def compare_distances(near: dict, far: dict) -> dict:
@@ -37,6 +72,10 @@ def compare_distances(near: dict, far: dict) -> dict:
     if d1 > d2:
         near, far, d1, d2 = far, near, d2, d1
     lines = [f"near {d1:g} m vs far {d2:g} m"]
+    shared = tuple(t for t in SHARED_SCALE_TERMS if _same_instrument(near, far, t))
+    if shared:
+        lines.append(f"  shared between the two (cancels in the comparison): {', '.join(shared)} - assumed the "
+                     "same instrument at both distances; every other term is counted in both")
     consistent = True
     for key, label in (("peak_intensity", "peak intensity"), ("hotspot_angle", "hotspot angle")):
         a, b = _fig(near, key), _fig(far, key)
@@ -44,7 +83,7 @@ def compare_distances(near: dict, far: dict) -> dict:
             lines.append(f"  {label}: not measured in both reports")
             continue
         diff = b[0] - a[0]
-        sigma = float(np.hypot(a[1], b[1]))
+        sigma = combined_sigma(a, b, shared)
         ok = abs(diff) <= AGREEMENT_SIGMAS * sigma
         consistent &= ok
         lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g} ({diff / a[0]:+.1%}, {abs(diff) / sigma:.1f} sigma) "

@@ -27,11 +27,8 @@ __all__ = [
     "illuminance_on_wall",
     "intensity_from_wall_illuminance",
     "intensity_from_illuminance",
-    "luminance_from_illuminance",
     "illuminance_from_luminance",
     "beam_distance_m",
-    "intensity_for_beam_distance",
-    "cone_solid_angle_sr",
     "cone_half_angle_from_solid_angle",
     "polar_cell_solid_angles",
     "equal_cone_full_angle",
@@ -60,11 +57,6 @@ def intensity_from_illuminance(illuminance_lx, range_m, incidence=0.0):
     return np.asarray(illuminance_lx) * np.asarray(range_m) ** 2 / np.cos(incidence)
 
 
-def luminance_from_illuminance(illuminance_lx, reflectance):
-    """Luminance (cd/m^2) of a Lambertian surface: ``L = rho E / pi``."""
-    return reflectance * np.asarray(illuminance_lx) / np.pi
-
-
 def illuminance_from_luminance(luminance_cd_m2, reflectance):
     """Illuminance (lx) on a Lambertian surface of luminance L: ``E = pi L / rho``."""
     return np.pi * np.asarray(luminance_cd_m2) / reflectance
@@ -77,16 +69,6 @@ def beam_distance_m(peak_intensity_cd):
     200.0
     """
     return float(np.sqrt(peak_intensity_cd / BEAM_DISTANCE_LUX))
-
-
-def intensity_for_beam_distance(distance_m):
-    """Peak intensity (cd) that gives a beam distance (m): ``I = 0.25 lx * d^2``."""
-    return BEAM_DISTANCE_LUX * distance_m**2
-
-
-def cone_solid_angle_sr(half_angle):
-    """Solid angle (sr) of a cone of half-angle ``half_angle`` (rad): ``2 pi (1 - cos a)``."""
-    return 2.0 * np.pi * (1.0 - np.cos(half_angle))
 
 
 def cone_half_angle_from_solid_angle(solid_angle_sr):

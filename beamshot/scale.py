@@ -17,7 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .camera.exposure import ISO12232_SATURATION_CONSTANT, q_factor
+from .camera.exposure import luminance_at_clip, q_factor
+from .photometry import illuminance_from_luminance, illuminance_on_wall
 from .photo import ExifFacts
 
 __all__ = [
@@ -76,9 +77,11 @@ class AbsoluteScale:
 
 def scale_from_lux_meter(lux: float, peak_relative: float, peak_theta: float, distance_m: float,
                          *, meter_accuracy: float | None = None) -> AbsoluteScale:
-    """Scale from a lux-meter reading at the peak; ``peak_relative`` is the map's peak (rel. cd)."""
+    """Scale from a lux-meter reading at the peak; ``peak_relative`` is the map's peak (rel. cd) and
+    ``peak_theta`` the angle of incidence (rad) at the peak's wall point: the angle between the ray
+    from the light and the wall's normal, not the angle from a tilted light's axis."""
     acc = DEFAULT_LUX_METER_ACCURACY if meter_accuracy is None else meter_accuracy
-    e_rel = peak_relative * np.cos(peak_theta) ** 3 / distance_m**2
+    e_rel = illuminance_on_wall(peak_relative, peak_theta, distance_m)
     return AbsoluteScale(
         lux_per_unit=float(lux / e_rel),
         rel_uncertainty=float(acc),
@@ -98,10 +101,10 @@ def scale_from_exposure(exif: ExifFacts, *, reflectance: float | None = None,
     rho = DEFAULT_WALL_REFLECTANCE if reflectance is None else reflectance
     u_rho = DEFAULT_REFLECTANCE_UNCERTAINTY if reflectance_uncertainty is None else reflectance_uncertainty
     q = q_factor()
-    lum_per_unit = ISO12232_SATURATION_CONSTANT * exif.f_number**2 / (q * exif.iso * exif.exposure_time_s)
+    lum_per_unit = luminance_at_clip(exif.f_number, exif.exposure_time_s, exif.iso, q)
     rel = float(np.sqrt(ISO_SPEED_UNCERTAINTY**2 + Q_FACTOR_UNCERTAINTY**2 + (u_rho / rho) ** 2))
     return AbsoluteScale(
-        lux_per_unit=float(np.pi * lum_per_unit / rho),
+        lux_per_unit=float(illuminance_from_luminance(lum_per_unit, rho)),
         rel_uncertainty=rel,
         kind="exposure_metadata",
         description=(f"estimate from exposure metadata (t = {exif.exposure_time_s:.4g} s, "

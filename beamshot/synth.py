@@ -28,7 +28,6 @@ from scipy.special import erfc
 
 from .camera.exposure import ISO12232_SATURATION_CONSTANT
 from .camera.response import LUMINANCE_WEIGHTS_BT709, Response
-from .photometry import cone_half_angle_from_solid_angle, polar_cell_solid_angles
 from .wall import FULL_FRAME_DIAGONAL_MM, rotation_yaw_pitch
 
 __all__ = [
@@ -338,11 +337,15 @@ def truth_figures(pattern, distance_m: float, *, theta_max_deg: float = 80.0,
     phi = (np.arange(n_phi) + 0.5) * 2 * np.pi / n_phi
     tt, pp = np.meshgrid(theta, phi, indexing="ij")
     i = pattern(tt, pp)
-    d_omega = polar_cell_solid_angles(edges, n_phi)[:, None] * np.ones((1, n_phi))
+    # exact solid angle of each cell, (cos lo - cos hi) dphi (integral of sin theta dtheta dphi),
+    # written out here so that the truth does not share the analyser's helpers
+    d_omega = ((np.cos(edges[:-1]) - np.cos(edges[1:])) * (2 * np.pi / n_phi))[:, None] * np.ones((1, n_phi))
     peak = float(i.max())
     hot = i >= 0.5 * peak
     field_ = i >= 0.1 * peak
-    full = lambda omega: float(np.degrees(2 * cone_half_angle_from_solid_angle(omega)))  # noqa: E731
+
+    def full(omega):  # full angle of the cone of solid angle omega = 2 pi (1 - cos a) (Mazonka 2012, eq. 9)
+        return float(np.degrees(2 * np.arccos(1.0 - omega / (2 * np.pi))))
     out = {
         "peak_cd": peak,
         "peak_lux_on_wall": float((i * np.cos(tt) ** 3).max() / distance_m**2),

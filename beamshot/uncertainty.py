@@ -51,7 +51,7 @@ import numpy as np
 from .beammap import BeamMap
 from .camera.linearize import LinearImage
 from .measure import ANGLE_KEYS
-from .photometry import beam_distance_m
+from .photometry import beam_distance_m, illuminance_on_wall
 from .scale import AbsoluteScale
 from .wall import WallMapping
 
@@ -141,7 +141,7 @@ def scale_factor(scale: AbsoluteScale, peak_rel: float, cos_incidence: float, di
     gives wall illuminance ``I_rel cos^3(incidence) / D^2`` there (inverse-square and cosine laws,
     IES 9.1.1/9.1.2), so the factor is ``E D^2 / (I_rel cos^3)``; other scales are fixed."""
     if scale.kind == "lux_meter" and lux_reading is not None:
-        return float(lux_reading * distance_m**2 / (peak_rel * cos_incidence**3))
+        return float(lux_reading / illuminance_on_wall(peak_rel, np.arccos(np.clip(cos_incidence, -1, 1)), distance_m))
     return scale.lux_per_unit
 
 

@@ -18,10 +18,7 @@ __all__ = [
     "REFLECTED_METER_CONSTANT_K",
     "ISO12232_SATURATION_CONSTANT",
     "q_factor",
-    "meter_luminance",
-    "focal_plane_exposure",
     "luminance_at_clip",
-    "exposure_value_100",
 ]
 
 #: Reflected-light meter calibration constant K (cd s / m^2), common value (ISO 2720 range 10.6-13.4).
@@ -39,21 +36,6 @@ def q_factor(transmission=0.9, vignetting=0.98, angle_deg=10.0):
     return float(np.pi / 4.0 * transmission * vignetting * np.cos(np.radians(angle_deg)) ** 4)
 
 
-def meter_luminance(f_number, exposure_time_s, iso, k=REFLECTED_METER_CONSTANT_K):
-    """Average scene luminance (cd/m^2) a reflected meter expects: ``L = K N^2 / (t S)``.
-
-    >>> meter_luminance(8, 1, 100)
-    8.0
-    """
-    return float(k * f_number**2 / (exposure_time_s * iso))
-
-
-def focal_plane_exposure(luminance_cd_m2, f_number, exposure_time_s, q=None):
-    """Focal-plane exposure H (lx s) = ``q L t / N^2`` (ISO 12232, lens focused at infinity)."""
-    q = q_factor() if q is None else q
-    return q * np.asarray(luminance_cd_m2) * exposure_time_s / f_number**2
-
-
 def luminance_at_clip(f_number, exposure_time_s, iso, q=None):
     """Scene luminance (cd/m^2) that just clips a camera of saturation-based speed ``iso``.
 
@@ -61,8 +43,3 @@ def luminance_at_clip(f_number, exposure_time_s, iso, q=None):
     """
     q = q_factor() if q is None else q
     return ISO12232_SATURATION_CONSTANT * f_number**2 / (q * iso * exposure_time_s)
-
-
-def exposure_value_100(f_number, exposure_time_s, iso):
-    """Exposure value referred to ISO 100: ``log2(N^2/t) - log2(S/100)``."""
-    return float(np.log2(f_number**2 / exposure_time_s) - np.log2(iso / 100.0))
