@@ -1,7 +1,28 @@
-"""The linear working image of an analysis: load the photos, linearise, subtract black level and
-dark frame, merge a bracket, subtract the ambient (light-off) photo, divide by the flat field.
+"""The linear working image of an analysis: load the photos, choose the response curve,
+linearise, subtract black level or dark frame, merge a bracket, subtract the ambient (light-off)
+photo, divide by the flat field.
 
 Each step records what it used (file, hash, exposure ratio, model) for the report.
+
+Response curve of a bracket
+---------------------------
+A bracket of a still scene measures the camera's response: after linearisation with the right
+curve ``f^-1``, each pixel's values divided by the frames' relative exposures ``e = t S / N^2``
+agree (Debevec & Malik 1997, eq. 2: ``Z_ij = f(E_i dt_j)``).  Their disagreement,
+``consistency_rms`` (bracket.py), is measured for the curve the analysis would assume; when no
+curve was measured (the profile holds no table) and none was named (no ``response=``), the
+curve is also recovered from the bracket itself (Debevec & Malik 1997 via OpenCV) and the curve
+with the smaller disagreement is used.  That disagreement is reported as ``linearity_rel``: the
+relative 1-sigma error of intensity ratios the linearisation leaves (None for a single photo,
+where it cannot be measured).
+
+Offsets
+-------
+A frame's linear value is ``v = s + b`` with ``b`` the black level (``profile.black_level``) or,
+if a dark frame (lens covered, same settings) is given, ``b`` = the dark frame, which already
+contains the black level.  ``b`` is subtracted once from every frame - each bracket frame, the
+ambient photo and the flat - so ``beam - ratio * ambient`` removes the ambient light alone
+(EMVA 1288 R4.0, sec. 4: the dark signal is removed from every image before it is used).
 """
 
 from __future__ import annotations
@@ -11,6 +32,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
+from .camera.bracket import MIN_FRAMES, check_alignment, consistency_rms, recover_response
 from .camera.flatfield import fit_flat_field
 from .camera.hdr import merge_bracket
 from .camera.linearize import LinearImage, linearize
@@ -19,7 +41,13 @@ from .camera.response import Response, parse_response
 from .errors import BeamshotError
 from .photo import Photo, load_photo
 
-__all__ = ["PreparedImage", "prepare_image", "load_input", "same_size", "input_record"]
+__all__ = ["LINEARITY_WARN", "RESPONSE_SOURCES", "PreparedImage", "prepare_image", "load_input", "same_size",
+           "input_record"]
+
+#: Frames that still disagree by more than this (relative RMS) after linearisation get a warning.
+LINEARITY_WARN = 0.05
+#: The values of ``PreparedImage.response_source``.
+RESPONSE_SOURCES = ("assumed", "camera profile", "recovered from the bracket", "linear (raw or linear file)")
 
 
 def load_input(obj, role: str) -> Photo:
@@ -53,11 +81,75 @@ class PreparedImage:
     dark_note: dict | None
     ambient_note: dict | None
     flat_note: dict | None
+    #: Where the response curve came from: one of ``RESPONSE_SOURCES``.
+    response_source: str = "assumed"
+    #: Relative 1-sigma error of intensity ratios left by the linearisation, measured as the
+    #: disagreement of a bracket's frames (``consistency_rms``); None for a single photo.
+    linearity_rel: float | None = None
 
 
-def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: Response) -> PreparedImage:
-    """Load the beam photo(s), linearise, subtract black level and dark frame, merge a bracket,
-    subtract the ambient photo and divide by the flat field."""
+def _source_of(resp: Response, photos: list[Photo]) -> str:
+    if resp.kind == "linear" or any(p.linear for p in photos):
+        return "linear (raw or linear file)"
+    return "camera profile" if resp.kind == "table" else "assumed"
+
+
+def _bracket_response(photos: list[Photo], resp: Response, source: str, may_recover: bool,
+                      warnings: list[str]) -> tuple[Response, str, float | None, dict]:
+    """The response for a bracket: the given one or the one recovered from it, whichever makes
+    the frames agree better (see the module docstring); also checks that the camera stayed still."""
+    note: dict = {}
+    exposures = [p.exif.exposure_product() for p in photos]
+    eight_bit = all(p.max_code == 255 and not p.linear for p in photos)
+    alignment = check_alignment(photos, None if any(e is None for e in exposures) else np.asarray(exposures))
+    note["alignment"] = {"shifts_px": [p["shift_px"] and [round(v, 2) for v in p["shift_px"]] for p in alignment.pairs],
+                         "constrained": [p["constrained"] for p in alignment.pairs], "notes": list(alignment.notes)}
+    if any(e is None for e in exposures) or not eight_bit:
+        why = "exposures missing from EXIF" if eight_bit else "measured on 8-bit photos only"
+        note["response_choice"] = {"used": source, "consistency_assumed": None, "consistency_recovered": None,
+                                   "why": f"not measured ({why})"}
+        return resp, source, None, note
+    e = np.asarray(exposures, float)
+    try:
+        c_given = consistency_rms(photos, e, resp)
+    except BeamshotError:
+        c_given = None
+    c_rec, fit, why = None, None, None
+    if not may_recover:
+        why = "the curve was measured or named, not recovered"
+    elif len(photos) < MIN_FRAMES:
+        why = f"a curve is recovered from {MIN_FRAMES} or more frames"
+    else:
+        try:
+            fit = recover_response(photos, check_motion=False, label="response recovered from the bracket "
+                                   "(Debevec & Malik 1997)")
+            c_rec = fit.consistency_rms
+        except BeamshotError as exc:
+            why = f"recovery failed: {exc}"
+    used_resp, used, rel = resp, source, c_given
+    if fit is not None and (c_given is None or c_rec < c_given):
+        used_resp, used, rel = fit.response, "recovered from the bracket", c_rec
+        warnings.extend(fit.warnings)
+    note["response_choice"] = {"used": used, "curve": used_resp.describe(), "consistency_assumed": c_given,
+                               "consistency_recovered": c_rec}
+    if why:
+        note["response_choice"]["why"] = why
+    if rel is not None and rel > LINEARITY_WARN:
+        warnings.append(f"the bracket's frames disagree by {rel:.1%} (RMS) after linearisation with the "
+                        f"{used_resp.describe()}; intensity ratios carry that error - check that nothing moved "
+                        "or changed between frames, or calibrate the camera's response (camera response)")
+    return used_resp, used, rel, note
+
+
+def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: Response,
+                  response_given: bool | None = None) -> PreparedImage:
+    """Load the beam photo(s), choose the response, linearise, subtract black level or dark frame
+    from every frame, merge a bracket, subtract the ambient photo and divide by the flat field.
+
+    ``response_given`` says whether the caller named ``resp`` (``--response``); None infers it
+    (``resp`` is not the profile's own curve object).  Only a curve neither measured nor named
+    is replaced by one recovered from a bracket.
+    """
     warnings: list[str] = []
     sources = list(photo) if isinstance(photo, (list, tuple)) else [photo]
     if not sources:
@@ -65,19 +157,35 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
     beam_photos = [load_input(p, "photo") for p in sources]
     for other in beam_photos[1:]:
         same_size(other, beam_photos[0], "bracket photo", "a bracket must come from one camera and position")
+    if response_given is None:
+        response_given = resp is not profile.response
     if any(p.linear for p in beam_photos) and resp.kind != "linear":
         resp = parse_response("linear")  # raw files are decoded to linear values
-    frames = [linearize(p, resp) for p in beam_photos]
-    if profile.black_level:
-        frames = [f.with_values(f.rgb - np.float32(profile.black_level)) for f in frames]
+    source = _source_of(resp, beam_photos)
+    linearity = None
+    bracket_note: dict = {}
+    if len(beam_photos) > 1:
+        resp, source, linearity, bracket_note = _bracket_response(
+            beam_photos, resp, source, source == "assumed" and not response_given, warnings)
+
+    # ---- offsets: the dark frame (which holds the black level) or the black level, once per frame
     inputs = [input_record("beam", p) for p in beam_photos]
     dark_note = None
+    offset = None
     if dark is not None:
         dark_photo = same_size(load_input(dark, "dark"), beam_photos[0], "dark frame", "use the same camera and settings")
         inputs.append(input_record("dark", dark_photo))
-        d = linearize(dark_photo, resp)
-        frames = [f.with_values(f.rgb - d.rgb) for f in frames]
-        dark_note = {"file": dark_photo.name, "subtracted": "per pixel from every frame"}
+        offset = linearize(dark_photo, resp).rgb
+        dark_note = {"file": dark_photo.name,
+                     "subtracted": "per pixel from every frame (beam, ambient, flat); it includes the black level"}
+    elif profile.black_level:
+        offset = np.float32(profile.black_level)
+
+    def linear(p: Photo) -> LinearImage:
+        f = linearize(p, resp)
+        return f if offset is None else f.with_values(f.rgb - offset)
+
+    frames = [linear(p) for p in beam_photos]
     hdr_note = None
     if len(frames) > 1:
         merged = merge_bracket(frames, [p.exif.exposure_product() for p in beam_photos], resp,
@@ -88,7 +196,8 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
         hdr_note = {"frames": len(frames), "reference": beam_photo.name,
                     "ratios_used": list(merged.ratios_used), "ratios_exif": list(merged.ratios_exif),
                     "ratios_measured": list(merged.ratios_measured),
-                    "method": "hat-weighted mean times relative exposure (Debevec & Malik 1997 weights)"}
+                    "method": "hat-weighted mean times relative exposure (Debevec & Malik 1997 weights)",
+                    **bracket_note}
     else:
         image, beam_photo = frames[0], beam_photos[0]
 
@@ -97,7 +206,7 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
         amb_photo = same_size(load_input(ambient, "ambient"), beam_photo, "ambient photo",
                                "take both from the same camera and position")
         inputs.append(input_record("ambient", amb_photo))
-        amb = linearize(amb_photo, resp)
+        amb = linear(amb_photo)
         ratio = 1.0
         pb, pa = beam_photo.exif.exposure_product(), amb_photo.exif.exposure_product()
         if pb and pa:
@@ -115,7 +224,7 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
         flat_photo = same_size(load_input(flat, "flat"), beam_photo, "flat-field photo",
                                 "shoot it with the same camera and settings")
         inputs.append(input_record("flat", flat_photo))
-        ff = fit_flat_field(linearize(flat_photo, resp).luminance)
+        ff = fit_flat_field(linear(flat_photo).luminance)
         image = image.divided_by(ff.evaluate(image.shape))
         flat_note = {"file": flat_photo.name, "model": "1/V = 1 + b1 r^2 + b2 r^4 + b3 r^6",
                      "coefficients": list(ff.coefficients), "residual_rms": ff.residual_rms}
@@ -130,7 +239,7 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
                      "residual_rms": profile.flat.residual_rms}
 
     return PreparedImage(image, beam_photos, beam_photo, inputs, resp, warnings, hdr_note, dark_note, amb_note,
-                     flat_note)
+                         flat_note, response_source=source, linearity_rel=linearity)
 
 
 def input_record(role: str, photo: Photo) -> dict:

@@ -12,7 +12,7 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -67,6 +67,8 @@ class Response:
     kind: str = "srgb"
     gamma: float = 2.2
     table: tuple | None = None
+    #: Where a measured table came from, for :meth:`describe` (None: a camera profile).
+    label: str | None = field(default=None, repr=False, compare=False)
 
     def decode(self, v):
         """Encoded value(s) in [0, 1] -> linear value(s) in [0, 1] (a table: per channel on the last axis)."""
@@ -116,7 +118,7 @@ class Response:
         if self.kind == "s-curve":
             return f"film-like S-curve (a = {S_CURVE_A}, c = {S_CURVE_C})"
         if self.kind == "table":
-            return "measured response table (camera profile)"
+            return self.label or "measured response table (camera profile)"
         return "linear (no curve)"
 
 
