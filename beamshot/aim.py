@@ -34,6 +34,9 @@ TILT_WARN_DEG = 2.0
 TILT_SIGNIFICANCE_CHI2 = float(-2.0 * np.log(0.0027))
 #: ... and exceeds this angle: smaller tilts are within what an out-of-round beam mimics.
 TILT_APPLY_MIN_DEG = 1.5
+#: A fitted tilt beyond this is not a light aimed at the wall but a fit gone astray (an edge seen
+#: only in part, or a spill that is not a cone); it is never applied (project choice).
+TILT_APPLY_MAX_DEG = 25.0
 #: Kept for the warning text: the direction-wise sigmas a tilt must exceed.
 TILT_APPLY_SIGMAS = 3.0
 #: A tilted reflector's hotspot lies on its axis; a fitted axis that misses the hotspot by more
@@ -74,7 +77,7 @@ class LightPose:
     @property
     def large(self) -> bool:
         """Jointly significant (chi-square, 2 degrees of freedom) and above the minimum angle."""
-        return self.chi2 > TILT_SIGNIFICANCE_CHI2 and self.tilt_deg > TILT_APPLY_MIN_DEG
+        return self.chi2 > TILT_SIGNIFICANCE_CHI2 and TILT_APPLY_MIN_DEG < self.tilt_deg <= TILT_APPLY_MAX_DEG
 
     @property
     def significant(self) -> bool:

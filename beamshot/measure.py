@@ -159,8 +159,11 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
                    "(shorter time or lower ISO) or give a bracket")
 
     def fig(key: str, unit: str, method: str) -> Figure:
+        value, sigma = float(values[key]), float(sigmas.get(key, 0.0))
+        if not (np.isfinite(value) and np.isfinite(sigma)):
+            return not_measured(unit, method, "the map has too few valid samples to measure this figure")
         st = "estimate" if key in estimates else "measured"
-        return Figure(float(values[key]), float(sigmas.get(key, 0.0)), unit, method, st)
+        return Figure(value, sigma, unit, method, st)
 
     # ---- peak intensity and beam distance
     if scale.absolute:

@@ -77,9 +77,10 @@ __all__ = [
 #: spill of a typical reflector sits at 0.5-5 % of the peak; project choice).
 RATIO_SPAN = 100.0
 #: 1-sigma error of the exponent of an assumed (unmeasured) tone curve.  Cameras' JPEG engines
-#: depart from the curve they are assumed to follow (sRGB) by S-curves and local tone mapping;
-#: a tenth in effective gamma at 2 sigma is an assumption, stated in every report that uses it.
-ASSUMED_RESPONSE_EXPONENT_SIGMA = 0.05
+#: depart from the curve they are assumed to follow (sRGB) by S-curves and local tone mapping.
+#: An assumption, stated in every report that uses it: 0.075 puts a pure gamma-2.4 camera read as
+#: sRGB (a ratio error of about 2x between the peak and 1 % of it, so eps ~ 0.15) at 2 sigma.
+ASSUMED_RESPONSE_EXPONENT_SIGMA = 0.075
 #: Extra lens shading at the photo's corner beyond natural cos^4 fall-off, for the envelope of
 #: uncorrected shading (assumption; common practice puts uncorrected lenses at 10-30 % wide open).
 SHADING_CORNER_ENVELOPE = 0.20
