@@ -322,6 +322,69 @@ def camera_flat(photos, name, dark, out):
     _save(profile, out)
 
 
+@camera.command("flat-from-turns")
+@click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("--name", required=True, help="Profile name (created or updated).")
+@click.option("--focal-35mm", type=float, default=None, help="35 mm-equivalent focal length (mm) if EXIF lacks it.")
+@click.option("--hfov", type=float, default=None, help="Horizontal field of view of the photos (degrees).")
+@click.option("--out", "out", type=click.Path(dir_okay=False), default=None, help="Write the profile to this file.")
+def camera_flat_from_turns(photos, name, focal_35mm, hfov, out):
+    """Lens shading from two or more photos of one beam, the camera turned on the tripod between them."""
+    from .camera.linearize import linearize
+    from .camera.turned_flat import RECOMMENDED_TURN_DEG, TurnedPhoto, fit_turned_flat
+    from .photo import load_photo
+    from .wall_setup import focal_for
+
+    try:
+        if len(photos) < 2:
+            raise BeamshotError("give at least two photos of the same beam, with the camera turned "
+                                f"{RECOMMENDED_TURN_DEG} deg on the tripod between them")
+        if focal_35mm is not None and focal_35mm <= 0 or hfov is not None and not 0 < hfov < 180:
+            raise BeamshotError("--focal-35mm takes a focal length in mm (e.g. 26), --hfov an angle below 180 deg")
+        profile = _profile_for_update(name, out)
+        loaded = [load_photo(p) for p in photos]
+        first = loaded[0]
+        for p in loaded[1:]:
+            if p.shape != first.shape:
+                raise BeamshotError(f"{p.name}: {p.shape[1]}x{p.shape[0]} differs from {first.name} "
+                                    f"{first.shape[1]}x{first.shape[0]}; use one camera and zoom for all photos")
+            if focal_35mm is None and hfov is None and p.exif.focal_35mm_mm != first.exif.focal_35mm_mm:
+                raise BeamshotError(f"{p.name}: the focal length ({p.exif.focal_35mm_mm} mm equiv.) differs from "
+                                    f"{first.name} ({first.exif.focal_35mm_mm}); keep the zoom fixed")
+        f_px, _, f_src = focal_for(first, focal_35mm, hfov)
+        if f_px is None:
+            raise BeamshotError(f"{first.name}: no focal length in EXIF; give --focal-35mm or --hfov")
+        resp = profile.response
+        if any(p.linear for p in loaded):
+            from .camera.response import parse_response
+
+            resp = parse_response("linear")
+        turned = []
+        for p in loaded:
+            img = linearize(p, resp)
+            if profile.black_level:
+                img = img.with_values(img.rgb - float(profile.black_level))
+            turned.append(TurnedPhoto.from_linear(p.name, img))
+        fit = fit_turned_flat(turned, f_px)
+    except BeamshotError as exc:
+        _fail(str(exc))
+    profile = profile.with_step("flat-from-turns", _file_records(loaded), details=fit.summary(), flat=fit.flat)
+    click.echo(f"flat field from {len(loaded)} turned photos (focal length {f_px:.0f} px from {f_src}):")
+    for t in fit.turns:
+        click.echo(f"  turn {t.from_name} -> {t.to_name}: {t.angle_deg:.2f} deg (pan {t.pan_deg:+.2f}, "
+                   f"tilt {t.tilt_deg:+.2f}, roll {t.roll_deg:+.2f} - weakly fixed by a round beam), "
+                   f"exposure ratio {t.exposure_ratio:.3f}")
+    radii = (0.2, 0.4, 0.6, 0.8)
+    v = fit.falloff(radii + (1.0,))
+    click.echo("  fall-off V: " + ", ".join(f"{x:.0%} at r {r:g}" for r, x in zip(radii, v)) +
+               f", corners {v[-1]:.0%} (r = fraction of the half-diagonal; data reach r {fit.max_radius:.2f})")
+    click.echo(f"  fit residual {fit.residual_rms_samples:.2%} RMS per sample, {fit.flat.residual_rms:.2%} RMS in "
+               f"blocks; {fit.samples} samples; terms b1..b{fit.terms}")
+    for w in fit.warnings:
+        click.echo(f"  ! {w}")
+    _save(profile, out)
+
+
 @camera.command("scale")
 @click.argument("photo", type=click.Path(dir_okay=False))
 @click.option("--lux", type=float, required=True, help="Lux-meter reading on the wall at the metered point.")

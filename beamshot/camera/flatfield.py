@@ -7,6 +7,11 @@ optical axis.  A polynomial in r^2 for 1/V represents natural vignetting exactly
 ``1 / cos^4(alpha) = (1 + tan^2 alpha)^2`` with ``tan alpha`` proportional to r (pinhole).  Dividing a linear image by V
 removes natural cos^4 fall-off and lens/processing vignetting (flat-field correction as in
 EMVA 1288 terminology: the gain non-uniformity part).
+
+The same model can also be fitted without a flat photo, from two or more beam photos with the
+camera turned between them: :mod:`beamshot.camera.turned_flat`.  ``method`` says which, and
+``max_radius`` how far out (fraction of the half-diagonal) the data reached; beyond it the
+polynomial is extrapolated.
 """
 
 from __future__ import annotations
@@ -22,11 +27,17 @@ _BLOCKS = 48
 
 @dataclass(frozen=True)
 class FlatField:
-    """Coefficients ``(b1, b2, b3)`` of G(r) = 1/V(r) and the RMS residual of the fit (relative)."""
+    """Coefficients ``(b1, b2, b3)`` of G(r) = 1/V(r) and the RMS residual of the fit (relative).
+
+    ``shape`` is the full photo size ``(h, w)``; ``method`` how the model was found ("flat photo"
+    or "turned camera"); ``max_radius`` the largest radius the data covered.
+    """
 
     coefficients: tuple[float, float, float]
     residual_rms: float
     shape: tuple[int, int]
+    method: str = "flat photo"
+    max_radius: float = 1.0
 
     def evaluate(self, shape: tuple[int, int]) -> np.ndarray:
         """V at the centres of an image of ``shape`` (same aspect as the flat), float32."""

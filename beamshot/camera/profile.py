@@ -51,9 +51,9 @@ class CameraProfile:
     provenance: tuple = ()
     distortion: Distortion | None = None
 
-    def with_step(self, step: str, files: list[dict], **changes) -> "CameraProfile":
-        """A copy with ``changes`` applied and a provenance entry for ``step``."""
-        entry = {"step": step, "when_utc": _now(), "files": files}
+    def with_step(self, step: str, files: list[dict], *, details: dict | None = None, **changes) -> "CameraProfile":
+        """A copy with ``changes`` applied and a provenance entry for ``step`` (plus ``details``, if any)."""
+        entry = {"step": step, "when_utc": _now(), "files": files, **(details or {})}
         return replace(self, provenance=tuple(self.provenance) + (entry,), calibrated=True, **changes)
 
     def to_dict(self) -> dict:
@@ -78,6 +78,8 @@ class CameraProfile:
                 "coefficients": list(self.flat.coefficients),
                 "residual_rms": self.flat.residual_rms,
                 "image_size": [self.flat.shape[1], self.flat.shape[0]],
+                "method": self.flat.method,
+                "data_to_radius": self.flat.max_radius,
             },
             "black_level": self.black_level,
             "distortion": None if self.distortion is None else self.distortion.to_dict(),
@@ -122,7 +124,9 @@ class CameraProfile:
                 if len(b) != 3:
                     raise ValueError("flat_field.coefficients must have 3 numbers")
                 w, h = (int(x) for x in ff["image_size"])
-                flat = FlatField(coefficients=tuple(b), residual_rms=float(ff["residual_rms"]), shape=(h, w))
+                flat = FlatField(coefficients=tuple(b), residual_rms=float(ff["residual_rms"]), shape=(h, w),
+                                 method=str(ff.get("method", "flat photo")),
+                                 max_radius=float(ff.get("data_to_radius", 1.0)))
             sc = data.get("absolute_scale")
             notes = None
             if sc:
