@@ -129,7 +129,8 @@ def _bracket_response(photos: list[Photo], resp: Response, source: str, may_reco
     used_resp, used, rel = resp, source, c_given
     if fit is not None and (c_given is None or c_rec < c_given):
         used_resp, used, rel = fit.response, "recovered from the bracket", c_rec
-        warnings.extend(fit.warnings)
+        # the frames' agreement is warned about below, once, for whichever curve is used
+        warnings.extend(w for w in fit.warnings if not w.startswith("frames agree only"))
     note["response_choice"] = {"used": used, "curve": used_resp.describe(), "consistency_assumed": c_given,
                                "consistency_recovered": c_rec}
     if why:
