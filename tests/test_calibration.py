@@ -191,12 +191,13 @@ def test_bad_calibration_inputs(tmp_path):
 
 
 def test_raw_beam_photo_end_to_end(tmp_path):
-    # a beam recorded as linear raw (DNG through LibRaw): no response curve involved
+    # a beam recorded as linear raw (DNG through LibRaw): no response curve involved, and the lens's
+    # natural cos^4 fall-off (textbook cos^4 law) is in the data, as in every raw file
     from beamshot.synth import render_rgb_linear
     from test_photo import _linear_dng
 
     scene = Scene(distance_m=5.0)
-    cam = SynthCamera(width_px=900, height_px=675, focal_35mm_mm=16)
+    cam = SynthCamera(width_px=900, height_px=675, focal_35mm_mm=16, natural_vignetting=True)
     truth = truth_figures(BEAM, 5.0)
     cam = replace(cam, exposure_time_s=exposure_time_for_peak(BEAM, scene, cam, target=0.7))
     rgb = render_rgb_linear(BEAM, scene, cam, seed=2)
