@@ -137,6 +137,10 @@ def test_single_photo_with_the_turned_flat_profile(prototype_2):
     assert abs(_rel(fixed["field_angle"], truth["field_angle_deg"])) <= 0.03
     assert abs(_rel(fixed["ra"], truth["ra"])) <= 0.05
     assert fixed.calibration["flat_field"]["from_profile"] == "proto2-cam"
+    # the profile's flat is for 1200x900 photos: a photo of another size is refused, not mis-corrected
+    small, _ = _camera(width=600, height=450)
+    with pytest.raises(BeamshotError, match="flat field of profile"):
+        analyze(decode_photo(_jpeg_bytes(small, seed=14), "small.jpg"), camera=prof, **kw)
     # the shading left in biases the uncorrected analysis the way the issue describes (narrow, Ra low)
     assert _rel(plain["ra"], truth["ra"]) < _rel(fixed["ra"], truth["ra"]) - 0.03
     assert _rel(plain["field_angle"], truth["field_angle_deg"]) < -0.03

@@ -281,8 +281,8 @@ def _map(hom: np.ndarray, xf: np.ndarray, yf: np.ndarray) -> tuple[np.ndarray, n
 
 
 # --------------------------------------------------------------------------- start: coarse search
-def _start_turn(g0: _Grid, gk: _Grid, focal_px: float, full_shape, r2norm: float) -> tuple[np.ndarray, float]:
-    """Pan and tilt (as a rotation vector) and exposure offset from a coarse search on small grids."""
+def _start_turn(g0: _Grid, gk: _Grid, focal_px: float, full_shape, r2norm: float) -> tuple[np.ndarray, float, float]:
+    """Pan and tilt (as a rotation vector), exposure offset and a rough b1 from a coarse search on small grids."""
     yy, xx = np.meshgrid(g0.y, g0.x, indexing="ij")
     ok = np.isfinite(g0.log_lum)
     xs, ys, l0 = xx[ok], yy[ok], g0.log_lum[ok]
@@ -303,7 +303,7 @@ def _start_turn(g0: _Grid, gk: _Grid, focal_px: float, full_shape, r2norm: float
         lk = _sample(gk, xm, ym)
         good = np.isfinite(lk)
         if good.sum() < min_overlap:
-            return np.inf, 0.0
+            return np.inf, 0.0, 0.0
         r2_k = ((xm[good] - cx) ** 2 + (ym[good] - cy) ** 2) / r2norm
         d = l0[good] - lk[good]
         corr = np.log1p(b1s[:, None] * r2_k[None, :]) - np.log1p(b1s[:, None] * r2_0[good][None, :])
@@ -311,27 +311,27 @@ def _start_turn(g0: _Grid, gk: _Grid, focal_px: float, full_shape, r2norm: float
         med = np.median(dd, axis=1)
         spread = np.median(np.abs(dd - med[:, None]), axis=1)
         best = int(np.argmin(spread))
-        return float(spread[best]), float(med[best])
+        return float(spread[best]), float(med[best]), float(b1s[best])
 
-    best = (np.inf, 0.0, 0.0, 0.0)
+    best = (np.inf, 0.0, 0.0, 0.0, 0.0)
     coarse = 4 * step
     for pan in np.arange(-2 * half_w, 2 * half_w + coarse / 2, coarse):
         for tilt in np.arange(-2 * half_h, 2 * half_h + coarse / 2, coarse):
-            c, off = cost(pan, tilt)
+            c, off, b1 = cost(pan, tilt)
             if c < best[0]:
-                best = (c, off, pan, tilt)
+                best = (c, off, b1, pan, tilt)
     for span, st in ((coarse, step), (step, step / 4)):
-        _, _, p0, t0 = best
+        p0, t0 = best[3], best[4]
         for pan in np.arange(p0 - span, p0 + span + st / 2, st):
             for tilt in np.arange(t0 - span, t0 + span + st / 2, st):
-                c, off = cost(pan, tilt)
+                c, off, b1 = cost(pan, tilt)
                 if c < best[0]:
-                    best = (c, off, pan, tilt)
+                    best = (c, off, b1, pan, tilt)
     if not np.isfinite(best[0]):
         raise BeamshotError(f"{g0.name} and {gk.name} share too little of the beam; turn the camera less "
                             f"({RECOMMENDED_TURN_DEG} deg) so that the beam is in both photos")
-    _, off, pan, tilt = best
-    return np.array([-np.radians(tilt), -np.radians(pan), 0.0]), -off  # c_k = -(c_0 - c_k)
+    _, off, b1, pan, tilt = best
+    return np.array([-np.radians(tilt), -np.radians(pan), 0.0]), -off, b1  # c_k = -(c_0 - c_k)
 
 
 # --------------------------------------------------------------------------- the joint fit
@@ -426,30 +426,30 @@ def fit_turned_flat(photos: list[TurnedPhoto], focal_px: float) -> TurnedFlatFit
     n = len(photos)
 
     # start: each photo against the first, by the coarse search
-    p0 = []
+    p0, b1s = [], []
     for k in range(1, n):
-        rvec, off = _start_turn(small[0], small[k], focal_px, full_shape, prob.r2norm)
+        rvec, off, b1 = _start_turn(small[0], small[k], focal_px, full_shape, prob.r2norm)
         p0.extend([*rvec, off])
+        b1s.append(b1)
     warnings: list[str] = []
 
-    def solve(terms, start_b, weights=None):
-        prob.weights = weights
+    def solve(problem, terms, start_b, weights=None):
+        problem.weights = weights
         x0 = np.r_[np.asarray(p0, float), np.asarray(start_b, float)[:terms]]
-        sol = least_squares(prob.residuals, x0, args=(terms,), method="trf", loss="soft_l1",
+        return least_squares(problem.residuals, x0, args=(terms,), method="trf", loss="soft_l1",
                              f_scale=_ROBUST_SCALE, x_scale="jac", ftol=1e-6, xtol=1e-6, max_nfev=100)
-        return sol
 
-    # pass 1: all terms, equal weights, shading started at none (the search's rough strength is
-    # not needed: the problem is nearly linear in b once the turn is right)
+    # pass 1 on a grid half as fine: all terms, equal weights, from the search's rough shading
     terms = 3
-    sol = solve(terms, (0.0, 0.0, 0.0))
+    sol = solve(_Problem([_grid(p, _FIT_SIDE // 2) for p in photos], focal_px, full_shape), terms,
+                (float(np.median(b1s)), 0.0, 0.0))
     p0 = list(sol.x[: 4 * (n - 1)])
     _refuse_mismatch(prob, sol.x, terms)
     # pass 2: weights from the scatter at each signal level; drop terms the data cannot carry
     weights = _weights(prob, sol.x, terms)
     chosen = None
     for terms in (3, 2, 1):
-        sol = solve(terms, tuple(sol.x[4 * (n - 1):]) + (0.0, 0.0), weights)
+        sol = solve(prob, terms, tuple(sol.x[4 * (n - 1):]) + (0.0, 0.0), weights)
         unc = _falloff_uncertainty(prob, sol, terms)
         _, _, b = _unpack(sol.x, n, terms)
         if _monotonic(b) and unc[1] <= TERM_UNCERTAINTY_LIMIT or terms == 1:
