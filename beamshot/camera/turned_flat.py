@@ -34,7 +34,8 @@ well-exposed, unclipped pixels seen in both photos, with a soft-L1 loss against 
 at the bezel cut-off and a second pass weighted by the scatter measured at each signal level
 (iteratively reweighted least squares, common practice).  The start comes from a coarse search
 of pan and tilt on small images (any turn within the field of view), with the exposure offset
-taken as the median difference and a handful of shading strengths tried.
+taken as the median difference and a handful of shading strengths tried; a first pass on a grid
+half as fine brings the start close before the fine grid is used.
 
 Terms are dropped (b3, then b2) when the data cannot constrain them: when the fitted fall-off
 would rise again with radius inside the photo (vignetting falls monotonically with field angle:
