@@ -157,3 +157,25 @@ def test_coverage_over_varied_faults():
     assert 0.90 <= s["within_2_sigma"] <= 0.99
     for key, v in s["per_figure"].items():
         assert abs(v["mean_z"]) <= 0.5, (key, v)
+
+
+def _ff_report(d, peak, meter_rel, other_rel):
+    u_m, u_o = meter_rel * peak, other_rel * peak
+    return {"settings": {"distance_m": d},
+            "calibration": {"absolute_scale": {"kind": "lux_meter"}, "camera_profile": {"name": "p"}},
+            "figures": {"peak_intensity": {"value": peak, "uncertainty": float(np.hypot(u_m, u_o)),
+                                           "budget": {"lux meter": u_m, "pixel noise": u_o}}}}
+
+
+def test_far_field_cancels_the_shared_meter():
+    # the same meter's 5 % calibration error is one error in both reports (GUM 5.2.2, correlation 1):
+    # a thrower reading 10 % low up close must not "agree" because of it
+    from beamshot.farfield import compare_distances
+
+    near, far = _ff_report(3.0, 9000.0, 0.05, 0.01), _ff_report(6.0, 10000.0, 0.05, 0.01)
+    res = compare_distances(near, far)
+    assert not res["consistent"]
+    assert any("lux meter" in line and "cancels" in line for line in res["lines"])
+    # counted twice in quadrature, the band would be ~ +-14 % and the 10 % step would pass
+    independent = np.hypot(np.hypot(450, 90), np.hypot(500, 100))
+    assert 1000.0 < 2 * independent
