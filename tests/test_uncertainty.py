@@ -179,3 +179,18 @@ def test_far_field_cancels_the_shared_meter():
     # counted twice in quadrature, the band would be ~ +-14 % and the 10 % step would pass
     independent = np.hypot(np.hypot(450, 90), np.hypot(500, 100))
     assert 1000.0 < 2 * independent
+
+
+def test_shading_left_in_is_inside_the_uncertainty():
+    # a camera whose JPEG keeps cos^4 fall-off plus 10 % at the corner (cos^4 law, textbook), no flat:
+    # the figures it biases are within 2 stated sigma (JCGM 100 coverage, k = 2), and the report says why
+    pattern = HotspotSpillBeam(peak_cd=3000, hotspot_fwhm_deg=24, spill_fraction=0.05, cutoff_deg=36, edge_width_deg=0.6)
+    scene, cam, truth = make_shot(pattern, width_px=1200, height_px=900, focal_35mm_mm=13, natural_vignetting=True,
+                                  lens_vignetting=0.1)
+    rep = analyze(_jpeg(pattern, scene, cam), distance_m=5.0, lux_at_peak=truth["peak_lux_on_wall"])
+    for key, tkey in (("hotspot_angle", "hotspot_angle_deg"), ("field_angle", "field_angle_deg"), ("ra", "ra"),
+                      ("beam_flux", "beam_flux_lm")):
+        f = rep[key]
+        assert abs(f.value - truth[tkey]) <= 2 * f.uncertainty, (key, f.value, truth[tkey], f.uncertainty)
+        assert "lens shading" in dict(f.budget)
+    assert any("no flat field" in w for w in rep.warnings)
