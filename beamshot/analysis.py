@@ -505,9 +505,10 @@ def _shading_plan(prep, flat_note, profile) -> dict:
                 "acts": "a residual shading of twice the flat fit's RMS residual at the corner, divided out",
                 "size": f"{2 * res:.2%} at the corner"}
     linear = prep.resp.kind == "linear"
-    return {"kind": "envelope", "natural": not linear, "corner_depth": SHADING_CORNER_ENVELOPE, "factor": 0.5,
-            "acts": ("half the change when the envelope of uncorrected shading is divided out "
-                     "(+-2 sigma spans none to all of it)"),
+    return {"kind": "envelope", "natural": not linear, "corner_depth": SHADING_CORNER_ENVELOPE,
+            "factor": 1.0 / np.sqrt(3.0),
+            "acts": ("the change when the envelope of uncorrected shading is divided out, over sqrt(3): the RMS "
+                     "of an uncorrected error spread evenly between none and all of it (GUM 4.3.7)"),
             "size": (f"{SHADING_CORNER_ENVELOPE:.0%} lens shading at the corner beyond cos^4" if linear else
                      f"cos^4 fall-off plus {SHADING_CORNER_ENVELOPE:.0%} at the corner")}
 

@@ -34,8 +34,9 @@ How the sources act (the budget table in docs/figures.md lists their sizes):
   measured.
 - lens shading: a gain ``V`` across the photo.  With no flat field the photo may keep anything
   between no fall-off and the envelope (natural cos^4 of the field angle, plus extra lens shading
-  at the corner); the figures are re-measured with the envelope divided out, and half the change
-  is the term, so that +-2 sigma spans the whole range.  With a flat field, a residual shading
+  at the corner); the figures are re-measured with the envelope divided out, and the change over
+  sqrt(3) is the term: the RMS of an uncorrected error spread evenly between none and all of the
+  envelope (rectangular distribution, GUM 4.3.7).  With a flat field, a residual shading
   twice the fit's RMS residual at the corner.
 - pixel footprint: a contour edge is known to about one working pixel (uniform, p / sqrt(12) per
   edge), and both edges of a full angle move together when the photo is coarse.
