@@ -377,7 +377,8 @@ def camera_flat_from_turns(photos, name, focal_35mm, hfov, out):
     radii = (0.2, 0.4, 0.6, 0.8)
     v = fit.falloff(radii + (1.0,))
     click.echo("  fall-off V: " + ", ".join(f"{x:.0%} at r {r:g}" for r, x in zip(radii, v)) +
-               f", corners {v[-1]:.0%} (r = fraction of the half-diagonal; data reach r {fit.max_radius:.2f})")
+               f", corners {v[-1]:.0%} (r = fraction of the half-diagonal; data reach r {fit.max_radius:.2f}, "
+               f"where V is uncertain by {fit.uncertainty_at_max_radius:.1%})")
     click.echo(f"  fit residual {fit.residual_rms_samples:.2%} RMS per sample, {fit.flat.residual_rms:.2%} RMS in "
                f"blocks; {fit.samples} samples; terms b1..b{fit.terms}")
     for w in fit.warnings:

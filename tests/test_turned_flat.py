@@ -189,6 +189,10 @@ def test_refusals_are_one_line(tmp_path):
     # a turn too small to separate the shading from the beam
     nudged = write("b.jpg", _jpeg_bytes(cam, 2.0, 0.0, 2))
     assert "turned only" in _fails(["camera", "flat-from-turns", a, nudged, *out])
+    # a turn so large that the first photo's centre leaves the view: the shading would not be tied
+    # to the centre (half the view of this 24 mm-equivalent lens is 36 deg across)
+    far = write("far.jpg", _jpeg_bytes(cam, 40.0, 0.0, 6))
+    assert "left the view" in _fails(["camera", "flat-from-turns", a, far, *out])
     # a clipped photo
     bright = replace(cam, exposure_time_s=cam.exposure_time_s * 6)
     clipped = write("c.jpg", encode_jpeg(render_photo(BEAM, SCENE, replace(bright, yaw_deg=20.0), seed=3), bright))
@@ -232,13 +236,18 @@ def test_too_little_beam_is_refused():
         fit_turned_flat(photos, cam.focal_px)
 
 
-def test_wrong_tone_curve_is_refused():
-    # sRGB photos linearised as gamma 2.0: the log differences no longer follow one shading
-    # (IEC 61966-2-1 sRGB has a linear toe that no power law matches)
+def test_wrong_tone_curve_is_flagged():
+    # sRGB photos (IEC 61966-2-1: a linear toe, then a 2.4 power) linearised as a pure gamma 2.0:
+    # the log differences no longer follow one radial shading - the block residual grows well
+    # beyond the right curve's and a warning names the tone curve
     cam, _ = _camera(width=600, height=450)
-    photos = []
-    for k, yaw in enumerate((0.0, 20.0)):
-        photo = decode_photo(_jpeg_bytes(cam, yaw, 0.0, 40 + k), f"g{k}.jpg")
-        photos.append(TurnedPhoto.from_linear(photo.name, linearize(photo, Response("gamma", 2.0))))
-    with pytest.raises(BeamshotError, match="do not match"):
-        fit_turned_flat(photos, cam.focal_px)
+    fits = {}
+    for label, resp in (("right", Response()), ("wrong", Response("gamma", 2.0))):
+        photos = []
+        for k, yaw in enumerate((0.0, 20.0)):
+            photo = decode_photo(_jpeg_bytes(cam, yaw, 0.0, 40 + k), f"g{k}.jpg")
+            photos.append(TurnedPhoto.from_linear(photo.name, linearize(photo, resp)))
+        fits[label] = fit_turned_flat(photos, cam.focal_px)
+    assert fits["wrong"].flat.residual_rms > 2 * fits["right"].flat.residual_rms
+    assert any("tone curve" in w for w in fits["wrong"].warnings)
+    assert not any("tone curve" in w for w in fits["right"].warnings)
