@@ -524,7 +524,8 @@ def fit_turned_flat(photos: list[TurnedPhoto], focal_px: float) -> TurnedFlatFit
                         "(camera response) and keep the light and the exposure fixed")
     if r_max < 0.8:
         warnings.append(f"the beam reached only {r_max:.0%} of the half-diagonal; the shading beyond is "
-                        "extrapolated; turn further so that the beam reaches the corners")
+                        "extrapolated; turn toward a corner (pan and tilt) so that the beam reaches nearer the "
+                        "corners in one photo")
     return TurnedFlatFit(flat=flat, turns=turns, residual_rms_samples=rms, samples=samples, terms=terms,
                          max_radius=float(r_max), uncertainty_at_max_radius=float(u_max), focal_px=float(focal_px),
                          warnings=warnings)
