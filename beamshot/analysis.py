@@ -119,7 +119,8 @@ def analyze(
     except ValueError as exc:
         raise BeamshotError(str(exc)) from None
 
-    prep = prepare_image(photo, ambient=ambient, flat=flat, dark=dark, profile=profile, resp=resp)
+    prep = prepare_image(photo, ambient=ambient, flat=flat, dark=dark, profile=profile, resp=resp,
+                         response_given=response is not None)
     image, beam_photos, beam_photo, inputs, resp = prep.image, prep.beam_photos, prep.beam_photo, prep.inputs, prep.resp
     warnings = list(prep.warnings)
     hdr_note, dark_note, amb_note, flat_note = prep.hdr_note, prep.dark_note, prep.ambient_note, prep.flat_note
