@@ -307,6 +307,7 @@ def analyze(
         "calibration_relative_uncertainty": cal_u,
         "dark_frame": dark_note or "none",
         "response": resp.describe(),
+        "response_source": ratio_source,
         "flat_field": flat_note or (shading_fix if isinstance(shading_fix, str) and shading_fix != "pending" else
                                     "none: lens shading not corrected; its possible effect is in the uncertainties"),
         "uncertainty_terms": [t.to_dict() for t in budget.terms],

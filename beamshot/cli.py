@@ -139,7 +139,10 @@ def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_ac
         return
     names = ", ".join(os.path.basename(p) for p in photos)
     click.echo(f"{names} at {distance_m:g} m")
+    click.echo(f"  tone curve: {report.settings['response']} ({report.calibration.get('response_source', 'assumed')})")
     _print_figures(report)
+    if any(f.status == "estimate" for f in report.figures.values()):
+        click.echo("  ≈ marks an estimate: most of its uncertainty comes from an assumption (see the warnings)")
     if written:
         click.echo(f"wrote {', '.join(written)}")
 
