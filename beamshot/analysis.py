@@ -503,9 +503,14 @@ def _shading_plan(prep, flat_note, profile) -> dict:
     """How lens shading enters the uncertainty: a flat's residual, or the envelope of what may be left in."""
     if isinstance(flat_note, dict):
         res = float(flat_note.get("residual_rms", 0.0) or 0.0)
-        return {"kind": "flat", "natural": False, "corner_depth": 2.0 * res, "factor": 1.0,
-                "acts": "a residual shading of twice the flat fit's RMS residual at the corner, divided out",
-                "size": f"{2 * res:.2%} at the corner"}
+        # a flat whose data stopped short of the corner is extrapolated there: add the envelope's
+        # depth in proportion to the radius not covered (project choice)
+        reach = float(flat_note.get("data_to_radius", 1.0) or 1.0)
+        depth = 2.0 * res + SHADING_CORNER_ENVELOPE * max(0.0, 1.0 - reach)
+        return {"kind": "flat", "natural": False, "corner_depth": depth, "factor": 1.0,
+                "acts": ("a residual shading of twice the flat fit's RMS residual at the corner (plus the envelope "
+                         "in proportion to the radius the flat's data did not reach), divided out"),
+                "size": f"{depth:.2%} at the corner"}
     linear = prep.resp.kind == "linear"
     return {"kind": "envelope", "natural": not linear, "corner_depth": SHADING_CORNER_ENVELOPE,
             "factor": 1.0 / np.sqrt(3.0),

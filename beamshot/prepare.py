@@ -237,7 +237,8 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
                                 f"{bw}x{bh}; use the camera's profile or shoot a flat field for it")
         image = image.divided_by(profile.flat.evaluate(image.shape))
         flat_note = {"from_profile": profile.name, "coefficients": list(profile.flat.coefficients),
-                     "residual_rms": profile.flat.residual_rms}
+                     "residual_rms": profile.flat.residual_rms, "method": profile.flat.method,
+                     "data_to_radius": profile.flat.max_radius}
 
     return PreparedImage(image, beam_photos, beam_photo, inputs, resp, warnings, hdr_note, dark_note, amb_note,
                          flat_note, response_source=source, linearity_rel=linearity)
