@@ -2,16 +2,37 @@
 
 Method (this project's own, documented in docs/figures.md):
 
+0. The black floor (noise clipped at black reads above zero, see :mod:`beamshot.floor`) is
+   subtracted from the profiles, so a faint spill's cut-off keeps its contrast against a dark wall.
 1. Average the map over azimuth sectors of ``SECTOR_DEG``; smooth each sector profile.
 2. A *sharp cut-off* at ``theta`` is a drop of at least ``EDGE_MIN_CONTRAST`` times between
    ``theta - EDGE_PROBE_DEG`` and ``theta + EDGE_PROBE_DEG`` whose log-drop is at least
    ``EDGE_SHARPNESS`` times the log-drop over the same width just inside (a knee, not the
-   steadily steepening flank of a hotspot, whose ratio stays near theta / (theta - 2 probe)).  The outermost
-   such drop is taken; the edge is where the profile crosses the mean of the inner and
-   outer levels (the half-level point of the cut-off).
+   steadily steepening flank of a hotspot, whose ratio stays near theta / (theta - 2 probe)).
+   Levels below 5 noise sigmas of the smoothed profile (the scatter about a smoothed copy) count
+   as that floor, so the contrast a cut-off needs adapts to the noise.  The edge is placed by the
+   equivalent-step (area) rule on the unsmoothed profile (see :func:`_step_position`; for a
+   symmetric edge, its half-level point), or by the half-level crossing of the smoothed profile
+   where that crossing is unambiguous and more precise (a sharp, clean cut-off; see
+   :func:`_sharper_of`).  A cut-off counts only if its step stands ``EDGE_MIN_SIGNIFICANCE``
+   sigmas of its level noise out (noise measured on block sums of the profile itself).  The
+   outermost such cut-off is taken.
 3. With no sharp cut-off, the edge is where the profile falls to ``SPILL_FLOOR_FRACTION`` of
    the peak (or to 5 noise sigmas, whichever is higher), and the method says so.
 4. If the profile leaves the photo first, the edge is not in the photo for that sector.
+5. Sectors whose own profile shows no cut-off (too noisy, or only the threshold rule) are
+   searched again on wider azimuth ranges, ``POOL_DEG`` in turn (the mean of ``n`` adjacent
+   sector profiles has 1/sqrt(n) of their independent noise; the noise is measured again on the
+   pooled profile).  A pooled edge is given to each of its open sectors as kind
+   ``'cutoff_pooled'`` with 1-sigma ``sigma_pool sqrt(n)``: the ``n`` sectors share one
+   measurement, and the independent-sector propagation in :meth:`SpillEdge.full_angle_sigma`
+   then gives back ``sigma_pool`` for their mean (not ``sigma_pool / sqrt(n)``).
+
+Each edge's 1-sigma is the profile noise carried through the rule that placed it - for a
+cut-off, the noise of the window sum and of the two levels over the step height (the integral
+form of noise over local slope); for a threshold crossing, the smoothed noise over the local
+slope - plus the grid step as a uniform quantisation, ``d_theta / sqrt(12)`` (Sheppard), capped
+at ``MAX_SIGMA_DEG``.
 """
 
 from __future__ import annotations
@@ -21,12 +42,13 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
-from .robust import nan_smooth_rows, smoothed_noise_sigma
 from .beammap import BeamMap
+from .floor import BlackFloor, estimate_floor, wall_gain
+from .robust import MAD_TO_SIGMA, nan_smooth_rows, smoothed_noise_sigma
 from .photometry import equal_cone_full_angle
 
-__all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST",
-           "EDGE_SHARPNESS", "SPILL_FLOOR_FRACTION", "SpillEdge", "find_spill_edge"]
+__all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST", "EDGE_SHARPNESS", "SPILL_FLOOR_FRACTION",
+           "POOL_DEG", "MAX_SIGMA_DEG", "EDGE_MIN_SIGNIFICANCE", "SpillEdge", "find_spill_edge"]
 
 SECTOR_DEG = 10.0
 EDGE_PROBE_DEG = 1.5
@@ -35,13 +57,23 @@ EDGE_SHARPNESS = 4.0
 #: Fallback threshold for a beam with no sharp cut-off, as a fraction of peak (project choice).
 SPILL_FLOOR_FRACTION = 0.005
 _SMOOTH_DEG = 0.15
+#: Widths (deg) of the azimuth ranges pooled, in turn, for sectors whose own profile shows no
+#: cut-off above the noise; 360 = the azimuthal mean (project choice).
+POOL_DEG = (30.0, 90.0, 360.0)
+#: A cut-off must stand this many sigmas of its own level noise above the outside (the noise
+#: measured on block sums of the profile, which counts correlated and clipped noise as it is;
+#: the usual 5-sigma detection rule, common practice).
+EDGE_MIN_SIGNIFICANCE = 5.0
+#: Cap of one edge's 1-sigma (a crossing on a flat, noisy stretch; project choice).
+MAX_SIGMA_DEG = 2.0
 
 
 @dataclass(frozen=True)
 class SpillEdge:
     """Spill edge per sector: ``theta[s]`` (rad, NaN if not in the photo) at ``phi[s]``.
 
-    ``kind[s]`` is ``'cutoff'`` (sharp edge), ``'threshold'`` (fallback) or ``'outside'``;
+    ``kind[s]`` is ``'cutoff'`` (sharp edge), ``'cutoff_pooled'`` (sharp edge found on a wider
+    azimuth range, see ``pooled``), ``'threshold'`` (fallback) or ``'outside'``;
     ``sigma[s]`` is the 1-sigma uncertainty (rad); ``coverage[s]`` the largest polar angle
     the photo covers in that sector (rad).
     """
@@ -51,6 +83,10 @@ class SpillEdge:
     sigma: np.ndarray
     kind: tuple[str, ...]
     coverage: np.ndarray
+    #: sectors averaged for each sector's edge (1: its own profile; ``'cutoff_pooled'`` edges more)
+    pooled: np.ndarray | None = None
+    #: black floor (wall units) subtracted from the profiles for the search, 0 if none
+    floor_level: float = 0.0
 
     @property
     def complete(self) -> bool:
@@ -117,18 +153,121 @@ def _crossing(ps: np.ndarray, i: int, level: float, beam: BeamMap, noise: float)
     return t, float(np.hypot(noise / local_slope, beam.d_theta / np.sqrt(12)))
 
 
+def _second_differences(raw: np.ndarray, n: int) -> np.ndarray:
+    """``S(j + 2n) - 2 S(j + n) + S(j)`` for every ``j``, ``S(j)`` the sum of ``raw[j:j + n]`` (NaN
+    where a sample is missing); entry ``j`` uses the samples ``[j, j + 3n)``."""
+    c = np.r_[0.0, np.cumsum(raw)]
+    sums = c[n:] - c[:-n]
+    return sums[2 * n:] - 2.0 * sums[n:-n] + sums[:-2 * n]
+
+
+def _window_sum_variance(d2: np.ndarray, n: int, segments: list[tuple[int, int]]) -> float:
+    """Variance of the sum of ``n`` consecutive profile samples, from the profile's own scatter
+    on the ``segments`` (``(lo, hi)`` sample ranges that leave out the cut-off itself), given the
+    second differences ``d2`` of :func:`_second_differences` at lag ``n``.
+
+    Second differences of running sums at lag ``n`` cancel a linear trend of the profile and have
+    variance ``(1 + 4 + 1) Var(S) = 6 Var(S)`` for noise uncorrelated beyond ``n`` samples
+    (binomial weights of a finite difference); correlated noise (bilinear samples, JPEG blocks)
+    and clipped noise are counted as they are, since sums of many samples are close to normal.
+    The spread is taken robustly (1.4826 MAD, Rousseeuw & Croux 1993).
+    """
+    parts = [d2[max(lo, 0): max(hi - 3 * n + 1, 0)] for lo, hi in segments]
+    d = np.concatenate(parts) if parts else np.empty(0)
+    d = d[np.isfinite(d)]
+    if len(d) < 3:
+        return float("nan")
+    return float((MAD_TO_SIGMA * np.median(np.abs(d - np.median(d)))) ** 2 / 6.0)
+
+
+def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
+                   d2: np.ndarray) -> tuple[float, float, float] | None:
+    """Edge position (rad), its 1-sigma and the step's significance (``D`` over the 1-sigma of
+    ``a - b``) of a cut-off centred near sample ``c`` by the equivalent-step (area) rule, on the
+    unsmoothed profile ``raw``.
+
+    Over the window ``W = [c - k, c + k]`` the profile, scaled to 1 at the inner level ``a`` (mean
+    of the ``h`` samples just inside W) and 0 at the outer level ``b`` (the ``h`` just outside),
+    integrates to the distance from the window's start to the step: ``t = t0 + d_theta S / D`` with
+    ``S = sum_W (p - b)``, ``D = a - b``.  For a symmetric edge (erfc) this is its half-level
+    point; the edge-spread-function view of ISO 12233, where the edge sits at the centroid of the
+    line-spread function.  Being linear in the samples it has no first-passage bias, and its
+    1-sigma follows from the noise: ``var t = (d_theta / D)^2 [V_W + (S/D)^2 V_a + (S/D - N)^2 V_b]``
+    (first-order propagation; ``V`` the variances of the window sum and of the level means, from
+    ``d2``, the second differences of ``h``-sample sums, short enough that the profile's curvature
+    does not enter; the window sum's scaled by ``n / h``, as for noise correlated over less than
+    ``h`` samples - the bilinear samples and JPEG's 8-pixel blocks are).
+    """
+    h = max(2, k // 2)
+    w0, w1 = c - k, c + k + 1
+    if w1 + h > last:  # near the photo's border: a shorter outer half-window, if the cut-off fits
+        w1 = last - h
+        if w1 - c < max(2, k // 2):
+            return None
+    if w0 - h < 0:
+        return None
+    n = w1 - w0
+    win, inner, outer = raw[w0:w1], raw[w0 - h:w0], raw[w1:w1 + h]
+    if not (np.all(np.isfinite(win)) and np.all(np.isfinite(inner)) and np.all(np.isfinite(outer))):
+        return None
+    a, b = float(inner.mean()), float(max(outer.mean(), 0.0))
+    d = a - b
+    if d <= 0:
+        return None
+    ratio = float(np.clip((win.sum() - n * b) / d, 0.0, n))
+    t = beam.theta[w0] - beam.d_theta / 2 + ratio * beam.d_theta
+    v_h = _window_sum_variance(d2, h, [(lo, w0 - h), (w1 + h, last)])
+    if not np.isfinite(v_h):
+        return None
+    v_n = v_h * n / h
+    var_mean = v_h / h**2
+    var = (beam.d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
+    significance = d / np.sqrt(2.0 * var_mean) if var_mean > 0 else np.inf
+    return float(t), float(np.sqrt(var + beam.d_theta**2 / 12.0)), float(significance)
+
+
+def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, d2: np.ndarray, k: int, sm: float,
+                start: int, last: int, beam: BeamMap) -> tuple[float, float]:
+    """The area-rule edge ``step`` or, if it is the more precise of the two, the half-level crossing
+    of the smoothed profile ``ps`` between the levels at ``c -+ EDGE_PROBE_DEG`` (``c`` the
+    cut-off's steepest point).
+
+    The crossing sees the noise only where the profile falls, so for a sharp, clean cut-off it is
+    the more precise; it is used only when the smoothed profile crosses the level once within
+    ``EDGE_PROBE_DEG`` of the edge (no first-passage ambiguity).  Its 1-sigma: the smoothed noise
+    (per-sample noise from ``d2`` over ``sqrt(2 sqrt(pi) sm)``, the white-noise gain of the Gaussian
+    smoothing) on the crossing sample and, halved, on the two levels, over the local slope, plus
+    the grid step (:func:`_crossing`).
+    """
+    if c - k < 0 or c + k >= last:
+        return step[0], step[1]
+    h = max(2, k // 2)
+    level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
+    seg = ps[c - k: c + k + 1]
+    flips = np.nonzero(np.diff((seg < level).astype(int)) != 0)[0]
+    if len(flips) != 1 or not seg[flips[0] + 1] < level:
+        return step[0], step[1]
+    v_h = _window_sum_variance(d2, h, [(start, c - k - h), (c + k + 1 + h, last)])
+    if not np.isfinite(v_h):
+        return step[0], step[1]
+    noise = np.sqrt(1.5 * v_h / h / (2.0 * np.sqrt(np.pi) * sm))
+    t, sig = _crossing(ps, c - k + flips[0] + 1, level, beam, noise)
+    return (t, sig) if sig < step[1] else (step[0], step[1])
+
+
 def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray, lasts: np.ndarray,
-                   k: int) -> np.ndarray:
-    """Per sector, the index of the steepest point of the outermost sharp cut-off (-1 if none).
+                   k: int) -> list[list[int]]:
+    """Per sector, the index of the steepest point of each run of sharp cut-off candidates,
+    outermost first (an empty list if none).
 
     A candidate ``j`` (from ``max(start, 3k)`` to ``last - k - 1``) drops at least
     ``EDGE_MIN_CONTRAST`` times from ``j - k`` to ``j + k``, by at least ``EDGE_SHARPNESS``
-    times the log-drop from ``j - 3k`` to ``j - k``, and starts at least 3 floors up.  Of the
-    outermost contiguous run of candidates, the point of steepest fall is returned.
+    times the log-drop from ``j - 3k`` to ``j - k``, and starts at least 3 floors up.  Of each
+    contiguous run of candidates, the point of steepest fall is returned.
     """
     n_sec, n_t = smoothed.shape
     j = np.arange(n_t)
-    out = np.full(n_sec, -1)
+    out = [[] for _ in range(n_sec)]
     if n_t < 4 * k + 1:
         return out
     f = floors[:, None]
@@ -146,15 +285,17 @@ def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray,
     for s in np.nonzero(ok.any(axis=1))[0]:
         cand = jj[ok[s]]
         breaks = np.nonzero(np.diff(cand) > 1)[0]
-        run = cand[breaks[-1] + 1:] if len(breaks) else cand
-        slope = smoothed[s, run - 1] - smoothed[s, run + 1]  # steepest in linear units: mid-point of the cut-off
-        out[s] = int(run[np.argmax(slope)])
+        picks = []
+        for run in np.split(cand, breaks + 1)[::-1]:  # outermost run first
+            slope = smoothed[s, run - 1] - smoothed[s, run + 1]  # steepest in linear units: mid-point of the cut-off
+            picks.append(int(run[np.argmax(slope)]))
+        out[s] = picks
     return out
 
 
-def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
-    """Find the outer spill edge in every sector (see module docstring)."""
-    phi, profiles = _sector_profiles(beam)
+def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
+    """Steps 1-4 of the module docstring on each row of ``profiles`` (mean radial profiles in map
+    units, floor removed): edge ``theta``, its 1-sigma, kind, coverage and noise per row."""
     step_deg = np.degrees(beam.d_theta)
     k = max(1, int(round(EDGE_PROBE_DEG / step_deg)))
     sm = max(0.5, _SMOOTH_DEG / step_deg)
@@ -185,13 +326,17 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
         ps = smoothed[s, :last]
         noise, floor, start = noises[s], floors[s], int(starts[s])
         found = None
-        if chosen[s] >= 0:
-            c = int(chosen[s])
-            level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
-            seg = ps[c - k: c + k + 1]
-            below = np.nonzero(seg < level)[0]
-            if len(below) and below[0] > 0:
-                found = (*_crossing(ps, c - k + below[0], level, beam, noise), "cutoff")
+        d2 = _second_differences(profiles[s, :last], max(2, k // 2)) if chosen[s] else None
+        for c in chosen[s]:  # the outermost cut-off that stands out of the noise
+            # (None: too close to the photo's border to see the outside level)
+            step = _step_position(profiles[s], c, k, start, last, beam, d2)
+            if step is not None:  # once more with the window centred on the edge found
+                centred = int(np.floor((step[0] - beam.theta[0]) / beam.d_theta + 0.5))
+                if centred != c:
+                    step = _step_position(profiles[s], centred, k, start, last, beam, d2) or step
+            if step is not None and step[2] >= EDGE_MIN_SIGNIFICANCE:
+                found = (*_sharper_of(step, c, ps, d2, k, sm, start, last, beam), "cutoff")
+                break
         if found is None:
             level = max(SPILL_FLOOR_FRACTION * peak_value, floor)
             j0 = start
@@ -201,6 +346,44 @@ def find_spill_edge(beam: BeamMap, peak_value: float) -> SpillEdge:
         if found is None:
             kinds.append("outside")
             continue
-        theta[s], sigma[s] = found[0], min(found[1], np.radians(2.0))
+        theta[s], sigma[s] = found[0], min(found[1], np.radians(MAX_SIGMA_DEG))
         kinds.append(found[2])
-    return SpillEdge(phi=phi, theta=theta, sigma=sigma, kind=tuple(kinds), coverage=coverage)
+    return theta, sigma, kinds, coverage, noises
+
+
+def find_spill_edge(beam: BeamMap, peak_value: float, *, floor: BlackFloor | None = None,
+                    bin_factor: int = 1) -> SpillEdge:
+    """Find the outer spill edge in every sector (see module docstring).
+
+    ``floor`` is the map's black floor (:func:`beamshot.floor.estimate_floor`); by default it is
+    estimated here from the darkest annulus.  It is subtracted from the profiles for the search
+    only (a map already unclipped by :func:`beamshot.floor.remove_floor` has none left).
+    """
+    phi, profiles = _sector_profiles(beam)
+    fl = estimate_floor(beam, bin_factor=bin_factor) if floor is None else floor
+    level = fl.level if fl.clipped_noise else 0.0
+    if level:
+        profiles = profiles - level * wall_gain(beam)[:, 0][None, :]
+    theta, sigma, kinds, coverage, _ = _detect(beam, profiles, peak_value)
+    n_sec = len(phi)
+    pooled = np.ones(n_sec, int)
+    for width in POOL_DEG:
+        n_pool = int(round(width / SECTOR_DEG))
+        open_ = np.array([kd not in ("cutoff", "cutoff_pooled") for kd in kinds])
+        if n_pool <= 1 or not open_.any():
+            continue
+        n_pool = min(n_pool, n_sec)
+        groups = [np.arange(g, min(g + n_pool, n_sec)) for g in range(0, n_sec, n_pool)]
+        groups = [m for m in groups if open_[m].any()]
+        # mean of adjacent sector profiles: NaN where any member is outside the photo
+        g_prof = np.stack([profiles[m].mean(axis=0) for m in groups])
+        g_theta, g_sigma, g_kind, _, _ = _detect(beam, g_prof, peak_value)
+        for m, t, sg, kd in zip(groups, g_theta, g_sigma, g_kind):
+            if kd != "cutoff":
+                continue
+            for s in m[open_[m]]:
+                # len(m) sectors share one measurement: sigma * sqrt(len(m)) per sector, so the
+                # independent-sector propagation of the full angle gives back sigma for the group
+                theta[s], sigma[s], kinds[s], pooled[s] = t, sg * np.sqrt(len(m)), "cutoff_pooled", len(m)
+    return SpillEdge(phi=phi, theta=theta, sigma=sigma, kind=tuple(kinds), coverage=coverage, pooled=pooled,
+                     floor_level=level)
