@@ -30,6 +30,7 @@ from .scale import no_scale, scale_from_camera_constant, scale_from_exposure, sc
 from .target import detect_markers
 from .wall import homography_mapping, parse_wall_points, pinhole_mapping
 from .wall_setup import focal_for, grey, markers_left_in, markers_still_there, marker_mapping, mask_quads
+from .floor import floor_corrected
 from .frames import beam_to_wall
 from .measure import shape_values
 from .uncertainty import (ASSUMED_RESPONSE_EXPONENT_SIGMA, RATIO_SPAN, SHADING_CORNER_ENVELOPE, absolute_values,
@@ -351,6 +352,11 @@ def _with_lens(mapping, lens):
     return replace(mapping, distortion=lens, method=mapping.method + "; lens distortion corrected")
 
 
+def _beam_map(image: LinearImage, mapping, foot_mm, distance_m: float, **kw):
+    """The intensity map (beammap.py) with the black floor of clipped noise removed (floor.py)."""
+    return floor_corrected(build_beam_map(image, mapping, foot_mm, distance_m, **kw), bin_factor=image.bin_factor)[0]
+
+
 @dataclass(frozen=True)
 class _Measured:
     """What the wall-to-intensity chain gives: beam axis, intensity map, its shape, light pose, and
@@ -374,7 +380,7 @@ class _Measured:
 
     def remeasure(self, *, image=None, mapping=None, distance_m=None, tone: float = 0.0):
         """Shape of the map rebuilt with any of the inputs replaced, and optionally a tone error."""
-        beam = build_beam_map(self.image if image is None else image, self.mapping if mapping is None else mapping,
+        beam = _beam_map(self.image if image is None else image, self.mapping if mapping is None else mapping,
                               self.foot_mm, self.distance_m if distance_m is None else distance_m,
                               axis_dir=self.axis_dir)
         if tone:
@@ -398,7 +404,7 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
     axis = find_beam_axis(image.luminance, mapping, image.bin_factor, name=name)
     if axis.ellipse_axes_mm is None:
         warnings.append("the spill edge is not visible enough to centre on; the beam axis is the hotspot centre")
-    beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
+    beam = _beam_map(image, mapping, axis.centre_mm, distance_m)
     shape_ = measure_shape(beam)
     pose = None
     if assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION:
@@ -414,7 +420,7 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
             if pose is None or not pose.significant:
                 break
             rebuilt = True
-            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
+            beam = _beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
             shape_ = measure_shape(beam)
             if not shape_.edge.complete:
                 break
@@ -423,10 +429,10 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
                                          pose.axis, distance_m)[0])
             pose = fit_light_pose(pts, distance_m, tuple(np.mean(pts, axis=0)), peak_mm, anisotropy=aniso)
         if pose is not None and pose.significant:
-            beam = build_beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
+            beam = _beam_map(image, mapping, pose.foot_mm, distance_m, axis_dir=pose.axis)
             shape_ = measure_shape(beam)
         elif rebuilt:
-            beam = build_beam_map(image, mapping, axis.centre_mm, distance_m)
+            beam = _beam_map(image, mapping, axis.centre_mm, distance_m)
             shape_ = measure_shape(beam)
         if pose is not None and pose.significant and pose.tilt_deg > TILT_WARN_DEG:
             warnings.append(f"the light is tilted {pose.tilt_deg:.1f} deg against the wall's normal; the "

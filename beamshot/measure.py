@@ -198,9 +198,12 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
             figs[key] = fig(key, "deg", method)
     # ---- spill angle
     edge = shape.edge
+    pooled = sum(k == "cutoff_pooled" for k in edge.kind) / max(len(edge.kind), 1)
     edge_method = ("outer spill edge: half-level point of the sharpest outer cut-off in 36 azimuth sectors "
-                   f"({edge.sharp_fraction:.0%} of sectors show a sharp cut-off; the rest use the 0.5 % of peak "
-                   "threshold); full angle of the cone of equal solid angle")
+                   f"({edge.sharp_fraction:.0%} of sectors show a sharp cut-off of their own"
+                   + (f", {pooled:.0%} one found on wider azimuth ranges where a sector alone is too noisy"
+                      if pooled else "")
+                   + "; the rest use the 0.5 % of peak threshold); full angle of the cone of equal solid angle")
     if edge.complete:
         figs["spill_angle"] = fig("spill_angle", "deg", edge_method)
     else:
