@@ -33,14 +33,14 @@ def _jpeg(pattern, scene, cam, seed=3, quality=90):
 
 
 @pytest.fixture
-def floor_wired(monkeypatch):
-    """Every beam map of analyze() goes through floor_corrected (as the analysis is to wire it)."""
-    build = analysis.build_beam_map
+def floor_wired():
+    """analyze() removes the floor from every beam map itself (analysis._beam_map); kept as a marker."""
 
-    def wired(image, *args, **kwargs):
-        return floor_corrected(build(image, *args, **kwargs), bin_factor=image.bin_factor)[0]
 
-    monkeypatch.setattr(analysis, "build_beam_map", wired)
+@pytest.fixture
+def floor_off(monkeypatch):
+    """analyze() without the floor correction, to see what it removes."""
+    monkeypatch.setattr(analysis, "floor_corrected", lambda beam, edge=None, **kw: (beam, None))
 
 
 # ------------------------------------------------------------------ the censored normal
@@ -217,7 +217,7 @@ def test_narrow_thrower_dark_wall_reads_zero(narrow_thrower_shot, floor_wired):
     assert abs(_beyond_edge_level(rep)) <= 5e-5
 
 
-def test_narrow_thrower_floor_is_there_without_the_correction(narrow_thrower_shot):
+def test_narrow_thrower_floor_is_there_without_the_correction(narrow_thrower_shot, floor_off):
     # the uncorrected map shows the floor of clipped noise (about 0.03-0.06 % of the peak here)
     scene, truth, photo = narrow_thrower_shot
     rep = analyze(photo, distance_m=scene.distance_m, lux_at_peak=truth["peak_lux_on_wall"])
@@ -232,8 +232,8 @@ def dim_noisy_shot():
 
 @pytest.mark.parametrize("wired", [False, True])
 def test_dim_noisy_photo_finds_the_spill_edge(dim_noisy_shot, wired, request):
-    if wired:
-        request.getfixturevalue("floor_wired")
+    if not wired:
+        request.getfixturevalue("floor_off")
     scene, truth, photo = dim_noisy_shot
     rep = analyze(photo, distance_m=scene.distance_m, lux_at_peak=truth["peak_lux_on_wall"])
     edge = rep.contours["edge"]
