@@ -205,13 +205,13 @@ def shading_gain(shape: tuple[int, int], bin_factor: int, full_shape: tuple[int,
     h, w = shape
     height, width = full_shape
     b = bin_factor
-    x = np.arange(w) * b + (b - 1) / 2.0 - (width - 1) / 2.0
-    y = np.arange(h) * b + (b - 1) / 2.0 - (height - 1) / 2.0
+    x = (np.arange(w) * b + (b - 1) / 2.0 - (width - 1) / 2.0).astype(np.float32)
+    y = (np.arange(h) * b + (b - 1) / 2.0 - (height - 1) / 2.0).astype(np.float32)
     d2 = x[None, :] ** 2 + y[:, None] ** 2
-    v = 1.0 - corner_depth * d2 / (((width - 1) / 2.0) ** 2 + ((height - 1) / 2.0) ** 2)
+    v = 1.0 - np.float32(corner_depth / (((width - 1) / 2.0) ** 2 + ((height - 1) / 2.0) ** 2)) * d2
     if natural and focal_px:
-        v = v / (1.0 + d2 / focal_px**2) ** 2
-    return v.astype(np.float32)
+        v /= np.square(1.0 + d2 * np.float32(1.0 / focal_px**2))
+    return v.astype(np.float32, copy=False)
 
 
 def with_luminance(image: LinearImage, luminance: np.ndarray) -> LinearImage:
