@@ -110,6 +110,8 @@ def analyze(
         raise BeamshotError("give either --focal-35mm or --hfov, not both")
     if lux_at_peak is not None and reflectance is not None:
         raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
+    _check_positive("head diameter", head_diameter_mm, None, 2000.0, " mm")
+    _check_positive("target scale", target_scale, 0.2, 5.0, " (printed size over nominal, e.g. 0.98)")
     if geometry is not None and wall_points is not None:
         raise BeamshotError("give either --geometry or --wall-points, not both")
     profile = camera if isinstance(camera, CameraProfile) else load_profile(camera)

@@ -139,12 +139,14 @@ def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_ac
         return
     names = ", ".join(os.path.basename(p) for p in photos)
     click.echo(f"{names} at {distance_m:g} m")
-    click.echo(f"  tone curve: {report.settings['response']} ({report.calibration.get('response_source', 'assumed')})")
+    click.echo(f"  tone curve: {report.settings['response']}; {report.calibration.get('response_source', 'assumed')}")
     _print_figures(report)
     if any(f.status == "estimate" for f in report.figures.values()):
         click.echo("  ≈ marks an estimate: most of its uncertainty comes from an assumption (see the warnings)")
     if written:
         click.echo(f"wrote {', '.join(written)}")
+    else:
+        click.echo("no files written; give --out DIR for report.json, profile.csv and beam.png")
 
 
 @cli.command()
@@ -185,7 +187,9 @@ def demo(out_dir):
             err = (fig.value - truth) / truth
             click.echo(f"  {key:18s} {fig.text(3):>24s} {truth:>10.4g} {err:>+8.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}/")
-    click.echo(f"\ndone in {time.perf_counter() - start:.1f} s; open {out_dir}/*/beam.png")
+    click.echo("\n≈ marks an estimate: most of its uncertainty comes from an assumption (here the assumed tone "
+               "curve and lens shading of an uncalibrated camera); see each report's warnings")
+    click.echo(f"done in {time.perf_counter() - start:.1f} s; open {out_dir}/*/beam.png")
 
 
 @cli.command()

@@ -170,7 +170,9 @@ def term_from_change(source: str, acts: str, size: str, base: dict[str, float], 
     for key, b in base.items():
         m = moved.get(key)
         if m is not None and np.isfinite(b) and np.isfinite(m):
-            deltas[key] = float(factor * (m - b))
+            d = float(factor * (m - b))
+            if abs(d) > 1e-9 * max(abs(b), 1e-30):  # below that it is floating-point noise, not an effect
+                deltas[key] = d
     return Term(source, acts, size, shared, assumption, deltas)
 
 

@@ -111,3 +111,18 @@ def test_newer_report_schema_refused(tmp_path):
 
     with pytest.raises(BeamshotError, match="newer beamshot"):
         read_report_json(path)
+
+
+def test_far_field_given_a_photo_is_one_line(photos):
+    paths, _ = photos
+    res = CliRunner().invoke(cli, ["far-field", str(paths["beam"]), str(paths["beam"])])
+    assert res.exit_code == 2 and "not a beamshot report.json" in res.output
+    assert "Traceback" not in res.output and len(res.output.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("option, value", [("--head-diameter", "-2"), ("--head-diameter", "0"),
+                                           ("--target-scale", "0"), ("--target-scale", "-1")])
+def test_nonsense_sizes_are_refused(photos, option, value):
+    paths, _ = photos
+    res = CliRunner().invoke(cli, ["analyze", str(paths["beam"]), "--distance", "5", option, value])
+    assert res.exit_code == 2 and "Traceback" not in res.output

@@ -37,8 +37,15 @@ def read_report_json(path) -> dict:
     try:
         with open(path, encoding="utf-8") as fh:
             data = json.load(fh)
-    except (OSError, json.JSONDecodeError) as exc:
-        raise BeamshotError(f"{path}: not a readable report ({exc})") from None
+    except FileNotFoundError:
+        raise BeamshotError(f"{path}: no such file; check the path") from None
+    except IsADirectoryError:
+        raise BeamshotError(f"{path}: is a folder; give the report.json inside it") from None
+    except OSError as exc:
+        raise BeamshotError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    except (UnicodeDecodeError, json.JSONDecodeError):
+        raise BeamshotError(f"{path}: not a beamshot report.json (a photo or another file?); run "
+                            "'beamshot analyze ... --out DIR' first and give DIR/report.json") from None
     if not isinstance(data, dict) or data.get("schema") != SCHEMA_NAME:
         raise BeamshotError(f"{path}: not a beamshot report")
     major = str(data.get("schema_version", "0")).split(".")[0]
