@@ -178,8 +178,8 @@ def homography_mapping(image_xy: np.ndarray, wall_mm: np.ndarray, *, method: str
     rel = max(rms, 0.05) / span * np.sqrt(4.0 / len(src))
     # orientation sanity: a mirrored mapping has a negative determinant of the linear part
     if np.linalg.det(h[:2, :2] / h[2, 2]) > 0:
-        raise BeamshotError(f"{name}: the mapping is mirrored; the photo is flipped or the points are in the "
-                            "wrong order (give them clockwise from the top left)")
+        raise BeamshotError(f"{name}: the mapping is mirrored; wall coordinates have x to the right and y UP "
+                            "(mm), image pixels y down - check the signs of the wall y values, or the photo is flipped")
     return WallMapping(homography=h / h[2, 2], method=f"{method}; re-projection {rms:.2f} mm RMS over {len(src)} points",
                        scale_uncertainty=float(rel))
 
