@@ -44,7 +44,10 @@ How the sources act (the budget table in docs/figures.md lists their sizes):
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
+from functools import partial
 from typing import Callable
 
 import numpy as np
@@ -92,6 +95,7 @@ WALL_POINT_DRAWS = 8
 #: A figure is an estimate when assumptions make up more than this share of its variance.
 ASSUMPTION_SHARE_FOR_ESTIMATE = 0.5
 
+_WORKERS = max(1, min(2, os.cpu_count() or 1))
 _ABSOLUTE_KEYS = ("peak_intensity", "beam_distance", "hotspot_flux", "spill_flux", "beam_flux")
 
 
@@ -252,16 +256,60 @@ def build_budget(measured, *, scale: AbsoluteScale, lux_at_peak: float | None, d
     distance, so moving D moves the camera too.  ``shading`` is ``{"kind": "envelope" | "flat" |
     "none", "natural": bool, "corner_depth": float, "factor": float, "size": str}``.
     """
-    from .measure import noise_deltas
-
     shape = measured.shape
     base = measured.values(scale, lux_at_peak)
-    terms: list[Term] = []
 
-    def again(**kw) -> dict:
+    def again_now(**kw) -> dict:
         d = kw.pop("distance_m", None)
         return measured.values(scale, lux_at_peak, measured.remeasure(distance_m=d, **kw), d)
 
+    # every re-measurement is submitted first and runs on both cores (the map, contour and edge work
+    # is numpy/OpenCV that releases the GIL for much of its time)
+    pool = ThreadPoolExecutor(max_workers=_WORKERS)
+    again = partial(pool.submit, again_now)
+    jobs: dict = {}
+    d2 = distance_m + distance_u_m
+    if distance_u_m > 0:
+        jobs["distance"] = again(distance_m=d2, mapping=mapping_stretched(measured.mapping, d2 / distance_m,
+                                                                          measured.foot_mm) if camera_beside else None)
+    if camera_distance_m is not None and distance_u_m > 0:
+        jobs["camera"] = again(mapping=mapping_stretched(measured.mapping, 1.0 + distance_u_m / camera_distance_m,
+                                                         measured.foot_mm))
+    if wall_scale_u > 0:
+        jobs["scale"] = again(mapping=mapping_stretched(measured.mapping, 1.0 + wall_scale_u, measured.foot_mm))
+    eps = ratio_delta / np.log(RATIO_SPAN)
+    if ratio_delta > 0:
+        jobs["tone"] = again(tone=eps)
+    if shading["kind"] != "none":
+        gain = shading_gain(measured.image.shape, measured.image.bin_factor, measured.image.full_shape, focal_px,
+                            natural=shading["natural"], corner_depth=shading["corner_depth"])
+        jobs["shading"] = again(image=with_luminance(measured.image, measured.image.luminance / gain))
+    if wall_points is not None:
+        from .wall import homography_mapping
+
+        img_pts, wall_pts = wall_points
+        rng = np.random.default_rng(12345)
+        jobs["points"] = []
+        for _ in range(WALL_POINT_DRAWS):
+            jitter = img_pts + rng.normal(0.0, WALL_POINT_CLICK_SIGMA_PX, img_pts.shape)
+            try:
+                m = homography_mapping(jitter, wall_pts, method="jittered")
+            except Exception:  # noqa: BLE001 - a degenerate draw is skipped
+                continue
+            jobs["points"].append(again(mapping=replace(m, distortion=measured.mapping.distortion)))
+    try:
+        return Budget(tuple(_terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m,
+                                   camera_beside, wall_scale_u, ratio_delta, ratio_assumed, eps, shading, pixel_deg)))
+    finally:
+        pool.shutdown(wait=True)
+
+
+def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m, camera_beside, wall_scale_u,
+           ratio_delta, ratio_assumed, eps, shading, pixel_deg) -> list[Term]:
+    """The terms, in budget order, from the submitted re-measurements ``jobs``."""
+    from .measure import noise_deltas
+
+    terms: list[Term] = []
     # ---- pixel noise: contour and edge crossings, zone boundaries
     nd = noise_deltas(shape)
     k = scale_factor(scale, base["peak_rel"], measured.cos_incidence(shape.peak), distance_m, lux_at_peak)
@@ -282,38 +330,23 @@ def build_budget(measured, *, scale: AbsoluteScale, lux_at_peak: float | None, d
         terms.append(Term("peak fit noise", "scales the relative peak", f"{rel_noise:.2%}", False, False, pk_d))
     # ---- distance to the wall
     if distance_u_m > 0:
-        d2 = distance_m + distance_u_m
-        moved_mapping = (mapping_stretched(measured.mapping, d2 / distance_m, measured.foot_mm)
-                         if camera_beside else None)
-        moved = again(distance_m=d2, mapping=moved_mapping)
+        moved = jobs["distance"].result()
         acts = ("map rebuilt at D + u(D); the camera beside the light sees the wall scaled with D" if camera_beside
                 else "map rebuilt at D + u(D) on a wall scale fixed by the target or points")
         terms.append(term_from_change("distance to the wall", acts, f"{distance_u_m:g} m", base, moved, shared=False))
     # ---- camera distance given separately (square camera, pinhole mapping)
-    if camera_distance_m is not None and distance_u_m > 0:
-        moved = again(mapping=mapping_stretched(measured.mapping, 1.0 + distance_u_m / camera_distance_m,
-                                                measured.foot_mm))
+    if "camera" in jobs:
+        moved = jobs["camera"].result()
         terms.append(term_from_change("camera-to-wall distance", "wall scale stretched by u(Dc)/Dc",
                                       f"{distance_u_m:g} m", base, moved))
     # ---- wall scale: focal length, or the target's pose/homography
     if wall_scale_u > 0:
-        moved = again(mapping=mapping_stretched(measured.mapping, 1.0 + wall_scale_u, measured.foot_mm))
+        moved = jobs["scale"].result()
         terms.append(term_from_change("wall scale (focal length or target)", "wall lengths about the beam's foot "
                                       "stretched by 1 + u", f"{wall_scale_u:.2%}", base, moved))
     # ---- hand-placed wall points: re-fit the mapping with each point moved
-    if wall_points is not None:
-        from .wall import homography_mapping
-
-        img_pts, wall_pts = wall_points
-        rng = np.random.default_rng(12345)
-        draws = []
-        for _ in range(WALL_POINT_DRAWS):
-            jitter = img_pts + rng.normal(0.0, WALL_POINT_CLICK_SIGMA_PX, img_pts.shape)
-            try:
-                m = homography_mapping(jitter, wall_pts, method="jittered")
-            except Exception:  # noqa: BLE001 - a degenerate draw is skipped
-                continue
-            draws.append(again(mapping=replace(m, distortion=measured.mapping.distortion)))
+    if "points" in jobs:
+        draws = [job.result() for job in jobs["points"]]
         terms.append(spread_term("wall points placed by hand", "each point moved by the click accuracy, mapping "
                                  "re-fitted", f"{WALL_POINT_CLICK_SIGMA_PX:g} px per point, {len(draws)} draws",
                                  base, draws))
@@ -328,20 +361,17 @@ def build_budget(measured, *, scale: AbsoluteScale, lux_at_peak: float | None, d
                           True, scale.kind == "exposure_metadata", {key: v for key, v in sd.items() if np.isfinite(v)}))
     # ---- tone curve
     if ratio_delta > 0:
-        eps = ratio_delta / np.log(RATIO_SPAN)
-        moved = again(tone=eps)
+        moved = jobs["tone"].result()
         size = (f"assumed curve, gamma error {ratio_delta / np.log(RATIO_SPAN):.3g}" if ratio_assumed else
                 f"{ratio_delta:.1%} ratio error over 1:{RATIO_SPAN:g}")
         terms.append(term_from_change("tone curve", "intensity ratios bent by a power law I (I/Ipeak)^eps", size,
                                       base, moved, shared=not ratio_assumed, assumption=ratio_assumed))
     # ---- lens shading
     if shading["kind"] != "none":
-        gain = shading_gain(measured.image.shape, measured.image.bin_factor, measured.image.full_shape, focal_px,
-                            natural=shading["natural"], corner_depth=shading["corner_depth"])
-        moved = again(image=with_luminance(measured.image, measured.image.luminance / gain))
+        moved = jobs["shading"].result()
         terms.append(term_from_change("lens shading", shading["acts"], shading["size"], base, moved,
                                       factor=shading["factor"], shared=True, assumption=shading["kind"] == "envelope"))
     # ---- pixel footprint
     if pixel_deg > 0:
         terms.append(angle_footprint_term(base, pixel_deg))
-    return Budget(tuple(terms))
+    return terms
