@@ -10,7 +10,7 @@ beam width (narrow, medium, wide); lens shading left in (cos^4 plus 10 % at the 
 flat field; a tone curve other than the assumed sRGB (gamma 2.0 or 2.4); JPEG quality 75 or 92;
 room light with a light-off photo; the light-to-wall distance off by a tape error; a lux reading
 off by the meter's error (or no meter: the exposure-metadata estimate); an oblique camera whose
-wall is mapped by four points picked to whole pixels.
+wall is mapped by four points picked to whole pixels, or by the printed target in a geometry photo.
 """
 
 from __future__ import annotations
@@ -49,6 +49,8 @@ class Case:
     lux_factor: float | None
     wall_points: bool
     seed: int
+    #: oblique camera mapped by the printed target (a geometry photo, target printed at 2x) instead of points
+    target: bool = False
 
 
 def draw_case(seed: int) -> Case:
@@ -80,10 +82,15 @@ def draw_case(seed: int) -> Case:
     t = exposure_time_for_peak(pattern, scene, cam, target=float(rng.uniform(0.6, 0.9)))
     cam = replace(cam, exposure_time_s=t)
     lux = float(1.0 + rng.normal(0.0, METER_SIGMA)) if rng.random() < 0.75 else None
+    quality = int(rng.choice([75, 92]))
+    stated = float(distance + rng.normal(0.0, TAPE_SIGMA_M))
+    target = oblique and seed % 2 == 1  # every other oblique camera is mapped by the target
+    if target:  # the markers need more pixels: a 4.3 MP camera
+        cam = replace(cam, width_px=2400, height_px=1800, supersample=1)
+        cam = replace(cam, exposure_time_s=exposure_time_for_peak(pattern, scene, cam, target=0.8))
     name = (f"{kind}{'-shaded' if shading else ''}{f'-gamma{response.gamma:g}' if response.kind != 'srgb' else ''}"
-            f"{'-ambient' if ambient else ''}{'-oblique' if oblique else ''}")
-    return Case(name, pattern, scene, cam, int(rng.choice([75, 92])), ambient,
-                float(distance + rng.normal(0.0, TAPE_SIGMA_M)), lux, oblique, seed)
+            f"{'-ambient' if ambient else ''}{'-oblique-target' if target else '-oblique-points' if oblique else ''}")
+    return Case(name, pattern, scene, cam, quality, ambient, stated, lux, oblique and not target, seed, target)
 
 
 def _project(cam: SynthCamera, wall_m: np.ndarray, distance_m: float) -> np.ndarray:
@@ -106,6 +113,13 @@ def run_case(case: Case) -> list[dict]:
                                                  case.camera, quality=case.quality), "off.jpg")
     if case.lux_factor is not None:
         kw["lux_at_peak"] = truth["peak_lux_on_wall"] * case.lux_factor
+    if case.target:
+        geo_scene = Scene(distance_m=case.scene.distance_m, ambient_lux=150.0, target_at_mm=(0.0, 0.0),
+                          target_print_scale=2.0)
+        gcam = replace(case.camera, exposure_time_s=1 / 30, supersample=2)
+        kw["geometry"] = decode_photo(encode_jpeg(render_photo(HotspotSpillBeam(peak_cd=0.0), geo_scene, gcam,
+                                                               seed=case.seed + 11), gcam, quality=92), "geometry.jpg")
+        kw["target_scale"] = 2.0
     if case.wall_points:
         d = case.scene.distance_m
         wall = np.array([[-1.2, 0.9], [1.2, 0.9], [1.2, -0.9], [-1.2, -0.9]])

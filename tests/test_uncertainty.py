@@ -194,3 +194,16 @@ def test_shading_left_in_is_inside_the_uncertainty():
         assert abs(f.value - truth[tkey]) <= 2 * f.uncertainty, (key, f.value, truth[tkey], f.uncertainty)
         assert "lens shading" in dict(f.budget)
     assert any("no flat field" in w for w in rep.warnings)
+
+
+def test_budget_tone_curve_and_footprint_act_where_the_table_says(beside):
+    photo, truth, rep = beside
+    # a tone error bends intensity ratios: Ra and the spill flux move; the peak at a lux reading,
+    # E D^2 / cos^3 at the metered point, does not depend on any ratio (IES 9.1.1/9.1.2)
+    assert _term(rep, "ra", "tone curve") > 0.01 * rep["ra"].value
+    assert _term(rep, "peak_intensity", "tone curve") < 1e-6 * rep["peak_intensity"].value
+    # the pixel footprint blurs contour edges: angles only, 2 p / sqrt(12) per full angle (uniform)
+    p = _term(rep, "hotspot_angle", "pixel footprint") * np.sqrt(12) / 2
+    assert 0.01 < p < 0.5  # degrees per working pixel of a 1200 px photo at 16 mm-equivalent
+    assert _term(rep, "spill_angle", "pixel footprint") == pytest.approx(2 * p / np.sqrt(12), rel=1e-9)
+    assert _term(rep, "beam_flux", "pixel footprint") == 0.0
