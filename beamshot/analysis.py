@@ -128,14 +128,22 @@ def analyze(
     warnings = list(prep.warnings)
     hdr_note, dark_note, amb_note, flat_note = prep.hdr_note, prep.dark_note, prep.ambient_note, prep.flat_note
 
-    # ---- raw and linear photos keep the lens's natural cos^4 fall-off, which the focal length fixes
-    shading_fix = "pending" if prep.resp.kind == "linear" and flat_note is None else None
     wall_points_used = None
 
     # ---- wall mapping: target markers, given points, or the pinhole model
     shape = beam_photo.shape
     geometry_note = None
     lens = None if profile.distortion is None else profile.distortion.for_shape(shape)
+    # the focal length in pixels (camera profile's lens, option or EXIF; None if unknown), for the
+    # natural fall-off of raw and linear photos, which it fixes (cos^4 law), and the shading term
+    focal_shading = 0.5 * (lens.fx + lens.fy) if lens is not None else focal_for(beam_photo, focal_35mm, hfov_deg)[0]
+    falloff_note = None
+    if prep.resp.kind == "linear" and flat_note is None:
+        if focal_shading is not None:
+            image, falloff_note = _natural_falloff_removed(image, focal_shading), "natural cos^4 fall-off divided out"
+        else:
+            warnings.append("a linear photo keeps the lens's natural cos^4 fall-off, but no focal length is known to "
+                            "remove it; give --focal-35mm, or a flat field")
     beam_markers = None
     mapping = None
     if geometry is not None:
@@ -156,8 +164,6 @@ def analyze(
     measured = None
     if mapping is None:
         f_px, f_u, f_src = focal_for(beam_photo, focal_35mm, hfov_deg)
-        if shading_fix is not None and f_px is not None:
-            image, shading_fix = _natural_falloff_removed(image, f_px), "natural cos^4 fall-off divided out"
         if lens is not None:
             f_px, f_src = 0.5 * (lens.fx + lens.fy), f"camera profile '{profile.name}' (calibrated camera matrix)"
         cam_d = distance_m if camera_distance_m is None else camera_distance_m
@@ -187,10 +193,6 @@ def analyze(
             raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
                                 "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
     if geometry_note is not None:  # mapped from markers or given points
-        if shading_fix == "pending":
-            f_fix = mapping.focal_px or focal_for(beam_photo, focal_35mm, hfov_deg)[0]
-            if f_fix is not None:
-                image, shading_fix = _natural_falloff_removed(image, f_fix), "natural cos^4 fall-off divided out"
         mapping = _with_lens(mapping, lens)
         f_u = mapping.scale_uncertainty
         f_px, f_src = None, "not needed (homography)"
@@ -203,10 +205,6 @@ def analyze(
         measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name, assume_square=assume_square,
                                  target_based=geometry_note is not None)
     axis, beam, shape_, pose = measured.axis, measured.beam, measured.shape, measured.pose
-    if shading_fix == "pending":
-        warnings.append("a linear photo keeps the lens's natural cos^4 fall-off, but no focal length is known to "
-                        "remove it; give --focal-35mm, or a flat field")
-    focal_shading = f_px or mapping.focal_px or focal_for(beam_photo, focal_35mm, hfov_deg)[0]
     warnings.extend(measured.warnings)
     pk = shape_.peak
 
@@ -234,14 +232,14 @@ def analyze(
 
     # ---- uncertainty: every known source, propagated by re-measuring (beamshot.uncertainty)
     ratio_delta, ratio_source = _ratio_error(prep, resp, profile)
-    shading = _shading_plan(prep, flat_note, profile)
-    budget = build_budget(measured, scale=scale, lux_at_peak=lux_at_peak, distance_m=distance_m, distance_u_m=u_d,
+    shading = _shading_plan(prep, flat_note)
+    values = measured.values(scale, lux_at_peak)
+    budget = build_budget(measured, values, scale=scale, lux_at_peak=lux_at_peak, distance_m=distance_m, distance_u_m=u_d,
                           camera_distance_m=camera_distance_m if geometry_note is None else None,
                           camera_beside=geometry_note is None and camera_distance_m is None,
                           wall_scale_u=f_u, wall_points=wall_points_used, ratio_delta=ratio_delta,
                           ratio_assumed=ratio_source == "assumed", shading=shading, focal_px=focal_shading,
                           pixel_deg=_pixel_deg(measured))
-    values = measured.values(scale, lux_at_peak)
     keys = [k for k in values if k != "peak_rel" and not k.endswith("_rel")]
     estimates = budget.estimates(keys)
     if scale.kind == "exposure_metadata":
@@ -311,8 +309,8 @@ def analyze(
         "dark_frame": dark_note or "none",
         "response": resp.describe(),
         "response_source": ratio_source,
-        "flat_field": flat_note or (shading_fix if isinstance(shading_fix, str) and shading_fix != "pending" else
-                                    "none: lens shading not corrected; its possible effect is in the uncertainties"),
+        "flat_field": flat_note or falloff_note or "none: lens shading not corrected; its possible effect is in the "
+                                                   "uncertainties",
         "uncertainty_terms": [t.to_dict() for t in budget.terms],
         "ambient": amb_note or "none: no light-off photo subtracted",
         "absolute_scale": scale.to_dict(),
@@ -507,7 +505,7 @@ def _ratio_error(prep, resp, profile) -> tuple[float, str]:
     return float(np.sqrt(np.sum(np.square(terms)))) if terms else 0.0, source
 
 
-def _shading_plan(prep, flat_note, profile) -> dict:
+def _shading_plan(prep, flat_note) -> dict:
     """How lens shading enters the uncertainty: a flat's residual, or the envelope of what may be left in."""
     if isinstance(flat_note, dict):
         res = float(flat_note.get("residual_rms", 0.0) or 0.0)

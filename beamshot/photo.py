@@ -18,7 +18,7 @@ import cv2
 import numpy as np
 from PIL import Image, UnidentifiedImageError
 
-from .errors import BeamshotError
+from .errors import BeamshotError, read_user_file
 
 __all__ = ["MAX_MEGAPIXELS", "RAW_EXTENSIONS", "ExifFacts", "Photo", "load_photo", "decode_photo", "decode_raw",
            "apply_orientation"]
@@ -272,13 +272,5 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
 def load_photo(path: str | os.PathLike, *, max_megapixels: float | None = None) -> Photo:
     """Read and decode a photo file (see :func:`decode_photo`)."""
     name = os.path.basename(os.fspath(path))
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except FileNotFoundError:
-        raise BeamshotError(f"{path}: no such file; check the path") from None
-    except IsADirectoryError:
-        raise BeamshotError(f"{path}: is a folder, not a photo") from None
-    except OSError as exc:
-        raise BeamshotError(f"{path}: cannot be read ({exc.strerror})") from None
+    data = read_user_file(path, "not a photo")
     return decode_photo(data, name, max_megapixels=max_megapixels)

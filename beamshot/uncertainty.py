@@ -48,7 +48,6 @@ import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 from functools import partial
-from typing import Callable
 
 import numpy as np
 
@@ -241,14 +240,12 @@ def angle_footprint_term(base: dict[str, float], pixel_deg: float) -> Term:
                 f"{pixel_deg:.3g} deg per working pixel near the axis", False, False, deltas)
 
 
-Evaluate = Callable[..., dict]
 
-
-def build_budget(measured, *, scale: AbsoluteScale, lux_at_peak: float | None, distance_m: float,
+def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_at_peak: float | None, distance_m: float,
                  distance_u_m: float, camera_distance_m: float | None, camera_beside: bool, wall_scale_u: float,
                  wall_points: tuple[np.ndarray, np.ndarray] | None, ratio_delta: float, ratio_assumed: bool,
                  shading: dict, focal_px: float | None, pixel_deg: float) -> Budget:
-    """All terms of one analysis.
+    """All terms of one analysis; ``base`` holds the values measured (``measured.values(scale, lux)``).
 
     ``measured`` re-measures (``remeasure(image=, mapping=, distance_m=, tone=)`` -> shape,
     ``values(scale, lux, shape, distance_m)`` -> dict, ``shape``, ``image``, ``mapping``,
@@ -257,7 +254,6 @@ def build_budget(measured, *, scale: AbsoluteScale, lux_at_peak: float | None, d
     "none", "natural": bool, "corner_depth": float, "factor": float, "size": str}``.
     """
     shape = measured.shape
-    base = measured.values(scale, lux_at_peak)
 
     def again_now(**kw) -> dict:
         d = kw.pop("distance_m", None)

@@ -126,3 +126,12 @@ def test_nonsense_sizes_are_refused(photos, option, value):
     paths, _ = photos
     res = CliRunner().invoke(cli, ["analyze", str(paths["beam"]), "--distance", "5", option, value])
     assert res.exit_code == 2 and "Traceback" not in res.output
+
+
+def test_report_with_unreadable_schema_version_is_one_line(tmp_path):
+    from beamshot.errors import BeamshotError
+
+    bad = tmp_path / "report.json"
+    bad.write_text(json.dumps({"schema": "beamshot.report", "schema_version": "abc"}))
+    with pytest.raises(BeamshotError, match="schema_version"):
+        read_report_json(bad)

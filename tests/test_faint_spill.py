@@ -15,7 +15,7 @@ from scipy import integrate, stats
 
 import beamshot.analysis as analysis
 from beamshot import analyze
-from beamshot.floor import clipped_mean, estimate_floor, floor_corrected, remove_floor, unclipped_mean, wall_gain
+from beamshot.floor import clipped_mean, estimate_floor, remove_floor, unclipped_mean, wall_gain
 from beamshot.photo import decode_photo
 from beamshot.spill import find_spill_edge
 from beamshot.synth import HotspotSpillBeam, Scene, encode_jpeg, render_photo

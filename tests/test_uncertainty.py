@@ -15,7 +15,7 @@ from beamshot.camera.profile import default_profile
 from beamshot.camera.response import Response
 from beamshot.photo import decode_photo
 from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, encode_png16, exposure_time_for_peak,
-                            render_photo, render_rgb_linear, truth_figures)
+                            render_photo, render_rgb_linear)
 
 import coverage_set
 from conftest import make_shot

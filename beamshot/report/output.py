@@ -14,7 +14,7 @@ import tempfile
 
 import numpy as np
 
-from ..errors import BeamshotError
+from ..errors import BeamshotError, read_user_file
 from ..profile import plane_profile
 from .model import BeamReport
 from .plots import beam_figure
@@ -34,21 +34,17 @@ def read_report_json(path) -> dict:
     """Read a report.json, refusing another schema or a newer major version."""
     from .model import SCHEMA_NAME, SCHEMA_VERSION
 
+    raw = read_user_file(path, "give the report.json inside it")
     try:
-        with open(path, encoding="utf-8") as fh:
-            data = json.load(fh)
-    except FileNotFoundError:
-        raise BeamshotError(f"{path}: no such file; check the path") from None
-    except IsADirectoryError:
-        raise BeamshotError(f"{path}: is a folder; give the report.json inside it") from None
-    except OSError as exc:
-        raise BeamshotError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+        data = json.loads(raw.decode("utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError):
         raise BeamshotError(f"{path}: not a beamshot report.json (a photo or another file?); run "
                             "'beamshot analyze ... --out DIR' first and give DIR/report.json") from None
     if not isinstance(data, dict) or data.get("schema") != SCHEMA_NAME:
         raise BeamshotError(f"{path}: not a beamshot report")
-    major = str(data.get("schema_version", "0")).split(".")[0]
+    major = str(data.get("schema_version", "")).split(".")[0]
+    if not major.isdigit():
+        raise BeamshotError(f"{path}: the report has no readable schema_version; it was not written by beamshot")
     if int(major) > int(SCHEMA_VERSION.split(".")[0]):
         raise BeamshotError(f"{path}: written by a newer beamshot (schema {data['schema_version']}); upgrade beamshot")
     return data
