@@ -252,11 +252,12 @@ def analyze(
     cal_u = ratio_delta
     if shading["kind"] == "envelope":
         warnings.append("no flat field: lens shading may be left in the photo, and its possible effect is carried "
-                        "in the uncertainties; shoot a flat field (camera flat), turn the camera between two beam "
-                        "photos (camera flat-from-turns), or use a camera profile that has one")
+                        "in the uncertainties; shoot a flat field (beamshot camera flat), turn the camera between two "
+                        "beam photos (beamshot camera flat-from-turns), or use a camera profile that has one")
     if ratio_source == "assumed":
         warnings.append(f"the tone curve ({resp.describe()}) is assumed, not measured; its possible error is carried in "
-                        "the uncertainties - calibrate the camera's response (camera response) or shoot a bracket")
+                        "the uncertainties - calibrate the camera's response (beamshot camera response), or give "
+                        "a bracket (several exposures of the beam on one analyze command line)")
 
     # ---- warnings a user should act on
     if pk.clipped:

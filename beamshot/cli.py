@@ -141,8 +141,11 @@ def analyze(photos, distance_m, distance_u, ambient, flat, lux_at_peak, meter_ac
     click.echo(f"{names} at {distance_m:g} m")
     click.echo(f"  tone curve: {report.settings['response']}; {report.calibration.get('response_source', 'assumed')}")
     _print_figures(report)
-    if any(f.status == "estimate" for f in report.figures.values()):
+    marks = {f.status for f in report.figures.values()}
+    if "estimate" in marks:
         click.echo("  ≈ marks an estimate: most of its uncertainty comes from an assumption (see the warnings)")
+    if marks & {"lower_bound", "upper_bound"}:
+        click.echo("  ≥ / ≤ mark a bound: the true value is at least / at most this (see the figure's reason)")
     if written:
         click.echo(f"wrote {', '.join(written)}")
     else:

@@ -58,15 +58,16 @@ def _room(ax):
                 xytext=(CAM_X + rad * np.sin(t[-3]), rad * np.cos(t[-3])),
                 arrowprops=dict(arrowstyle="-|>", color=POSE2, lw=1.5))
     ax.text(CAM_X + 0.85, 0.45, "turn 15-25°\nabout the same point", color=POSE2, fontsize=8.5, va="center")
-    ax.text(CAM_X + 0.25, -0.2, "camera on a tripod: turn only the head\n(pan, or pan and tilt); "
-            "do not move the legs", fontsize=8.5, va="top")
+    ax.text(CAM_X + 0.25, -0.2, "camera on a tripod:\nturn only the head (pan,\nor pan and tilt); keep\nthe legs where they are",
+            fontsize=8.5, va="top")
     ax.plot([], [], color=POSE1, lw=1.2, label="photo 1: square to the wall")
     ax.plot([], [], color=POSE2, lw=1.2, ls="--", label="photo 2: turned")
     # one wall point seen from both poses along the same line of sight
     ax.plot(STAR_X, wall_y, marker="*", ms=13, color="#2e7d32", zorder=5)
     ax.plot([CAM_X, STAR_X], [0.0, wall_y], color="#2e7d32", lw=1.0, ls=":")
     ax.annotate("a wall point: the same\nline of sight in both photos", xy=(STAR_X - 0.05, wall_y - 0.05),
-                xytext=(-4.2, 3.6), fontsize=8.5, color="#2e7d32",
+                xytext=(-4.2, 3.6), fontsize=8.5, color="#2e7d32", zorder=6,
+                bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none"),
                 arrowprops=dict(arrowstyle="->", color="#2e7d32", lw=0.8))
     ax.set_xlim(-4.4, 4.4)
     ax.set_ylim(-1.3, wall_y + 0.55)
