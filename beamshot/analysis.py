@@ -84,6 +84,8 @@ def analyze(
     wall_points=None,
     target_scale: float = 1.0,
     assume_square: bool = False,
+    light_name: str | None = None,
+    lux_point_px: tuple[float, float] | None = None,
 ) -> BeamReport:
     """Analyse a beam photo (or a bracket of them) taken square to the wall; returns a :class:`BeamReport`.
 
@@ -91,7 +93,9 @@ def analyze(
     into one linear image); ``ambient``/``flat``/``dark`` are paths or Photos.  ``camera`` is a
     camera profile (name, path or object; default: the uncalibrated sRGB profile).
     ``distance_m`` is the light-to-wall distance (m); the camera is assumed beside the
-    light unless ``camera_distance_m`` (camera-to-wall, m) says otherwise.
+    light unless ``camera_distance_m`` (camera-to-wall, m) says otherwise.  ``lux_at_peak`` is
+    a lux-meter reading on the wall, taken at the peak or, with ``lux_point_px`` = (x, y), at
+    that pixel of the (first) beam photo.  ``light_name`` names the light in titles and reports.
     """
     # ---- validate options before any work
     if distance_m is None:
@@ -284,6 +288,7 @@ def analyze(
                         f"(±{scale.rel_uncertainty:.0%}); a lux-meter reading (--lux-at-peak) is far better")
 
     settings = {
+        "light_name": light_name,
         "distance_m": distance_m,
         "distance_uncertainty_m": u_d,
         "camera_distance_m": cam_d,

@@ -11,26 +11,10 @@ import click
 
 from . import __version__
 from .errors import BeamshotError
+from .vocabulary import label
 
 __all__ = ["main", "cli"]
 
-_FIGURE_LABELS = {
-    "peak_intensity": "peak intensity",
-    "beam_distance": "beam distance (0.25 lx)",
-    "hotspot_angle": "hotspot angle (50 %)",
-    "hotspot_angle_horizontal": "  horizontal",
-    "hotspot_angle_vertical": "  vertical",
-    "field_angle": "field angle (10 %)",
-    "spill_angle": "spill angle (edge)",
-    "spill_angle_horizontal": "  horizontal",
-    "spill_angle_vertical": "  vertical",
-    "hotspot_flux": "hotspot flux",
-    "spill_flux": "spill flux",
-    "beam_flux": "beam flux (in edge)",
-    "ra": "Ra spill/hotspot",
-    "hotspot_offset": "hotspot offset",
-    "light_tilt": "light tilt (to the wall)",
-}
 
 
 def _fail(message: str) -> None:
@@ -40,7 +24,7 @@ def _fail(message: str) -> None:
 
 def _print_figures(report) -> None:
     for key, fig in report.figures.items():
-        click.echo(f"  {_FIGURE_LABELS.get(key, key):26s} {fig.text(3)}")
+        click.echo(f"  {label(key, indent=True):26s} {fig.text(3)}")
     for w in report.warnings:
         click.echo(f"  ! {w}")
 

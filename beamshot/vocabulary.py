@@ -1,0 +1,83 @@
+"""One vocabulary for every figure: key, short label, unit and one-line definition.
+
+Every output (the printed table, the demo, report.json, profile.csv, beam.png, the docs) takes
+its words from here, so a figure is called the same thing everywhere.  Definitions follow the
+trade's usage: ANSI/PLATO FL 1 for peak intensity and beam distance, IES for the 50 % / 10 %
+beam and field angles (common practice for hotspot/spill naming); Ra is this project's own
+figure (spill flux over hotspot flux, not the colour rendering index).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["Term", "FIGURES", "term", "label", "unit_text", "STATUS_WORDS", "STATUS_MARKS"]
+
+
+@dataclass(frozen=True)
+class Term:
+    key: str
+    label: str
+    unit: str
+    definition: str
+    #: for the H/V components: the key of the figure they belong to (printed indented)
+    part_of: str | None = None
+
+
+FIGURES: dict[str, Term] = {t.key: t for t in (
+    Term("peak_intensity", "peak intensity", "cd",
+         "the largest luminous intensity of the beam (ANSI/PLATO FL 1 peak beam intensity)"),
+    Term("beam_distance", "beam distance (0.25 lx)", "m",
+         "distance at which the peak intensity gives 0.25 lx, sqrt(I/0.25) (ANSI/PLATO FL 1)"),
+    Term("hotspot_angle", "hotspot angle (50 %)", "deg",
+         "full angle of the region at or above 50 % of the peak (IES beam angle)"),
+    Term("hotspot_angle_horizontal", "horizontal", "deg",
+         "full width of the 50 % contour along the wall's horizontal through the peak", "hotspot_angle"),
+    Term("hotspot_angle_vertical", "vertical", "deg",
+         "full width of the 50 % contour along the wall's vertical through the peak", "hotspot_angle"),
+    Term("field_angle", "field angle (10 %)", "deg",
+         "full angle of the region at or above 10 % of the peak (IES field angle)"),
+    Term("spill_angle", "spill angle (edge)", "deg",
+         "full angle of the outer edge of the spill, where the light's rim cuts it off"),
+    Term("spill_angle_horizontal", "horizontal", "deg",
+         "full width of the spill edge along the wall's horizontal", "spill_angle"),
+    Term("spill_angle_vertical", "vertical", "deg",
+         "full width of the spill edge along the wall's vertical", "spill_angle"),
+    Term("hotspot_flux", "hotspot flux", "lm", "luminous flux inside the 50 % contour"),
+    Term("spill_flux", "spill flux", "lm", "luminous flux between the 50 % contour and the spill edge"),
+    Term("beam_flux", "beam flux (in edge)", "lm", "luminous flux inside the spill edge"),
+    Term("ra", "Ra (spill / hotspot flux)", "",
+         "spill flux divided by hotspot flux; this project's figure, not the colour rendering index"),
+    Term("hotspot_offset", "hotspot offset", "deg",
+         "angle between the peak's direction and the beam axis (the spill's centre)"),
+    Term("light_tilt", "light tilt (to the wall)", "deg",
+         "angle between the light's beam axis and the wall's normal"),
+)}
+
+#: Status words as printed for people (report.json keeps the keys).
+STATUS_WORDS = {
+    "measured": "measured",
+    "estimate": "estimate",
+    "lower_bound": "lower bound",
+    "upper_bound": "upper bound",
+    "not_measured": "not measured",
+}
+
+#: The mark printed before a value of each status.
+STATUS_MARKS = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "}
+
+
+def term(key: str) -> Term:
+    """The :class:`Term` of a figure key; unknown keys get their key as label."""
+    return FIGURES.get(key) or Term(key, key.replace("_", " "), "", "")
+
+
+def label(key: str, *, indent: bool = False) -> str:
+    """The short label of a figure; with ``indent`` the H/V parts are indented under their figure."""
+    t = term(key)
+    return f"  {t.label}" if indent and t.part_of else t.label
+
+
+def unit_text(unit: str) -> str:
+    """A unit as printed next to a number ('deg' is shown as the degree sign)."""
+    return {"deg": "°", "": ""}.get(unit, unit)
