@@ -51,15 +51,19 @@ TILT_MIN_SHARP_FRACTION = 0.9
 _LOW_EXPOSURE_LEVEL = 0.15
 
 
-def _check_positive(name: str, value, lo=None, hi=None, hint="") -> None:
+def _check_positive(name: str, value, lo=None, hi=None, unit="", fix="", *, shown=None) -> None:
+    """Refuse a value that is not a finite positive number within [lo, hi], in one line that says
+    what to give instead (``fix``).  ``shown`` formats a value for the message (default ``{:g} unit``)."""
     if value is None:
         return
+    show = shown or (lambda v: f"{v:g}{unit}")
+    tail = f"; {fix}" if fix else ""
     if not np.isfinite(value) or value <= 0:
-        raise BeamshotError(f"{name} must be a positive number, not {value:g}{hint}")
+        raise BeamshotError(f"{name} must be a positive number, not {show(value)}{tail}")
     if lo is not None and value < lo:
-        raise BeamshotError(f"{name} {value:g} is too small (minimum {lo:g}){hint}")
+        raise BeamshotError(f"{name} {show(value)} is too small (minimum {show(lo)}){tail}")
     if hi is not None and value > hi:
-        raise BeamshotError(f"{name} {value:g} is too large (maximum {hi:g}){hint}")
+        raise BeamshotError(f"{name} {show(value)} is too large (maximum {show(hi)}){tail}")
 
 
 def analyze(
@@ -100,22 +104,38 @@ def analyze(
     # ---- validate options before any work
     if distance_m is None:
         raise BeamshotError("the light-to-wall distance is required (--distance, in metres)")
-    _check_positive("distance", distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m; measure from the light's lens to the wall")
+    _check_positive("distance", distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m",
+                    "measure from the light's lens to the wall, in metres (e.g. --distance 5)")
     u_d = DEFAULT_DISTANCE_UNCERTAINTY_M if distance_uncertainty_m is None else distance_uncertainty_m
-    if u_d < 0 or u_d >= distance_m:
-        raise BeamshotError(f"distance uncertainty {u_d:g} m must be at least 0 and smaller than the distance")
-    _check_positive("camera distance", camera_distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m")
-    _check_positive("lux reading", lux_at_peak, None, 2e6, " lx")
-    _check_positive("reflectance", reflectance, 0.05, 1.0)
-    _check_positive("lux-meter accuracy", lux_meter_accuracy, None, 0.5)
-    _check_positive("35 mm focal length", focal_35mm, 5.0, 800.0, " mm")
-    _check_positive("horizontal field of view", hfov_deg, 1.0, 150.0, " deg")
+    if not np.isfinite(u_d) or u_d < 0 or u_d >= distance_m:
+        raise BeamshotError(f"distance uncertainty {u_d:g} m must be at least 0 and smaller than the distance; "
+                            "give how far off the tape measure may be, e.g. --distance-uncertainty 0.02")
+    _check_positive("camera distance", camera_distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m",
+                    "measure from the camera's lens to the wall, in metres")
+    _check_positive("lux reading", lux_at_peak, None, 2e6, " lx",
+                    "give the meter's reading in lux, taken on the wall at the hotspot (e.g. --lux-at-peak 412)")
+    _check_positive("reflectance", reflectance, 0.05, 1.0, "",
+                    "give the wall's reflectance as a fraction: about 0.85 for matte white paint (typical 0.8-0.9)")
+    _check_positive("lux-meter accuracy", lux_meter_accuracy, None, 0.5, "",
+                    "give the meter's specified accuracy, e.g. 5 (%)", shown=lambda v: f"{100 * v:g} %")
+    _check_positive("35 mm focal length", focal_35mm, 5.0, 800.0, " mm",
+                    "give the 35 mm-equivalent focal length in mm, e.g. 26 for a phone's main camera")
+    _check_positive("horizontal field of view", hfov_deg, 1.0, 150.0, " deg",
+                    "give the photo's horizontal view in degrees, e.g. 70")
     if focal_35mm is not None and hfov_deg is not None:
         raise BeamshotError("give either --focal-35mm or --hfov, not both")
     if lux_at_peak is not None and reflectance is not None:
         raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
-    _check_positive("head diameter", head_diameter_mm, None, 2000.0, " mm")
-    _check_positive("target scale", target_scale, 0.2, 5.0, " (printed size over nominal, e.g. 0.98)")
+    _check_positive("head diameter", head_diameter_mm, None, 2000.0, " mm",
+                    "give the diameter of the light's head (bezel) in mm, e.g. 40")
+    _check_positive("target scale", target_scale, 0.2, 5.0, "",
+                    "measure the printed 100 mm scale bar with a ruler and give its length (e.g. 99.5 mm)",
+                    shown=lambda v: f"{v:g} (scale bar {100 * v:g} mm of 100 mm)")
+    if lux_point_px is not None:
+        if lux_at_peak is None:
+            raise BeamshotError("a metered point needs the lux reading taken there (--lux LX with --lux-at X,Y)")
+        if len(lux_point_px) != 2 or not all(np.isfinite(v) for v in lux_point_px):
+            raise BeamshotError("the metered point takes two pixel coordinates X,Y, e.g. 2016,1512")
     if geometry is not None and wall_points is not None:
         raise BeamshotError("give either --geometry or --wall-points, not both")
     profile = camera if isinstance(camera, CameraProfile) else load_profile(camera)

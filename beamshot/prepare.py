@@ -214,6 +214,7 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
             ratio = pb / pa
         elif pb != pa:
             warnings.append("the ambient photo's exposure is not in EXIF; assumed equal to the beam photo's")
+        _check_ambient(image.luminance, ratio * amb.luminance, amb_photo.name, warnings)
         image = image.with_values(image.rgb - ratio * amb.rgb)  # no clipping: keeps noise unbiased
         amb_note = {"file": amb_photo.name, "exposure_ratio": ratio}
     else:
@@ -242,6 +243,34 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
 
     return PreparedImage(image, beam_photos, beam_photo, inputs, resp, warnings, hdr_note, dark_note, amb_note,
                          flat_note, response_source=source, linearity_rel=linearity)
+
+
+#: Light-off photo brighter than this fraction of the beam photo where the beam is brightest: refused.
+AMBIENT_REFUSE_FRACTION = 0.5
+#: ... and above this fraction: a warning (room light swamps the faint parts of the beam).
+AMBIENT_WARN_FRACTION = 0.1
+
+
+def _check_ambient(beam_lum: np.ndarray, ambient_lum: np.ndarray, name: str, warnings: list[str]) -> None:
+    """A light-off photo must be darker than the beam photo where the beam is.
+
+    Compared on the brightest 0.5 % of the beam photo (the hotspot): a light-off photo as bright
+    as that was taken with the light on, or the two photos were swapped.
+    """
+    with np.errstate(invalid="ignore"):
+        top = beam_lum >= np.quantile(beam_lum, 0.995)
+        beam_level = float(np.median(beam_lum[top]))
+        amb_level = float(np.median(ambient_lum[top]))
+    if not beam_level > 0:
+        return  # a black beam photo is reported by the analysis itself
+    frac = amb_level / beam_level
+    if frac >= AMBIENT_REFUSE_FRACTION:
+        raise BeamshotError(f"{name}: the light-off photo is {frac:.0%} as bright as the beam photo where the beam "
+                            "is brightest; it must be taken with the light off (same camera, position and settings) "
+                            "- check that the light was off and that the two photos are not swapped")
+    if frac >= AMBIENT_WARN_FRACTION:
+        warnings.append(f"the light-off photo is {frac:.0%} as bright as the hotspot; room light that strong "
+                        "swamps the faint spill - darken the room")
 
 
 def input_record(role: str, photo: Photo) -> dict:

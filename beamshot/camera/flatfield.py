@@ -23,6 +23,14 @@ import numpy as np
 __all__ = ["FlatField", "fit_flat_field"]
 
 _BLOCKS = 48
+#: A flat whose blocks depart from the smooth radial model by more than this (RMS, relative) holds
+#: structure - a beam, a shadow, uneven lighting - and is refused.
+FLAT_MAX_RESIDUAL = 0.05
+#: The model may rise above its centre value by at most this much anywhere in the frame: lens
+#: shading falls off from the centre; a flat brighter at its edges was lit unevenly.
+FLAT_MAX_RISE = 0.05
+#: A fall-off below this fraction of the centre anywhere in the frame is not a lens's shading.
+FLAT_MIN_FALLOFF = 0.1
 
 
 @dataclass(frozen=True)
@@ -69,4 +77,29 @@ def fit_flat_field(luminance: np.ndarray) -> FlatField:
     c0 = coef[0]
     model = 1.0 / (a @ coef)
     resid = float(np.sqrt(np.mean((b / model - 1) ** 2)))
-    return FlatField(coefficients=tuple(float(c / c0) for c in coef[1:]), residual_rms=resid, shape=(h, w))
+    ff = FlatField(coefficients=tuple(float(c / c0) for c in coef[1:]), residual_rms=resid, shape=(h, w))
+    check_flat(ff, blocks)
+    return ff
+
+
+def check_flat(ff: FlatField, blocks: np.ndarray) -> None:
+    """Refuse a flat that is not a lens's smooth radial fall-off (one line saying why)."""
+    from ..errors import BeamshotError
+
+    fix = "photograph an evenly lit white target (or a white screen) that fills the view, light off the beam"
+    peak_block = float(np.max(blocks) / np.median(blocks))
+    if ff.residual_rms > FLAT_MAX_RESIDUAL:
+        why = ("a bright spot - a beam? - is in it" if peak_block > 2.0 else "it has strong structure (a shadow, "
+               "an edge or uneven lighting)")
+        raise BeamshotError(f"flat field: the photo departs from a smooth radial fall-off by {ff.residual_rms:.0%} "
+                            f"RMS (at most {FLAT_MAX_RESIDUAL:.0%} expected); {why}; {fix}")
+    r2 = np.linspace(0.0, 1.0, 101)
+    b1, b2, b3 = ff.coefficients
+    v = 1.0 / (1 + b1 * r2 + b2 * r2**2 + b3 * r2**3)
+    if not np.all(np.isfinite(v)) or np.any(v <= 0) or v.max() > 1 + FLAT_MAX_RISE:
+        raise BeamshotError(f"flat field: the photo is brighter toward its edges than at its centre (by "
+                            f"{max(v.max() - 1, 0):.0%}); lens shading falls off from the centre, so the target was "
+                            f"lit unevenly; {fix}")
+    if v.min() < FLAT_MIN_FALLOFF:
+        raise BeamshotError(f"flat field: the photo falls to {v.min():.0%} of its centre toward the corners, far more "
+                            f"than a lens's shading; {fix}")
