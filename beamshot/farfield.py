@@ -14,7 +14,8 @@ import numpy as np
 
 from .errors import BeamshotError
 
-__all__ = ["AGREEMENT_SIGMAS", "SHARED_SCALE_TERMS", "combined_sigma", "compare_distances"]
+__all__ = ["AGREEMENT_SIGMAS", "SHARED_SCALE_TERMS", "COMPARED_FIGURES", "combined_sigma", "check_report",
+           "compare_distances"]
 
 #: Figures agree when they differ by less than this many combined standard uncertainties.
 AGREEMENT_SIGMAS = 2.0
@@ -23,6 +24,62 @@ AGREEMENT_SIGMAS = 2.0
 #: Budget terms that are the same error in both reports of one light when both used the same
 #: instrument: the lux meter's calibration, or the camera constant of one camera profile.
 SHARED_SCALE_TERMS = ("lux meter", "camera constant")
+
+
+#: The figures compared, their label, unit and accepted value range (open at both ends).
+COMPARED_FIGURES = {"peak_intensity": ("peak intensity", "cd", 0.0, float("inf")),
+                    "hotspot_angle": ("hotspot angle", "deg", 0.0, 180.0)}
+
+_FIX = "give the report.json written by 'beamshot analyze ... --out DIR' (run it again if the file was edited)"
+
+
+def _number(x) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and bool(np.isfinite(x))
+
+
+def check_report(report, source: str = "report") -> None:
+    """Refuse, in one line naming the field and the fix, a report dict the comparison cannot use:
+    no ``settings`` or ``figures`` object, a distance that is not a positive number of metres, or a
+    compared figure whose value, uncertainty, budget or unit is of the wrong type, non-finite or
+    out of range.  (Figures that were not measured, value null, are allowed: they are reported so.)
+    """
+    def fail(field_name, value, accepted):
+        shown = repr(value)
+        shown = shown if len(shown) <= 40 else shown[:37] + "..."
+        raise BeamshotError(f"{source}: {field_name} = {shown} is not usable (accepted: {accepted}); {_FIX}")
+
+    if not isinstance(report, dict):
+        raise BeamshotError(f"{source}: not a beamshot report (a JSON object is expected); {_FIX}")
+    settings = report.get("settings")
+    if not isinstance(settings, dict):
+        fail("settings", settings, "an object holding distance_m")
+    d = settings.get("distance_m")
+    if not _number(d) or d <= 0:
+        fail("settings.distance_m", d, "the light-to-wall distance, a number of metres above 0")
+    figures = report.get("figures")
+    if not isinstance(figures, dict):
+        fail("figures", figures, "an object of figures")
+    for key, (_, unit, lo, hi) in COMPARED_FIGURES.items():
+        f = figures.get(key)
+        if f is None:
+            continue
+        if not isinstance(f, dict):
+            fail(f"figures.{key}", f, "an object with value, uncertainty and unit")
+        if f.get("unit") != unit:
+            fail(f"figures.{key}.unit", f.get("unit"), f'"{unit}"')
+        v, u = f.get("value"), f.get("uncertainty")
+        if v is not None and (not _number(v) or not lo < v < hi):
+            fail(f"figures.{key}.value", v, f"null or a number above {lo:g}" + (f" and below {hi:g}" if hi < np.inf else "")
+                 + f" {unit}")
+        if u is not None and (not _number(u) or u < 0):
+            fail(f"figures.{key}.uncertainty", u, f"null or a number of {unit} at least 0")
+        budget = f.get("budget")
+        if budget is not None and (not isinstance(budget, dict)
+                                   or not all(isinstance(k, str) and _number(x) and x >= 0 for k, x in budget.items())):
+            fail(f"figures.{key}.budget", budget, f"null or an object of error sources and numbers of {unit} at least 0")
+    calibration = report.get("calibration", {})
+    if not isinstance(calibration, dict) or not isinstance(calibration.get("absolute_scale", {}) or {}, dict):
+        fail("calibration", calibration, "an object holding absolute_scale")
 
 
 def _fig(report: dict, key: str):
@@ -62,8 +119,14 @@ def combined_sigma(a: tuple, b: tuple, shared: tuple[str, ...]) -> float:
     return float(np.sqrt(max(var, 0.0)))
 
 
-def compare_distances(near: dict, far: dict) -> dict:
-    """Compare two reports (dicts from report.json); the nearer one is detected by distance."""
+def compare_distances(near: dict, far: dict, *, names: tuple[str, str] = ("the first report", "the second report")
+                      ) -> dict:
+    """Compare two reports (dicts from report.json); the nearer one is detected by distance.
+
+    Each report is checked first (:func:`check_report`); ``names`` name them in messages.
+    """
+    check_report(near, names[0])
+    check_report(far, names[1])
     d1 = float(near["settings"]["distance_m"])
     d2 = float(far["settings"]["distance_m"])
     if abs(d1 - d2) < 0.1 * max(d1, d2):
@@ -77,20 +140,28 @@ def compare_distances(near: dict, far: dict) -> dict:
         lines.append(f"  shared between the two (cancels in the comparison): {', '.join(shared)} - assumed the "
                      "same instrument at both distances; every other term is counted in both")
     consistent = True
-    for key, label in (("peak_intensity", "peak intensity"), ("hotspot_angle", "hotspot angle")):
+    compared = 0
+    for key, (label, *_) in COMPARED_FIGURES.items():
         a, b = _fig(near, key), _fig(far, key)
         if a is None or b is None:
             lines.append(f"  {label}: not measured in both reports")
             continue
         diff = b[0] - a[0]
         sigma = combined_sigma(a, b, shared)
+        if not sigma > 0:
+            lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g}: no uncertainty in either report, cannot be compared")
+            continue
         ok = abs(diff) <= AGREEMENT_SIGMAS * sigma
         consistent &= ok
+        compared += 1
         lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g} ({diff / a[0]:+.1%}, {abs(diff) / sigma:.1f} sigma) "
                      + ("agree" if ok else "DISAGREE"))
-    if not consistent:
+    if not compared:
+        lines.append("nothing could be compared: the far-field check needs the peak intensity or the hotspot angle "
+                     "with an uncertainty in both reports (give a lux reading or a camera constant for the peak)")
+    elif not consistent:
         lines.append("the near wall is not in the far field of this light (a focusing reflector lowers the peak "
                      "and widens the hotspot up close): measure at the larger distance or farther")
     else:
         lines.append("the two distances agree within their uncertainties: the near distance is far enough")
-    return {"consistent": consistent, "lines": lines}
+    return {"consistent": consistent, "compared": compared, "lines": lines}

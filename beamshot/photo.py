@@ -1,16 +1,25 @@
-"""Decoding photos (JPEG, PNG, 8/16-bit TIFF) with their EXIF exposure facts.
+"""Decoding photos (JPEG, PNG, 8/16-bit TIFF, camera raw through LibRaw) with their EXIF exposure facts.
 
 Pixels are kept as decoded by OpenCV (BGR channel order, ``Photo.bgr``) to avoid a copy of a
 large photo; ``Photo.pixels`` is an RGB view of the same memory.  Shape ``(H, W, 3)``, row 0 at
 the top, dtype uint8 or uint16, turned upright according to the EXIF Orientation tag (Exif 2.3,
 tag 0x0112).
+
+Input guards, each a one-line :class:`BeamshotError`: empty, unreadable, truncated or corrupt
+files; photos smaller than ``MIN_SIDE_PX`` on a side or larger than ``MAX_MEGAPIXELS``.  EXIF
+values outside a physical range (``EXIF_LIMITS``; e.g. an exposure of 0 s or ISO 1e9) are
+ignored as if absent, and ``Photo.notes`` says so.  Pillow's own decompression-bomb limit is
+replaced by ours during the header read, and the decoders' C-level messages are kept off the
+terminal (corrupt PNG chunks are found by their CRC before OpenCV sees them).
 """
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import io
 import os
+import warnings
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
@@ -20,14 +29,34 @@ from PIL import Image, UnidentifiedImageError
 
 from .errors import BeamshotError, read_user_file
 
-__all__ = ["MAX_MEGAPIXELS", "RAW_EXTENSIONS", "ExifFacts", "Photo", "load_photo", "decode_photo", "decode_raw",
+__all__ = ["MAX_MEGAPIXELS", "MIN_SIDE_PX", "RAW_EXTENSIONS", "EXIF_LIMITS", "READABLE_FORMATS", "ExifFacts", "Photo", "load_photo", "decode_photo", "decode_raw",
            "apply_orientation"]
 
-#: Largest photo accepted, in megapixels (the largest phone sensors are 200 MP).
+#: Largest photo accepted, in megapixels (the largest phone sensors are 200 MP: 16320 x 12240).
 MAX_MEGAPIXELS = 250.0
-#: File endings decoded as raw sensor data through LibRaw (rawpy).
-RAW_EXTENSIONS = frozenset({".dng", ".cr2", ".cr3", ".nef", ".nrw", ".arw", ".raf", ".orf", ".rw2", ".pef",
-                            ".srw", ".3fr", ".iiq", ".rwl"})
+#: Smallest photo side accepted, in pixels.  Below it a photo is refused before any decoding; a
+#: beam needs far more (the hotspot alone about 10 working pixels across), which the analysis
+#: checks on the figures themselves.
+MIN_SIDE_PX = 16
+#: File endings decoded as raw sensor data through LibRaw (rawpy; LibRaw 0.22 reads all of them).
+RAW_EXTENSIONS = frozenset({".dng", ".cr2", ".cr3", ".crw", ".nef", ".nrw", ".arw", ".srf", ".sr2", ".raf",
+                            ".orf", ".rw2", ".pef", ".srw", ".3fr", ".iiq", ".rwl", ".kdc", ".dcr", ".mrw",
+                            ".erf", ".mef", ".mos", ".x3f"})
+#: The formats named in messages about unreadable files.
+READABLE_FORMATS = ("JPEG, PNG, TIFF (8 or 16 bit) or a camera raw file read through LibRaw "
+                    "(DNG, CR2, CR3, NEF, ARW, RAF, ORF, RW2, PEF, SRW, ...)")
+#: Physical range of each EXIF exposure fact (low, high); a value outside is ignored as if absent.
+#: Common practice / from memory: shutters run from about 1/64000 s to bulb exposures of minutes,
+#: lenses from f/0.7 to f/64 (large-format f/128), ISO from 1 to the few million of the most
+#: sensitive cameras, 35 mm-equivalent focal lengths from fisheyes (about 8 mm) to superzooms
+#: (about 3000 mm).
+EXIF_LIMITS = {
+    "exposure_time_s": (1e-6, 3600.0),
+    "f_number": (0.5, 128.0),
+    "iso": (1.0, 1e7),
+    "focal_length_mm": (0.5, 5000.0),
+    "focal_35mm_mm": (5.0, 5000.0),
+}
 
 # Exif tag numbers (Exif 2.3 / CIPA DC-008).
 _TAG_ORIENTATION = 0x0112
@@ -75,6 +104,8 @@ class Photo:
     sha256: str
     max_code: int
     linear: bool = False
+    #: What the decoder ignored or assumed, for the report's warnings (e.g. an absurd EXIF value).
+    notes: tuple[str, ...] = ()
 
     @property
     def pixels(self) -> np.ndarray:
@@ -108,9 +139,12 @@ def _text(value) -> str | None:
 
 
 def read_exif(image: Image.Image) -> ExifFacts:
-    """Exposure facts from a Pillow image's EXIF block (missing tags give ``None``)."""
-    exif = image.getexif()
-    return _facts(exif, exif.get_ifd(_TAG_EXIF_IFD))
+    """Exposure facts from a Pillow image's EXIF block (missing or damaged tags give ``None``)."""
+    try:
+        exif = image.getexif()
+        return _facts(exif, exif.get_ifd(_TAG_EXIF_IFD))
+    except Exception:  # noqa: BLE001 - a damaged EXIF block is as good as none; the pixels may still be fine
+        return ExifFacts()
 
 
 def _tiff_exif(data: bytes) -> ExifFacts:
@@ -146,7 +180,7 @@ def _facts(exif, sub) -> ExifFacts:
     orientation = exif.get(_TAG_ORIENTATION, 1)
     try:
         orientation = int(orientation)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         orientation = 1
     if orientation not in range(1, 9):
         orientation = 1
@@ -160,6 +194,49 @@ def _facts(exif, sub) -> ExifFacts:
         model=_text(exif.get(_TAG_MODEL)),
         orientation=orientation,
     )
+
+
+_EXIF_WORDS = {"exposure_time_s": ("exposure time", " s"), "f_number": ("f-number", ""), "iso": ("ISO", ""),
+               "focal_length_mm": ("focal length", " mm"), "focal_35mm_mm": ("35 mm-equivalent focal length", " mm")}
+
+
+def _plausible(facts: ExifFacts, raw: dict) -> tuple[ExifFacts, tuple[str, ...]]:
+    """``facts`` with values outside :data:`EXIF_LIMITS` dropped, and a note for each value dropped.
+
+    ``raw`` holds what the file said for each fact (before :func:`_number` turned a zero,
+    negative or unreadable value into None), so those are named too.
+    """
+    from dataclasses import replace
+
+    notes, changes = [], {}
+    for key, (lo, hi) in EXIF_LIMITS.items():
+        word, unit = _EXIF_WORDS[key]
+        value = getattr(facts, key)
+        said = raw.get(key)
+        if value is None and said is None:
+            continue
+        if value is None or not lo <= value <= hi:
+            changes[key] = None
+            shown = f"{value:g}" if value is not None else repr(said)[:30]
+            notes.append(f"EXIF {word} {shown}{unit} is outside {lo:g} to {hi:g}{unit} and was ignored")
+    if raw.get("orientation") is not None and facts.orientation == 1 and raw["orientation"] != 1:
+        notes.append(f"EXIF orientation {raw['orientation']!r:.30} is not one of 1-8 and was ignored "
+                     "(the photo is taken as stored)")
+    return (replace(facts, **changes) if changes else facts), tuple(notes)
+
+
+def _raw_exif(image: Image.Image) -> dict:
+    """What the EXIF block says for each exposure fact, before any cleaning (None where absent)."""
+    try:
+        exif = image.getexif()
+        sub = exif.get_ifd(_TAG_EXIF_IFD)
+    except Exception:  # noqa: BLE001 - see read_exif
+        return {}
+    tags = {"exposure_time_s": _TAG_EXPOSURE_TIME, "f_number": _TAG_F_NUMBER, "iso": _TAG_ISO,
+            "focal_length_mm": _TAG_FOCAL_LENGTH, "focal_35mm_mm": _TAG_FOCAL_35MM}
+    out = {k: sub.get(t, exif.get(t)) for k, t in tags.items()}
+    out["orientation"] = exif.get(_TAG_ORIENTATION)
+    return out
 
 
 def apply_orientation(pixels: np.ndarray, orientation: int) -> np.ndarray:
@@ -190,6 +267,34 @@ def apply_orientation(pixels: np.ndarray, orientation: int) -> np.ndarray:
     return pixels
 
 
+def _check_size(name: str, width: int, height: int, limit: float) -> None:
+    """Refuse a photo smaller than :data:`MIN_SIDE_PX` on a side or larger than ``limit`` megapixels."""
+    if width < MIN_SIDE_PX or height < MIN_SIDE_PX:
+        raise BeamshotError(f"{name}: {width}x{height} px is too small to analyse (at least {MIN_SIDE_PX} px on each "
+                            "side, and a beam needs far more); give the camera's full-size photo")
+    megapixels = width * height / 1e6
+    if megapixels > limit:
+        raise BeamshotError(
+            f"{name}: {width}x{height} is {megapixels:.0f} MP, above the {limit:.0f} MP limit; "
+            "downscale the photo or check the file"
+        )
+
+
+@contextlib.contextmanager
+def _quiet_opencv():
+    """Keep OpenCV's own log lines (libtiff warnings, decoder errors) off the terminal for one call."""
+    logging = getattr(getattr(cv2, "utils", None), "logging", None)
+    if logging is None:  # pragma: no cover - OpenCV builds without the logging module
+        yield
+        return
+    level = logging.getLogLevel()
+    logging.setLogLevel(logging.LOG_LEVEL_SILENT)
+    try:
+        yield
+    finally:
+        logging.setLogLevel(level)
+
+
 def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | None = None) -> Photo:
     """Decode a raw file (DNG and common camera raws) with LibRaw through rawpy, as linear data.
 
@@ -203,18 +308,83 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
     try:
         with rawpy.imread(io.BytesIO(data)) as raw:
             h, w = raw.sizes.height, raw.sizes.width
-            if h * w / 1e6 > limit:
-                raise BeamshotError(f"{name}: {w}x{h} is above the {limit:.0f} MP limit")
+            _check_size(name, w, h, limit)
             rgb = raw.postprocess(gamma=(1, 1), no_auto_bright=True, output_bps=16, use_camera_wb=True,
                                   output_color=rawpy.ColorSpace.sRGB)
-    except (rawpy.LibRawError, OSError, ValueError) as exc:
-        raise BeamshotError(f"{name}: not a readable raw file ({type(exc).__name__}); copy the file again") from None
+    except BeamshotError:
+        raise
+    except (rawpy.LibRawError, OSError, ValueError, MemoryError) as exc:
+        raise BeamshotError(f"{name}: not a readable raw file ({type(exc).__name__}); copy the file again, or give "
+                            f"{READABLE_FORMATS}") from None
+    if rgb is None or rgb.ndim != 3 or rgb.shape[2] != 3:
+        raise BeamshotError(f"{name}: the raw file holds no colour image beamshot can use; give {READABLE_FORMATS}")
+    _check_size(name, rgb.shape[1], rgb.shape[0], limit)
     exif = _tiff_exif(data)
     from dataclasses import replace
 
     exif = replace(exif, orientation=1)  # LibRaw has already turned the image upright
+    exif, notes = _plausible(exif, {})
     return Photo(bgr=np.ascontiguousarray(rgb[..., ::-1]), exif=exif, name=name,
-                 sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True)
+                 sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True, notes=notes)
+
+
+def _jpeg_has_end(data: bytes) -> bool:
+    """Whether a JPEG's main image ends with an EOI marker (ITU-T T.81 B.2).
+
+    The marker segments before the first start-of-scan are skipped by their lengths, so the end
+    marker of an EXIF thumbnail (inside APP1) does not count; in the entropy-coded data after it
+    0xFF is always stuffed or a restart marker, so 0xFFD9 there is the real end (data a phone
+    appends after the end, e.g. a depth map, is allowed).
+    """
+    pos = 2
+    n = len(data)
+    while pos + 4 <= n:
+        if data[pos] != 0xFF:
+            return False
+        marker = data[pos + 1]
+        if marker == 0xFF:  # fill byte
+            pos += 1
+            continue
+        if marker == 0xDA:  # start of scan: the entropy-coded data follow
+            return data.find(b"\xff\xd9", pos) >= 0
+        if 0xD0 <= marker <= 0xD8 or marker == 0x01:  # markers without a length
+            pos += 2
+            continue
+        pos += 2 + int.from_bytes(data[pos + 2:pos + 4], "big")
+    return False
+
+
+def _probe(data: bytes, name: str, limit: float):
+    """``(width, height, format, exif facts, raw EXIF values)`` from the header, without decoding pixels.
+
+    Pillow's decompression-bomb guard (a warning at 89 MP, an error at 179 MP) would refuse a
+    200 MP phone photo; during this header read it is set to our own limit (error above twice
+    it, which our check below catches first) and its warning is kept from the user.
+    """
+    saved = Image.MAX_IMAGE_PIXELS
+    Image.MAX_IMAGE_PIXELS = int(limit * 1e6)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+            with Image.open(io.BytesIO(data)) as probe:
+                width, height = probe.size
+                fmt = probe.format
+                if fmt == "PNG":
+                    probe.verify()  # chunk CRCs: a damaged PNG is refused here, before libpng prints to stderr
+            if fmt == "PNG" and b"eXIf" not in data:  # Pillow would decode the whole PNG to look for EXIF
+                exif, raw = ExifFacts(), {}
+            else:
+                with Image.open(io.BytesIO(data)) as probe:
+                    exif = read_exif(probe)
+                    raw = _raw_exif(probe)
+    except Image.DecompressionBombError:
+        raise BeamshotError(f"{name}: the image claims an absurd size (above {2 * limit:.0f} MP); it is refused; "
+                            "check the file") from None
+    except Exception:  # noqa: BLE001 - Pillow raises many types on damaged headers; all mean "unreadable"
+        raise BeamshotError(f"{name}: not a readable image; give {READABLE_FORMATS}") from None
+    finally:
+        Image.MAX_IMAGE_PIXELS = saved
+    return width, height, fmt, exif, raw
 
 
 def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float | None = None) -> Photo:
@@ -224,32 +394,23 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
     """
     limit = MAX_MEGAPIXELS if max_megapixels is None else max_megapixels
     if len(data) == 0:
-        raise BeamshotError(f"{name}: the file is empty; give a JPEG, PNG or TIFF photo")
+        raise BeamshotError(f"{name}: the file is empty; give {READABLE_FORMATS}")
     if os.path.splitext(name)[1].lower() in RAW_EXTENSIONS:
         return decode_raw(data, name, max_megapixels=max_megapixels)
-    try:
-        with Image.open(io.BytesIO(data)) as probe:
-            width, height = probe.size
-            fmt = probe.format
-            exif = read_exif(probe)
-    except (UnidentifiedImageError, OSError, SyntaxError, ValueError):
-        raise BeamshotError(f"{name}: not a readable image; give a JPEG, PNG or TIFF photo") from None
-    except Image.DecompressionBombError:
-        raise BeamshotError(f"{name}: the image claims an absurd size; it is refused") from None
+    width, height, fmt, exif, raw = _probe(data, name, limit)
     if fmt not in ("JPEG", "PNG", "TIFF", "MPO"):
-        raise BeamshotError(f"{name}: {fmt} images are not supported; give a JPEG, PNG or TIFF photo")
-    megapixels = width * height / 1e6
-    if megapixels > limit:
-        raise BeamshotError(
-            f"{name}: {width}x{height} is {megapixels:.0f} MP, above the {limit:.0f} MP limit; "
-            "downscale the photo or check the file"
-        )
-    if fmt in ("JPEG", "MPO") and b"\xff\xd9" not in data[-4096:]:
+        raise BeamshotError(f"{name}: {fmt} images are not supported; give {READABLE_FORMATS}")
+    _check_size(name, width, height, limit)
+    if fmt in ("JPEG", "MPO") and not _jpeg_has_end(data):
         raise BeamshotError(f"{name}: the JPEG is truncated (no end marker); copy the file again")
+    exif, notes = _plausible(exif, raw)
     flags = cv2.IMREAD_COLOR | cv2.IMREAD_ANYDEPTH | cv2.IMREAD_IGNORE_ORIENTATION
-    with ThreadPoolExecutor(max_workers=1) as pool:  # hash on the other core while decoding
+    with ThreadPoolExecutor(max_workers=1) as pool, _quiet_opencv():  # hash on the other core while decoding
         digest = pool.submit(lambda: hashlib.sha256(data).hexdigest())
-        bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
+        try:
+            bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
+        except cv2.error:
+            bgr = None
     if bgr is None or bgr.size == 0:
         raise BeamshotError(f"{name}: the image data is corrupt; copy the file again")
     if bgr.dtype not in (np.uint8, np.uint16):
@@ -258,6 +419,9 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         bgr = cv2.cvtColor(bgr, cv2.COLOR_GRAY2BGR)
     elif bgr.shape[2] == 4:
         bgr = cv2.cvtColor(bgr, cv2.COLOR_BGRA2BGR)
+    if bgr.shape[:2] != (height, width):
+        raise BeamshotError(f"{name}: the image data ({bgr.shape[1]}x{bgr.shape[0]}) do not match the header "
+                            f"({width}x{height}); copy the file again")
     bgr = np.ascontiguousarray(apply_orientation(bgr, exif.orientation))
     max_code = 255 if bgr.dtype == np.uint8 else 65535
     return Photo(
@@ -266,6 +430,7 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         name=name,
         sha256=digest.result(),
         max_code=max_code,
+        notes=notes,
     )
 
 

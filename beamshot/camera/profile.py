@@ -19,12 +19,14 @@ import os
 import tempfile
 from dataclasses import dataclass, field, replace
 
+import numpy as np
+
 from ..errors import BeamshotError
 from .distortion import Distortion
 from .flatfield import FlatField
 from .response import Response
 
-__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "DEFAULT_PROFILE_NAME", "CameraProfile", "default_profile",
+__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "DEFAULT_PROFILE_NAME", "PROFILE_LIMITS", "CameraProfile", "default_profile",
            "profile_dir", "find_profile", "load_profile", "save_profile", "list_profiles"]
 
 SCHEMA_NAME = "beamshot.camera"
@@ -94,62 +96,248 @@ class CameraProfile:
 
     @classmethod
     def from_dict(cls, data: dict, source: str = "profile") -> "CameraProfile":
+        """A profile from its JSON form, each field checked against its type and physical range.
+
+        A bad field raises a one-line :class:`BeamshotError` naming the field, the value, the
+        accepted range and the fix (see :data:`PROFILE_LIMITS`).
+        """
         if not isinstance(data, dict) or data.get("schema") != SCHEMA_NAME:
-            raise BeamshotError(f"{source}: not a beamshot camera profile")
-        version = str(data.get("schema_version", ""))
+            raise BeamshotError(f"{source}: not a beamshot camera profile (no \"schema\": \"{SCHEMA_NAME}\"); "
+                                "give a file written by 'beamshot camera ...'")
+        version = data.get("schema_version")
         try:
-            major = int(version.split(".")[0])
+            if isinstance(version, bool) or not isinstance(version, (str, int, float)):
+                raise ValueError
+            major = int(str(version).split(".")[0])
         except ValueError:
-            raise BeamshotError(f"{source}: the profile has no readable schema_version") from None
+            raise BeamshotError(f"{source}: the profile has no readable schema_version ({version!r}); "
+                                f"expected \"{SCHEMA_VERSION}\"; recreate it with 'beamshot camera ...'") from None
         if major > int(SCHEMA_VERSION.split(".")[0]):
-            raise BeamshotError(f"{source}: written by a newer beamshot (camera schema {version}); upgrade beamshot")
-        try:
-            resp = data["response"]
-            kind = resp["kind"]
-            if kind == "table":
-                table = resp["table_rgb"]
-                if len(table) != 3 or any(len(row) != len(table[0]) or len(row) < 16 for row in table):
-                    raise ValueError("table_rgb must be 3 rows of equal length")
-                response = Response("table", table=tuple(tuple(float(x) for x in row) for row in table))
-            elif kind in ("srgb", "linear", "s-curve"):
-                response = Response(kind)
-            elif kind == "gamma":
-                response = Response("gamma", gamma=float(resp["gamma"]))
-            else:
-                raise ValueError(f"unknown response kind {kind!r}")
-            ff = data.get("flat_field")
-            flat = None
-            if ff:
-                b = [float(x) for x in ff["coefficients"]]
-                if len(b) != 3:
-                    raise ValueError("flat_field.coefficients must have 3 numbers")
-                w, h = (int(x) for x in ff["image_size"])
-                flat = FlatField(coefficients=tuple(b), residual_rms=float(ff["residual_rms"]), shape=(h, w),
-                                 method=str(ff.get("method", "flat photo")),
-                                 max_radius=float(ff.get("data_to_radius", 1.0)))
-            sc = data.get("absolute_scale")
-            notes = None
-            if sc:
-                notes = {k: v for k, v in sc.items() if k not in ("constant_lx", "relative_uncertainty", "relation")}
-            dist = data.get("distortion")
-            return cls(
-                distortion=None if not dist else Distortion.from_dict(dist),
-                name=str(data["name"]),
-                response=response,
-                response_quality=data.get("response_quality"),
-                flat=flat,
-                black_level=float(data.get("black_level", 0.0)),
-                scale_constant=None if not sc else float(sc["constant_lx"]),
-                scale_uncertainty=None if not sc else float(sc["relative_uncertainty"]),
-                scale_notes=notes,
-                make=data.get("make"),
-                model=data.get("model"),
-                calibrated=bool(data.get("calibrated", False)),
-                created_utc=str(data.get("created_utc", "")),
-                provenance=tuple(data.get("provenance", ())),
-            )
-        except (KeyError, TypeError, ValueError) as exc:
-            raise BeamshotError(f"{source}: the camera profile is damaged ({exc}); recreate it") from None
+            raise BeamshotError(f"{source}: written by a newer beamshot (camera schema {version}, this one reads "
+                                f"{SCHEMA_VERSION.split('.')[0]}.x); upgrade beamshot")
+        if major < 1:
+            raise BeamshotError(f"{source}: camera schema {version} is not one beamshot wrote (accepted: 1.x); "
+                                "recreate the profile with 'beamshot camera ...'")
+        check = _FieldCheck(source)
+        name = check.text("name", data.get("name"), required=True)
+        response = _response_from(check, data.get("response"))
+        flat = _flat_from(check, data.get("flat_field"))
+        black = check.number("black_level", data.get("black_level", 0.0), *PROFILE_LIMITS["black_level"]) or 0.0
+        sc = data.get("absolute_scale")
+        constant = uncertainty = notes = None
+        if sc is not None:
+            check.mapping("absolute_scale", sc)
+            constant = check.number("absolute_scale.constant_lx", sc.get("constant_lx"),
+                                    *PROFILE_LIMITS["constant_lx"], required=True)
+            uncertainty = check.number("absolute_scale.relative_uncertainty", sc.get("relative_uncertainty"),
+                                       *PROFILE_LIMITS["relative_uncertainty"], required=True)
+            notes = {k: v for k, v in sc.items() if k not in ("constant_lx", "relative_uncertainty", "relation")}
+        quality = data.get("response_quality")
+        if quality is not None:
+            check.mapping("response_quality", quality)
+            rms = quality.get("consistency_rms")
+            if rms is not None:
+                check.number("response_quality.consistency_rms", rms, 0.0, 1.0, lo_open=False)
+        provenance = data.get("provenance", [])
+        if not isinstance(provenance, list) or not all(isinstance(e, dict) for e in provenance):
+            check.fail("provenance", provenance, "a list of {\"step\": ...} records")
+        calibrated = data.get("calibrated", False)
+        if not isinstance(calibrated, bool):
+            check.fail("calibrated", calibrated, "true or false")
+        return cls(
+            distortion=_distortion_from(check, data.get("distortion")),
+            name=name,
+            response=response,
+            response_quality=quality,
+            flat=flat,
+            black_level=black,
+            scale_constant=constant,
+            scale_uncertainty=uncertainty,
+            scale_notes=notes,
+            make=check.text("make", data.get("make")),
+            model=check.text("model", data.get("model")),
+            calibrated=calibrated,
+            created_utc=check.text("created_utc", data.get("created_utc", "")) or "",
+            provenance=tuple(provenance),
+        )
+
+
+#: Accepted range of each numeric profile field: ``(low, high)``; the low end is excluded for
+#: quantities that must be positive.  Sources: the camera constant ``K = 78 pi / (q rho)`` of an
+#: ideal camera is about 440 lx (ISO 12232 with q = 0.65, rho = 0.85); the range allows a factor
+#: of about 400 either way (common practice: true sensitivity and lens factors differ from nominal
+#: by far less).  Black level and flat-field fall-off are in linear units (1 = clipping).
+PROFILE_LIMITS = {
+    "gamma": (1.0, 3.5),               # same range as --response gamma:<exponent>
+    "black_level": (0.0, 0.5),
+    "constant_lx": (1.0, 2.0e5),
+    "relative_uncertainty": (0.0, 1.0),
+    "flat_falloff": (0.05, 1.5),       # V(r) = 1/G(r) anywhere in the frame (corner at 5 %..150 % of centre)
+    "flat_residual_rms": (0.0, 1.0),
+    "flat_data_to_radius": (0.0, 1.0),
+    "table_length": (16, 65536),
+    "image_side_px": (1, 100000),
+}
+
+_RECREATE = "recreate the profile with 'beamshot camera response/flat/scale ... --name NAME' or correct the file"
+
+
+class _FieldCheck:
+    """Field checks for one profile file; every failure is one line naming field, value, range and fix."""
+
+    def __init__(self, source: str):
+        self.source = source
+
+    def fail(self, field_name: str, value, accepted: str):
+        shown = repr(value)
+        if len(shown) > 60:
+            shown = shown[:57] + "..."
+        raise BeamshotError(f"{self.source}: camera profile field {field_name} = {shown} is not accepted "
+                            f"(accepted: {accepted}); {_RECREATE}")
+
+    def number(self, field_name: str, value, lo: float | None = None, hi: float | None = None, *,
+               lo_open: bool | None = None, required: bool = False) -> float | None:
+        """A finite JSON number within ``[lo, hi]`` (``(lo, hi]`` when ``lo_open``, default: lo == 0 is open
+        only for positive quantities), or None when missing and not required."""
+        if value is None and not required:
+            return None
+        rng = _range_text(lo, hi, lo_open)
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            self.fail(field_name, value, f"a number {rng}")
+        x = float(value)
+        if not np.isfinite(x):
+            self.fail(field_name, value, f"a finite number {rng}")
+        if lo is not None and (x < lo or (lo_open and x == lo)):
+            self.fail(field_name, value, f"a number {rng}")
+        if hi is not None and x > hi:
+            self.fail(field_name, value, f"a number {rng}")
+        return x
+
+    def text(self, field_name: str, value, *, required: bool = False) -> str | None:
+        if value is None and not required:
+            return None
+        if not isinstance(value, str) or (required and not value.strip()):
+            self.fail(field_name, value, "a text" + (" (not empty)" if required else " or null"))
+        return value
+
+    def mapping(self, field_name: str, value) -> dict:
+        if not isinstance(value, dict):
+            self.fail(field_name, value, "an object {...}" + ("" if field_name == "response" else " or null"))
+        return value
+
+    def numbers(self, field_name: str, value, count: int | tuple[int, ...]) -> list[float]:
+        counts = (count,) if isinstance(count, int) else count
+        want = " or ".join(str(c) for c in counts)
+        if not isinstance(value, list) or len(value) not in counts:
+            self.fail(field_name, value, f"a list of {want} finite numbers")
+        return [self.number(f"{field_name}[{i}]", v, required=True) for i, v in enumerate(value)]
+
+
+def _range_text(lo, hi, lo_open) -> str:
+    if lo is None and hi is None:
+        return ""
+    if hi is None:
+        return f"{'above' if lo_open else 'at least'} {lo:g}"
+    if lo is None:
+        return f"at most {hi:g}"
+    return f"above {lo:g} up to {hi:g}" if lo_open else f"from {lo:g} to {hi:g}"
+
+
+def _response_from(check: _FieldCheck, resp) -> Response:
+    check.mapping("response", resp)
+    kind = resp.get("kind")
+    if kind in ("srgb", "linear", "s-curve"):
+        return Response(kind)
+    if kind == "gamma":
+        g = check.number("response.gamma", resp.get("gamma"), *PROFILE_LIMITS["gamma"], required=True)
+        return Response("gamma", gamma=g)
+    if kind == "table":
+        return Response("table", table=_table_from(check, resp.get("table_rgb")))
+    return check.fail("response.kind", kind, "srgb, linear, s-curve, gamma or table")
+
+
+def _table_from(check: _FieldCheck, table) -> tuple:
+    """A measured decode table: 3 rows (R, G, B) of equal length, finite, within [0, 1], never falling,
+    rising from the first to the last code, 1 at the top code (bracket.py normalises it so)."""
+    lo_n, hi_n = PROFILE_LIMITS["table_length"]
+    shape_text = f"3 rows (R, G, B) of {lo_n}-{hi_n} numbers each"
+    if (not isinstance(table, list) or len(table) != 3 or not all(isinstance(r, list) for r in table)
+            or len({len(r) for r in table}) != 1 or not lo_n <= len(table[0]) <= hi_n):
+        check.fail("response.table_rgb", table, shape_text)
+    for c, row in enumerate(table):
+        if any(isinstance(x, bool) or not isinstance(x, (int, float)) for x in row):
+            check.fail(f"response.table_rgb[{c}]", row, f"{shape_text}, all numbers")
+    t = np.asarray(table, dtype=np.float64)
+    for c, channel in enumerate("RGB"):
+        row = t[c]
+        where = f"response.table_rgb[{c}] ({channel})"
+        if not np.all(np.isfinite(row)):
+            k = int(np.flatnonzero(~np.isfinite(row))[0])
+            check.fail(f"{where} at code {k}", float(row[k]), "finite numbers from 0 to 1")
+        if row.min() < -1e-9 or row.max() > 1 + 1e-9:
+            k = int(np.argmax((row < -1e-9) | (row > 1 + 1e-9)))
+            check.fail(f"{where} at code {k}", float(row[k]), "numbers from 0 to 1 (1 = clipping)")
+        falls = np.flatnonzero(np.diff(row) < -1e-9)
+        if falls.size:
+            k = int(falls[0]) + 1
+            check.fail(f"{where} at code {k}", float(row[k]),
+                       f"a curve that never falls (code {k - 1} holds {row[k - 1]:.6g})")
+        if abs(row[-1] - 1.0) > 1e-6 or row[-1] <= row[0]:
+            check.fail(f"{where} at the top code", float(row[-1]), "1 at the top code, above the first code")
+    return tuple(tuple(float(x) for x in row) for row in t)
+
+
+def _flat_from(check: _FieldCheck, ff) -> FlatField | None:
+    if ff is None:
+        return None
+    check.mapping("flat_field", ff)
+    b = check.numbers("flat_field.coefficients", ff.get("coefficients"), 3)
+    lo_px, hi_px = PROFILE_LIMITS["image_side_px"]
+    size = ff.get("image_size")
+    if (not isinstance(size, list) or len(size) != 2
+            or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
+        check.fail("flat_field.image_size", size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
+    w, h = size
+    residual = check.number("flat_field.residual_rms", ff.get("residual_rms"), *PROFILE_LIMITS["flat_residual_rms"],
+                            required=True)
+    reach = check.number("flat_field.data_to_radius", ff.get("data_to_radius", 1.0),
+                         *PROFILE_LIMITS["flat_data_to_radius"], lo_open=True, required=True)
+    method = ff.get("method", "flat photo")
+    if not isinstance(method, str):
+        check.fail("flat_field.method", method, "a text such as \"flat photo\"")
+    # The fall-off V(r) = 1 / (1 + b1 r^2 + b2 r^4 + b3 r^6) must stay positive and plausible over the
+    # whole frame, r in [0, 1] (r to the half-diagonal); checked on a fine grid of r.
+    r2 = np.linspace(0.0, 1.0, 1001) ** 2
+    g = 1.0 + b[0] * r2 + b[1] * r2**2 + b[2] * r2**3
+    lo_v, hi_v = PROFILE_LIMITS["flat_falloff"]
+    with np.errstate(divide="ignore"):
+        v = np.where(g > 0, 1.0 / np.where(g > 0, g, 1.0), -np.inf)
+    bad = np.flatnonzero(~((v >= lo_v) & (v <= hi_v)))
+    if bad.size:
+        k = int(bad[0])
+        at = float(np.sqrt(r2[k]))
+        shown = "not positive" if not np.isfinite(v[k]) or v[k] <= 0 else f"{v[k]:.3g} of the centre"
+        check.fail("flat_field.coefficients", b,
+                   f"a fall-off between {lo_v:g} and {hi_v:g} of the centre everywhere in the frame; these give "
+                   f"{shown} at r = {at:.2f} of the half-diagonal")
+    return FlatField(coefficients=tuple(b), residual_rms=residual, shape=(h, w), method=method, max_radius=reach)
+
+
+def _distortion_from(check: _FieldCheck, dist) -> Distortion | None:
+    if not dist:
+        return None
+    check.mapping("distortion", dist)
+    for key in ("fx", "fy"):
+        check.number(f"distortion.{key}", dist.get(key), 0.0, 1e6, lo_open=True, required=True)
+    for key in ("cx", "cy"):
+        check.number(f"distortion.{key}", dist.get(key), -1e6, 1e6, required=True)
+    check.numbers("distortion.coefficients", dist.get("coefficients"), (4, 5, 8))
+    size = dist.get("image_size")
+    lo_px, hi_px = PROFILE_LIMITS["image_side_px"]
+    if (not isinstance(size, list) or len(size) != 2
+            or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
+        check.fail("distortion.image_size", size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
+    return Distortion.from_dict(dist)
 
 
 def _now() -> str:
@@ -190,13 +378,21 @@ def load_profile(name_or_path: str | None) -> CameraProfile:
         return default_profile()
     path = find_profile(name_or_path)
     if path is None:
-        raise BeamshotError(f"no camera profile {name_or_path!r} (looked in {profile_dir()} and calibration/); "
-                            "create one with 'beamshot camera response' or give a file path")
+        if os.path.sep in name_or_path or name_or_path.endswith(".json"):
+            raise BeamshotError(f"camera profile file {os.path.abspath(name_or_path)} does not exist; check the path, "
+                                "or list the profiles with 'beamshot camera list'")
+        folders = " and ".join(os.path.abspath(f) for f in (profile_dir(), _project_dir()))
+        raise BeamshotError(f"no camera profile {name_or_path!r} (looked for {name_or_path}.json in {folders}); "
+                            "list the profiles with 'beamshot camera list', or make one with "
+                            f"'beamshot camera response PHOTOS... --name {name_or_path}'")
     try:
         with open(path, encoding="utf-8") as fh:
             data = json.load(fh)
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise BeamshotError(f"{path}: cannot read the camera profile ({exc})") from None
+    except OSError as exc:
+        raise BeamshotError(f"{path}: cannot read the camera profile ({exc.strerror or exc})") from None
+    except (ValueError, RecursionError) as exc:  # not UTF-8, not JSON, absurd numbers or nesting
+        raise BeamshotError(f"{path}: cannot read the camera profile: not JSON written by beamshot "
+                            f"({str(exc).splitlines()[0][:80]}); recreate it with 'beamshot camera ...'") from None
     return CameraProfile.from_dict(data, source=path)
 
 
