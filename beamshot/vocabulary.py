@@ -47,7 +47,7 @@ FIGURES: dict[str, Term] = {t.key: t for t in (
     Term("spill_flux", "spill flux", "lm", "luminous flux between the 50 % contour and the spill edge"),
     Term("beam_flux", "beam flux (in edge)", "lm", "luminous flux inside the spill edge"),
     Term("ra", "Ra (spill / hotspot flux)", "",
-         "spill flux divided by hotspot flux; this project's figure, not the colour rendering index"),
+         "spill flux over hotspot flux; this project's figure, not the colour rendering index"),
     Term("hotspot_offset", "hotspot offset", "deg",
          "angle between the peak's direction and the beam axis (the spill's centre)"),
     Term("light_tilt", "light tilt (to the wall)", "deg",

@@ -1,4 +1,10 @@
-"""BeamReport: the versioned result of one analysis (schema in docs/report-schema.md)."""
+"""BeamReport: the versioned result of one analysis.
+
+The written form is described by ``schema.json`` beside this module (JSON Schema draft 2020-12)
+and by docs/report-schema.md; tests/test_schema.py keeps the three in agreement.  Every float in
+the written dict is rounded to :data:`ROUND_DIGITS` significant digits and non-finite values are
+written as ``null`` (RFC 8259 JSON has no NaN or Infinity).
+"""
 
 from __future__ import annotations
 
@@ -10,11 +16,14 @@ from ..beammap import BeamMap
 from ..figure import Figure
 from ..profile import RadialProfile
 
-__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "CAUTIONS", "BeamReport"]
+__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "CAUTIONS", "ROUND_DIGITS", "BeamReport", "rounded"]
 
 SCHEMA_NAME = "beamshot.report"
 #: Major.minor; a reader accepts the same major version and refuses a newer major.
 SCHEMA_VERSION = "1.1"
+#: Significant digits of every float written to report.json (the figures' precision; more than
+#: any figure's uncertainty justifies, and enough to re-read a value without visible change).
+ROUND_DIGITS = 6
 
 #: Safety cautions printed in every report (own wording; see docs/safety.md).
 CAUTIONS = (
@@ -48,10 +57,10 @@ class BeamReport:
         """Plain JSON-ready dict following the documented schema."""
 
         def arr(a):
-            return [None if not np.isfinite(x) else float(f"{x:.6g}") for x in np.asarray(a, float)]
+            return np.asarray(a, float).tolist()
 
         p = self.profile
-        return {
+        return rounded({
             "schema": SCHEMA_NAME,
             "schema_version": SCHEMA_VERSION,
             "tool": {"name": "beamshot", "version": self.tool_version},
@@ -71,4 +80,26 @@ class BeamReport:
                 "min": arr(p.min),
                 "max": arr(p.max),
             },
-        }
+        })
+
+
+def rounded(obj, digits: int = ROUND_DIGITS):
+    """A JSON-ready copy of ``obj``: floats to ``digits`` significant digits, non-finite floats as
+    None, -0.0 as 0.0, numpy scalars and arrays as Python numbers and lists, tuples as lists;
+    dicts and lists recursively; bools, ints, strings and None unchanged.
+
+    >>> rounded({"focal_px": 693.3752452815363, "phi": [265.55311615725145, float("nan")], "n": 3})
+    {'focal_px': 693.375, 'phi': [265.553, None], 'n': 3}
+    """
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        x = float(obj)
+        return float(f"{x:.{digits}g}") + 0.0 if np.isfinite(x) else None
+    if isinstance(obj, dict):
+        return {k: rounded(v, digits) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple, np.ndarray)):
+        return [rounded(v, digits) for v in obj]
+    return obj
