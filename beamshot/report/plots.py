@@ -1,20 +1,79 @@
-"""Pictures of a beam: false-colour intensity map with angle rings, and the radial profile.
+"""Pictures of a beam: the intensity map, the radial profile and the table of figures.
+
+``beam_figure`` composes the report picture (beam.png) in one column, so that it reads on a
+phone (about 400 px wide) as well as on a desktop: the map with rings labelled as full cone
+angles, the radial profile against the full cone angle with the dark wall's noise floor drawn
+as a floor, and the figures with their status in words from :mod:`beamshot.vocabulary`.
 
 Each helper takes ``ax=None`` (a new figure is made), imports matplotlib lazily with the
 non-interactive Agg backend, labels its axes with units and returns the main artist.
+
+Conventions: map coordinates are azimuthal-equidistant angles from the beam axis in degrees
+(right and up positive); every angle written on the picture is a full cone angle (twice the
+angle from the axis), as every reported figure is.  Noise: the dark wall beyond the spill edge
+gives the 1-sigma noise of one map cell and of the azimuthal mean (median absolute deviation
+x 1.4826, the normal-consistent scale, common practice); a value is shown as detected when it
+exceeds the dark wall's median by ``DETECTION_SIGMAS`` sigma (the k = 3 limit of detection,
+IUPAC convention, from memory).
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
+from .. import vocabulary
 from ..beammap import BeamMap, directions
+from ..figure import value_with_uncertainty
 from ..hotspot import local_basis
 
-__all__ = ["plot_intensity_map", "plot_radial_profile", "beam_figure"]
+__all__ = ["NoiseFloor", "noise_floor", "map_floor", "plot_intensity_map", "plot_radial_profile",
+           "plot_figure_table", "beam_figure", "TABLE_KEYS"]
 
-#: Decades of intensity shown below the peak in the false-colour map.
-MAP_DECADES = 3.0
+#: Sigmas above the dark wall's median for a value to count as detected (k = 3, IUPAC, from memory).
+DETECTION_SIGMAS = 3.0
+#: MAD -> 1-sigma of a normal distribution (common practice).
+MAD_TO_SIGMA = 1.4826
+#: Dark wall: cells this far beyond the spill edge, in degrees or as a fraction of the edge angle,
+#: whichever is larger (clear of the bezel's soft cut-off; project choice).
+DARK_MARGIN_DEG = 2.0
+DARK_MARGIN_FRACTION = 0.08
+#: Fewest dark-wall cells / profile rows for a noise estimate (project choice).
+MIN_DARK_CELLS = 200
+MIN_DARK_ROWS = 8
+#: The colour scale reaches down to half the spill's median level at least (project choice) ...
+SPILL_FLOOR_FRACTION = 0.5
+#: ... but never more than this many decades below the peak; without a spill or a dark wall it
+#: shows DEFAULT_DECADES (project choice).
+MAX_DECADES = 6.0
+DEFAULT_DECADES = 3.0
+#: Bearing (deg, counter-clockwise from right) along which the rings are labelled.
+RING_LABEL_BEARING_DEG = 35.0
+#: A hotspot whose field contour reaches less than this fraction of the map's half width gets an
+#: enlarged inset (project choice).
+INSET_BELOW_FRACTION = 0.2
+#: Figures listed in the picture's table, in the printed table's order.
+TABLE_KEYS = (
+    "peak_intensity", "beam_distance", "hotspot_angle", "hotspot_angle_horizontal", "hotspot_angle_vertical",
+    "field_angle", "spill_angle", "spill_angle_horizontal", "spill_angle_vertical", "hotspot_flux",
+    "spill_flux", "beam_flux", "ra", "hotspot_offset", "light_tilt",
+)
+
+#: Figure size (in) and resolution: one column 6 in wide, so that 10-11 pt text is still
+#: 9-10 px tall when the picture is shown 400 px wide (a phone); 1020 px wide on a desktop.
+FIG_WIDTH_IN = 6.0
+FIG_DPI = 170
+FONT_PT = 11.0
+
+# Colours: cividis (perceptually uniform, made for colour-vision deficiency) for the map; marks
+# from the Okabe-Ito palette and told apart by line style and marker shape as well.
+_CMAP = "cividis"
+_BELOW = "#000000"          # below the noise floor (darker than cividis' darkest blue)
+_OUTSIDE = "#eeeeee"        # outside the photo (hatched)
+_VERMILLION = "#D55E00"
+_BLUE = "#0072B2"
+_SKY = "#56B4E9"
 
 
 def _pyplot():
@@ -26,6 +85,107 @@ def _pyplot():
     return plt
 
 
+# ----------------------------------------------------------------------------- noise and floors
+@dataclass(frozen=True)
+class NoiseFloor:
+    """Noise of the dark wall beyond the spill edge, in the map's unit.
+
+    ``cell_sigma`` is the 1-sigma of one map cell and ``cell_level`` the level a cell must
+    exceed to count as detected (median + ``DETECTION_SIGMAS`` sigma, at least the sigma term);
+    ``mean_sigma``/``mean_level`` the same for the azimuthal mean of the radial profile.
+    ``cells`` and ``rows`` count the dark cells and the profile rows used.
+    """
+
+    cell_sigma: float
+    cell_level: float
+    mean_sigma: float
+    mean_level: float
+    cells: int
+    rows: int
+
+
+def _robust(values: np.ndarray) -> tuple[float, float]:
+    """Median and MAD-based 1-sigma of finite values."""
+    v = values[np.isfinite(values)]
+    med = float(np.median(v))
+    return med, MAD_TO_SIGMA * float(np.median(np.abs(v - med)))
+
+
+def _edge_at(edge, phi: np.ndarray) -> np.ndarray:
+    """Spill-edge angle (rad) of the sector nearest each azimuth (NaN where the edge is unknown)."""
+    d = np.abs(np.angle(np.exp(1j * (phi[:, None] - np.asarray(edge.phi)[None, :]))))
+    return np.asarray(edge.theta, float)[np.argmin(d, axis=1)]
+
+
+def noise_floor(beam: BeamMap, edge, profile=None) -> NoiseFloor | None:
+    """The dark wall's noise beyond the spill ``edge`` (a :class:`~beamshot.spill.SpillEdge`).
+
+    Dark cells lie beyond the edge by ``DARK_MARGIN_DEG`` or ``DARK_MARGIN_FRACTION`` of the edge
+    angle.  The azimuthal mean's noise comes from the profile rows wholly beyond the edge; with
+    too few such rows it is taken as the cell noise (an upper bound).  None without an edge or
+    with fewer than ``MIN_DARK_CELLS`` dark cells.
+    """
+    if edge is None or not np.any(np.isfinite(edge.theta)):
+        return None
+    e = _edge_at(edge, np.asarray(beam.phi, float))
+    margin = np.maximum(np.radians(DARK_MARGIN_DEG), DARK_MARGIN_FRACTION * e)
+    th = np.asarray(beam.theta, float)[:, None]
+    with np.errstate(invalid="ignore"):
+        dark = np.isfinite(beam.intensity) & np.isfinite(e)[None, :] & (th > (e + margin)[None, :])
+    if dark.sum() < MIN_DARK_CELLS:
+        return None
+    med, sigma = _robust(beam.intensity[dark])
+    cell_level = max(med, 0.0) + DETECTION_SIGMAS * sigma
+    mean_sigma, mean_level, rows = sigma, cell_level, 0
+    if profile is not None:
+        beyond = np.asarray(profile.theta_deg) > np.degrees(np.nanmax(e + margin))
+        row_means = np.asarray(profile.mean)[beyond]
+        row_means = row_means[np.isfinite(row_means)]
+        if row_means.size >= MIN_DARK_ROWS:
+            m_med, m_sigma = _robust(row_means)
+            mean_sigma, mean_level, rows = m_sigma, max(m_med, 0.0) + DETECTION_SIGMAS * m_sigma, int(row_means.size)
+    return NoiseFloor(sigma, cell_level, mean_sigma, mean_level, int(dark.sum()), rows)
+
+
+def _spill_median(beam: BeamMap, edge, peak: float) -> float | None:
+    """Median of the map cells between the 10 % region and 0.9 x the spill edge (None if too few)."""
+    if edge is None or not np.any(np.isfinite(edge.theta)):
+        return None
+    e = _edge_at(edge, np.asarray(beam.phi, float))
+    th = np.asarray(beam.theta, float)[:, None]
+    v = beam.intensity
+    with np.errstate(invalid="ignore"):
+        cells = np.isfinite(v) & (th < 0.9 * e[None, :]) & (v < 0.1 * peak)
+    if cells.sum() < 50:
+        return None
+    return float(np.median(v[cells]))
+
+
+def map_floor(beam: BeamMap, edge, peak: float, noise: NoiseFloor | None) -> tuple[float, str]:
+    """Bottom of the map's colour scale and what lies below it (for the legend).
+
+    The scale reaches down to the dark wall's detection level, or to ``SPILL_FLOOR_FRACTION`` of
+    the spill's median level where that is lower (a spill fainter than one cell's noise still
+    shows, speckled), at most ``MAX_DECADES`` below the peak.
+    """
+    spill = _spill_median(beam, edge, peak)
+    candidates = []
+    if noise is not None and noise.cell_level > 0:
+        candidates.append(noise.cell_level)
+    if spill is not None and spill > 0:
+        candidates.append(SPILL_FLOOR_FRACTION * spill)
+    if not candidates:
+        return peak * 10 ** (-DEFAULT_DECADES), f"below {10 ** (-DEFAULT_DECADES):g} × peak"
+    floor = min(candidates)
+    deepest = peak * 10 ** (-MAX_DECADES)
+    if floor < deepest:
+        return deepest, f"below {10 ** (-MAX_DECADES):g} × peak"
+    if noise is not None and floor >= noise.cell_level:
+        return floor, "below the noise floor"
+    return floor, "below half the spill level"
+
+
+# ----------------------------------------------------------------------------- the map
 def _azimuthal_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
     """Sample the map on a square grid of azimuthal-equidistant angles (deg, right/up positive).
 
@@ -48,68 +208,201 @@ def _azimuthal_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
     return a, vals
 
 
-def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, half_width_deg=None):
-    """False-colour map of intensity (log scale, 3 decades) with angle rings; returns the image."""
+def _ring_step_full_deg(half: float) -> float:
+    """Spacing of the rings as a full cone angle (deg): about four to six rings over the map."""
+    for step in (2, 5, 10, 20, 30):
+        if 2 * half / step <= 6:
+            return float(step)
+    return 40.0
+
+
+def _outlined(fontsize, colour="white"):
+    import matplotlib.patheffects as pe
+
+    return dict(color=colour, fontsize=fontsize, path_effects=[pe.withStroke(linewidth=2.2, foreground="black")])
+
+
+def intensity_label(report=None, unit: str = "cd") -> str:
+    """Axis / colour-bar label of intensity: says 'estimate' when the absolute scale is one."""
+    if unit != "cd":
+        return "intensity (relative to peak)"
+    if report is not None and _scale_is_estimate(report):
+        return "intensity, estimate (cd)"
+    return "intensity (cd)"
+
+
+def _scale_is_estimate(report) -> bool:
+    pk = report.figures.get("peak_intensity")
+    scale = (report.calibration or {}).get("absolute_scale") or {}
+    return (pk is not None and pk.status == "estimate") or scale.get("kind") == "exposure_metadata"
+
+
+def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, half_width_deg=None,
+                       noise: NoiseFloor | None = None, label: str | None = None, fontsize: float = FONT_PT,
+                       cbar_ax=None, legend_ax=None):
+    """False-colour map of intensity (log scale) with rings at full cone angles; returns the image.
+
+    Relative maps are shown relative to their peak.  The colour scale's bottom comes from
+    :func:`map_floor`; cells below it are black, cells outside the photo hatched.  The colour
+    bar goes on ``cbar_ax`` (horizontal) if given, else beside the map; the legend, naming every
+    line, mark and area, on ``legend_ax`` if given, else below the map.  A hotspot small against
+    the map gets an enlarged inset in the upper left corner.
+    """
     plt = _pyplot()
     from matplotlib.colors import LogNorm
 
     if ax is None:
-        _, ax = plt.subplots(figsize=(6, 6))
+        _, ax = plt.subplots(figsize=(FIG_WIDTH_IN, FIG_WIDTH_IN))
+    contours = contours or {}
     cov = float(np.degrees(beam.theta[np.any(beam.valid, axis=1)].max())) if beam.valid.any() else 10.0
     half = half_width_deg or min(cov, 89.0)
     a, vals = _azimuthal_grid(beam, half)
-    peak = np.nanmax(vals)
-    floor = peak * 10 ** (-MAP_DECADES)
-    edge = (contours or {}).get("edge")
-    if edge is not None and np.all(np.isfinite(edge.theta)):
-        # reach down to a deep spill: a third of its median level, at most 5 decades below peak
-        rr = np.radians(np.hypot(*np.meshgrid(a, a)))
-        inner = np.isfinite(vals) & (rr < 0.9 * np.min(edge.theta)) & (vals < 0.1 * peak)
-        if inner.sum() > 50:
-            floor = max(min(floor, np.median(vals[inner]) / 3.0), peak * 1e-5)
-    norm = LogNorm(vmin=floor, vmax=peak)
-    shown = np.where(np.isfinite(vals), np.clip(vals, floor, None), np.nan)
-    im = ax.imshow(shown, origin="lower", extent=(a[0], a[-1], a[0], a[-1]), cmap="inferno", norm=norm)
-    ax.set_facecolor("#d9d9d9")
-    unit = "cd" if beam.unit == "cd" else "relative"
-    plt.colorbar(im, ax=ax, fraction=0.046, pad=0.04, label=f"intensity ({unit})")
-    step = 10 if half > 25 else (5 if half > 10 else 2)
+    relative = beam.unit != "cd"
+    peak = float(np.nanmax(vals))
+    factor = 1.0 / peak if relative and peak > 0 else 1.0
+    edge = contours.get("edge")
+    floor, below_text = map_floor(beam, edge, peak, noise)
+    # NaN cells (outside the photo) are transparent: the hatched background shows through
+    cmap = plt.get_cmap(_CMAP).with_extremes(under=_BELOW, bad=(0.0, 0.0, 0.0, 0.0))
+    norm = LogNorm(vmin=floor * factor, vmax=peak * factor)
+
+    def draw(axes, a_, v_):
+        # values at or below zero would be masked by the log scale: send them below the floor instead
+        shown = np.where(np.isfinite(v_), np.maximum(v_, floor * 1e-3), np.nan) * factor
+        axes.patch.set_facecolor(_OUTSIDE)
+        axes.patch.set_hatch("///")
+        axes.patch.set_edgecolor("#9a9a9a")
+        return axes.imshow(shown, origin="lower", extent=(a_[0], a_[-1], a_[0], a_[-1]), cmap=cmap, norm=norm,
+                           interpolation="nearest")
+
+    im = draw(ax, a, vals)
+    if cbar_ax is not None:
+        cb = plt.colorbar(im, cax=cbar_ax, orientation="horizontal", extend="min")
+    else:
+        cb = plt.colorbar(im, ax=ax, fraction=0.046, pad=0.03, extend="min")
+    cb.set_label(label or ("intensity (relative to peak)" if relative else "intensity (cd)"), fontsize=fontsize)
+    cb.ax.tick_params(labelsize=fontsize * 0.9)
+
+    # rings at round full cone angles, labelled with the full angle (twice the radius drawn)
+    step = _ring_step_full_deg(half)
     t = np.linspace(0, 2 * np.pi, 361)
-    for r in np.arange(step, half + 1e-9, step):
-        ax.plot(r * np.cos(t), r * np.sin(t), color="white", lw=0.4, alpha=0.5)
-        ax.text(r * np.cos(np.radians(45)), r * np.sin(np.radians(45)), f"{r:g}°", color="white", fontsize=7, alpha=0.8)
+    lab_dir = np.radians(RING_LABEL_BEARING_DEG)
+    for full in np.arange(step, 2 * half + 1e-9, step):
+        r = full / 2.0
+        ax.plot(r * np.cos(t), r * np.sin(t), color="white", lw=0.7, alpha=0.6, zorder=2)
+        if r <= half * 0.9:
+            ax.text(r * np.cos(lab_dir), r * np.sin(lab_dir), f"{full:g}° full", ha="left", va="bottom",
+                    gid="ring-label", zorder=6, **_outlined(fontsize * 0.9))
+
+    pk = contours.get("peak")
+    clipped = bool(pk is not None and pk.clipped)
+    handles = [_ring_handle()]
     if np.any(beam.saturated):
-        # outline of the clipped area: nearest-cell lookup of the saturation mask on the same grid
-        xx, yy = np.meshgrid(a, a)
-        th = np.radians(np.hypot(xx, yy))
-        k = np.clip(np.round((th - beam.theta[0]) / beam.d_theta).astype(int), 0, len(beam.theta) - 1)
-        j = np.round((np.mod(np.arctan2(yy, xx), 2 * np.pi) - beam.phi[0]) / beam.d_phi).astype(int) % len(beam.phi)
-        sat = beam.saturated[k, j].astype(float)
-        ax.contour(a, a, sat, levels=[0.5], colors="#00e5ff", linewidths=1.2, linestyles=":")
-        ax.plot([], [], color="#00e5ff", ls=":", label="clipped (not measured)")
-    clipped = bool(contours and contours.get("peak") is not None and contours["peak"].clipped)
-    if contours:
-        pk = contours.get("peak")
-        for key, colour, label in (("hotspot", "#00e5ff", "hotspot 50 %"), ("field", "#7CFC00", "field 10 %")):
-            c = contours.get(key)
-            if clipped or c is None or pk is None or not np.any(np.isfinite(c.alpha)):
-                continue
-            xy = _contour_xy(pk.vector, c.bearings, c.alpha)
-            ax.plot(xy[:, 0], xy[:, 1], color=colour, lw=1.2, label=label)
-        e = contours.get("edge")
-        if e is not None and np.any(np.isfinite(e.theta)):
-            th = np.degrees(np.r_[e.theta, e.theta[:1]])
-            ph = np.r_[e.phi, e.phi[:1]]
-            ax.plot(th * np.cos(ph), th * np.sin(ph), color="#ff4fd8", lw=1.2, ls="--", label="spill edge")
-        if pk is not None and not clipped:
-            x, y = np.degrees(pk.theta) * np.cos(pk.phi), np.degrees(pk.theta) * np.sin(pk.phi)
-            ax.plot([x], [y], marker="+", color="#00e5ff", ms=10, mew=1.5, ls="none", label="peak")
-        ax.plot([0], [0], marker="x", color="#ff4fd8", ms=6, ls="none", label="beam axis")
-        ax.legend(loc="lower right", fontsize=7, framealpha=0.6)
-    ax.set_xlabel("angle right of the beam axis (deg)")
-    ax.set_ylabel("angle above the beam axis (deg)")
+        handles.append(_draw_clipped(ax, beam, a))
+    handles += _draw_marks(ax, contours, edge, pk, clipped)
+    handles.append(_patch(facecolor=_BELOW, edgecolor="#777777", label=below_text))
+    handles.append(_patch(facecolor=_OUTSIDE, edgecolor="#9a9a9a", hatch="///", label="outside the photo"))
+
+    # a small hotspot gets an enlarged inset (upper left) so that its contours and marks can be read
+    fld = contours.get("field")
+    if not clipped and pk is not None and fld is not None and np.any(np.isfinite(fld.alpha)):
+        reach = np.degrees(pk.theta + np.nanmax(fld.alpha))
+        if reach < INSET_BELOW_FRACTION * half:
+            zoom = max(1.6 * reach, 1.0)
+            ins = ax.inset_axes([0.015, 0.60, 0.38, 0.38])
+            a2, v2 = _azimuthal_grid(beam, zoom, n=241)
+            draw(ins, a2, v2)
+            _draw_marks(ins, contours, None, pk, clipped)
+            ins.set_xlim(a2[0], a2[-1])
+            ins.set_ylim(a2[0], a2[-1])
+            ins.set_xticks([])
+            ins.set_yticks([])
+            for sp in ins.spines.values():
+                sp.set_edgecolor("white")
+                sp.set_linewidth(1.2)
+            ins.text(0.04, 0.03, f"×{half / zoom:.0f}", transform=ins.transAxes, ha="left", va="bottom",
+                     gid="inset-label", **_outlined(fontsize * 0.85))
+            ax.indicate_inset_zoom(ins, edgecolor="white", alpha=0.9, lw=1.0)
+
+    kw = dict(handles=handles, fontsize=fontsize * 0.9, ncol=2, frameon=False, handlelength=2.4,
+              columnspacing=1.0, borderaxespad=0.0, labelspacing=0.35)
+    if legend_ax is not None:
+        legend_ax.axis("off")
+        legend_ax.legend(loc="upper center", **kw)
+    else:
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.02), **kw)
+    ax.set_xlim(a[0], a[-1])
+    ax.set_ylim(a[0], a[-1])
+    ax.set_xticks([])
+    ax.set_yticks([])
     ax.set_aspect("equal")
+    ax.text(0.985, 0.015, "seen from behind the light", transform=ax.transAxes, ha="right", va="bottom",
+            zorder=9, **_outlined(fontsize * 0.8))
     return im
+
+
+def _patch(**kw):
+    from matplotlib.patches import Patch
+
+    return Patch(**kw)
+
+
+def _ring_handle():
+    from matplotlib.lines import Line2D
+
+    return Line2D([], [], color="#9a9a9a", lw=0.9, label="ring: full cone angle")
+
+
+def _edge_style():
+    import matplotlib.patheffects as pe
+
+    return dict(color="white", lw=1.5, ls=(0, (5, 2, 1, 2)),
+                path_effects=[pe.Stroke(linewidth=3.0, foreground="black"), pe.Normal()])
+
+
+def _draw_clipped(ax, beam: BeamMap, a: np.ndarray):
+    """Hatch and outline the clipped area (nearest-cell lookup of the saturation mask); the legend handle."""
+    xx, yy = np.meshgrid(a, a)
+    th = np.radians(np.hypot(xx, yy))
+    k = np.clip(np.round((th - beam.theta[0]) / beam.d_theta).astype(int), 0, len(beam.theta) - 1)
+    j = np.round((np.mod(np.arctan2(yy, xx), 2 * np.pi) - beam.phi[0]) / beam.d_phi).astype(int) % len(beam.phi)
+    sat = beam.saturated[k, j].astype(float)
+    import matplotlib as mpl
+
+    with mpl.rc_context({"hatch.color": _VERMILLION, "hatch.linewidth": 1.2}):
+        ax.contourf(a, a, sat, levels=[0.5, 1.5], colors="none", hatches=["xxx"], zorder=3)
+    ax.contour(a, a, sat, levels=[0.5], colors=_VERMILLION, linewidths=2.0, zorder=4)
+    return _patch(facecolor="#f7e7a0", edgecolor=_VERMILLION, hatch="xxx", lw=1.5, label="clipped: not measured")
+
+
+def _draw_marks(ax, contours: dict, edge, pk, clipped: bool) -> list:
+    """Hotspot and field contours, spill edge, beam axis and peak marks; returns legend handles."""
+    from matplotlib.lines import Line2D
+
+    handles = []
+    styles = (("hotspot", "hotspot_angle", "black", "-", 1.7), ("field", "field_angle", "black", "--", 1.5))
+    for key, fkey, colour, ls, lw in styles:
+        c = contours.get(key)
+        if clipped or c is None or pk is None or not np.any(np.isfinite(c.alpha)):
+            continue
+        xy = _contour_xy(pk.vector, c.bearings, c.alpha)
+        ax.plot(xy[:, 0], xy[:, 1], color=colour, lw=lw, ls=ls, zorder=4)
+        handles.append(Line2D([], [], color=colour, lw=lw, ls=ls, label=vocabulary.label(fkey)))
+    if edge is not None and np.any(np.isfinite(edge.theta)):
+        th = np.degrees(np.r_[edge.theta, edge.theta[:1]])
+        ph = np.r_[edge.phi, edge.phi[:1]]
+        ax.plot(th * np.cos(ph), th * np.sin(ph), zorder=4, **_edge_style())
+        handles.append(Line2D([], [], label=vocabulary.label("spill_angle"), **_edge_style()))
+    # beam axis: hollow ring; peak: small filled diamond with a white rim (told apart even when they coincide)
+    axis_style = dict(marker="o", ms=12, mfc="none", mec=_SKY, mew=2.2, ls="none")
+    ax.plot([0], [0], zorder=7, **axis_style)
+    handles.append(Line2D([], [], label="beam axis (spill centre)", **axis_style))
+    if pk is not None and not clipped:
+        x, y = np.degrees(pk.theta) * np.cos(pk.phi), np.degrees(pk.theta) * np.sin(pk.phi)
+        peak_style = dict(marker="D", ms=6, mfc=_VERMILLION, mec="white", mew=0.9, ls="none")
+        ax.plot([x], [y], zorder=8, **peak_style)
+        handles.append(Line2D([], [], label="peak", **peak_style))
+    return handles
 
 
 def _contour_xy(centre, bearings, alpha):
@@ -124,53 +417,193 @@ def _contour_xy(centre, bearings, alpha):
     return np.c_[th * np.cos(ph), th * np.sin(ph)]
 
 
-def plot_radial_profile(profile, figures: dict, *, ax=None, log=True, unit="relative"):
-    """Azimuthal mean intensity against polar angle with its min-max band and the figure marks."""
+# ----------------------------------------------------------------------------- the profile
+def _azimuth_percentiles(beam: BeamMap, q=(10, 90), min_coverage: float = 0.5):
+    """Per polar angle, percentiles of the map over azimuth (NaN where coverage is short)."""
+    v = beam.intensity
+    ok = np.isfinite(v).sum(axis=1) >= min_coverage * v.shape[1]
+    out = np.full((len(q), v.shape[0]), np.nan)
+    if ok.any():
+        out[:, ok] = np.nanpercentile(v[ok], q, axis=1)
+    return out
+
+
+def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None = None,
+                        noise: NoiseFloor | None = None, label: str = "intensity (cd)",
+                        fontsize: float = FONT_PT):
+    """Azimuthal mean intensity (log scale) against the full cone angle, with the figure marks.
+
+    The band is the 10-90 % spread over azimuth (from ``beam``), drawn where the mean is
+    detected.  With ``noise``, values below the azimuthal mean's detection level are drawn at
+    that level, over a shaded band labelled as the noise floor, instead of as noise.
+    Relative profiles (``label`` mentioning 'relative') are divided by their peak.
+    """
     plt = _pyplot()
     if ax is None:
-        _, ax = plt.subplots(figsize=(6, 4))
+        _, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 3.4))
     ok = np.isfinite(profile.mean)
-    t = profile.theta_deg[ok]
-    (line,) = ax.plot(t, profile.mean[ok], color="#1f4e79", lw=1.2, label="azimuthal mean")
-    ax.fill_between(t, profile.min[ok], profile.max[ok], color="#1f4e79", alpha=0.18, lw=0, label="min-max over azimuth")
-    marks = (("hotspot_angle", "#0097a7", "hotspot"), ("field_angle", "#2e7d32", "field"), ("spill_angle", "#c2185b", "spill"))
-    for key, colour, label in marks:
+    full = 2.0 * np.asarray(profile.theta_deg)[ok]
+    mean = np.asarray(profile.mean)[ok]
+    top = float(np.nanmax(mean)) if mean.size else 1.0
+    factor = 1.0 / top if "relative" in label and top > 0 else 1.0
+    mean = mean * factor
+    top *= factor
+    floor = noise.mean_level * factor if noise is not None and noise.mean_level > 0 else None
+    bottom = floor / 3.0 if floor is not None else top * 10 ** (-DEFAULT_DECADES - 1)
+    bottom = max(bottom, top * 10 ** (-MAX_DECADES))
+    detected = mean > (floor if floor is not None else bottom)
+    if beam is not None:
+        lo, hi = _azimuth_percentiles(beam)[:, ok] * factor
+        band = detected & np.isfinite(lo) & np.isfinite(hi)
+        ax.fill_between(full, np.maximum(lo, bottom), np.maximum(hi, bottom), where=band, color=_BLUE,
+                        alpha=0.22, lw=0, label="10–90 % over azimuth")
+    if beam is not None and np.any(beam.saturated):
+        # polar angles with clipped cells: the profile there is only a lower bound
+        reach = 2.0 * float(np.degrees(np.max(np.asarray(beam.theta)[np.any(beam.saturated, axis=1)]) + beam.d_theta / 2))
+        import matplotlib as mpl
+
+        with mpl.rc_context({"hatch.color": _VERMILLION, "hatch.linewidth": 1.0}):
+            ax.axvspan(0.0, reach, facecolor="none", edgecolor=_VERMILLION, hatch="xx", lw=0.0,
+                       label="clipped: not measured")
+    # the mean is drawn where it is detected, down to the floor where it sinks below it
+    level = floor if floor is not None else bottom
+    shown = np.where(detected, mean, np.nan)
+    sinks = np.flatnonzero(~detected[1:] & detected[:-1]) + 1
+    shown[sinks] = level
+    (line,) = ax.plot(full, shown, color=_BLUE, lw=1.8, label="azimuthal mean")
+    if floor is not None:
+        ax.axhspan(bottom * 1e-3, floor, color="#555555", alpha=0.28, lw=0,
+                   label="below noise floor (3σ, dark wall)")
+    marks = (("hotspot_angle", "black", "-"), ("field_angle", "black", "--"), ("spill_angle", _VERMILLION, (0, (5, 2, 1, 2))))
+    for key, colour, ls in marks:
         f = figures.get(key)
         if f is not None and f.value is not None:
-            ax.axvline(f.value / 2.0, color=colour, ls="--", lw=1.0, label=f"{label} edge at {f.value / 2:.1f}° ({f.value:.1f}° full angle)")
-    if log and np.any(profile.mean[ok] > 0):
-        ax.set_yscale("log")
-        top = np.nanmax(profile.max[ok])
-        ax.set_ylim(top * 1e-4, top * 2)
-    ax.set_xlabel("angle from the beam axis (deg)")
-    ax.set_ylabel(f"intensity ({unit})" + (", log scale" if log else ""))
-    ax.grid(True, which="both", alpha=0.25)
-    ax.legend(fontsize=7, loc="upper right")
+            ax.axvline(f.value, color=colour, ls=ls, lw=1.2, label=vocabulary.label(key))
+    ax.set_yscale("log")
+    ax.set_ylim(bottom, top * 2.0)
+    ax.set_xlim(0, full.max() if full.size else 1)
+    ax.set_xlabel("full cone angle (°), twice the angle from the axis", fontsize=fontsize)
+    ax.set_ylabel(label, fontsize=fontsize)
+    ax.tick_params(labelsize=fontsize * 0.9)
+    ax.grid(True, which="major", alpha=0.3)
+    ax.legend(fontsize=fontsize * 0.8, loc="best", framealpha=0.9, handlelength=2.2, labelspacing=0.3)
     return line
 
 
-def beam_figure(report, path=None):
-    """The report picture: map on the left, log and linear radial profiles on the right."""
+# ----------------------------------------------------------------------------- the figures table
+def _number(x: float) -> str:
+    """Three significant digits with thousands separators (no exponent for everyday sizes)."""
+    if x == 0 or not 1e-3 <= abs(x) < 1e9:
+        return f"{x:.3g}"
+    r = float(f"{x:.3g}")
+    decimals = max(0, 2 - int(np.floor(np.log10(abs(r)))))
+    return f"{r:,.{decimals}f}"
+
+
+def figure_value_text(fig) -> str:
+    """``≈ 5.04 ± 0.22°``: status mark, value ± uncertainty (GUM rounding) and unit; '—' if none."""
+    if fig.value is None:
+        return "—"
+    unit = vocabulary.unit_text(fig.unit)
+    sep = "" if unit in ("°", "") else " "
+    mark = vocabulary.STATUS_MARKS.get(fig.status, "")
+    if fig.uncertainty is not None and fig.uncertainty > 0:
+        v, u = value_with_uncertainty(fig.value, fig.uncertainty)
+        return f"{mark}{v} ± {u}{sep}{unit}"
+    return f"{mark}{_number(fig.value)}{sep}{unit}"
+
+
+def plot_figure_table(figures: dict, *, ax=None, fontsize: float = FONT_PT):
+    """The key figures as a text table: label, value ± uncertainty unit, status in words.
+
+    Labels, units and status words come from :mod:`beamshot.vocabulary`; each label's text
+    artist carries ``gid='figure-label:<key>'``.  Returns the list of label artists.
+    """
     plt = _pyplot()
-    fig = plt.figure(figsize=(13, 6.2), dpi=110)
-    grid = fig.add_gridspec(2, 2, width_ratios=[1.05, 1.0])
-    ax_map = fig.add_subplot(grid[:, 0])
-    ax_log = fig.add_subplot(grid[0, 1])
-    ax_lin = fig.add_subplot(grid[1, 1], sharex=ax_log)
-    plot_intensity_map(report.beam, report.contours, ax=ax_map)
-    unit = "cd" if report.beam.unit == "cd" else "relative"
-    plot_radial_profile(report.profile, report.figures, ax=ax_log, log=True, unit=unit)
-    plot_radial_profile(report.profile, report.figures, ax=ax_lin, log=False, unit=unit)
-    ax_lin.get_legend().remove()
+    if ax is None:
+        _, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 3.6))
+    ax.axis("off")
+    keys = [k for k in TABLE_KEYS if k in figures] + [k for k in figures if k not in TABLE_KEYS]
+    n = len(keys) + 1
+    y = lambda i: 1.0 - (i + 0.5) / n  # noqa: E731  (row centres, top to bottom)
+    head = dict(fontsize=fontsize * 0.9, color="#444444", va="center", weight="bold")
+    ax.text(0.0, y(0), "figure", ha="left", transform=ax.transAxes, **head)
+    ax.text(0.70, y(0), "value ± 1σ", ha="right", transform=ax.transAxes, **head)
+    ax.text(0.74, y(0), "status", ha="left", transform=ax.transAxes, **head)
+    labels = []
+    for i, key in enumerate(keys, start=1):
+        f = figures[key]
+        part = vocabulary.term(key).part_of is not None
+        grey = f.status == "not_measured"
+        colour = "#8a8a8a" if grey else "black"
+        if i % 2 == 0:
+            ax.axhspan(y(i) - 0.5 / n, y(i) + 0.5 / n, color="#f0f0f0", lw=0, zorder=0)
+        labels.append(ax.text(0.04 if part else 0.0, y(i), vocabulary.label(key), ha="left", va="center",
+                              fontsize=fontsize * (0.9 if part else 1.0), color=colour, transform=ax.transAxes,
+                              gid=f"figure-label:{key}"))
+        ax.text(0.70, y(i), figure_value_text(f), ha="right", va="center", fontsize=fontsize * (0.9 if part else 1.0),
+                color=colour, transform=ax.transAxes, gid=f"figure-value:{key}")
+        ax.text(0.74, y(i), vocabulary.STATUS_WORDS.get(f.status, f.status), ha="left", va="center",
+                fontsize=fontsize * 0.9, color=colour, style="italic" if f.status != "measured" else "normal",
+                transform=ax.transAxes, gid=f"figure-status:{key}")
+    ax.set_ylim(0, 1)
+    return labels
+
+
+# ----------------------------------------------------------------------------- the report picture
+def _title(report) -> tuple[str, str]:
     beams = [i["name"] for i in report.inputs if i.get("role") == "beam"]
-    name = beams[0] if beams else ""
+    photo = beams[0] if beams else ""
     if len(beams) > 1:
-        name += f" (+{len(beams) - 1} bracket photos)"
-    pk = report.figures.get("peak_intensity")
-    title = f"{name} — peak {pk.text(3)}" if pk is not None else name
-    fig.suptitle(title, fontsize=11)
-    fig.tight_layout()
+        photo += f" (+{len(beams) - 1} bracket photos)"
+    name = (report.settings or {}).get("light_name")
+    d = (report.settings or {}).get("distance_m")
+    wall = f"wall at {d:g} m" if d else ""
+    sub = " · ".join(s for s in ((f"photo {photo}" if name and photo else ""), wall) if s)
+    return (name or photo or "beam"), sub
+
+
+def beam_figure(report, path=None):
+    """The report picture in one column: title, map, colour bar, legend, radial profile, figures table.
+
+    ``FIG_WIDTH_IN`` wide at ``FIG_DPI`` (about 1000 px), readable when shown 400 px wide.
+    Returns the matplotlib figure (closed after saving when ``path`` is given).
+    """
+    plt = _pyplot()
+    W = FIG_WIDTH_IN
+    n_rows = len(report.figures) + 1
+    # panel heights from the top, inches: title, map, colour bar + label, legend, profile, table
+    title_h, map_side, cbar_h, cbar_lab, legend_h = 0.85, W - 1.0, 0.17, 0.62, 1.25
+    prof_h, prof_lab, table_h = 2.9, 0.75, 0.3 * n_rows
+    H = title_h + map_side + 0.12 + cbar_h + cbar_lab + legend_h + prof_h + prof_lab + table_h + 0.15
+    fig = plt.figure(figsize=(W, H), dpi=FIG_DPI)
+
+    def box(left, top, width, height):  # inches from the top-left corner -> figure fraction
+        return [left / W, 1 - (top + height) / H, width / W, height / H]
+
+    y = title_h
+    ax_map = fig.add_axes(box(0.5, y, map_side, map_side))
+    y += map_side + 0.12
+    ax_cb = fig.add_axes(box(0.5, y, map_side, cbar_h))
+    y += cbar_h + cbar_lab
+    ax_leg = fig.add_axes(box(0.2, y, W - 0.4, legend_h))
+    y += legend_h
+    ax_prof = fig.add_axes(box(0.95, y, W - 1.15, prof_h))
+    y += prof_h + prof_lab
+    ax_tab = fig.add_axes(box(0.2, y, W - 0.35, table_h))
+
+    unit = "cd" if report.beam.unit == "cd" else "relative"
+    label = intensity_label(report, unit)
+    noise = noise_floor(report.beam, (report.contours or {}).get("edge"), report.profile)
+    plot_intensity_map(report.beam, report.contours, ax=ax_map, noise=noise, label=label, cbar_ax=ax_cb,
+                       legend_ax=ax_leg)
+    plot_radial_profile(report.profile, report.figures, ax=ax_prof, beam=report.beam, noise=noise, label=label)
+    plot_figure_table(report.figures, ax=ax_tab)
+    title, sub = _title(report)
+    fig.text(0.5, 1 - 0.32 / H, title, ha="center", va="center", fontsize=FONT_PT * 1.3, weight="bold", gid="title")
+    if sub:
+        fig.text(0.5, 1 - 0.64 / H, sub, ha="center", va="center", fontsize=FONT_PT * 0.9, color="#444444")
     if path is not None:
-        fig.savefig(path)
+        fig.savefig(path, dpi=FIG_DPI)
         plt.close(fig)
     return fig
