@@ -8,6 +8,7 @@ as on the wall when the sheet is pinned upright.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 
 import cv2
@@ -62,8 +63,9 @@ def target_albedo(x_mm: np.ndarray, y_mm: np.ndarray, *, origin_mm=(0.0, 0.0), w
     return out
 
 
-def write_target(path_stem: str, paper: str = "a4") -> list[str]:
-    """Write ``<stem>.pdf`` and ``<stem>.png`` (300 dpi) of the target on A4 or Letter."""
+def write_target(folder: str, paper: str = "a4", *, stem: str = "target") -> list[str]:
+    """Write ``<folder>/<stem>.pdf`` and ``<folder>/<stem>.png`` (300 dpi) of the target on A4 or
+    Letter; returns their paths.  ``folder`` must exist."""
     import matplotlib
 
     matplotlib.use("Agg", force=False)
@@ -86,7 +88,7 @@ def write_target(path_stem: str, paper: str = "a4") -> list[str]:
     ax.plot([-SCALE_BAR_MM / 2, SCALE_BAR_MM / 2], [y_bar, y_bar], color="black", lw=1.2)
     for t in np.arange(0, SCALE_BAR_MM + 1, 10):
         ax.plot([-SCALE_BAR_MM / 2 + t] * 2, [y_bar, y_bar + (4 if t % 50 == 0 else 2)], color="black", lw=0.8)
-    ax.text(0, y_bar - 6, f"scale bar {SCALE_BAR_MM:g} mm - measure it; if it differs, give --target-scale",
+    ax.text(0, y_bar - 6, f"scale bar {SCALE_BAR_MM:g} mm - measure it; if it differs, give --scale-bar-mm",
             ha="center", va="center", fontsize=7)
     ax.text(0, h / 2 - 10, "beamshot wall target - print at 100 % (no 'fit to page'); pin upright with the "
             "cross at the aim point", ha="center", va="center", fontsize=6.5)
@@ -95,10 +97,11 @@ def write_target(path_stem: str, paper: str = "a4") -> list[str]:
     ax.set_aspect("equal")
     written = []
     for ext, kw in ((".pdf", {"dpi": 1440}), (".png", {"dpi": 300})):
+        path = os.path.join(folder, stem + ext)
         # keep each marker a separate image of exact size in the PDF (no compositing)
         with matplotlib.rc_context({"image.composite_image": False}):
-            fig.savefig(path_stem + ext, **kw)
-        written.append(path_stem + ext)
+            fig.savefig(path, **kw)
+        written.append(path)
     plt.close(fig)
     return written
 

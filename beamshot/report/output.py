@@ -1,27 +1,72 @@
-"""Write a BeamReport to a folder: report.json, profile.csv, beam.png.
+"""Write a BeamReport to a folder as one set: report.json, profile.csv, beam.png.
 
-Files are written into a temporary folder beside the target and moved into place only
-when all of them succeeded, so a failed run leaves nothing partial behind.
+A reader of ``--out`` sees the old set or the new set, never a mix, and nothing of ours is
+left beside it:
+
+1. Under a lock (``.beamshot-lock-<key>`` beside ``--out``, held with ``flock`` so a killed
+   run cannot leave it held), leftovers of earlier runs for the same ``--out`` are tidied: a
+   temporary folder is removed, and a set left aside by a run that died between two renames
+   is put back (or removed when the new set already stands).  Our temporary folders for other
+   outputs are removed when they are older than :data:`STALE_AFTER_S`.
+2. The whole set is written into ``.beamshot-tmp-<key>-<pid>-<random>`` in ``--out``'s parent
+   (same file system, so renames are atomic), each file flushed to disk.
+3. The new folder takes the place of ``--out`` in one step: on Linux the two folders are
+   exchanged atomically (``renameat2(RENAME_EXCHANGE)``), so ``--out`` never disappears; where
+   that is not available, the old folder is renamed aside to ``.beamshot-old-<key>-...`` and
+   the new one renamed into place (a run killed between the two renames leaves no ``--out``
+   until the next run puts the old set back).  The old set is then deleted.
+
+``<key>`` is a short hash of ``--out``'s folder name, so each output has its own lock and
+leftovers.  The temporary folder is removed on every exit path: ``finally`` blocks, SIGTERM
+turned into :class:`Terminated` while writing, SIGINT (KeyboardInterrupt) likewise, and the
+signals held back during the swap and clean-up.  Two runs writing the same ``--out``: the
+later one waits up to :data:`LOCK_WAIT_S` for the earlier to finish and then replaces its set
+whole; after that it is refused with the reason.  An existing ``--out`` holding files that
+beamshot did not write is refused, never replaced.
 """
 
 from __future__ import annotations
 
+import contextlib
 import csv
+import errno
+import hashlib
 import json
 import os
+import re
+import secrets
 import shutil
-import tempfile
+import signal
+import sys
+import threading
+import time
 
-import numpy as np
+from typing import TYPE_CHECKING
 
 from ..errors import BeamshotError, read_user_file
-from ..profile import plane_profile
-from .model import BeamReport
-from .plots import beam_figure
 
-__all__ = ["REPORT_FILES", "write_report", "write_json", "write_profile_csv", "read_report_json"]
+if TYPE_CHECKING:  # imported lazily: the command line imports this module's Terminated at start
+    from .model import BeamReport
+
+__all__ = ["REPORT_FILES", "STALE_AFTER_S", "LOCK_WAIT_S", "Terminated", "write_report", "write_json",
+           "write_profile_csv", "read_report_json", "output_key"]
 
 REPORT_FILES = ("report.json", "profile.csv", "beam.png")
+#: Our temporary and set-aside folders of *other* outputs are removed once older than this (s).
+STALE_AFTER_S = 24 * 3600.0
+#: How long a run waits for another run writing the same --out before refusing (s).
+LOCK_WAIT_S = 30.0
+#: Environment switch (diagnostics and the kill test): "rename" forces the two-rename swap.
+SWAP_ENV = "BEAMSHOT_SWAP"
+
+_TMP = ".beamshot-tmp-"
+_OLD = ".beamshot-old-"
+_LOCK = ".beamshot-lock-"
+_OURS = re.compile(r"^\.beamshot-(tmp|old)-([0-9a-f]{12})-(\d+)-([0-9a-f]{8})$")
+
+
+class Terminated(BaseException):
+    """SIGTERM received while an output set was being written (the CLI exits 143 quietly)."""
 
 
 def write_json(report: BeamReport, path) -> None:
@@ -52,6 +97,10 @@ def read_report_json(path) -> dict:
 
 def write_profile_csv(report: BeamReport, path) -> None:
     """Radial profile plus the horizontal and vertical plane profiles, one row per polar angle."""
+    import numpy as np
+
+    from ..profile import plane_profile
+
     p = report.profile
     h_ang, h_val = plane_profile(report.beam, 0.0)
     v_ang, v_val = plane_profile(report.beam, 90.0)
@@ -70,28 +119,252 @@ def write_profile_csv(report: BeamReport, path) -> None:
                         int(p.count[i]), fmt(h_val[n + i]), fmt(h_val[n - 1 - i]), fmt(v_val[n + i]), fmt(v_val[n - 1 - i])])
 
 
+# ---------------------------------------------------------------- one set, replaced at once
+
+def output_key(out_dir) -> str:
+    """The 12-hex-digit key of an output folder's name, used in our lock and leftover names.
+
+    >>> output_key("reports/proto-a") == output_key("proto-a")
+    True
+    """
+    return hashlib.sha1(os.path.basename(os.path.abspath(os.fspath(out_dir))).encode("utf-8", "surrogateescape")
+                        ).hexdigest()[:12]
+
+
+def _fail_os(out_dir: str, exc: OSError, doing: str):
+    if isinstance(exc, PermissionError) or exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
+        return BeamshotError(f"{out_dir}: cannot {doing} ({exc.strerror or exc}); choose a folder you can write to")
+    if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+        return BeamshotError(f"{out_dir}: cannot {doing} (the disk is full); free some space or choose another --out")
+    return BeamshotError(f"{out_dir}: cannot {doing} ({exc.strerror or exc}); choose another --out")
+
+
+def _is_our_set(path: str) -> tuple[bool, list[str]]:
+    """Whether an existing folder is a beamshot output set (only our file names; report.json ours)."""
+    names = sorted(os.listdir(path))
+    foreign = [n for n in names if n not in REPORT_FILES]
+    if foreign:
+        return False, foreign
+    if "report.json" in names:
+        try:
+            with open(os.path.join(path, "report.json"), "rb") as fh:
+                data = json.loads(fh.read(4_000_000).decode("utf-8"))
+            if not (isinstance(data, dict) and data.get("schema") == "beamshot.report"):
+                return False, ["report.json (not a beamshot report)"]
+        except (OSError, ValueError):
+            return False, ["report.json (not a beamshot report)"]
+    return True, []
+
+
+def _rmtree(path: str) -> None:
+    shutil.rmtree(path, ignore_errors=True)
+
+
+def _fsync_dir(path: str) -> None:
+    with contextlib.suppress(OSError, AttributeError):
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+def _fsync_files(folder: str) -> None:
+    for name in os.listdir(folder):
+        with open(os.path.join(folder, name), "rb+") as fh:
+            os.fsync(fh.fileno())
+
+
+_RENAME_EXCHANGE = 2
+_AT_FDCWD = -100
+
+
+def _exchange(a: str, b: str) -> bool:
+    """Swap two paths atomically (Linux renameat2 RENAME_EXCHANGE); False where not available."""
+    if os.environ.get(SWAP_ENV) == "rename" or not sys.platform.startswith("linux"):
+        return False
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        fn = libc.renameat2
+    except (OSError, AttributeError):
+        return False
+    fn.argtypes = [ctypes.c_int, ctypes.c_char_p, ctypes.c_int, ctypes.c_char_p, ctypes.c_uint]
+    if fn(_AT_FDCWD, os.fsencode(a), _AT_FDCWD, os.fsencode(b), _RENAME_EXCHANGE) == 0:
+        return True
+    err = ctypes.get_errno()
+    if err in (errno.EINVAL, errno.ENOSYS, errno.EOPNOTSUPP, errno.ENOTSUP):
+        return False  # the file system cannot exchange: fall back to two renames
+    raise OSError(err, os.strerror(err), a)
+
+
+@contextlib.contextmanager
+def _lock(parent: str, key: str, out_dir: str):
+    """Hold ``.beamshot-lock-<key>`` in ``parent``: flock where available (released by the kernel when
+    a run is killed), else an O_EXCL file naming the holder's pid."""
+    path = os.path.join(parent, _LOCK + key)
+    deadline = time.monotonic() + LOCK_WAIT_S
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - not POSIX
+        fcntl = None
+    while True:
+        if fcntl is not None:
+            fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except BlockingIOError:
+                os.close(fd)
+            else:
+                try:
+                    same = os.path.samestat(os.fstat(fd), os.stat(path))
+                except FileNotFoundError:
+                    same = False
+                if same:  # not a file the previous holder removed while we waited
+                    os.write(fd, f"{os.getpid()}\n".encode())
+                    break
+                os.close(fd)
+                continue
+        else:  # pragma: no cover - not POSIX
+            try:
+                fd = os.open(path, os.O_RDWR | os.O_CREAT | os.O_EXCL, 0o644)
+                os.write(fd, f"{os.getpid()}\n".encode())
+                break
+            except FileExistsError:
+                if time.time() - os.path.getmtime(path) > 600:
+                    with contextlib.suppress(OSError):
+                        os.remove(path)
+                    continue
+        if time.monotonic() > deadline:
+            raise BeamshotError(f"{out_dir}: another beamshot run is writing this folder (lock {path}); "
+                                "wait for it to finish or choose another --out")
+        time.sleep(0.05)
+    try:
+        yield
+    finally:
+        with contextlib.suppress(OSError):
+            os.remove(path)
+        os.close(fd)
+
+
+def _tidy(parent: str, key: str, out: str) -> None:
+    """Put right what earlier runs left (called under the lock of ``key``)."""
+    now = time.time()
+    olds = []
+    for name in os.listdir(parent):
+        m = _OURS.match(name)
+        if m is None:
+            continue
+        path = os.path.join(parent, name)
+        if m.group(2) == key:
+            if m.group(1) == "tmp":
+                _rmtree(path)  # a run for this output died (we hold its lock): its folder is stale
+            else:
+                olds.append(path)
+        else:
+            with contextlib.suppress(OSError):
+                if now - os.lstat(path).st_mtime > STALE_AFTER_S:
+                    _rmtree(path)
+    if olds:
+        olds.sort(key=lambda p: os.lstat(p).st_mtime)
+        if not os.path.lexists(out):
+            # died between "old aside" and "new into place": the old set goes back
+            os.rename(olds.pop(), out)
+        for p in olds:
+            _rmtree(p)
+
+
+def _mask_signals(block: bool) -> None:
+    if hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread():
+        signal.pthread_sigmask(signal.SIG_BLOCK if block else signal.SIG_UNBLOCK, {signal.SIGTERM, signal.SIGINT})
+
+
+@contextlib.contextmanager
+def _sigterm_as_exception():
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def handler(signum, frame):
+        raise Terminated()
+
+    previous = signal.signal(signal.SIGTERM, handler)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
 def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[str]:
-    """Write all report files into ``out_dir`` (created if needed); returns their paths."""
-    out_dir = os.fspath(out_dir)
-    parent = os.path.dirname(os.path.abspath(out_dir)) or "."
+    """Write all report files into ``out_dir`` as one set, replacing an older set whole; returns
+    their paths.  Refuses (:class:`BeamshotError`) a folder holding files beamshot did not write."""
+    from .plots import beam_figure
+
+    out_arg = os.fspath(out_dir)
+    out = os.path.abspath(out_arg)
+    if os.path.islink(out):
+        out = os.path.realpath(out)
+    parent, base = os.path.split(out)
+    if not base:
+        raise BeamshotError(f"{out_arg}: give a folder below the file-system root for --out")
     try:
         os.makedirs(parent, exist_ok=True)
     except OSError as exc:
-        raise BeamshotError(f"{out_dir}: cannot create the output folder ({exc.strerror})") from None
-    if os.path.exists(out_dir) and not os.path.isdir(out_dir):
-        raise BeamshotError(f"{out_dir}: exists and is not a folder; choose another --out")
-    tmp = tempfile.mkdtemp(prefix=".beamshot-", dir=parent)
-    try:
-        write_json(report, os.path.join(tmp, "report.json"))
-        write_profile_csv(report, os.path.join(tmp, "profile.csv"))
-        if picture:
-            beam_figure(report, os.path.join(tmp, "beam.png"))
-        os.makedirs(out_dir, exist_ok=True)
-        written = []
-        for name in sorted(os.listdir(tmp)):
-            dst = os.path.join(out_dir, name)
-            os.replace(os.path.join(tmp, name), dst)
-            written.append(dst)
-        return written
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
+        raise _fail_os(out_arg, exc, "create the output folder") from None
+    if os.path.lexists(out) and not os.path.isdir(out):
+        raise BeamshotError(f"{out_arg}: exists and is not a folder; choose another --out")
+    key = output_key(out)
+    tmp = None
+    with _sigterm_as_exception():
+        try:
+            with _lock(parent, key, out_arg):
+                _mask_signals(True)
+                try:
+                    _tidy(parent, key, out)
+                finally:
+                    _mask_signals(False)
+                if os.path.isdir(out):
+                    ours, foreign = _is_our_set(out)
+                    if not ours:
+                        shown = ", ".join(foreign[:3]) + (", ..." if len(foreign) > 3 else "")
+                        raise BeamshotError(f"{out_arg}: holds files beamshot did not write ({shown}); "
+                                            "choose another --out or empty that folder")
+                while tmp is None:
+                    candidate = os.path.join(parent, f"{_TMP}{key}-{os.getpid()}-{secrets.token_hex(4)}")
+                    try:
+                        os.mkdir(candidate)
+                        tmp = candidate
+                    except FileExistsError:
+                        continue
+                write_json(report, os.path.join(tmp, "report.json"))
+                write_profile_csv(report, os.path.join(tmp, "profile.csv"))
+                if picture:
+                    beam_figure(report, os.path.join(tmp, "beam.png"))
+                _fsync_files(tmp)
+                _mask_signals(True)
+                try:
+                    if not os.path.isdir(out):
+                        os.rename(tmp, out)
+                        tmp = None
+                    elif _exchange(tmp, out):
+                        pass  # tmp now holds the old set; removed below
+                    else:
+                        aside = os.path.join(parent, f"{_OLD}{key}-{os.getpid()}-{secrets.token_hex(4)}")
+                        os.rename(out, aside)
+                        os.rename(tmp, out)
+                        tmp = aside
+                    _fsync_dir(parent)
+                    if tmp is not None:
+                        _rmtree(tmp)
+                        tmp = None
+                finally:
+                    _mask_signals(False)
+        except OSError as exc:
+            raise _fail_os(out_arg, exc, "write the report files there") from None
+        finally:
+            if tmp is not None:
+                _mask_signals(True)
+                _rmtree(tmp)
+                _mask_signals(False)
+    return [os.path.join(out_arg, name) for name in sorted(os.listdir(out))]
