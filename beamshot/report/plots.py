@@ -291,8 +291,10 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
         r = full / 2.0
         ax.plot(r * np.cos(t), r * np.sin(t), color="white", lw=0.7, alpha=0.6, zorder=2)
         if r <= half * 0.9:
+            # on a dark tab, so that a contour passing under the label does not cut through it
             ax.text(r * np.cos(lab_dir), r * np.sin(lab_dir), f"{full:g}° full", ha="left", va="bottom",
-                    gid="ring-label", zorder=6, **_outlined(fontsize * 0.9))
+                    gid="ring-label", zorder=6, color="white", fontsize=fontsize * 0.9,
+                    bbox=dict(boxstyle="round,pad=0.15", fc="black", ec="none", alpha=0.6))
 
     pk = contours.get("peak")
     clipped = bool(pk is not None and pk.clipped)
@@ -474,11 +476,13 @@ def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None
     if floor is not None:
         ax.axhspan(bottom * 1e-3, floor, color="#555555", alpha=0.28, lw=0,
                    label="below noise floor (3σ, dark wall)")
-    marks = (("hotspot_angle", "black", "-"), ("field_angle", "black", "--"), ("spill_angle", _VERMILLION, (0, (5, 2, 1, 2))))
-    for key, colour, ls in marks:
+    # the same line styles as on the map
+    marks = (("hotspot_angle", dict(color="black", ls="-", lw=1.4)), ("field_angle", dict(color="black", ls="--", lw=1.3)),
+             ("spill_angle", _edge_style()))
+    for key, style in marks:
         f = figures.get(key)
         if f is not None and f.value is not None:
-            ax.axvline(f.value, color=colour, ls=ls, lw=1.2, label=vocabulary.label(key))
+            ax.axvline(f.value, label=vocabulary.label(key), **style)
     ax.set_yscale("log")
     ax.set_ylim(bottom, top * 2.0)
     ax.set_xlim(0, full.max() if full.size else 1)
