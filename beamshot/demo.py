@@ -1,14 +1,19 @@
-"""The demo: an invented workshop comparing three reflector prototypes for a bike light.
+"""The demo: an invented workshop comparing three optic prototypes for a bike light's head.
 
-Everything here is made up and rendered by :mod:`beamshot.synth`: the light names, the
-beam patterns, the room and the camera.  The scenario: a small workshop tunes the head of
-a bike light ("Larkspur") and shoots each prototype at 4 m on a white wall with a phone's
-ultra-wide camera in manual exposure, plus one light-off frame, and reads a lux meter at
-the hotspot.
+Everything here is made up and rendered by :mod:`beamshot.synth`: the beam patterns, the room
+and the camera.  The prototypes are named only by number and optic (a smooth reflector, a
+textured reflector, a TIR optic).  The scenario: a small workshop shoots each prototype at
+4 m on a white wall with a phone's ultra-wide camera in manual exposure, plus one light-off
+frame, and reads a lux meter at the hotspot.
+
+``ground_truth.json`` is reproducible: regenerating gives the same bytes (sorted keys, numbers
+rounded to :data:`TRUTH_DIGITS` significant digits, no timestamps); the JPEGs are the same bytes
+for the same seed and the same NumPy, Pillow and libjpeg versions.
 """
 
 from __future__ import annotations
 
+import functools
 import json
 import os
 from dataclasses import dataclass
@@ -17,9 +22,13 @@ import numpy as np
 
 from .synth import HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, exposure_time_for_peak, render_photo, truth_figures
 
-__all__ = ["DEMO_LIGHTS", "DEMO_DISTANCE_M", "write_demo_photos"]
+__all__ = ["DEMO_LIGHTS", "DEMO_DISTANCE_M", "DEMO_WIDTH_PX", "TRUTH_DIGITS", "write_demo_photos"]
 
 DEMO_DISTANCE_M = 4.0
+#: Width of the demo photos (4:3), px.
+DEMO_WIDTH_PX = 1600
+#: Significant digits of the truth values in ground_truth.json (as report.json's figures).
+TRUTH_DIGITS = 6
 
 
 @dataclass(frozen=True)
@@ -30,13 +39,13 @@ class DemoLight:
 
 
 DEMO_LIGHTS = (
-    DemoLight("larkspur-smooth", "Larkspur prototype A, smooth reflector",
+    DemoLight("proto-1-smooth-reflector", "prototype 1, smooth reflector",
               HotspotSpillBeam(peak_cd=9500.0, hotspot_fwhm_deg=6.0, spill_fraction=0.015, spill_falloff=0.35,
                                cutoff_deg=31.0, edge_width_deg=0.4, rings=((9.0, 0.8, 0.02),))),
-    DemoLight("larkspur-textured", "Larkspur prototype B, textured reflector",
+    DemoLight("proto-2-textured-reflector", "prototype 2, textured reflector",
               HotspotSpillBeam(peak_cd=5200.0, hotspot_fwhm_deg=10.0, spill_fraction=0.03, spill_falloff=0.3,
                                cutoff_deg=31.0, edge_width_deg=0.8)),
-    DemoLight("larkspur-tir", "Larkspur prototype C, TIR optic",
+    DemoLight("proto-3-tir-optic", "prototype 3, TIR optic",
               HotspotSpillBeam(peak_cd=3800.0, hotspot_fwhm_deg=14.0, spill_fraction=0.01, spill_falloff=0.2,
                                cutoff_deg=21.0, edge_width_deg=1.0, ellipse_ratio=1.12)),
 )
@@ -52,16 +61,24 @@ def _camera(**kw) -> SynthCamera:
     return SynthCamera(**base)
 
 
-def write_demo_photos(folder: str, *, seed: int = 7) -> list[dict]:
-    """Render the demo photos into ``folder``; returns one dict per light with paths and truth."""
+def write_demo_photos(folder: str, *, seed: int = 7, width_px: int = DEMO_WIDTH_PX) -> list[dict]:
+    """Render the demo photos into ``folder``; returns one dict per light with paths and truth.
+
+    ``width_px`` sets the photos' size (4:3; the view stays the same); smaller photos render
+    faster.  The truth does not depend on it.  Also writes ``ground_truth.json``.
+    """
+    if width_px < 400 or width_px % 4:
+        raise ValueError("width_px must be a multiple of 4, at least 400")
     os.makedirs(folder, exist_ok=True)
     scene = Scene(distance_m=DEMO_DISTANCE_M, ambient_lux=_AMBIENT_LUX)
+    size = dict(width_px=width_px, height_px=width_px * 3 // 4)
     out = []
     for i, light in enumerate(DEMO_LIGHTS):
-        truth = truth_figures(light.pattern, scene.distance_m)
-        t = exposure_time_for_peak(light.pattern, scene, _camera(), target=0.75, peak_lux=truth["peak_lux_on_wall"])
+        truth = _truth(light.pattern, scene.distance_m)
+        t = exposure_time_for_peak(light.pattern, scene, _camera(**size), target=0.75,
+                                   peak_lux=truth["peak_lux_on_wall"])
         t = float(1.0 / np.round(1.0 / t))  # the phone app offers 1/N s
-        cam = _camera(exposure_time_s=t)
+        cam = _camera(exposure_time_s=t, **size)
         beam_path = os.path.join(folder, f"{light.name}.jpg")
         with open(beam_path, "wb") as fh:
             fh.write(encode_jpeg(render_photo(light.pattern, scene, cam, seed=seed + i), cam, quality=90))
@@ -69,19 +86,37 @@ def write_demo_photos(folder: str, *, seed: int = 7) -> list[dict]:
         off_path = os.path.join(folder, f"{light.name}-off.jpg")
         with open(off_path, "wb") as fh:
             fh.write(encode_jpeg(render_photo(dark, scene, cam, seed=seed + 100 + i), cam, quality=90))
-        lux = round(truth["peak_lux_on_wall"], 0)  # the meter shows whole lux
+        lux = float(round(truth["peak_lux_on_wall"], 0))  # the meter shows whole lux
         record = {
             "name": light.name,
             "label": light.label,
             "photo": beam_path,
             "ambient": off_path,
-            "distance_m": scene.distance_m,
+            "distance_m": float(scene.distance_m),
             "lux_at_peak": lux,
-            "truth": {k: float(v) for k, v in truth.items()},
+            # unit in every key name (peak_cd, hotspot_angle_deg, beam_flux_lm...; ra has none)
+            "truth": {k: _rounded(v) for k, v in sorted(truth.items())},
         }
         out.append(record)
-    with open(os.path.join(folder, "ground_truth.json"), "w", encoding="utf-8") as fh:
-        json.dump({"note": "synthetic photos rendered by beamshot.synth; invented scenario, not real lights",
-                   "lights": [{k: (os.path.basename(v) if k in ("photo", "ambient") else v) for k, v in r.items()}
-                              for r in out]}, fh, indent=2)
+    document = {
+        "note": "synthetic photos rendered by beamshot.synth; invented scenario, not real lights",
+        "seed": seed,
+        "photo_size_px": [size["width_px"], size["height_px"]],
+        "truth_digits": TRUTH_DIGITS,
+        "lights": [{k: (os.path.basename(v) if k in ("photo", "ambient") else v) for k, v in r.items()} for r in out],
+    }
+    with open(os.path.join(folder, "ground_truth.json"), "w", encoding="utf-8", newline="\n") as fh:
+        json.dump(document, fh, indent=2, sort_keys=True, ensure_ascii=True, allow_nan=False)
+        fh.write("\n")
     return out
+
+
+@functools.lru_cache(maxsize=8)
+def _truth(pattern: HotspotSpillBeam, distance_m: float) -> dict:
+    """The pattern's true figures (a dense integration, about 2 s; the same for every render)."""
+    return truth_figures(pattern, distance_m)
+
+
+def _rounded(x) -> float:
+    """A truth value at :data:`TRUTH_DIGITS` significant digits (fixed, so the file is reproducible)."""
+    return float(f"{float(x):.{TRUTH_DIGITS}g}")
