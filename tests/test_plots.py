@@ -139,7 +139,9 @@ def test_colour_scale_reaches_below_the_spill(drawn):
     theta = np.radians(np.linspace(1.2 * field_half, 0.9 * PATTERN.cutoff_deg, 200))
     spill_rel = float(np.median(PATTERN(theta, 0.0 * theta))) / PATTERN.peak_cd
     norm = _map_image(fig).norm
-    assert norm.vmin / norm.vmax <= spill_rel
+    # the spill sits clearly above the bottom shade: the scale reaches to about half its level
+    # (0.6 allows for the map's noise and the analyser's spill estimate)
+    assert norm.vmin / norm.vmax <= 0.6 * spill_rel
     assert norm.vmin / norm.vmax >= 1e-6  # not so deep that the spill is squeezed into one shade
 
 

@@ -176,7 +176,7 @@ def map_floor(beam: BeamMap, edge, peak: float, noise: NoiseFloor | None) -> tup
         candidates.append(SPILL_FLOOR_FRACTION * spill)
     if not candidates:
         return peak * 10 ** (-DEFAULT_DECADES), f"below {10 ** (-DEFAULT_DECADES):g} × peak"
-    floor = min(candidates)
+    floor = min(min(candidates), 0.1 * peak)  # a noise level near the peak: keep a decade in view
     deepest = peak * 10 ** (-MAX_DECADES)
     if floor < deepest:
         return deepest, f"below {10 ** (-MAX_DECADES):g} × peak"
@@ -258,8 +258,10 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     half = half_width_deg or min(cov, 89.0)
     a, vals = _azimuthal_grid(beam, half)
     relative = beam.unit != "cd"
-    peak = float(np.nanmax(vals))
-    factor = 1.0 / peak if relative and peak > 0 else 1.0
+    peak = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else np.nan
+    if not peak > 0:  # nothing lit in view (the analysis refuses such photos; keep the picture drawable)
+        peak = 1.0
+    factor = 1.0 / peak if relative else 1.0
     edge = contours.get("edge")
     floor, below_text = map_floor(beam, edge, peak, noise)
     # NaN cells (outside the photo) are transparent: the hatched background shows through
