@@ -118,7 +118,7 @@ def test_legend_names_every_area_and_mark(drawn):
                   "ring: full cone angle", vocabulary.label("hotspot_angle"), vocabulary.label("field_angle"),
                   vocabulary.label("spill_angle")):
         assert entry in texts, entry
-    assert any(t.startswith("below noise floor") for t in texts)  # the profile's floor band
+    assert "below the noise floor (3σ of the dark wall)" in texts  # the profile's floor band
 
 
 def test_peak_and_axis_marks_differ_in_shape(drawn):

@@ -477,7 +477,7 @@ def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None
     (line,) = ax.plot(full, shown, color=_BLUE, lw=1.8, label="azimuthal mean")
     if floor is not None:
         ax.axhspan(bottom * 1e-3, floor, color="#555555", alpha=0.28, lw=0,
-                   label="below noise floor (3σ, dark wall)")
+                   label="below the noise floor (3σ of the dark wall)")
     # the same line styles as on the map
     marks = (("hotspot_angle", dict(color="black", ls="-", lw=1.4)), ("field_angle", dict(color="black", ls="--", lw=1.3)),
              ("spill_angle", _edge_style()))
