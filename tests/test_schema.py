@@ -85,6 +85,13 @@ def build_variant(name: str):
     if name == "exposure-metadata":
         scene = Scene(distance_m=5.0)
         return analyze(_shot(BEAM, scene, _exposed(_camera(), scene), seed=5, name="beam.jpg"), distance_m=5.0)
+    if name == "lux-at-point":
+        # the reading taken at a stated pixel (here near the peak: the camera sits 0.15 m right of the light)
+        scene = Scene(distance_m=5.0)
+        cam = _exposed(_camera(), scene)
+        x = (cam.width_px - 1) / 2 - cam.focal_px * 0.15 / 5.0
+        return analyze(_shot(BEAM, scene, cam, seed=12, name="beam.jpg"), distance_m=5.0, lux_at_peak=lux,
+                       lux_point_px=(round(x), (cam.height_px - 1) // 2))
     if name == "relative-clipped":
         scene = Scene(distance_m=5.0)
         cam = _exposed(_camera(), scene, target=2.5)
@@ -127,7 +134,7 @@ def build_variant(name: str):
 
 #: Variants checked against the schema (the printed-target case is the slowest and adds only the
 #: geometry keys; kept in because the geometry object is otherwise never written).
-VARIANTS = ("lux-ambient-flat-dark", "exposure-metadata", "relative-clipped", "bracket", "profile-constant",
+VARIANTS = ("lux-ambient-flat-dark", "exposure-metadata", "lux-at-point", "relative-clipped", "bracket", "profile-constant",
             "wall-points-tilted", "target")
 
 
