@@ -310,3 +310,17 @@ def test_ra_is_spill_over_hotspot_everywhere():
     assert "spill flux over hotspot flux" in FIGURES_DOC.read_text(encoding="utf-8")
     assert "spill flux over hotspot flux" in DOC.read_text(encoding="utf-8")
     assert FIGURES["ra"].definition.startswith("spill flux over hotspot flux")
+
+
+def test_docs_state_the_map_grid_the_tool_uses(reports):
+    # the grid written in a report, the one the docs describe, and profile rows at cell centres
+    from beamshot.beammap import PHI_STEP_DEG, THETA_STEP_DEG
+
+    data = _report_dict(reports, "exposure-metadata")
+    assert data["settings"]["theta_step_deg"] == THETA_STEP_DEG
+    assert data["settings"]["phi_step_deg"] == PHI_STEP_DEG
+    first = [THETA_STEP_DEG * (k + 0.5) for k in range(3)]
+    np.testing.assert_allclose(data["profile"]["theta_deg"][:3], first, atol=1e-9)
+    rows = ", ".join(f"{x:g}" for x in first)
+    assert f"Δθ = {THETA_STEP_DEG:g}°, Δφ = {PHI_STEP_DEG:g}°" in FIGURES_DOC.read_text(encoding="utf-8")
+    assert rows in DOC.read_text(encoding="utf-8")
