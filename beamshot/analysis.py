@@ -26,7 +26,8 @@ from .measure import beam_figures, measure_shape
 from .prepare import input_record, load_input, prepare_image, same_size
 from .profile import radial_profile
 from .report.model import BeamReport
-from .scale import no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_meter
+from .scale import (no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_at_point,
+                    scale_from_lux_meter)
 from .target import detect_markers
 from .wall import homography_mapping, parse_wall_points, pinhole_mapping
 from .wall_setup import focal_for, grey, markers_left_in, markers_still_there, marker_mapping, mask_quads
@@ -233,12 +234,18 @@ def analyze(
     pk = shape_.peak
 
     # ---- absolute scale
-    if lux_at_peak is not None:
+    if lux_at_peak is not None and lux_point_px is not None:
+        value, noise = _metered_value(image, beam_photos[0], lux_point_px)
+        scale = scale_from_lux_at_point(lux_at_peak, value, noise, tuple(lux_point_px),
+                                        meter_accuracy=lux_meter_accuracy)
+    elif lux_at_peak is not None:
         cos_inc = measured.cos_incidence(pk)
         scale = scale_from_lux_meter(lux_at_peak, pk.value, float(np.arccos(cos_inc)), distance_m,
                                      meter_accuracy=lux_meter_accuracy)
         if pk.clipped:
-            warnings.append("the lux reading scales a clipped peak; the scale is unreliable until the hotspot is not clipped")
+            warnings.append("the hotspot is clipped: the lux reading still gives the peak, but it scales the clipped "
+                            "level, so the fluxes are upper bounds - lower the exposure, or meter a wall point that is "
+                            "not clipped (--lux LX --lux-at X,Y)")
     elif profile.scale_constant is not None and reflectance is None:
         scale = scale_from_camera_constant(beam_photo.exif, profile.scale_constant,
                                            profile.scale_uncertainty or 0.0, profile.name)
@@ -258,18 +265,19 @@ def analyze(
     ratio_delta, ratio_source = _ratio_error(prep, resp, profile)
     shading = _shading_plan(prep, flat_note)
     values = measured.values(scale, lux_at_peak)
+    pixel_deg = _pixel_deg(measured)
     budget = build_budget(measured, values, scale=scale, lux_at_peak=lux_at_peak, distance_m=distance_m, distance_u_m=u_d,
                           camera_distance_m=camera_distance_m if geometry_note is None else None,
                           camera_beside=geometry_note is None and camera_distance_m is None,
                           wall_scale_u=f_u, wall_points=wall_points_used, ratio_delta=ratio_delta,
                           ratio_assumed=ratio_source == "assumed", shading=shading, focal_px=focal_shading,
-                          pixel_deg=_pixel_deg(measured))
+                          pixel_deg=pixel_deg, block_deg=_block_deg(pixel_deg, image, beam_photos))
     keys = [k for k in values if k != "peak_rel" and not k.endswith("_rel")]
     estimates = budget.estimates(keys)
     if scale.kind == "exposure_metadata":
         estimates |= {"peak_intensity", "beam_distance", "hotspot_flux", "spill_flux", "beam_flux"}
     figures = beam_figures(shape_, beam, scale, values, budget.sigmas(keys), estimates,
-                           axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0))
+                           axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0), pixel_deg=pixel_deg)
     figures = {k: (replace(f, budget=tuple(budget.of(k).items())) if f.value is not None and f.uncertainty else f)
                for k, f in figures.items()}
     figures["light_tilt"] = _tilt_figure(pose, assume_square, shape_.edge)
@@ -369,6 +377,36 @@ def analyze(
         created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         tool_version=__version__,
     )
+
+
+#: Half-width (working pixels) of the patch averaged around a metered point: about a lux meter's
+#: sensor on a typical photo (common practice: the meter's window is 1-2 cm across).
+_METER_PATCH_HALF = 2
+
+
+def _metered_value(image: LinearImage, photo, xy) -> tuple[float, float]:
+    """Linear value and its relative 1-sigma noise at pixel ``xy`` = (x, y) of the photo (as shown, y down)."""
+    x, y = float(xy[0]), float(xy[1])
+    full_h, full_w = image.full_shape
+    if not (0 <= x < full_w and 0 <= y < full_h):
+        raise BeamshotError(f"the metered point ({x:g}, {y:g}) is outside {photo.name} ({full_w}x{full_h} pixels); "
+                            "give X,Y in pixels of the photo as shown, x right and y down from the top-left corner")
+    b = image.bin_factor
+    r, c = int(y // b), int(x // b)
+    h = _METER_PATCH_HALF
+    rows = slice(max(r - h, 0), r + h + 1)
+    cols = slice(max(c - h, 0), c + h + 1)
+    if np.any(image.saturated[rows, cols]):
+        raise BeamshotError(f"the metered point ({x:g}, {y:g}) is clipped in {photo.name}; meter a point that is not "
+                            "overexposed, or lower the exposure")
+    patch = image.luminance[rows, cols].astype(float)
+    patch = patch[np.isfinite(patch)]
+    value = float(np.mean(patch)) if patch.size else float("nan")
+    noise = float(np.std(patch) / np.sqrt(patch.size)) if patch.size > 1 else float("nan")
+    if not (value > 0 and np.isfinite(noise)) or noise > 0.2 * value:
+        raise BeamshotError(f"the metered point ({x:g}, {y:g}) is too dark in {photo.name} to scale the photo; meter "
+                            "a brighter point of the beam, such as the hotspot (--lux-at-peak)")
+    return value, noise / value
 
 
 def _with_lens(mapping, lens):
@@ -550,6 +588,17 @@ def _shading_plan(prep, flat_note) -> dict:
                      "of an uncorrected error spread evenly between none and all of it (GUM 4.3.7)"),
             "size": (f"{SHADING_CORNER_ENVELOPE:.0%} lens shading at the corner beyond cos^4" if linear else
                      f"cos^4 fall-off plus {SHADING_CORNER_ENVELOPE:.0%} at the corner")}
+
+
+#: JPEG codes 8x8 blocks of luma (ITU-T T.81, sec. A.2): errors are correlated within a block.
+JPEG_BLOCK_PX = 8
+
+
+def _block_deg(pixel_deg: float, image: LinearImage, photos) -> float:
+    """The angle over which the photo's errors are correlated: a JPEG block or a working pixel."""
+    if any(p.max_code == 255 and not p.linear for p in photos):  # 8-bit encoded: JPEG (or PNG, conservatively)
+        return max(pixel_deg, pixel_deg * JPEG_BLOCK_PX / image.bin_factor)
+    return pixel_deg
 
 
 def _pixel_deg(measured) -> float:

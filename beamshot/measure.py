@@ -145,12 +145,14 @@ def noise_deltas(shape: BeamShape) -> dict[str, float]:
 
 def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: dict[str, float],
                  sigmas: dict[str, float], estimates: set[str] | frozenset = frozenset(), *,
-                 axis_uncertainty_rad: float = 0.0) -> dict[str, Figure]:
+                 axis_uncertainty_rad: float = 0.0, pixel_deg: float = 0.0) -> dict[str, Figure]:
     """All reported figures (see FIGURE_ORDER) from a measured shape, its absolute ``values`` and
     their combined 1-sigma ``sigmas`` (from :mod:`beamshot.uncertainty`).
 
     ``estimates`` names the figures whose uncertainty is mostly an assumption (an assumed tone
     curve or lens shading, an exposure-metadata scale); their status is ``estimate``.
+    ``pixel_deg`` is the angular size of a working pixel: contours fewer than
+    ``MIN_CONTOUR_PIXELS`` across are too coarse to measure (see :func:`_resolution_limits`).
     """
     figs: dict[str, Figure] = {}
     pk = shape.peak
@@ -165,14 +167,26 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
         st = "estimate" if key in estimates else "measured"
         return Figure(value, sigma, unit, method, st)
 
+    def bound(key: str, unit: str, method: str, kind: str, reason: str = clip_reason) -> Figure:
+        """A bound: the value the clipped photo gives, with the uncertainty of that value itself."""
+        value, sigma = float(values[key]), float(sigmas.get(key, 0.0))
+        if not np.isfinite(value):
+            return not_measured(unit, method, reason)
+        return Figure(value, sigma if np.isfinite(sigma) and sigma > 0 else None, unit, method, kind, reason)
+
     # ---- peak intensity and beam distance
+    # A clipped peak: a lux reading taken at the peak gives the peak itself (I = E D^2 / cos^3),
+    # whatever the photo shows; any other scale sees only the clipped level, a lower bound.
+    pinned = scale.kind == "lux_meter"
     if scale.absolute:
         peak_method = f"maximum of the intensity map (local quadratic fit); scale: {scale.description}"
         dist_method = "ANSI/PLATO FL 1: distance at which the peak gives 0.25 lx, d = sqrt(I / 0.25 lx)"
-        if clipped:
-            figs["peak_intensity"] = Figure(values["peak_intensity"], None, "cd", peak_method, "lower_bound", clip_reason)
-            figs["beam_distance"] = Figure(values["beam_distance"], None, "m", dist_method, "lower_bound", clip_reason)
+        if clipped and not pinned:
+            figs["peak_intensity"] = bound("peak_intensity", "cd", peak_method, "lower_bound")
+            figs["beam_distance"] = bound("beam_distance", "m", dist_method, "lower_bound")
         else:
+            if clipped:
+                peak_method = f"the lux reading at the peak: I = E D^2 / cos^3 theta (the photo's peak is clipped)"
             figs["peak_intensity"] = fig("peak_intensity", "cd", peak_method)
             figs["beam_distance"] = fig("beam_distance", "m", dist_method)
     else:
@@ -230,9 +244,20 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
             elif key != "hotspot_flux" and fx.spill is None:
                 figs[key] = not_measured("lm", method, _coverage_reason(edge))
             elif clipped and key == "spill_flux":
+                # the spill zone starts at the 50 % contour of a peak the photo does not show
                 figs[key] = not_measured("lm", method, clip_reason)
+            elif clipped and pinned:
+                # scale matched to the clipped level is too large; clipped cells count at the metered
+                # peak, which no cell exceeds: every cell's intensity is at most what is summed
+                figs[key] = bound(key, "lm", method, "upper_bound", clip_reason + "; the lux reading scales the "
+                                  "clipped level, so the map is too bright: an upper bound")
+            elif clipped and key == "beam_flux":
+                # the zone (inside the spill edge) does not depend on the peak; clipped cells are too dim
+                figs[key] = bound(key, "lm", method, "lower_bound")
             elif clipped:
-                figs[key] = Figure(values[key], None, "lm", method, "lower_bound", clip_reason)
+                # the 50 % contour of a clipped map encloses more than the true hotspot zone, with clipped
+                # cells too dim: the two errors have opposite signs, so not even a bound is known
+                figs[key] = not_measured("lm", method, clip_reason)
             else:
                 figs[key] = fig(key, "lm", method)
         ra_method = "Ra = spill-zone flux / hotspot-zone flux (this project's spill-to-hotspot ratio, not a colour index)"
@@ -250,7 +275,47 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
         off_sigma = float(np.degrees(np.hypot(axis_uncertainty_rad, beam.d_theta)))
         figs["hotspot_offset"] = Figure(values["hotspot_offset"], off_sigma, "deg",
                                         off_method + f"; toward azimuth {np.degrees(pk.phi):.0f} deg (0 = right, 90 = up)")
+    if pixel_deg > 0:
+        _resolution_limits(figs, values, pixel_deg, pinned)
     return {k: figs[k] for k in FIGURE_ORDER if k in figs}
+
+
+#: A contour must be at least this many working pixels across to be measured: below it, the
+#: 72 rays cross the same few pixels and the crossing interpolation, the pixel footprint and the
+#: map's smoothing dominate (common practice in image metrology: about 10 samples across a feature).
+MIN_CONTOUR_PIXELS = 10.0
+
+
+def _resolution_limits(figs: dict, values: dict, pixel_deg: float, pinned: bool) -> None:
+    """Replace the figures of contours too small for the photo's pixels by ``not_measured``
+    (the peak by a lower bound: averaging over pixels lowers a narrow maximum)."""
+    fix = ("zoom in (a longer focal length), or use a photo with more pixels; every working pixel covers "
+           f"{pixel_deg:.2g} deg here")
+
+    def across(key):
+        v = values.get(key, np.nan)
+        return v / pixel_deg if np.isfinite(v) else np.inf
+
+    groups = (("hotspot_angle", "50 %", ("hotspot_angle", "hotspot_angle_horizontal", "hotspot_angle_vertical",
+                                           "hotspot_flux", "spill_flux", "ra", "hotspot_offset")),
+              ("field_angle", "10 %", ("field_angle",)),
+              ("spill_angle", "spill edge", ("spill_angle", "spill_angle_horizontal", "spill_angle_vertical",
+                                             "beam_flux", "spill_flux", "ra")))
+    for size_key, word, keys in groups:
+        n = across(size_key)
+        if n >= MIN_CONTOUR_PIXELS:
+            continue
+        reason = (f"the {word} contour is only {n:.1f} working pixels across (at least {MIN_CONTOUR_PIXELS:g} "
+                  f"needed); {fix}")
+        for key in keys:
+            f = figs.get(key)
+            if f is not None and f.value is not None:
+                figs[key] = not_measured(f.unit, f.method, reason)
+        if size_key == "hotspot_angle" and not pinned:
+            f = figs.get("peak_intensity")
+            if f is not None and f.value is not None and f.status in ("measured", "estimate"):
+                figs["peak_intensity"] = Figure(f.value, f.uncertainty, f.unit, f.method, "lower_bound",
+                                                reason + "; averaging over pixels lowers a narrow peak")
 
 
 def _coverage_reason(edge: SpillEdge, phi_deg: float | None = None) -> str:

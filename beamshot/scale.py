@@ -29,6 +29,7 @@ __all__ = [
     "Q_FACTOR_UNCERTAINTY",
     "AbsoluteScale",
     "scale_from_lux_meter",
+    "scale_from_lux_at_point",
     "scale_from_exposure",
     "no_scale",
     "scale_from_camera_constant",
@@ -88,6 +89,28 @@ def scale_from_lux_meter(lux: float, peak_relative: float, peak_theta: float, di
         kind="lux_meter",
         description=f"lux-meter reading of {lux:g} lx at the peak on the wall (I = E D^2 / cos^3 theta)",
         assumptions=(f"lux meter accurate to {acc:.0%} (1 sigma)",),
+    )
+
+
+def scale_from_lux_at_point(lux: float, value: float, value_rel_noise: float, xy: tuple[float, float],
+                            *, meter_accuracy: float | None = None) -> AbsoluteScale:
+    """Scale from a lux-meter reading at a wall point whose linear pixel value is ``value``.
+
+    A matte (Lambertian) wall's luminance is proportional to its illuminance, so the photo's
+    linear value there gives ``lux_per_unit = E / value`` for the whole photo (the camera-constant
+    relation, E = K v, with K measured on the spot).  ``value_rel_noise`` is the relative 1-sigma
+    noise of the sampled patch.
+    """
+    acc = DEFAULT_LUX_METER_ACCURACY if meter_accuracy is None else meter_accuracy
+    rel = float(np.hypot(acc, value_rel_noise))
+    return AbsoluteScale(
+        lux_per_unit=float(lux / value),
+        rel_uncertainty=rel,
+        kind="lux_meter_point",
+        description=(f"lux-meter reading of {lux:g} lx on the wall at pixel ({xy[0]:g}, {xy[1]:g}) of the photo "
+                     "(E proportional to the linear pixel value on a matte wall)"),
+        assumptions=(f"lux meter accurate to {acc:.0%} (1 sigma)", "the wall is equally matte and white at the "
+                     "metered point and in the beam"),
     )
 
 

@@ -53,7 +53,9 @@ import numpy as np
 
 from .beammap import BeamMap
 from .camera.linearize import LinearImage
+from .hotspot import N_BEARINGS
 from .measure import ANGLE_KEYS
+from .spill import SECTOR_DEG
 from .photometry import beam_distance_m, illuminance_on_wall
 from .scale import AbsoluteScale
 from .wall import WallMapping
@@ -233,6 +235,21 @@ def mapping_stretched(mapping: WallMapping, factor: float, centre_mm: tuple[floa
     return replace(mapping, homography=s @ mapping.homography)
 
 
+def correlation_factor(full_angle_deg: float, samples: float, block_deg: float) -> float:
+    """How much the noise of a mean over ``samples`` crossings exceeds the independent-sample value
+    when errors are correlated over ``block_deg`` (a JPEG block or a working pixel): a contour of
+    circumference pi x angle meets only pi x angle / block independent blocks, so the variance of
+    the mean grows by samples / that number (variance of a mean of correlated samples; textbook).
+
+    >>> correlation_factor(100.0, 72, 0.5), round(correlation_factor(6.0, 72, 1.0), 2)
+    (1.0, 1.95)
+    """
+    if not (block_deg > 0 and np.isfinite(full_angle_deg) and full_angle_deg > 0):
+        return 1.0
+    independent = np.pi * full_angle_deg / block_deg
+    return float(np.sqrt(max(1.0, samples / independent)))
+
+
 def angle_footprint_term(base: dict[str, float], pixel_deg: float) -> Term:
     """Both edges of a full angle known to a working pixel ``p`` (deg): ``2 p / sqrt(12)`` per full angle."""
     deltas = {k: 2.0 * pixel_deg / np.sqrt(12.0) for k in ANGLE_KEYS if k != "hotspot_offset" and np.isfinite(base.get(k, np.nan))}
@@ -244,7 +261,7 @@ def angle_footprint_term(base: dict[str, float], pixel_deg: float) -> Term:
 def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_at_peak: float | None, distance_m: float,
                  distance_u_m: float, camera_distance_m: float | None, camera_beside: bool, wall_scale_u: float,
                  wall_points: tuple[np.ndarray, np.ndarray] | None, ratio_delta: float, ratio_assumed: bool,
-                 shading: dict, focal_px: float | None, pixel_deg: float) -> Budget:
+                 shading: dict, focal_px: float | None, pixel_deg: float, block_deg: float = 0.0) -> Budget:
     """All terms of one analysis; ``base`` holds the values measured (``measured.values(scale, lux)``).
 
     ``measured`` re-measures (``remeasure(image=, mapping=, distance_m=, tone=)`` -> shape,
@@ -295,13 +312,14 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
             jobs["points"].append(again(mapping=replace(m, distortion=measured.mapping.distortion)))
     try:
         return Budget(tuple(_terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m,
-                                   camera_beside, wall_scale_u, ratio_delta, ratio_assumed, eps, shading, pixel_deg)))
+                                   camera_beside, wall_scale_u, ratio_delta, ratio_assumed, eps, shading, pixel_deg,
+                                   block_deg)))
     finally:
         pool.shutdown(wait=True)
 
 
 def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m, camera_beside, wall_scale_u,
-           ratio_delta, ratio_assumed, eps, shading, pixel_deg) -> list[Term]:
+           ratio_delta, ratio_assumed, eps, shading, pixel_deg, block_deg=0.0) -> list[Term]:
     """The terms, in budget order, from the submitted re-measurements ``jobs``."""
     from .measure import noise_deltas
 
@@ -310,6 +328,9 @@ def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance
     nd = noise_deltas(shape)
     k = scale_factor(scale, base["peak_rel"], measured.cos_incidence(shape.peak), distance_m, lux_at_peak)
     noise = {key: v for key, v in nd.items() if key in ANGLE_KEYS or key == "ra"}
+    for key, samples in (("hotspot_angle", N_BEARINGS), ("field_angle", N_BEARINGS), ("spill_angle", 360.0 / SECTOR_DEG)):
+        if key in noise:
+            noise[key] *= correlation_factor(base.get(key, np.nan), samples, block_deg)
     if k is not None:
         for key in ("hotspot_flux", "spill_flux", "beam_flux"):
             noise[key] = k * nd.get(key + "_rel", 0.0)
@@ -351,7 +372,7 @@ def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance
         u = float(scale.rel_uncertainty)
         sd = {key: u * base[key] for key in ("peak_intensity", "hotspot_flux", "spill_flux", "beam_flux")}
         sd["beam_distance"] = 0.5 * u * base["beam_distance"]
-        terms.append(Term({"lux_meter": "lux meter", "camera_constant": "camera constant",
+        terms.append(Term({"lux_meter": "lux meter", "lux_meter_point": "lux meter", "camera_constant": "camera constant",
                            "exposure_metadata": "exposure metadata"}.get(scale.kind, scale.kind),
                           "multiplies every intensity and flux; cancels in angles and Ra", f"{u:.1%}",
                           True, scale.kind == "exposure_metadata", {key: v for key, v in sd.items() if np.isfinite(v)}))

@@ -163,7 +163,7 @@ def _ff_report(d, peak, meter_rel, other_rel):
     u_m, u_o = meter_rel * peak, other_rel * peak
     return {"settings": {"distance_m": d},
             "calibration": {"absolute_scale": {"kind": "lux_meter"}, "camera_profile": {"name": "p"}},
-            "figures": {"peak_intensity": {"value": peak, "uncertainty": float(np.hypot(u_m, u_o)),
+            "figures": {"peak_intensity": {"value": peak, "unit": "cd", "status": "measured", "uncertainty": float(np.hypot(u_m, u_o)),
                                            "budget": {"lux meter": u_m, "pixel noise": u_o}}}}
 
 

@@ -29,8 +29,9 @@ FLAT_MAX_RESIDUAL = 0.05
 #: The model may rise above its centre value by at most this much anywhere in the frame: lens
 #: shading falls off from the centre; a flat brighter at its edges was lit unevenly.
 FLAT_MAX_RISE = 0.05
-#: A fall-off below this fraction of the centre anywhere in the frame is not a lens's shading.
-FLAT_MIN_FALLOFF = 0.1
+#: A fall-off below this fraction of the centre anywhere in the frame is not a lens's shading (an ultra-wide
+#: lens of 13 mm equivalent has cos^4 = 0.07 at its corners by the cos^4 law alone).
+FLAT_MIN_FALLOFF = 0.02
 
 
 @dataclass(frozen=True)
