@@ -253,9 +253,11 @@ def analyze(
         scale = scale_from_exposure(beam_photo.exif, reflectance=reflectance)
         if scale.kind == "none":
             scale = no_scale(scale.description.removeprefix("no absolute scale: ") +
-                             "; give --lux-at-peak for absolute figures")
+                             "; give a lux reading (--lux) for absolute figures")
     else:
         scale = no_scale("no lux reading given and the exposure-metadata estimate is switched off")
+    if lux_at_peak is not None and profile.scale_constant is not None and not (pk.clipped and lux_point_px is None):
+        _check_constant_against_meter(scale, profile, beam_photo.exif, warnings)
     if scale.absolute:
         beam_out = beam.scaled(scale.lux_per_unit, "cd")
     else:
@@ -377,6 +379,20 @@ def analyze(
         created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         tool_version=__version__,
     )
+
+
+def _check_constant_against_meter(scale, profile, exif, warnings: list[str]) -> None:
+    """Warn when a lux reading and the profile's kept camera constant disagree by more than twice
+    their combined standard uncertainty (k = 2, about 95 %; JCGM 100 sec. 6)."""
+    kept = scale_from_camera_constant(exif, profile.scale_constant, profile.scale_uncertainty or 0.0, profile.name)
+    if not kept.absolute:
+        return
+    ratio = scale.lux_per_unit / kept.lux_per_unit
+    combined = float(np.hypot(scale.rel_uncertainty or 0.0, kept.rel_uncertainty or 0.0))
+    if combined > 0 and abs(np.log(ratio)) > 2 * combined:
+        warnings.append(f"the lux reading gives a scale {ratio - 1:+.0%} from the camera constant kept in profile "
+                        f"'{profile.name}' (more than twice their combined uncertainty of {combined:.1%}); the reading "
+                        "is used - check the meter and where it was held, or re-measure the constant (camera scale)")
 
 
 #: Half-width (working pixels) of the patch averaged around a metered point: about a lux meter's

@@ -115,6 +115,12 @@ def test_kept_constant_gives_absolute_peak_at_other_settings(tmp_path):
     assert rep.calibration["absolute_scale"]["kind"] == "camera_constant"
     assert f.status == "measured"
     assert abs(f.value / truth["peak_cd"] - 1) <= 0.05
+    # a lux reading that agrees with the kept constant passes quietly; one 40 % high is more than twice
+    # their combined uncertainty (JCGM 100 sec. 6, k = 2) and is warned about, naming the profile
+    agree = analyze(photo, distance_m=5.0, camera=str(prof), lux_at_peak=truth["peak_lux_on_wall"])
+    assert not any("camera constant kept" in w for w in agree.warnings)
+    high = analyze(photo, distance_m=5.0, camera=str(prof), lux_at_peak=1.4 * truth["peak_lux_on_wall"])
+    assert any("camera constant kept in profile 'phone'" in w for w in high.warnings), high.warnings
 
 
 def _write(folder, frames, prefix):
