@@ -19,6 +19,9 @@ import contextlib
 import hashlib
 import io
 import os
+import sys
+import tempfile
+import threading
 import warnings
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -147,30 +150,34 @@ def read_exif(image: Image.Image) -> ExifFacts:
         return ExifFacts()
 
 
-def _tiff_exif(data: bytes) -> ExifFacts:
-    """Exposure facts from the TIFF structure of a TIFF-based raw file (DNG, NEF, CR2, ...).
+def _tiff_exif(data: bytes) -> tuple[ExifFacts, dict]:
+    """Exposure facts (and the values as stored) from the TIFF structure of a TIFF-based raw file
+    (DNG, NEF, CR2, ...).
 
     Reads IFD0 and its Exif sub-IFD with Pillow's TIFF tag reader (TIFF/EP allows the exposure
-    tags in IFD0 too); returns empty facts for other files.
+    tags in IFD0 too); returns empty facts for other files or damaged tags.
     """
     from PIL import TiffImagePlugin
 
     if data[:4] not in (b"II*\x00", b"MM\x00*"):
-        return ExifFacts()
+        return ExifFacts(), {}
     try:
-        fp = io.BytesIO(data)
-        ifd0 = TiffImagePlugin.ImageFileDirectory_v2(ifh=data[:8])
-        fp.seek(ifd0.next)
-        ifd0.load(fp)
-        sub = {}
-        if _TAG_EXIF_IFD in ifd0:
-            sub_ifd = TiffImagePlugin.ImageFileDirectory_v2(ifh=data[:8])
-            fp.seek(int(ifd0[_TAG_EXIF_IFD]))
-            sub_ifd.load(fp)
-            sub = dict(sub_ifd)
-        return _facts(dict(ifd0), sub)
-    except (OSError, ValueError, KeyError, TypeError, SyntaxError):
-        return ExifFacts()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # Pillow's warnings about damaged tags
+            fp = io.BytesIO(data)
+            ifd0 = TiffImagePlugin.ImageFileDirectory_v2(ifh=data[:8])
+            fp.seek(ifd0.next)
+            ifd0.load(fp)
+            sub = {}
+            if _TAG_EXIF_IFD in ifd0:
+                sub_ifd = TiffImagePlugin.ImageFileDirectory_v2(ifh=data[:8])
+                fp.seek(int(ifd0[_TAG_EXIF_IFD]))
+                sub_ifd.load(fp)
+                sub = dict(sub_ifd)
+            ifd0 = dict(ifd0)
+            return _facts(ifd0, sub), _stored_values(ifd0, sub)
+    except Exception:  # noqa: BLE001 - damaged tags are as good as none; LibRaw has read the pixels
+        return ExifFacts(), {}
 
 
 def _facts(exif, sub) -> ExifFacts:
@@ -225,18 +232,22 @@ def _plausible(facts: ExifFacts, raw: dict) -> tuple[ExifFacts, tuple[str, ...]]
     return (replace(facts, **changes) if changes else facts), tuple(notes)
 
 
-def _raw_exif(image: Image.Image) -> dict:
-    """What the EXIF block says for each exposure fact, before any cleaning (None where absent)."""
-    try:
-        exif = image.getexif()
-        sub = exif.get_ifd(_TAG_EXIF_IFD)
-    except Exception:  # noqa: BLE001 - see read_exif
-        return {}
+def _stored_values(exif, sub) -> dict:
+    """What the file stores for each exposure fact, before any cleaning (None where absent)."""
     tags = {"exposure_time_s": _TAG_EXPOSURE_TIME, "f_number": _TAG_F_NUMBER, "iso": _TAG_ISO,
             "focal_length_mm": _TAG_FOCAL_LENGTH, "focal_35mm_mm": _TAG_FOCAL_35MM}
     out = {k: sub.get(t, exif.get(t)) for k, t in tags.items()}
     out["orientation"] = exif.get(_TAG_ORIENTATION)
     return out
+
+
+def _raw_exif(image: Image.Image) -> dict:
+    """:func:`_stored_values` of a Pillow image's EXIF block ({} if it is damaged)."""
+    try:
+        exif = image.getexif()
+        return _stored_values(exif, exif.get_ifd(_TAG_EXIF_IFD))
+    except Exception:  # noqa: BLE001 - see read_exif
+        return {}
 
 
 def apply_orientation(pixels: np.ndarray, orientation: int) -> np.ndarray:
@@ -280,6 +291,37 @@ def _check_size(name: str, width: int, height: int, limit: float) -> None:
         )
 
 
+_STDERR_LOCK = threading.Lock()
+#: What libjpeg prints for a damaged entropy-coded segment (the decoder then fills in grey or garbage):
+#: such a photo is refused.  Other libjpeg warnings (e.g. extraneous bytes before a marker, common in
+#: camera files whose pixels are intact) are only kept off the terminal.
+_JPEG_DAMAGE_WORDS = ("premature end", "huffman")
+
+
+@contextlib.contextmanager
+def _decoder_messages():
+    """Collect what C decoders (libjpeg, libpng, LibRaw) print on file descriptor 2 during one call,
+    instead of letting it reach the user's terminal; yields a list that holds the text afterwards."""
+    box: list[str] = []
+    with _STDERR_LOCK:
+        try:
+            sys.stderr.flush()
+            saved = os.dup(2)
+        except (OSError, ValueError, AttributeError):  # no real stderr (embedded use): nothing to hide
+            yield box
+            box.append("")
+            return
+        with tempfile.TemporaryFile() as sink:
+            os.dup2(sink.fileno(), 2)
+            try:
+                yield box
+            finally:
+                os.dup2(saved, 2)
+                os.close(saved)
+                sink.seek(0)
+                box.append(sink.read(4096).decode("utf-8", "replace"))
+
+
 @contextlib.contextmanager
 def _quiet_opencv():
     """Keep OpenCV's own log lines (libtiff warnings, decoder errors) off the terminal for one call."""
@@ -306,7 +348,7 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
 
     limit = MAX_MEGAPIXELS if max_megapixels is None else max_megapixels
     try:
-        with rawpy.imread(io.BytesIO(data)) as raw:
+        with _decoder_messages(), rawpy.imread(io.BytesIO(data)) as raw:
             h, w = raw.sizes.height, raw.sizes.width
             _check_size(name, w, h, limit)
             rgb = raw.postprocess(gamma=(1, 1), no_auto_bright=True, output_bps=16, use_camera_wb=True,
@@ -319,11 +361,12 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
     if rgb is None or rgb.ndim != 3 or rgb.shape[2] != 3:
         raise BeamshotError(f"{name}: the raw file holds no colour image beamshot can use; give {READABLE_FORMATS}")
     _check_size(name, rgb.shape[1], rgb.shape[0], limit)
-    exif = _tiff_exif(data)
+    exif, stored = _tiff_exif(data)
     from dataclasses import replace
 
     exif = replace(exif, orientation=1)  # LibRaw has already turned the image upright
-    exif, notes = _plausible(exif, {})
+    stored.pop("orientation", None)
+    exif, notes = _plausible(exif, stored)
     return Photo(bgr=np.ascontiguousarray(rgb[..., ::-1]), exif=exif, name=name,
                  sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True, notes=notes)
 
@@ -365,7 +408,9 @@ def _probe(data: bytes, name: str, limit: float):
     Image.MAX_IMAGE_PIXELS = int(limit * 1e6)
     try:
         with warnings.catch_warnings():
-            warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+            # Pillow warns about damaged metadata (and large images): the file is refused below or
+            # its pixels are decoded by OpenCV, so these warnings are not for the user
+            warnings.simplefilter("ignore")
             with Image.open(io.BytesIO(data)) as probe:
                 width, height = probe.size
                 fmt = probe.format
@@ -405,14 +450,19 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         raise BeamshotError(f"{name}: the JPEG is truncated (no end marker); copy the file again")
     exif, notes = _plausible(exif, raw)
     flags = cv2.IMREAD_COLOR | cv2.IMREAD_ANYDEPTH | cv2.IMREAD_IGNORE_ORIENTATION
-    with ThreadPoolExecutor(max_workers=1) as pool, _quiet_opencv():  # hash on the other core while decoding
+    with ThreadPoolExecutor(max_workers=1) as pool:  # hash on the other core while decoding
         digest = pool.submit(lambda: hashlib.sha256(data).hexdigest())
-        try:
-            bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
-        except cv2.error:
-            bgr = None
+        with _quiet_opencv(), _decoder_messages() as said:
+            try:
+                bgr = cv2.imdecode(np.frombuffer(data, np.uint8), flags)
+            except cv2.error:
+                bgr = None
     if bgr is None or bgr.size == 0:
         raise BeamshotError(f"{name}: the image data is corrupt; copy the file again")
+    message = said[0].strip() if said else ""
+    if fmt in ("JPEG", "MPO") and any(w in message.lower() for w in _JPEG_DAMAGE_WORDS):
+        raise BeamshotError(f"{name}: the JPEG data are damaged (the decoder says: {message.splitlines()[0][:80]}); "
+                            "copy the file again")
     if bgr.dtype not in (np.uint8, np.uint16):
         raise BeamshotError(f"{name}: {bgr.dtype} pixels are not supported; give 8- or 16-bit images")
     if bgr.ndim == 2:
