@@ -229,7 +229,7 @@ def _pixel_pair(text: str, option: str) -> tuple[float, float]:
     return xy
 
 
-@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"], "show_default": True})
+@click.group("beamshot", cls=_Group, context_settings={"help_option_names": ["-h", "--help"], "show_default": True})
 @click.version_option(__version__, prog_name="beamshot")
 def cli():
     """Calibrated beam figures from photos of a flashlight beam on a white wall.
@@ -401,17 +401,17 @@ def demo(out_dir):
     for light, report in rows:
         click.echo(f"\n{light['label']}  ({light['name']}, lux meter {light['lux_at_peak']:g} lx "
                    f"at {light['distance_m']:g} m)")
-        click.echo(f"  {'figure':26s} {'measured (± standard uncertainty)':>34s} {'truth':>12s} {'error':>7s}")
+        click.echo(f"  {'figure':26s} {'measured (± standard uncertainty)':34s} {'truth':>12s} {'error':>7s}")
         for key, tkey in truth_keys:
             fig = report.figures[key]
             truth = light["truth"].get(tkey)
             if fig.value is None or truth is None:
-                click.echo(f"  {label(key):26s} {fig.text(3):>34s}")
+                click.echo(f"  {label(key):26s} {fig.text(3):34s}")
                 continue
             unit = term(key).unit
             truth_text = f"{truth:,.{_decimals(fig.text(3))}f}" + (f" {unit}" if unit else "")
             err = (fig.value - truth) / truth
-            click.echo(f"  {label(key):26s} {fig.text(3):>34s} {truth_text:>12s} {err:>+7.1%}")
+            click.echo(f"  {label(key):26s} {fig.text(3):34s} {truth_text:>12s} {err:>+7.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}{os.sep}")
     click.echo("\n≈ marks an estimate: most of its uncertainty comes from an assumption (here the assumed tone "
                "curve and lens shading of an uncalibrated camera); see each report's warnings")
