@@ -28,7 +28,7 @@ from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
-from PIL import Image, UnidentifiedImageError
+from PIL import Image
 
 from .errors import BeamshotError, read_user_file
 

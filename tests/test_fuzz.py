@@ -44,6 +44,7 @@ from click.testing import CliRunner
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from PIL import Image, TiffImagePlugin
+from test_photo import _linear_dng
 
 from beamshot.camera.distortion import Distortion
 from beamshot.camera.flatfield import FlatField
@@ -53,10 +54,17 @@ from beamshot.cli import cli
 from beamshot.errors import BeamshotError
 from beamshot.farfield import compare_distances
 from beamshot.photo import MIN_SIDE_PX, decode_photo
-from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, exif_block, exposure_time_for_peak,
-                            render_photo, render_rgb_linear, truth_figures)
-
-from test_photo import _linear_dng
+from beamshot.synth import (
+    HotspotSpillBeam,
+    Scene,
+    SynthCamera,
+    encode_jpeg,
+    exif_block,
+    exposure_time_for_peak,
+    render_photo,
+    render_rgb_linear,
+    truth_figures,
+)
 
 # --------------------------------------------------------------------------- budget and counting
 #: Cases tried by the default run, summed over the tests below (their ``_n`` shares).
@@ -295,7 +303,7 @@ def test_damaged_photo_decodes_or_one_line(inputs, capfd, data):
 def test_damaged_photo_cli(inputs, data):
     CASES["damaged photo, analyze"] += 1
     fmt = data.draw(st.sampled_from(sorted(_EXT)), label="format")
-    blob, what = data.draw(damaged(inputs["bytes"][fmt]), label="damage")
+    blob, _ = data.draw(damaged(inputs["bytes"][fmt]), label="damage")
     wd = _workdir()
     photo = _write(wd, _EXT[fmt], blob)
     out = os.path.join(wd, "out")
@@ -334,10 +342,66 @@ def test_c_level_stderr_is_one_line_in_a_real_process(inputs):
     cases.append(_write(wd, "flipped.tif", bytes(tif[: len(tif) * 3 // 4])))
     for path in cases:
         proc = subprocess.run([sys.executable, "-m", "beamshot", "analyze", path, "--distance", "5"], cwd=wd,
-                              capture_output=True, text=True, timeout=120)
+                              capture_output=True, text=True, timeout=120, check=False)
         assert proc.returncode in (0, 2), proc.stderr
         if proc.returncode == 2:
             assert len(proc.stderr.strip().splitlines()) == 1 and "Traceback" not in proc.stderr, proc.stderr
+
+
+def _claiming(width: int, height: int) -> bytes:
+    """A small valid JPEG whose frame header (SOF0, ITU-T T.81 B.2.2) claims ``width`` x ``height``."""
+    data = bytearray(_encode(np.zeros((48, 64, 3), np.uint8), "JPEG"))
+    i = data.find(b"\xff\xc0")
+    data[i + 5:i + 7] = height.to_bytes(2, "big")
+    data[i + 7:i + 9] = width.to_bytes(2, "big")
+    return bytes(data)
+
+
+def test_200_mp_header_passes_without_pillow_warning():
+    # 16320 x 12240 is the full resolution of current 200 MP phone sensors; Pillow's own bomb guard
+    # (warning above 89 MP, error above 179 MP) must neither refuse it nor reach the user
+    from beamshot.photo import _probe
+
+    pillow_limit = Image.MAX_IMAGE_PIXELS
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        width, height, fmt, _, _ = _probe(_claiming(16320, 12240), "big.jpg", 250.0)
+    assert (width, height, fmt) == (16320, 12240, "JPEG")
+    assert not caught, [str(w.message) for w in caught]
+    assert Image.MAX_IMAGE_PIXELS == pillow_limit  # Pillow's setting is changed only during our header read
+
+
+@pytest.mark.parametrize("width, height, words", [(20000, 15000, "above the 250 MP limit"),
+                                                  (65000, 65000, "absurd size")])
+def test_photo_above_our_limit_is_one_line_before_decoding(width, height, words):
+    with pytest.raises(BeamshotError, match=words) as exc:
+        decode_photo(_claiming(width, height), "huge.jpg")
+    assert "\n" not in str(exc.value)
+
+
+@pytest.mark.skipif(not os.environ.get("BEAMSHOT_BIG_PHOTO"), reason="set BEAMSHOT_BIG_PHOTO=1: 1.2 GB, ~20 s")
+def test_a_real_200_mp_jpeg_decodes():
+    rng = np.random.default_rng(0)
+    px = np.repeat(rng.integers(0, 256, (12240 // 16, 16320 // 16, 3), dtype=np.uint8), 16, axis=0)
+    px = np.repeat(px, 16, axis=1)
+    data = _encode(px, "JPEG")
+    del px
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        photo = decode_photo(data, "big.jpg")
+    assert photo.shape == (12240, 16320) and not caught
+
+
+def test_jpeg_end_marker_is_the_main_images():
+    # an end marker inside an EXIF thumbnail (APP1) does not make a cut JPEG whole; data a phone
+    # appends after the end marker does not make a whole JPEG truncated
+    body = _encode(np.random.default_rng(1).integers(0, 256, (64, 64, 3), dtype=np.uint8), "JPEG")
+    thumb = b"Exif\x00\x00" + b"\xff\xd8 thumbnail \xff\xd9"
+    with_thumb = body[:2] + b"\xff\xe1" + (len(thumb) + 2).to_bytes(2, "big") + thumb + body[2:]
+    assert decode_photo(with_thumb, "a.jpg").shape == (64, 64)
+    with pytest.raises(BeamshotError, match="truncated"):
+        decode_photo(with_thumb[: len(with_thumb) - 200], "a.jpg")
+    assert decode_photo(body + b"\x00" * 10000, "b.jpg").shape == (64, 64)
 
 
 # --------------------------------------------------------------------------- absurd EXIF
@@ -500,10 +564,9 @@ def test_damaged_profile_loads_usable_or_one_line(case):
 @given(case=mutated(_valid_profile(), PROFILE_FOCUS))
 def test_damaged_profile_cli(inputs, case):
     CASES["damaged profile, analyze"] += 1
-    doc, what = case
+    doc, _ = case
     wd = _workdir()
     prof = _write(wd, "cam.json", json.dumps(doc).encode())
-    out = os.path.join(wd, "out")
     Run(["camera", "show", prof], wd)
     Run(["analyze", str(inputs["folder"] / "beam.jpg"), "--distance", "5", "--camera", prof, "--json"], wd)
 

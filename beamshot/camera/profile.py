@@ -179,7 +179,17 @@ PROFILE_LIMITS = {
     "image_side_px": (1, 100000),
 }
 
-_RECREATE = "recreate the profile with 'beamshot camera response/flat/scale ... --name NAME' or correct the file"
+#: The command that measures each part of a profile again (named in messages about a bad field).
+_REMEASURE = {"response": "beamshot camera response PHOTOS... --name NAME",
+              "flat_field": "beamshot camera flat PHOTOS... --name NAME",
+              "absolute_scale": "beamshot camera scale PHOTO --lux LX --name NAME"}
+
+
+def _fix(field_name: str) -> str:
+    command = _REMEASURE.get(field_name.split(".")[0].split("[")[0])
+    if command:
+        return f"measure it again with '{command}' or correct the file"
+    return "correct the file, or make the profile again with 'beamshot camera response/flat/scale ... --name NAME'"
 
 
 class _FieldCheck:
@@ -193,7 +203,7 @@ class _FieldCheck:
         if len(shown) > 60:
             shown = shown[:57] + "..."
         raise BeamshotError(f"{self.source}: camera profile field {field_name} = {shown} is not accepted "
-                            f"(accepted: {accepted}); {_RECREATE}")
+                            f"(accepted: {accepted}); {_fix(field_name)}")
 
     def number(self, field_name: str, value, lo: float | None = None, hi: float | None = None, *,
                lo_open: bool | None = None, required: bool = False) -> float | None:
@@ -316,9 +326,9 @@ def _flat_from(check: _FieldCheck, ff) -> FlatField | None:
     if bad.size:
         k = int(bad[0])
         at = float(np.sqrt(r2[k]))
-        shown = "not positive" if not np.isfinite(v[k]) or v[k] <= 0 else f"{v[k]:.3g} of the centre"
+        shown = "a level that is not positive" if not np.isfinite(v[k]) or v[k] <= 0 else f"{v[k]:.1%} of the centre"
         check.fail("flat_field.coefficients", b,
-                   f"a fall-off between {lo_v:g} and {hi_v:g} of the centre everywhere in the frame; these give "
+                   f"a fall-off V between {lo_v:.0%} and {hi_v:.0%} of the centre everywhere in the frame; these give "
                    f"{shown} at r = {at:.2f} of the half-diagonal")
     return FlatField(coefficients=tuple(b), residual_rms=residual, shape=(h, w), method=method, max_radius=reach)
 
