@@ -38,12 +38,18 @@ def photo(tmp_path_factory, reflector_beam):
 
 
 @pytest.fixture(scope="module")
-def report_file(photo, tmp_path_factory):
+def first_run(photo, tmp_path_factory):
+    """One real analysis with --out: (report.json path, the printed table in metric units)."""
     out = tmp_path_factory.mktemp("cli-report") / "rep"
     res = CliRunner().invoke(cli, ["analyze", photo, "--distance", "5", "--lux", LUX, "--out", str(out)])
     assert res.exit_code == 0, res.output
     assert f"wrote {out / 'beam.png'}" in res.stdout
-    return out / "report.json"
+    return out / "report.json", res.stdout
+
+
+@pytest.fixture(scope="module")
+def report_file(first_run):
+    return first_run[0]
 
 
 def _stderr_lines(res) -> list[str]:
@@ -272,7 +278,7 @@ def test_files_on_disk_keep_everything(report_file):
     assert len(data["profile"]["theta_deg"]) > 100
 
 
-def test_table_says_no_files_written_and_prints_imperial(photo):
+def test_table_says_no_files_written_and_prints_imperial(photo, first_run):
     res = CliRunner().invoke(cli, ["analyze", photo, "--distance", "5", "--lux", LUX, "--units", "imperial"])
     assert res.exit_code == 0, res.output
     assert "no files written; give --out DIR" in res.stdout
@@ -285,8 +291,8 @@ def test_table_says_no_files_written_and_prints_imperial(photo):
     # 1 ft = 0.3048 m, 1 yd = 0.9144 m exactly (NIST SP 811 appendix B); each printed value rounded
     assert feet * M_PER_FT == pytest.approx(metres, rel=0.01) and yards * M_PER_YD == pytest.approx(metres, rel=0.01)
     assert M_PER_YD == pytest.approx(3 * M_PER_FT, abs=1e-12)
-    metric = CliRunner().invoke(cli, ["analyze", photo, "--distance", "5", "--lux", LUX])
-    assert " ft" not in metric.stdout and " yd" not in metric.stdout
+    metric = first_run[1]
+    assert "beam distance" in metric and " ft" not in metric and " yd" not in metric
 
 
 # ---------------------------------------------------------------- target --out
@@ -297,19 +303,39 @@ def test_target_out_is_a_folder(tmp_path):
     res = CliRunner().invoke(cli, ["target", "--out", str(folder)])
     assert res.exit_code == 0, res.output
     assert sorted(os.listdir(folder)) == ["target.pdf", "target.png"] and "note:" not in res.stderr
+    assert (folder / "target.pdf").read_bytes()[:5] == b"%PDF-"
+
+
+@pytest.fixture
+def target_calls(monkeypatch):
+    """Record where ``target`` writes (the drawing itself is tested above and in test_wall_geometry)."""
+    import beamshot.target
+
+    calls = []
+
+    def record(folder, paper="a4", *, stem="target"):
+        calls.append((folder, paper, stem))
+        return [os.path.join(folder, stem + ext) for ext in (".pdf", ".png")]
+
+    monkeypatch.setattr(beamshot.target, "write_target", record)
+    return calls
+
+
+def test_target_out_ending_in_a_separator_is_created(tmp_path, target_calls):
     new = tmp_path / "new" / "deeper"
     res = CliRunner().invoke(cli, ["target", "--paper", "letter", "--out", str(new) + "/"])
-    assert res.exit_code == 0 and sorted(os.listdir(new)) == ["target.pdf", "target.png"]
+    assert res.exit_code == 0 and new.is_dir() and "note:" not in res.stderr
+    assert target_calls == [(str(new) + "/", "letter", "target")]
 
 
-def test_target_old_stem_works_with_a_note(tmp_path):
+def test_target_old_stem_works_with_a_note(tmp_path, target_calls):
     res = CliRunner().invoke(cli, ["target", "--out", str(tmp_path / "sheet")])
     assert res.exit_code == 0, res.output
-    assert sorted(os.listdir(tmp_path)) == ["sheet.pdf", "sheet.png"]
+    assert target_calls == [(str(tmp_path), "a4", "sheet")]
     assert "note: --out" in res.stderr and "file-name stem" in res.stderr
     (tmp_path / "afile").write_text("x")
     res = CliRunner().invoke(cli, ["target", "--out", str(tmp_path / "afile")])
-    assert res.exit_code == 2 and "not a folder" in res.stderr
+    assert res.exit_code == 2 and "not a folder" in res.stderr and len(target_calls) == 1
 
 
 # ---------------------------------------------------------------- help

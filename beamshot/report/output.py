@@ -86,10 +86,12 @@ def read_report_json(path) -> dict:
         raise BeamshotError(f"{path}: not a beamshot report.json (a photo or another file?); run "
                             "'beamshot analyze ... --out DIR' first and give DIR/report.json") from None
     if not isinstance(data, dict) or data.get("schema") != SCHEMA_NAME:
-        raise BeamshotError(f"{path}: not a beamshot report")
+        raise BeamshotError(f"{path}: not a beamshot report; give the report.json written by "
+                            "'beamshot analyze ... --out DIR'")
     major = str(data.get("schema_version", "")).split(".")[0]
     if not major.isdigit():
-        raise BeamshotError(f"{path}: the report has no readable schema_version; it was not written by beamshot")
+        raise BeamshotError(f"{path}: the report has no readable schema_version, so beamshot did not write it; "
+                            "give the report.json written by 'beamshot analyze ... --out DIR'")
     if int(major) > int(SCHEMA_VERSION.split(".")[0]):
         raise BeamshotError(f"{path}: written by a newer beamshot (schema {data['schema_version']}); upgrade beamshot")
     return data
