@@ -329,6 +329,7 @@ def analyze(
         "focal_relative_uncertainty": f_u,
         "response": resp.describe(),
         "lux_at_peak": lux_at_peak,
+        "lux_point_px": None if lux_point_px is None else [float(v) for v in lux_point_px],
         "reflectance": reflectance,
         "use_exif_scale": use_exif_scale,
         "head_diameter_mm": head_diameter_mm,

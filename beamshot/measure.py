@@ -260,7 +260,7 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
                 figs[key] = not_measured("lm", method, clip_reason)
             else:
                 figs[key] = fig(key, "lm", method)
-        ra_method = "Ra = spill-zone flux / hotspot-zone flux (this project's spill-to-hotspot ratio, not a colour index)"
+        ra_method = "Ra = spill flux over hotspot flux (this project's spill-to-hotspot ratio, not a colour index)"
         if clipped:
             figs["ra"] = not_measured("", ra_method, clip_reason)
         elif fx.spill is None:
@@ -273,8 +273,16 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
         figs["hotspot_offset"] = not_measured("deg", off_method, clip_reason)
     else:
         off_sigma = float(np.degrees(np.hypot(axis_uncertainty_rad, beam.d_theta)))
-        figs["hotspot_offset"] = Figure(values["hotspot_offset"], off_sigma, "deg",
-                                        off_method + f"; toward azimuth {np.degrees(pk.phi):.0f} deg (0 = right, 90 = up)")
+        off = float(values["hotspot_offset"])
+        if off > 2.0 * off_sigma:
+            figs["hotspot_offset"] = Figure(off, off_sigma, "deg", off_method + f"; toward azimuth "
+                                            f"{np.degrees(pk.phi):.0f} deg (0 = right, 90 = up; beam_axis.peak_direction_deg)")
+        else:
+            # a length is never negative, so a small one is biased up: within 2 sigma of zero it is only
+            # bounded (about 95 %, as the light tilt)
+            figs["hotspot_offset"] = Figure(off + 2.0 * off_sigma, None, "deg", off_method + "; not significant",
+                                            "upper_bound", "the hotspot is centred on the beam axis within the "
+                                            "uncertainty; the value is an upper bound (about 95 %)")
     if pixel_deg > 0:
         _resolution_limits(figs, values, pixel_deg, pinned)
     return {k: figs[k] for k in FIGURE_ORDER if k in figs}

@@ -79,7 +79,7 @@ def test_camera_anywhere_with_target(pose, oblique):
     assert edge.complete
     assert np.max(np.abs(np.degrees(edge.theta) - 24.0)) <= 0.2
     assert abs(rep["hotspot_angle"].value / truth["hotspot_angle_deg"] - 1) <= 0.02
-    assert rep["hotspot_offset"].value <= 0.5  # spill-centre axis from an oblique view: ~0.2-0.4 deg
+    assert rep["hotspot_offset"].value <= 0.6  # spill-centre axis from an oblique view: ~0.2-0.4 deg (+ 2 sigma if a bound)
 
 
 def _project(cam, wall_m):
@@ -143,8 +143,8 @@ def test_bad_geometry_photos(oblique, tmp_path):
 
 def _report(d, peak, u_peak, hot, u_hot):
     return {"settings": {"distance_m": d},
-            "figures": {"peak_intensity": {"value": peak, "uncertainty": u_peak},
-                        "hotspot_angle": {"value": hot, "uncertainty": u_hot}}}
+            "figures": {"peak_intensity": {"value": peak, "uncertainty": u_peak, "unit": "cd", "status": "measured"},
+                        "hotspot_angle": {"value": hot, "uncertainty": u_hot, "unit": "deg", "status": "measured"}}}
 
 
 def test_far_field_check(tmp_path):
@@ -168,7 +168,8 @@ def test_tilted_light_is_recovered_and_corrected(yaw, pitch):
     assert abs(rep["light_tilt"].value - np.hypot(yaw, pitch)) <= 1.0
     assert abs(rep["hotspot_angle"].value / truth["hotspot_angle_deg"] - 1) <= 0.03
     assert abs(rep["spill_angle"].value / truth["spill_angle_deg"] - 1) <= 0.03
-    assert rep["hotspot_offset"].value <= 0.3
+    # a centred hotspot: not distinguishable from zero, so an upper bound (offset + 2 sigma)
+    assert rep["hotspot_offset"].status == "upper_bound" and rep["hotspot_offset"].value <= 0.5
     assert any("tilted" in w for w in rep.warnings)
 
 
