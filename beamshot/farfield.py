@@ -112,11 +112,12 @@ def combined_sigma(a: tuple, b: tuple, shared: tuple[str, ...]) -> float:
     >>> round(combined_sigma((100.0, 5.0, {"lux meter": 5.0}), (100.0, 5.0, {"lux meter": 5.0}), ("lux meter",)), 9)
     0.0
     """
-    var = a[1] ** 2 + b[1] ** 2
-    for term in shared:
-        ua, ub = a[2].get(term, 0.0) or 0.0, b[2].get(term, 0.0) or 0.0
-        var += (ub - ua) ** 2 - ua**2 - ub**2
-    return float(np.sqrt(max(var, 0.0)))
+    with np.errstate(over="ignore", invalid="ignore"):  # absurd numbers give inf/nan: "cannot be compared"
+        var = np.float64(a[1]) ** 2 + np.float64(b[1]) ** 2
+        for term in shared:
+            ua, ub = np.float64(a[2].get(term, 0.0) or 0.0), np.float64(b[2].get(term, 0.0) or 0.0)
+            var += (ub - ua) ** 2 - ua**2 - ub**2
+        return float(np.sqrt(max(var, 0.0))) if np.isfinite(var) else float("nan")
 
 
 def compare_distances(near: dict, far: dict, *, names: tuple[str, str] = ("the first report", "the second report")
@@ -148,6 +149,10 @@ def compare_distances(near: dict, far: dict, *, names: tuple[str, str] = ("the f
             continue
         diff = b[0] - a[0]
         sigma = combined_sigma(a, b, shared)
+        if not np.isfinite(sigma) or not np.isfinite(diff):
+            lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g}: the uncertainties are too large to be numbers, "
+                         "cannot be compared")
+            continue
         if not sigma > 0:
             lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g}: no uncertainty in either report, cannot be compared")
             continue

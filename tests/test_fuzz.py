@@ -310,6 +310,26 @@ def test_damaged_photo_cli(inputs, data):
     Run(["analyze", photo, "--distance", "5", "--out", out], wd, out=out)
 
 
+@_fuzz(20)
+@given(data=st.data())
+def test_camera_scale_with_damaged_photo_and_odd_lux(inputs, data):
+    # the calibration command that keeps a camera constant: a damaged photo or an odd lux reading
+    # gives one line, and only the profile file named by --out is written
+    CASES["damaged photo, camera scale"] += 1
+    fmt = data.draw(st.sampled_from(["jpg", "png", "tif"]), label="format")
+    blob, _ = data.draw(st.one_of(damaged(inputs["bytes"][fmt]), st.just((inputs["bytes"][fmt], "intact"))),
+                        label="damage")
+    lux = data.draw(st.sampled_from(["-5", "0", "nan", "inf", "1e12", "150"]), label="lux")
+    wd = _workdir()
+    out = os.path.join(wd, "cam.json")
+    run = Run(["camera", "scale", _write(wd, _EXT[fmt], blob), "--lux", lux, "--name", "fuzzcam", "--out", out], wd,
+              out=out)
+    if lux in ("-5", "0", "nan", "inf"):
+        assert run.code == 2
+    if run.code == 0:
+        _usable(load_profile(out))
+
+
 @pytest.mark.parametrize("fmt", sorted(_EXT))
 def test_zero_size_and_cut_files_are_one_line(inputs, fmt):
     # the named cases of the issue, each as its own check: empty, cut to its header, cut in half
@@ -515,6 +535,8 @@ def mutated(draw, base: dict, focus: tuple[tuple, ...] = ()):
             parent[path[-1]]
         except (KeyError, IndexError, TypeError):
             continue
+        if not isinstance(parent, (dict, list)):  # an earlier mutation replaced a container by a text
+            continue
         if isinstance(parent, dict) and draw(st.booleans()) and draw(st.booleans()):
             del parent[path[-1]]
             what.append(f"del {'.'.join(map(str, path))}")
@@ -609,6 +631,10 @@ TABLE_ROW = [float(x) for x in Response("srgb").decode(np.linspace(0, 1, 256))]
     (("name",), 7, "name"),
     (("calibrated",), "yes", "calibrated"),
     (("distortion", "fx"), 0, "distortion.fx"),
+    (("distortion", "cx"), -5.0, "distortion.cx"),  # principal point outside the image
+    # found by the long fuzz run: a tangential term of 5e10 passed and overflowed the wall mapping
+    (("distortion", "coefficients"), [0.01, 0.0, 53318854995.0, 0.0, 0.0], "distortion.coefficients"),
+    (("distortion", "coefficients"), [-2.0, 0.0, 0.0, 0.0, 0.0], "distortion.coefficients"),  # folds back
 ])
 def test_profile_field_refused_naming_field_value_range(path, value, words):
     doc = _set(_valid_profile(), path, value)
@@ -744,6 +770,11 @@ def test_far_field_exit_1_only_for_a_real_difference(reports):
     assert "DISAGREE" in run.stdout
     with pytest.raises(BeamshotError, match="distance_m"):
         compare_distances(near, _set(far, ("settings", "distance_m"), 0.0))
+    # found by the long fuzz run: budget entries of 1e308 overflowed (exit 3); now "cannot be compared"
+    huge = _set(near, ("figures", "peak_intensity", "uncertainty"), 1e308)
+    huge["figures"]["peak_intensity"]["budget"] = {"lux meter": 1e308}
+    result = compare_distances(huge, json.loads(json.dumps(reports[1])))
+    assert any("cannot be compared" in line for line in result["lines"])
 
 
 # --------------------------------------------------------------------------- option values at every limit

@@ -177,6 +177,8 @@ PROFILE_LIMITS = {
     "flat_data_to_radius": (0.0, 1.0),
     "table_length": (16, 65536),
     "image_side_px": (1, 100000),
+    "distortion_radial_factor": (0.2, 5.0),  # common practice: strong wide-angle lenses stay within 0.5-2
+    "distortion_tangential": (-0.1, 0.1),    # decentring terms p1, p2: typically 1e-3 (from memory)
 }
 
 #: The command that measures each part of a profile again (named in messages about a bad field).
@@ -334,19 +336,39 @@ def _flat_from(check: _FieldCheck, ff) -> FlatField | None:
 
 
 def _distortion_from(check: _FieldCheck, dist) -> Distortion | None:
+    """Lens distortion in OpenCV's model, checked to describe a real lens over the whole frame: focal
+    lengths positive, the principal point inside the image, and the radial factor of the Brown-Conrady
+    model (rational with 8 coefficients) between ``DISTORTION_RADIAL_FACTOR`` and rising with the
+    radius out to the frame's corners, so that every pixel has one undistorted position."""
     if not dist:
         return None
     check.mapping("distortion", dist)
-    for key in ("fx", "fy"):
-        check.number(f"distortion.{key}", dist.get(key), 0.0, 1e6, lo_open=True, required=True)
-    for key in ("cx", "cy"):
-        check.number(f"distortion.{key}", dist.get(key), -1e6, 1e6, required=True)
-    check.numbers("distortion.coefficients", dist.get("coefficients"), (4, 5, 8))
-    size = dist.get("image_size")
     lo_px, hi_px = PROFILE_LIMITS["image_side_px"]
+    size = dist.get("image_size")
     if (not isinstance(size, list) or len(size) != 2
             or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
         check.fail("distortion.image_size", size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
+    w, h = size
+    fx, fy = (check.number(f"distortion.{k}", dist.get(k), 0.0, 1e6, lo_open=True, required=True) for k in ("fx", "fy"))
+    cx = check.number("distortion.cx", dist.get("cx"), 0.0, float(w), required=True)
+    cy = check.number("distortion.cy", dist.get("cy"), 0.0, float(h), required=True)
+    k = check.numbers("distortion.coefficients", dist.get("coefficients"), (4, 5, 8))
+    k = k + [0.0] * (8 - len(k))
+    # radial factor over the normalised radius out to the farthest corner (OpenCV calib3d model)
+    r_max = float(np.hypot(max(cx, w - cx) / fx, max(cy, h - cy) / fy))
+    r = np.linspace(0.0, r_max, 401)
+    r2 = r * r
+    with np.errstate(all="ignore"):
+        num = 1 + k[0] * r2 + k[1] * r2**2 + k[4] * r2**3
+        den = 1 + k[5] * r2 + k[6] * r2**2 + k[7] * r2**3
+        factor = num / den
+        rd = r * factor
+    lo_f, hi_f = PROFILE_LIMITS["distortion_radial_factor"]
+    ok = np.all(np.isfinite(factor)) and factor.min() >= lo_f and factor.max() <= hi_f and np.all(np.diff(rd) > 0)
+    if not ok or max(abs(k[2]), abs(k[3])) > PROFILE_LIMITS["distortion_tangential"][1]:
+        check.fail("distortion.coefficients", k[:len(dist["coefficients"])],
+                   f"a lens whose radial factor stays between {lo_f:g} and {hi_f:g} and whose image radius keeps "
+                   f"rising out to the corners, tangential terms within ±{PROFILE_LIMITS['distortion_tangential'][1]:g}")
     return Distortion.from_dict(dist)
 
 
