@@ -429,7 +429,14 @@ def load_profile(name_or_path: str | None) -> CameraProfile:
 
 
 def save_profile(profile: CameraProfile, path: str | None = None) -> str:
-    """Write ``profile`` atomically (temporary file, then rename); returns the path."""
+    """Write ``profile`` atomically (temporary file, then rename); returns the path.
+
+    The profile is first checked exactly as it will be read back (:meth:`CameraProfile.from_dict`),
+    so a measurement outside the physical ranges (e.g. a constant from a mistyped lux reading) is
+    refused in one line instead of leaving a file that cannot be loaded.
+    """
+    data = profile.to_dict()
+    CameraProfile.from_dict(json.loads(json.dumps(data)), source=f"the new profile '{profile.name}'")
     if path is None:
         os.makedirs(profile_dir(), exist_ok=True)
         path = os.path.join(profile_dir(), f"{profile.name}.json")
@@ -438,7 +445,7 @@ def save_profile(profile: CameraProfile, path: str | None = None) -> str:
     fd, tmp = tempfile.mkstemp(prefix=".profile-", suffix=".json", dir=folder)
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(profile.to_dict(), fh, indent=2)
+            json.dump(data, fh, indent=2, allow_nan=False)
             fh.write("\n")
         os.replace(tmp, path)
     finally:
