@@ -1,15 +1,18 @@
-"""analyze(): compose the stages from a beam photo to a BeamReport.
+"""The analysis as named stages, from a :class:`~beamshot.request.Request` to a BeamReport.
 
-load -> linearise (response, dark, bracket, ambient, flat field: prepare.py) -> map to the wall
-(pinhole, target markers or given points: wall_setup.py) -> beam axis
--> BeamMap (I = E D^2 / cos^3 theta) -> shape (peak, contours, spill edge, zone flux)
--> absolute scale -> figures with uncertainties -> BeamReport.
+load (beam photos, camera profile) -> linear image (response, dark, bracket, ambient, flat field:
+prepare.py) -> wall mapping (pinhole, target markers or given points: wall_setup.py) -> beam map
+(axis, I = E D^2 / cos^3 theta, shape: peak, contours, spill edge, zone flux; the light's tilt)
+-> scale (lux reading, camera constant or exposure metadata) -> uncertainty (uncertainty.py)
+-> figures (measure.py) -> report.  Each stage takes and returns plain data; :func:`run` times them.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
+import time
 from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -23,10 +26,11 @@ from .camera.profile import CameraProfile, load_profile
 from .camera.response import Response, parse_response
 from .errors import BeamshotError
 from .measure import beam_figures, measure_shape
-from .prepare import input_record, load_input, prepare_image, same_size
+from .prepare import PreparedImage, input_record, load_input, prepare_image, same_size
+from .request import DEFAULT_DISTANCE_UNCERTAINTY_M, MAX_DISTANCE_M, MIN_DISTANCE_M, Request
 from .profile import radial_profile
 from .report.model import BeamReport
-from .scale import (no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_at_point,
+from .scale import (AbsoluteScale, no_scale, scale_from_camera_constant, scale_from_exposure, scale_from_lux_at_point,
                     scale_from_lux_meter)
 from .target import detect_markers
 from .wall import homography_mapping, parse_wall_points, pinhole_mapping
@@ -37,12 +41,8 @@ from .measure import shape_values
 from .uncertainty import (ASSUMED_RESPONSE_EXPONENT_SIGMA, RATIO_SPAN, SHADING_CORNER_ENVELOPE, absolute_values,
                           build_budget, scale_factor, shading_gain, tone_bent)
 
-__all__ = ["analyze", "DEFAULT_DISTANCE_UNCERTAINTY_M", "MIN_DISTANCE_M", "MAX_DISTANCE_M"]
+__all__ = ["analyze", "run", "STAGES", "DEFAULT_DISTANCE_UNCERTAINTY_M", "MIN_DISTANCE_M", "MAX_DISTANCE_M"]
 
-#: Default standard uncertainty of a tape-measured distance, m (assumption).
-DEFAULT_DISTANCE_UNCERTAINTY_M = 0.02
-MIN_DISTANCE_M = 0.3
-MAX_DISTANCE_M = 100.0
 #: IES five-times rule: the inverse-square law is within 1 % at 5x the source's largest dimension.
 FAR_FIELD_FACTOR = 5.0
 #: The tilt is fitted only to a bezel cut-off seen in at least this fraction of directions (a
@@ -50,49 +50,19 @@ FAR_FIELD_FACTOR = 5.0
 TILT_MIN_SHARP_FRACTION = 0.9
 #: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
 _LOW_EXPOSURE_LEVEL = 0.15
+#: The stages of an analysis, in order; each one's time is recorded in the report (``stage_seconds``).
+STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "report")
 
 
-def _check_positive(name: str, value, lo=None, hi=None, unit="", fix="", *, shown=None) -> None:
-    """Refuse a value that is not a finite positive number within [lo, hi], in one line that says
-    what to give instead (``fix``).  ``shown`` formats a value for the message (default ``{:g} unit``)."""
-    if value is None:
-        return
-    show = shown or (lambda v: f"{v:g}{unit}")
-    tail = f"; {fix}" if fix else ""
-    if not np.isfinite(value) or value <= 0:
-        raise BeamshotError(f"{name} must be a positive number, not {show(value)}{tail}")
-    if lo is not None and value < lo:
-        raise BeamshotError(f"{name} {show(value)} is too small (minimum {show(lo)}){tail}")
-    if hi is not None and value > hi:
-        raise BeamshotError(f"{name} {show(value)} is too large (maximum {show(hi)}){tail}")
-
-
-def analyze(
-    photo,
-    *,
-    distance_m: float,
-    distance_uncertainty_m: float | None = None,
-    ambient=None,
-    flat=None,
-    lux_at_peak: float | None = None,
-    lux_meter_accuracy: float | None = None,
-    reflectance: float | None = None,
-    use_exif_scale: bool = True,
-    focal_35mm: float | None = None,
-    hfov_deg: float | None = None,
-    camera_distance_m: float | None = None,
-    response: str | Response | None = None,
-    head_diameter_mm: float | None = None,
-    camera: str | CameraProfile | None = None,
-    dark=None,
-    geometry=None,
-    wall_points=None,
-    target_scale: float = 1.0,
-    assume_square: bool = False,
-    light_name: str | None = None,
-    lux_point_px: tuple[float, float] | None = None,
-) -> BeamReport:
-    """Analyse a beam photo (or a bracket of them) taken square to the wall; returns a :class:`BeamReport`.
+def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = None, ambient=None, flat=None,
+            lux_at_peak: float | None = None, lux_meter_accuracy: float | None = None,
+            reflectance: float | None = None, use_exif_scale: bool = True, focal_35mm: float | None = None,
+            hfov_deg: float | None = None, camera_distance_m: float | None = None,
+            response: str | Response | None = None, head_diameter_mm: float | None = None,
+            camera: str | CameraProfile | None = None, dark=None, geometry=None, wall_points=None,
+            target_scale: float = 1.0, assume_square: bool = False, light_name: str | None = None,
+            lux_point_px: tuple[float, float] | None = None) -> BeamReport:
+    """Analyse a beam photo (or a bracket of them); returns a :class:`BeamReport`.
 
     ``photo`` is a path or :class:`~beamshot.photo.Photo`, or a list of them (a bracket, merged
     into one linear image); ``ambient``/``flat``/``dark`` are paths or Photos.  ``camera`` is a
@@ -101,199 +71,329 @@ def analyze(
     light unless ``camera_distance_m`` (camera-to-wall, m) says otherwise.  ``lux_at_peak`` is
     a lux-meter reading on the wall, taken at the peak or, with ``lux_point_px`` = (x, y), at
     that pixel of the (first) beam photo.  ``light_name`` names the light in titles and reports.
+    The keywords build a :class:`~beamshot.request.Request` run by :func:`run`.
     """
-    # ---- validate options before any work
-    if distance_m is None:
-        raise BeamshotError("the light-to-wall distance is required (--distance, in metres)")
-    _check_positive("distance", distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m",
-                    "measure from the light's lens to the wall, in metres (e.g. --distance 5)")
-    u_d = DEFAULT_DISTANCE_UNCERTAINTY_M if distance_uncertainty_m is None else distance_uncertainty_m
-    if not np.isfinite(u_d) or u_d < 0 or u_d >= distance_m:
-        raise BeamshotError(f"distance uncertainty {u_d:g} m must be at least 0 and smaller than the distance; "
-                            "give how far off the tape measure may be, e.g. --distance-uncertainty 0.02")
-    _check_positive("camera distance", camera_distance_m, MIN_DISTANCE_M, MAX_DISTANCE_M, " m",
-                    "measure from the camera's lens to the wall, in metres")
-    _check_positive("lux reading", lux_at_peak, None, 2e6, " lx",
-                    "give the meter's reading in lux, taken on the wall at the hotspot (e.g. --lux-at-peak 412)")
-    _check_positive("reflectance", reflectance, 0.05, 1.0, "",
-                    "give the wall's reflectance as a fraction: about 0.85 for matte white paint (typical 0.8-0.9)")
-    _check_positive("lux-meter accuracy", lux_meter_accuracy, None, 0.5, "",
-                    "give the meter's specified accuracy, e.g. 5 (%)", shown=lambda v: f"{100 * v:g} %")
-    _check_positive("35 mm focal length", focal_35mm, 5.0, 800.0, " mm",
-                    "give the 35 mm-equivalent focal length in mm, e.g. 26 for a phone's main camera")
-    _check_positive("horizontal field of view", hfov_deg, 1.0, 150.0, " deg",
-                    "give the photo's horizontal view in degrees, e.g. 70")
-    if focal_35mm is not None and hfov_deg is not None:
-        raise BeamshotError("give either --focal-35mm or --hfov, not both")
-    if lux_at_peak is not None and reflectance is not None:
-        raise BeamshotError("--reflectance is only used without a lux reading; drop one of them")
-    _check_positive("head diameter", head_diameter_mm, None, 2000.0, " mm",
-                    "give the diameter of the light's head (bezel) in mm, e.g. 40")
-    _check_positive("target scale", target_scale, 0.2, 5.0, "",
-                    "measure the printed 100 mm scale bar with a ruler and give its length (e.g. 99.5 mm)",
-                    shown=lambda v: f"{v:g} (scale bar {100 * v:g} mm of 100 mm)")
-    if lux_point_px is not None:
-        if lux_at_peak is None:
-            raise BeamshotError("a metered point needs the lux reading taken there (--lux LX with --lux-at X,Y)")
-        if len(lux_point_px) != 2 or not all(np.isfinite(v) for v in lux_point_px):
-            raise BeamshotError("the metered point takes two pixel coordinates X,Y, e.g. 2016,1512")
-    if geometry is not None and wall_points is not None:
-        raise BeamshotError("give either --geometry or --wall-points, not both")
-    profile = camera if isinstance(camera, CameraProfile) else load_profile(camera)
-    if response is not None and profile.response.kind == "table":
+    return run(Request.from_options(
+        photo, distance_m=distance_m, distance_uncertainty_m=distance_uncertainty_m, ambient=ambient, flat=flat,
+        lux_at_peak=lux_at_peak, lux_meter_accuracy=lux_meter_accuracy, reflectance=reflectance,
+        use_exif_scale=use_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov_deg, camera_distance_m=camera_distance_m,
+        response=response, head_diameter_mm=head_diameter_mm, camera=camera, dark=dark, geometry=geometry,
+        wall_points=wall_points, target_scale=target_scale, assume_square=assume_square, light_name=light_name,
+        lux_point_px=lux_point_px))
+
+
+class _StageClock:
+    """Wall-clock seconds spent in each named stage."""
+
+    def __init__(self):
+        self.seconds: dict[str, float] = {}
+
+    @contextmanager
+    def __call__(self, name: str):
+        t0 = time.perf_counter()
+        try:
+            yield
+        finally:
+            self.seconds[name] = round(time.perf_counter() - t0, 4)
+
+
+def run(request: Request) -> BeamReport:
+    """The analysis as a sequence of named stages (``STAGES``), each taking and returning plain data."""
+    req = request.validated()
+    clock = _StageClock()
+    with clock("load"):
+        loaded = load(req)
+    with clock("linear image"):
+        linear = linear_image(req, loaded)
+    with clock("wall mapping"):
+        mapped = wall_mapping(req, loaded, linear)
+    with clock("beam map"):
+        mapped, measured = beam_map(req, loaded, linear, mapped)
+    with clock("scale"):
+        scaled = absolute_scale(req, loaded, linear, mapped, measured)
+    with clock("uncertainty"):
+        unc = uncertainty(req, loaded, linear, mapped, measured, scaled)
+    with clock("figures"):
+        figures = figures_of(req, measured, scaled, unc)
+    with clock("report"):
+        report = assemble(req, loaded, linear, mapped, measured, scaled, unc, figures)
+    return replace(report, stage_seconds=dict(clock.seconds))
+
+
+# ---- stage 1: load the beam photo(s) and the camera profile ------------------------------------
+
+@dataclass(frozen=True)
+class Loaded:
+    profile: CameraProfile
+    resp: Response
+    response_given: bool
+    beam: list
+
+
+def load(req: Request) -> Loaded:
+    """The camera profile, the tone curve to use, and the beam photo(s) decoded."""
+    cal = req.calibration
+    profile = cal.camera if isinstance(cal.camera, CameraProfile) else load_profile(cal.camera)
+    if cal.response is not None and profile.response.kind == "table":
         raise BeamshotError(f"camera profile '{profile.name}' has a measured response; drop --response")
     try:
-        resp = parse_response(response) if isinstance(response, str) else (response or profile.response)
+        resp = parse_response(cal.response) if isinstance(cal.response, str) else (cal.response or profile.response)
     except ValueError as exc:
         raise BeamshotError(str(exc)) from None
+    return Loaded(profile, resp, cal.response is not None, [load_input(p, "photo") for p in req.photos.beam])
 
-    prep = prepare_image(photo, ambient=ambient, flat=flat, dark=dark, profile=profile, resp=resp,
-                         response_given=response is not None)
-    image, beam_photos, beam_photo, inputs, resp = prep.image, prep.beam_photos, prep.beam_photo, prep.inputs, prep.resp
+
+# ---- stage 2: the linear working image (prepare.py), with raw photos' natural fall-off removed ----
+
+@dataclass(frozen=True)
+class Linear:
+    prep: PreparedImage
+    image: LinearImage
+    lens: object
+    focal_shading: float | None
+    falloff_note: str | None
+    warnings: list
+
+
+def linear_image(req: Request, loaded: Loaded) -> Linear:
+    """Linearise, subtract dark and ambient, merge a bracket, divide by the flat (prepare.py); for a
+    raw or linear photo without a flat, divide out the natural cos^4 fall-off (the cos^4 law)."""
+    ph = req.photos
+    prep = prepare_image(loaded.beam, ambient=ph.ambient, flat=ph.flat, dark=ph.dark, profile=loaded.profile,
+                         resp=loaded.resp, response_given=loaded.response_given)
     warnings = list(prep.warnings)
-    hdr_note, dark_note, amb_note, flat_note = prep.hdr_note, prep.dark_note, prep.ambient_note, prep.flat_note
-
-    wall_points_used = None
-
-    # ---- wall mapping: target markers, given points, or the pinhole model
-    shape = beam_photo.shape
-    geometry_note = None
-    lens = None if profile.distortion is None else profile.distortion.for_shape(shape)
+    profile, g = loaded.profile, req.geometry
+    lens = None if profile.distortion is None else profile.distortion.for_shape(prep.beam_photo.shape)
     # the focal length in pixels (camera profile's lens, option or EXIF; None if unknown), for the
     # natural fall-off of raw and linear photos, which it fixes (cos^4 law), and the shading term
-    focal_shading = 0.5 * (lens.fx + lens.fy) if lens is not None else focal_for(beam_photo, focal_35mm, hfov_deg)[0]
-    falloff_note = None
-    if prep.resp.kind == "linear" and flat_note is None:
+    focal_shading = (0.5 * (lens.fx + lens.fy) if lens is not None else
+                     focal_for(prep.beam_photo, g.focal_35mm, g.hfov_deg)[0])
+    image, falloff_note = prep.image, None
+    if prep.resp.kind == "linear" and prep.flat_note is None:
         if focal_shading is not None:
             image, falloff_note = _natural_falloff_removed(image, focal_shading), "natural cos^4 fall-off divided out"
         else:
             warnings.append("a linear photo keeps the lens's natural cos^4 fall-off, but no focal length is known to "
                             "remove it; give --focal-35mm, or a flat field")
-    beam_markers = None
-    mapping = None
-    if geometry is not None:
-        geo = same_size(load_input(geometry, "geometry"), beam_photos[0], "geometry photo",
+    return Linear(prep, image, lens, focal_shading, falloff_note, warnings)
+
+
+# ---- stage 3: the wall mapping: printed target, given points, or a pinhole camera -----------------
+
+@dataclass(frozen=True)
+class Mapped:
+    mapping: object
+    image: LinearImage
+    geometry_note: dict | None
+    f_px: float | None
+    f_u: float
+    f_src: str
+    cam_d: float | None
+    wall_points_used: tuple | None
+    beam_markers: object
+    inputs: list
+    warnings: list
+    #: the quick look for target markers left on the wall (pinhole mapping only), still running
+    marker_look: object = None
+
+
+def wall_mapping(req: Request, loaded: Loaded, linear: Linear) -> Mapped:
+    """Image pixels to wall millimetres.  With neither a target photo nor points, a pinhole camera
+    square to the wall, while a look for target markers left on the wall runs on the second core."""
+    g, s = req.geometry, req.setup
+    beam0, lens = loaded.beam[0], linear.lens
+    beam_photo = linear.prep.beam_photo
+    warnings: list[str] = []
+    inputs: list = []
+    image = linear.image
+    if g.geometry_photo is not None:
+        geo = same_size(load_input(g.geometry_photo, "geometry"), beam0, "geometry photo",
                         "take it from the same tripod position with the same camera")
         inputs.append(input_record("geometry", geo))
-        det = detect_markers(grey(geo), name=geo.name, target_scale=target_scale)
-        beam_markers = markers_still_there(beam_photos[0], det, target_scale)
-        mapping = marker_mapping(det, geo, focal_35mm, hfov_deg, "target markers in the geometry photo", warnings, lens)
-        geometry_note = {"file": geo.name, "markers": list(det.ids), "target_scale": target_scale}
-    elif wall_points is not None:
-        img_pts, wall_pts = parse_wall_points(wall_points) if isinstance(wall_points, str) else wall_points
+        det = detect_markers(grey(geo), name=geo.name, target_scale=g.target_scale)
+        beam_markers = markers_still_there(beam0, det, g.target_scale)
+        mapping = marker_mapping(det, geo, g.focal_35mm, g.hfov_deg, "target markers in the geometry photo",
+                                 warnings, lens)
+        note = {"file": geo.name, "markers": list(det.ids), "target_scale": g.target_scale}
+        return _homography_mapped(mapping, image, note, None, beam_markers, inputs, warnings, lens, beam0.name)
+    if g.wall_points is not None:
+        img_pts, wall_pts = parse_wall_points(g.wall_points) if isinstance(g.wall_points, str) else g.wall_points
         if lens is not None:
             img_pts = lens.undistort(img_pts)
         mapping = homography_mapping(img_pts, wall_pts, method="wall points given by the user")
-        geometry_note = {"points": len(img_pts)}
-        wall_points_used = (np.asarray(img_pts, float), np.asarray(wall_pts, float))
-    measured = None
-    if mapping is None:
-        f_px, f_u, f_src = focal_for(beam_photo, focal_35mm, hfov_deg)
-        if lens is not None:
-            f_px, f_src = 0.5 * (lens.fx + lens.fy), f"camera profile '{profile.name}' (calibrated camera matrix)"
-        cam_d = distance_m if camera_distance_m is None else camera_distance_m
-        if f_px is not None:
-            mapping = _with_lens(pinhole_mapping(shape, f_px, cam_d, scale_uncertainty=f_u), lens)
-        # the quick look for target markers left on the wall runs on the second core beside the
-        # usual measurement with the pinhole mapping; if markers turn up, that measurement is dropped
-        with ThreadPoolExecutor(max_workers=1) as pool:
-            look = pool.submit(markers_left_in, beam_photos[0], image, target_scale)
-            failure = None
-            if mapping is not None:
-                try:
-                    measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name,
-                                             assume_square=assume_square, target_based=False)
-                except BeamshotError as exc:
-                    failure = exc
-            beam_markers = look.result()
-        if beam_markers is not None:
-            mapping = marker_mapping(beam_markers, beam_photos[0], focal_35mm, hfov_deg,
-                                     "target markers in the beam photo", warnings, lens)
-            geometry_note = {"file": beam_photos[0].name, "markers": list(beam_markers.ids),
-                             "target_scale": target_scale}
-            measured = None
-        elif failure is not None:
-            raise failure
-        elif mapping is None:
-            raise BeamshotError(f"{beam_photo.name}: the photo's EXIF has no 35 mm-equivalent focal length; "
-                                "give --focal-35mm (mm) or --hfov (degrees), or use the wall target (--geometry)")
-    if geometry_note is not None:  # mapped from markers or given points
-        mapping = _with_lens(mapping, lens)
-        f_u = mapping.scale_uncertainty
-        f_px, f_src = None, "not needed (homography)"
-        cam_d = None
+        used = (np.asarray(img_pts, float), np.asarray(wall_pts, float))
+        return _homography_mapped(mapping, image, {"points": len(img_pts)}, used, None, inputs, warnings, lens,
+                                  beam0.name)
+    f_px, f_u, f_src = focal_for(beam_photo, g.focal_35mm, g.hfov_deg)
+    if lens is not None:
+        f_px, f_src = 0.5 * (lens.fx + lens.fy), f"camera profile '{loaded.profile.name}' (calibrated camera matrix)"
+    cam_d = s.distance_m if s.camera_distance_m is None else s.camera_distance_m
+    mapping = None
+    if f_px is not None:
+        mapping = _with_lens(pinhole_mapping(beam_photo.shape, f_px, cam_d, scale_uncertainty=f_u), lens)
+    pool = ThreadPoolExecutor(max_workers=1)
+    look = pool.submit(markers_left_in, beam0, image, g.target_scale)
+    pool.shutdown(wait=False)
+    return Mapped(mapping, image, None, f_px, f_u, f_src, cam_d, None, None, inputs, warnings, look)
+
+
+def _homography_mapped(mapping, image, note, points_used, beam_markers, inputs, warnings, lens, name) -> Mapped:
+    """A mapping from markers or points: the focal length is not needed, the wall scale is the fit's."""
+    mapping = _with_lens(mapping, lens)
     if beam_markers is not None:
         image = mask_quads(image, beam_markers.quads)
-        warnings.append(f"target markers found in {beam_photos[0].name} were masked out; remove the target "
-                        "before the beam photos")
-    if measured is None:
-        measured = _measure_beam(image, mapping, distance_m, f_u, beam_photo.name, assume_square=assume_square,
-                                 target_based=geometry_note is not None)
-    axis, beam, shape_, pose = measured.axis, measured.beam, measured.shape, measured.pose
-    warnings.extend(measured.warnings)
-    pk = shape_.peak
+        warnings.append(f"target markers found in {name} were masked out; remove the target before the beam photos")
+    return Mapped(mapping, image, note, None, mapping.scale_uncertainty, "not needed (homography)", None,
+                  points_used, beam_markers, inputs, warnings)
 
-    # ---- absolute scale
-    if lux_at_peak is not None and lux_point_px is not None:
-        value, noise = _metered_value(image, beam_photos[0], lux_point_px)
-        scale = scale_from_lux_at_point(lux_at_peak, value, noise, tuple(lux_point_px),
-                                        meter_accuracy=lux_meter_accuracy)
-    elif lux_at_peak is not None:
+
+# ---- stage 4: beam axis -> intensity map -> shape, and the light's tilt --------------------------
+
+def beam_map(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped) -> tuple[Mapped, "_Measured"]:
+    """The measured beam (axis, map, shape, pose).  On the pinhole path, target markers found on
+    the wall by the quick look replace the pinhole mapping, and the beam is measured again."""
+    s, g = req.setup, req.geometry
+    name = loaded.beam[0].name
+    if mapped.marker_look is None:
+        return mapped, _measure_beam(mapped.image, mapped.mapping, s.distance_m, mapped.f_u, name,
+                                     assume_square=s.assume_square, target_based=True)
+    measured, failure = None, None
+    if mapped.mapping is not None:
+        try:
+            measured = _measure_beam(mapped.image, mapped.mapping, s.distance_m, mapped.f_u, name,
+                                     assume_square=s.assume_square, target_based=False)
+        except BeamshotError as exc:
+            failure = exc
+    markers = mapped.marker_look.result()
+    if markers is not None:
+        warnings = list(mapped.warnings)
+        mapping = marker_mapping(markers, loaded.beam[0], g.focal_35mm, g.hfov_deg, "target markers in the beam photo",
+                                 warnings, linear.lens)
+        note = {"file": name, "markers": list(markers.ids), "target_scale": g.target_scale}
+        remapped = _homography_mapped(mapping, mapped.image, note, None, markers, mapped.inputs, warnings,
+                                      linear.lens, name)
+        return remapped, _measure_beam(remapped.image, remapped.mapping, s.distance_m, remapped.f_u, name,
+                                       assume_square=s.assume_square, target_based=True)
+    if failure is not None:
+        raise failure
+    if mapped.mapping is None:
+        raise BeamshotError(f"{name}: the photo's EXIF has no 35 mm-equivalent focal length; give --focal-35mm (mm) "
+                            "or --hfov (degrees), or use the wall target (--geometry)")
+    return replace(mapped, marker_look=None), measured
+
+
+# ---- stage 5: the absolute scale ----------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Scaled:
+    scale: AbsoluteScale
+    beam: object
+    warnings: list
+
+
+def absolute_scale(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured") -> Scaled:
+    """Lux per linear unit, in order of preference: a lux reading (at the peak or a stated pixel),
+    the profile's kept camera constant, the exposure metadata (an estimate); else relative figures."""
+    s, profile = req.setup, loaded.profile
+    pk = measured.shape.peak
+    exif = linear.prep.beam_photo.exif  # the photo the linear image is expressed in (a bracket's reference)
+    warnings: list[str] = []
+    lux = s.lux_reading_lx
+    if lux is not None and s.lux_point_px is not None:
+        value, noise = _metered_value(mapped.image, loaded.beam[0], s.lux_point_px)
+        scale = scale_from_lux_at_point(lux, value, noise, tuple(s.lux_point_px), meter_accuracy=s.lux_meter_accuracy)
+    elif lux is not None:
         cos_inc = measured.cos_incidence(pk)
-        scale = scale_from_lux_meter(lux_at_peak, pk.value, float(np.arccos(cos_inc)), distance_m,
-                                     meter_accuracy=lux_meter_accuracy)
+        scale = scale_from_lux_meter(lux, pk.value, float(np.arccos(cos_inc)), s.distance_m,
+                                     meter_accuracy=s.lux_meter_accuracy)
         if pk.clipped:
             warnings.append("the hotspot is clipped: the lux reading still gives the peak, but it scales the clipped "
                             "level, so the fluxes are upper bounds - lower the exposure, or meter a wall point that is "
                             "not clipped (--lux LX --lux-at X,Y)")
-    elif profile.scale_constant is not None and reflectance is None:
-        scale = scale_from_camera_constant(beam_photo.exif, profile.scale_constant,
-                                           profile.scale_uncertainty or 0.0, profile.name)
-    elif use_exif_scale:
-        scale = scale_from_exposure(beam_photo.exif, reflectance=reflectance)
+    elif profile.scale_constant is not None and s.reflectance is None:
+        scale = scale_from_camera_constant(exif, profile.scale_constant, profile.scale_uncertainty or 0.0, profile.name)
+    elif s.use_exif_scale:
+        scale = scale_from_exposure(exif, reflectance=s.reflectance)
         if scale.kind == "none":
             scale = no_scale(scale.description.removeprefix("no absolute scale: ") +
                              "; give a lux reading (--lux) for absolute figures")
     else:
         scale = no_scale("no lux reading given and the exposure-metadata estimate is switched off")
-    if lux_at_peak is not None and profile.scale_constant is not None and not (pk.clipped and lux_point_px is None):
-        _check_constant_against_meter(scale, profile, beam_photo.exif, warnings)
-    if scale.absolute:
-        beam_out = beam.scaled(scale.lux_per_unit, "cd")
-    else:
-        beam_out = beam
+    if lux is not None and profile.scale_constant is not None and not (pk.clipped and s.lux_point_px is None):
+        _check_constant_against_meter(scale, profile, exif, warnings)
+    beam = measured.beam.scaled(scale.lux_per_unit, "cd") if scale.absolute else measured.beam
+    return Scaled(scale, beam, warnings)
 
-    # ---- uncertainty: every known source, propagated by re-measuring (beamshot.uncertainty)
-    ratio_delta, ratio_source = _ratio_error(prep, resp, profile)
-    shading = _shading_plan(prep, flat_note)
-    values = measured.values(scale, lux_at_peak)
+
+# ---- stage 6: the uncertainty budget (uncertainty.py) -------------------------------------------
+
+@dataclass(frozen=True)
+class Uncertain:
+    budget: object
+    values: dict
+    pixel_deg: float
+    ratio_delta: float
+    ratio_source: str
+    shading: dict
+
+
+def uncertainty(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured",
+                scaled: Scaled) -> Uncertain:
+    """Every known error source, propagated by re-measuring (beamshot.uncertainty)."""
+    s = req.setup
+    prep = linear.prep
+    ratio_delta, ratio_source = _ratio_error(prep, prep.resp, loaded.profile)
+    shading = _shading_plan(prep, prep.flat_note)
+    values = measured.values(scaled.scale, s.lux_reading_lx)
     pixel_deg = _pixel_deg(measured)
-    budget = build_budget(measured, values, scale=scale, lux_at_peak=lux_at_peak, distance_m=distance_m, distance_u_m=u_d,
-                          camera_distance_m=camera_distance_m if geometry_note is None else None,
-                          camera_beside=geometry_note is None and camera_distance_m is None,
-                          wall_scale_u=f_u, wall_points=wall_points_used, ratio_delta=ratio_delta,
-                          ratio_assumed=ratio_source == "assumed", shading=shading, focal_px=focal_shading,
-                          pixel_deg=pixel_deg, block_deg=_block_deg(pixel_deg, image, beam_photos))
+    beside = mapped.geometry_note is None
+    budget = build_budget(measured, values, scale=scaled.scale, lux_at_peak=s.lux_reading_lx, distance_m=s.distance_m,
+                          distance_u_m=s.distance_u_m,
+                          camera_distance_m=s.camera_distance_m if beside else None,
+                          camera_beside=beside and s.camera_distance_m is None,
+                          wall_scale_u=mapped.f_u, wall_points=mapped.wall_points_used, ratio_delta=ratio_delta,
+                          ratio_assumed=ratio_source == "assumed", shading=shading, focal_px=linear.focal_shading,
+                          pixel_deg=pixel_deg, block_deg=_block_deg(pixel_deg, mapped.image, prep.beam_photos))
+    return Uncertain(budget, values, pixel_deg, ratio_delta, ratio_source, shading)
+
+
+# ---- stage 7: the figures (measure.py) ----------------------------------------------------------
+
+def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncertain) -> dict:
+    """Every reported figure with its uncertainty, status and budget."""
+    budget, values, scale = unc.budget, unc.values, scaled.scale
     keys = [k for k in values if k != "peak_rel" and not k.endswith("_rel")]
     estimates = budget.estimates(keys)
     if scale.kind == "exposure_metadata":
         estimates |= {"peak_intensity", "beam_distance", "hotspot_flux", "spill_flux", "beam_flux"}
-    figures = beam_figures(shape_, beam, scale, values, budget.sigmas(keys), estimates,
-                           axis_uncertainty_rad=axis.uncertainty_mm / (distance_m * 1000.0), pixel_deg=pixel_deg)
+    figures = beam_figures(measured.shape, measured.beam, scale, values, budget.sigmas(keys), estimates,
+                           axis_uncertainty_rad=measured.axis.uncertainty_mm / (req.setup.distance_m * 1000.0),
+                           pixel_deg=unc.pixel_deg)
     figures = {k: (replace(f, budget=tuple(budget.of(k).items())) if f.value is not None and f.uncertainty else f)
                for k, f in figures.items()}
-    figures["light_tilt"] = _tilt_figure(pose, assume_square, shape_.edge)
-    cal_u = ratio_delta
-    if shading["kind"] == "envelope":
+    figures["light_tilt"] = _tilt_figure(measured.pose, req.setup.assume_square, measured.shape.edge)
+    return figures
+
+
+# ---- stage 8: the report ------------------------------------------------------------------------
+
+def assemble(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured", scaled: Scaled,
+             unc: Uncertain, figures: dict) -> BeamReport:
+    """The BeamReport: figures, the warnings a user should act on, and what went into it."""
+    s = req.setup
+    prep, profile, scale, resp = linear.prep, loaded.profile, scaled.scale, linear.prep.resp
+    axis, beam, shape_, pose = measured.axis, measured.beam, measured.shape, measured.pose
+    pk = shape_.peak
+    image = mapped.image
+    warnings = list(linear.warnings) + list(mapped.warnings) + list(measured.warnings) + list(scaled.warnings)
+    if unc.shading["kind"] == "envelope":
         warnings.append("no flat field: lens shading may be left in the photo, and its possible effect is carried "
                         "in the uncertainties; shoot a flat field (beamshot camera flat), turn the camera between two "
                         "beam photos (beamshot camera flat-from-turns), or use a camera profile that has one")
-    if ratio_source == "assumed":
+    if unc.ratio_source == "assumed":
         warnings.append(f"the tone curve ({resp.describe()}) is assumed, not measured; its possible error is carried in "
                         "the uncertainties - calibrate the camera's response (beamshot camera response), or give "
                         "a bracket (several exposures of the beam on one analyze command line)")
-
-    # ---- warnings a user should act on
     if pk.clipped:
         warnings.append("the hotspot is clipped: peak, hotspot and field figures are bounds or not measured; "
                         "lower the exposure or bracket")
@@ -303,36 +403,37 @@ def analyze(
         warnings.append(f"the brightest point is only {peak_level:.0%} of full scale; a longer exposure gives less noise")
     if not shape_.edge.complete:
         warnings.append(figures["spill_angle"].reason)
-    if ambient is None:
+    if req.photos.ambient is None:
         outside = _outside_level(beam, shape_)
         if outside is not None and outside > 0.002 * pk.value:
             warnings.append(f"the wall outside the beam is at {outside / pk.value:.1%} of the peak; "
                             "room light adds to every figure - darken the room or give a light-off photo (--ambient)")
     if not pk.clipped and np.degrees(pk.theta) > 3.0:
         warnings.append(f"the hotspot is {np.degrees(pk.theta):.1f} deg off the spill centre")
-    if head_diameter_mm is not None and distance_m * 1000.0 < FAR_FIELD_FACTOR * head_diameter_mm:
+    if s.head_diameter_mm is not None and s.distance_m * 1000.0 < FAR_FIELD_FACTOR * s.head_diameter_mm:
         warnings.append(f"the wall is closer than {FAR_FIELD_FACTOR:g}x the head diameter; the inverse-square "
                         "law may not hold yet (IES five-times rule) - measure farther away")
     if scale.kind == "exposure_metadata":
         warnings.append("absolute figures are an estimate from exposure metadata "
-                        f"(±{scale.rel_uncertainty:.0%}); a lux-meter reading (--lux-at-peak) is far better")
-
+                        f"(±{scale.rel_uncertainty:.0%}); a lux-meter reading (--lux) is far better")
+    mapping, note = mapped.mapping, mapped.geometry_note
     settings = {
-        "light_name": light_name,
-        "distance_m": distance_m,
-        "distance_uncertainty_m": u_d,
-        "camera_distance_m": cam_d,
-        "camera_position": ("anywhere (wall mapped by homography)" if geometry_note is not None else
-                            "beside the light, square to the wall" if camera_distance_m is None else "square to the wall"),
-        "focal_length": f_src,
-        "focal_px": f_px,
-        "focal_relative_uncertainty": f_u,
+        "light_name": s.light_name,
+        "distance_m": s.distance_m,
+        "distance_uncertainty_m": s.distance_u_m,
+        "camera_distance_m": mapped.cam_d,
+        "camera_position": ("anywhere (wall mapped by homography)" if note is not None else
+                            "beside the light, square to the wall" if s.camera_distance_m is None else
+                            "square to the wall"),
+        "focal_length": mapped.f_src,
+        "focal_px": mapped.f_px,
+        "focal_relative_uncertainty": mapped.f_u,
         "response": resp.describe(),
-        "lux_at_peak": lux_at_peak,
-        "lux_point_px": None if lux_point_px is None else [float(v) for v in lux_point_px],
-        "reflectance": reflectance,
-        "use_exif_scale": use_exif_scale,
-        "head_diameter_mm": head_diameter_mm,
+        "lux_at_peak": s.lux_reading_lx,
+        "lux_point_px": None if s.lux_point_px is None else [float(v) for v in s.lux_point_px],
+        "reflectance": s.reflectance,
+        "use_exif_scale": s.use_exif_scale,
+        "head_diameter_mm": s.head_diameter_mm,
         "working_bin_factor": image.bin_factor,
         "theta_step_deg": float(np.degrees(beam.d_theta)),
         "phi_step_deg": float(np.degrees(beam.d_phi)),
@@ -341,19 +442,19 @@ def analyze(
         "camera_profile": {"name": profile.name, "calibrated": profile.calibrated,
                            "provenance": list(profile.provenance)},
         "response_quality": profile.response_quality,
-        "hdr_merge": hdr_note or "single photo",
-        "calibration_relative_uncertainty": cal_u,
-        "dark_frame": dark_note or "none",
+        "hdr_merge": prep.hdr_note or "single photo",
+        "calibration_relative_uncertainty": unc.ratio_delta,
+        "dark_frame": prep.dark_note or "none",
         "response": resp.describe(),
-        "response_source": ratio_source,
-        "flat_field": flat_note or falloff_note or "none: lens shading not corrected; its possible effect is in the "
-                                                   "uncertainties",
-        "uncertainty_terms": [t.to_dict() for t in budget.terms],
-        "ambient": amb_note or "none: no light-off photo subtracted",
+        "response_source": unc.ratio_source,
+        "flat_field": prep.flat_note or linear.falloff_note or "none: lens shading not corrected; its possible effect "
+                                                               "is in the uncertainties",
+        "uncertainty_terms": [t.to_dict() for t in unc.budget.terms],
+        "ambient": prep.ambient_note or "none: no light-off photo subtracted",
         "absolute_scale": scale.to_dict(),
         "wall_mapping": {"method": mapping.method if mapping.method != "pinhole" else
-                         "pinhole camera square to the wall", "focal_px": f_px,
-                         "relative_scale_uncertainty": f_u, "geometry": geometry_note},
+                         "pinhole camera square to the wall", "focal_px": mapped.f_px,
+                         "relative_scale_uncertainty": mapped.f_u, "geometry": note},
     }
     beam_axis = {
         "light_foot_mm": list(pose.foot_mm) if pose is not None and pose.significant else list(axis.centre_mm),
@@ -369,13 +470,13 @@ def analyze(
     }
     return BeamReport(
         figures=figures,
-        inputs=inputs,
+        inputs=list(prep.inputs) + list(mapped.inputs),
         settings=settings,
         calibration=calibration,
         beam_axis=beam_axis,
         warnings=warnings,
-        profile=radial_profile(beam_out),
-        beam=beam_out,
+        profile=radial_profile(scaled.beam),
+        beam=scaled.beam,
         contours={"hotspot": shape_.hotspot, "field": shape_.field, "edge": shape_.edge, "peak": pk},
         created_utc=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
         tool_version=__version__,

@@ -49,6 +49,8 @@ class BeamReport:
     contours: dict = field(repr=False, default_factory=dict)
     created_utc: str = ""
     tool_version: str = ""
+    #: Wall-clock seconds of each analysis stage (``beamshot.analysis.STAGES``), for benchmarks and the curious.
+    stage_seconds: dict = field(repr=False, default_factory=dict)
 
     def __getitem__(self, name: str) -> Figure:
         return self.figures[name]
@@ -63,7 +65,7 @@ class BeamReport:
         return rounded({
             "schema": SCHEMA_NAME,
             "schema_version": SCHEMA_VERSION,
-            "tool": {"name": "beamshot", "version": self.tool_version},
+            "tool": {"name": "beamshot", "version": self.tool_version, "stage_seconds": dict(self.stage_seconds)},
             "created_utc": self.created_utc,
             "inputs": self.inputs,
             "settings": self.settings,
