@@ -257,7 +257,7 @@ def cli():
         help="Where the meter was held: pixel X,Y of the first beam photo (x right, y down).")
 @option("--lux-at-peak", "lux_at_peak", type=float, default=None, metavar="LX", hidden=True,
         help="Old spelling of --lux (a reading at the peak); kept for one release.")
-@option("--meter-accuracy", type=float, default=5.0, metavar="PERCENT",
+@option("--meter-accuracy", type=float, default=5, metavar="PERCENT",
         help="The lux meter's specified accuracy, ± in percent (used as one standard uncertainty).")
 @option("--reflectance", type=float, default=0.85,
         help="Wall reflectance for the exposure-metadata estimate (without a lux reading).")
@@ -276,7 +276,7 @@ def cli():
         help="Photo of the printed wall target from the same tripod position (room lights on).")
 @option("--wall-points", default=None,
         help="Four or more known wall points: 'x,y=X,Y;...' (image px = wall mm) or a JSON file.")
-@option("--scale-bar-mm", type=float, default=100.0, metavar="MM",
+@option("--scale-bar-mm", type=float, default=100, metavar="MM",
         help="Measured length of the printed target's 100 mm scale bar, in mm.")
 @option("--target-scale", type=float, default=None, hidden=True,
         help="Old spelling: scale bar length / 100 mm; use --scale-bar-mm (kept for one release).")
@@ -633,7 +633,7 @@ def camera_flat_from_turns(photos, name, focal_35mm, hfov, out):
 @option("--lux", type=float, required=True, metavar="LX", help="Lux-meter reading on the wall at the metered point.")
 @option("--at", "at", default=None, metavar="X,Y", show_default="the photo's centre",
         help="Metered point: pixel X,Y of the photo (x right, y down).")
-@option("--meter-accuracy", type=float, default=5.0, metavar="PERCENT",
+@option("--meter-accuracy", type=float, default=5, metavar="PERCENT",
         help="The lux meter's specified accuracy, ± in percent (used as one standard uncertainty).")
 @option("--name", required=True, help="Profile name (created or updated).")
 @option("--out", "out", type=click.Path(dir_okay=False), default=None, help=_PROFILE_OUT_HELP)
