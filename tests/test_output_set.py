@@ -89,6 +89,15 @@ def test_a_folder_with_other_files_is_refused_and_left_alone(tmp_path, reports):
     assert _ours(tmp_path) == []
 
 
+def test_the_current_folder_is_never_swapped(tmp_path, reports, monkeypatch):
+    out = tmp_path / "X"
+    out.mkdir()
+    monkeypatch.chdir(out)
+    with pytest.raises(BeamshotError, match="current folder"):
+        write_report(reports[0], ".", picture=False)
+    assert os.listdir(out) == [] and _ours(tmp_path) == []
+
+
 def unwritable_folder() -> str:
     """A folder this process cannot create entries in: /sys refuses them even to root (EPERM)."""
     try:

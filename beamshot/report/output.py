@@ -316,6 +316,10 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
         raise _fail_os(out_arg, exc, "create the output folder") from None
     if os.path.lexists(out) and not os.path.isdir(out):
         raise BeamshotError(f"{out_arg}: exists and is not a folder; choose another --out")
+    cwd = os.path.realpath(os.getcwd())
+    if os.path.isdir(out) and (cwd == os.path.realpath(out) or cwd.startswith(os.path.realpath(out) + os.sep)):
+        raise BeamshotError(f"{out_arg}: is the current folder or holds it; give a new folder for --out, "
+                            "e.g. --out reports/proto-1")
     key = output_key(out)
     tmp = None
     with _sigterm_as_exception():
