@@ -177,6 +177,7 @@ PROFILE_LIMITS = {
     "flat_data_to_radius": (0.0, 1.0),
     "table_length": (16, 65536),
     "image_side_px": (1, 100000),
+    "distortion_focal_over_side": (0.1, 100.0),  # fx, fy over the longer image side
     "distortion_radial_factor": (0.2, 5.0),  # common practice: strong wide-angle lenses stay within 0.5-2
     "distortion_tangential": (-0.1, 0.1),    # decentring terms p1, p2: typically 1e-3 (from memory)
 }
@@ -349,7 +350,12 @@ def _distortion_from(check: _FieldCheck, dist) -> Distortion | None:
             or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
         check.fail("distortion.image_size", size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
     w, h = size
-    fx, fy = (check.number(f"distortion.{k}", dist.get(k), 0.0, 1e6, lo_open=True, required=True) for k in ("fx", "fy"))
+    # focal lengths in pixels: a horizontal view between about 157 and 0.6 degrees (common practice:
+    # the widest rectilinear lenses reach about 120 degrees), square pixels within a factor of 2
+    lo_f, hi_f = (r * max(w, h) for r in PROFILE_LIMITS["distortion_focal_over_side"])
+    fx, fy = (check.number(f"distortion.{k}", dist.get(k), lo_f, hi_f, required=True) for k in ("fx", "fy"))
+    if not 0.5 <= fx / fy <= 2.0:
+        check.fail("distortion.fy", fy, f"a focal length within a factor of 2 of fx ({fx:g}; square pixels)")
     cx = check.number("distortion.cx", dist.get("cx"), 0.0, float(w), required=True)
     cy = check.number("distortion.cy", dist.get("cy"), 0.0, float(h), required=True)
     k = check.numbers("distortion.coefficients", dist.get("coefficients"), (4, 5, 8))
@@ -363,11 +369,11 @@ def _distortion_from(check: _FieldCheck, dist) -> Distortion | None:
         den = 1 + k[5] * r2 + k[6] * r2**2 + k[7] * r2**3
         factor = num / den
         rd = r * factor
-    lo_f, hi_f = PROFILE_LIMITS["distortion_radial_factor"]
-    ok = np.all(np.isfinite(factor)) and factor.min() >= lo_f and factor.max() <= hi_f and np.all(np.diff(rd) > 0)
+    lo_r, hi_r = PROFILE_LIMITS["distortion_radial_factor"]
+    ok = np.all(np.isfinite(factor)) and factor.min() >= lo_r and factor.max() <= hi_r and np.all(np.diff(rd) > 0)
     if not ok or max(abs(k[2]), abs(k[3])) > PROFILE_LIMITS["distortion_tangential"][1]:
         check.fail("distortion.coefficients", k[:len(dist["coefficients"])],
-                   f"a lens whose radial factor stays between {lo_f:g} and {hi_f:g} and whose image radius keeps "
+                   f"a lens whose radial factor stays between {lo_r:g} and {hi_r:g} and whose image radius keeps "
                    f"rising out to the corners, tangential terms within ±{PROFILE_LIMITS['distortion_tangential'][1]:g}")
     return Distortion.from_dict(dist)
 
