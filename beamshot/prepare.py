@@ -171,11 +171,13 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
 
     # ---- offsets: the dark frame (which holds the black level) or the black level, once per frame
     inputs = [input_record("beam", p) for p in beam_photos]
+    companions: list[Photo] = []  # dark, ambient and flat photos, as they are loaded
     dark_note = None
     offset = None
     if dark is not None:
         dark_photo = same_size(load_input(dark, "dark"), beam_photos[0], "dark frame", "use the same camera and settings")
         inputs.append(input_record("dark", dark_photo))
+        companions.append(dark_photo)
         offset = linearize(dark_photo, resp).rgb
         dark_note = {"file": dark_photo.name,
                      "subtracted": "per pixel from every frame (beam, ambient, flat); it includes the black level"}
@@ -207,6 +209,7 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
         amb_photo = same_size(load_input(ambient, "ambient"), beam_photo, "ambient photo",
                                "take both from the same camera and position")
         inputs.append(input_record("ambient", amb_photo))
+        companions.append(amb_photo)
         amb = linear(amb_photo)
         ratio = 1.0
         pb, pa = beam_photo.exif.exposure_product(), amb_photo.exif.exposure_product()
@@ -226,6 +229,7 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
         flat_photo = same_size(load_input(flat, "flat"), beam_photo, "flat-field photo",
                                 "shoot it with the same camera and settings")
         inputs.append(input_record("flat", flat_photo))
+        companions.append(flat_photo)
         ff = fit_flat_field(linear(flat_photo).luminance)
         image = image.divided_by(ff.evaluate(image.shape))
         flat_note = {"file": flat_photo.name, "model": "1/V = 1 + b1 r^2 + b2 r^4 + b3 r^6",
@@ -241,6 +245,8 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
                      "residual_rms": profile.flat.residual_rms, "method": profile.flat.method,
                      "data_to_radius": profile.flat.max_radius}
 
+    # EXIF values outside physical ranges were ignored when the photos were read (photo.py): say so
+    warnings.extend(f"{p.name}: {n}" for p in beam_photos + companions for n in p.notes)
     return PreparedImage(image, beam_photos, beam_photo, inputs, resp, warnings, hdr_note, dark_note, amb_note,
                          flat_note, response_source=source, linearity_rel=linearity)
 

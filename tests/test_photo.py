@@ -127,3 +127,25 @@ def test_corrupt_raw(tmp_path):
     path.write_bytes(b"II*\x00" + b"\x00" * 100)
     with pytest.raises(BeamshotError, match="not a readable raw"):
         load_photo(path)
+
+
+def test_ignored_exif_values_reach_the_report_warnings():
+    # an exposure time of -1 s is physically impossible (EXIF 2.32 ExposureTime is a positive
+    # rational): photo.py ignores it, and the analysis says so rather than dropping it silently
+    import io
+
+    from PIL import Image
+
+    from beamshot import analyze
+    from beamshot.synth import HotspotSpillBeam, SynthCamera, encode_jpeg, render_photo, Scene
+
+    cam = SynthCamera(width_px=400, height_px=300, focal_35mm_mm=16, exposure_time_s=1 / 250)
+    data = encode_jpeg(render_photo(HotspotSpillBeam(peak_cd=3000.0, hotspot_fwhm_deg=8.0, cutoff_deg=30.0),
+                                    Scene(distance_m=5.0), cam), cam)
+    im = Image.open(io.BytesIO(data))
+    exif = im.getexif()
+    exif.get_ifd(0x8769)[0x829A] = -1.0  # ExposureTime
+    buf = io.BytesIO()
+    im.save(buf, "JPEG", exif=exif, quality=90)
+    rep = analyze(decode_photo(buf.getvalue(), "odd.jpg"), distance_m=5.0)
+    assert any(w.startswith("odd.jpg: EXIF exposure time") and "ignored" in w for w in rep.warnings), rep.warnings

@@ -23,13 +23,18 @@ PATCH_FRACTION = 0.01
 UNIFORMITY_LIMIT = 0.05
 
 
+#: The largest lux reading accepted (the same limit as ``analyze``; direct sunlight is ~1e5 lx).
+MAX_LUX = 2e6
+
+
 def camera_constant(image: LinearImage, exif: ExifFacts, lux: float, at_xy: tuple[float, float] | None, *,
                     meter_accuracy: float, name: str = "photo") -> tuple[float, float, dict]:
     """``(K, relative 1-sigma, notes)`` from a lux reading at full-resolution pixel ``at_xy``."""
     if not exif.has_exposure:
         raise BeamshotError(f"{name}: the EXIF lacks exposure time, f-number or ISO, which the constant needs")
-    if not np.isfinite(lux) or lux <= 0:
-        raise BeamshotError("the lux reading must be a positive number")
+    if not np.isfinite(lux) or lux <= 0 or lux > MAX_LUX:
+        raise BeamshotError(f"the lux reading must be a positive number up to {MAX_LUX:g} lx (full sunlight is about "
+                            "1e5 lx), not {lux:g}; give the meter's reading on the lit wall")
     h_full, w_full = image.full_shape
     x, y = at_xy if at_xy is not None else ((w_full - 1) / 2.0, (h_full - 1) / 2.0)
     if not (0 <= x < w_full and 0 <= y < h_full):
