@@ -34,7 +34,7 @@ def camera_constant(image: LinearImage, exif: ExifFacts, lux: float, at_xy: tupl
         raise BeamshotError(f"{name}: the EXIF lacks exposure time, f-number or ISO, which the constant needs")
     if not np.isfinite(lux) or lux <= 0 or lux > MAX_LUX:
         raise BeamshotError(f"the lux reading must be a positive number up to {MAX_LUX:g} lx (full sunlight is about "
-                            "1e5 lx), not {lux:g}; give the meter's reading on the lit wall")
+                            f"1e5 lx), not {lux:g}; give the meter's reading on the lit wall")
     h_full, w_full = image.full_shape
     x, y = at_xy if at_xy is not None else ((w_full - 1) / 2.0, (h_full - 1) / 2.0)
     if not (0 <= x < w_full and 0 <= y < h_full):
