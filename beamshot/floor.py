@@ -133,13 +133,19 @@ def unclipped_mean(m, sigma):
     sigma = float(sigma)
     if sigma <= 0:
         return m.copy()
-    r = m / sigma
+    # only the finite values are worked on (NaN stays NaN); each step is elementwise, so the values
+    # are those of the whole array
+    finite = np.isfinite(m)
+    out = np.full(m.shape, np.nan)
+    r = m[finite] / sigma
     z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
     for _ in range(2):
         slope = ndtr(z)
-        step = (clipped_mean(z, 1.0) - r) / np.maximum(slope, 1e-3)
+        # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand
+        step = (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
         z = np.where(slope > 1e-3, z - step, z)
-    return z * sigma
+    out[finite] = z * sigma
+    return out
 
 
 def wall_gain(beam: BeamMap) -> np.ndarray:

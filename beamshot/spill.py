@@ -133,8 +133,27 @@ def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
     inten = beam.intensity
     missing = ~np.isfinite(inten)
     profiles = np.nan_to_num(inten, nan=0.0, posinf=0.0, neginf=0.0) @ weights.T
-    profiles[(missing.astype(float) @ (weights > 0).T.astype(float)) > 0] = np.nan
+    # a sector is NaN at a row where any of its columns is: a boolean any() over its few columns
+    # (the same as a 0/1 matrix product > 0, without a second BLAS call)
+    for s, cols in enumerate(_sector_columns(weights)):
+        profiles[missing[:, cols].any(axis=1), s] = np.nan
     return np.radians(centres), np.ascontiguousarray(profiles.T)
+
+
+def _sector_columns(weights: np.ndarray) -> list[np.ndarray]:
+    """Per sector, the map columns with a nonzero weight."""
+    return [np.flatnonzero(w > 0) for w in weights]
+
+
+def _median(d: np.ndarray) -> float:
+    """``np.median`` of a 1-D array without NaN, by one partition: the same value (the middle
+    element, or the two middle ones added and halved, as numpy's mean of two does), less overhead."""
+    n = d.size
+    h = n // 2
+    if n % 2:
+        return np.partition(d, h)[h]
+    p = np.partition(d, (h - 1, h))
+    return (p[h - 1] + p[h]) / 2.0
 
 
 def _profile_noise(profiles: np.ndarray, sm: float) -> np.ndarray:
@@ -156,7 +175,7 @@ def _crossing(ps: np.ndarray, i: int, level: float, beam: BeamMap, noise: float)
 def _second_differences(raw: np.ndarray, n: int) -> np.ndarray:
     """``S(j + 2n) - 2 S(j + n) + S(j)`` for every ``j``, ``S(j)`` the sum of ``raw[j:j + n]`` (NaN
     where a sample is missing); entry ``j`` uses the samples ``[j, j + 3n)``."""
-    c = np.r_[0.0, np.cumsum(raw)]
+    c = np.concatenate(([0.0], np.cumsum(raw)))
     sums = c[n:] - c[:-n]
     return sums[2 * n:] - 2.0 * sums[n:-n] + sums[:-2 * n]
 
@@ -177,7 +196,7 @@ def _window_sum_variance(d2: np.ndarray, n: int, segments: list[tuple[int, int]]
     d = d[np.isfinite(d)]
     if len(d) < 3:
         return float("nan")
-    return float((MAD_TO_SIGMA * np.median(np.abs(d - np.median(d)))) ** 2 / 6.0)
+    return float((MAD_TO_SIGMA * _median(np.abs(d - _median(d)))) ** 2 / 6.0)
 
 
 def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
@@ -207,23 +226,25 @@ def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: Be
     if w0 - h < 0:
         return None
     n = w1 - w0
-    win, inner, outer = raw[w0:w1], raw[w0 - h:w0], raw[w1:w1 + h]
-    if not (np.all(np.isfinite(win)) and np.all(np.isfinite(inner)) and np.all(np.isfinite(outer))):
+    if not np.isfinite(raw[w0 - h:w1 + h]).all():  # inner levels, window and outer levels together
         return None
-    a, b = float(inner.mean()), float(max(outer.mean(), 0.0))
+    win = raw[w0:w1]
+    # inner and outer hold h samples each (w0 >= h, w1 + h <= last): sum / h is numpy's mean
+    a, b = float(raw[w0 - h:w0].sum() / h), float(max(raw[w1:w1 + h].sum() / h, 0.0))
     d = a - b
     if d <= 0:
         return None
-    ratio = float(np.clip((win.sum() - n * b) / d, 0.0, n))
-    t = beam.theta[w0] - beam.d_theta / 2 + ratio * beam.d_theta
+    ratio = float(min(max((win.sum() - n * b) / d, 0.0), n))
+    d_theta = beam.d_theta
+    t = beam.theta[w0] - d_theta / 2 + ratio * d_theta
     v_h = _window_sum_variance(d2, h, [(lo, w0 - h), (w1 + h, last)])
     if not np.isfinite(v_h):
         return None
     v_n = v_h * n / h
     var_mean = v_h / h**2
-    var = (beam.d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
+    var = (d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
     significance = d / np.sqrt(2.0 * var_mean) if var_mean > 0 else np.inf
-    return float(t), float(np.sqrt(var + beam.d_theta**2 / 12.0)), float(significance)
+    return float(t), float(np.sqrt(var + d_theta**2 / 12.0)), float(significance)
 
 
 def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, d2: np.ndarray, k: int, sm: float,

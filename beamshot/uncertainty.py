@@ -73,6 +73,7 @@ __all__ = [
     "scale_factor",
     "tone_bent",
     "shading_gain",
+    "shading_divided",
     "with_luminance",
     "mapping_stretched",
     "term_from_change",
@@ -209,16 +210,54 @@ def shading_gain(shape: tuple[int, int], bin_factor: int, full_shape: tuple[int,
     ``d`` the distance from the image centre in full-resolution pixels; the cos^4 factor is left
     out when ``natural`` is False or the focal length is unknown.
     """
+    v = np.empty(shape, np.float32)
+    for rows, gain in _gain_strips(shape, bin_factor, full_shape, focal_px, natural=natural,
+                                   corner_depth=corner_depth):
+        v[rows] = gain
+    return v
+
+
+def shading_divided(luminance: np.ndarray, bin_factor: int, full_shape: tuple[int, int], focal_px: float | None, *,
+                    natural: bool, corner_depth: float) -> np.ndarray:
+    """``luminance / shading_gain(luminance.shape, ...)``, computed strip by strip: the same values,
+    without the full-size gain and its temporaries (a few passes over tens of MB at 48 MP)."""
+    out = np.empty(luminance.shape, np.result_type(luminance.dtype, np.float32))
+    for rows, gain in _gain_strips(luminance.shape, bin_factor, full_shape, focal_px, natural=natural,
+                                   corner_depth=corner_depth):
+        np.divide(luminance[rows], gain, out=out[rows])
+    return out
+
+
+#: Rows of the gain computed at a time (a few hundred kB per strip: stays in cache; speed only).
+_GAIN_STRIP_ROWS = 32
+
+
+def _gain_strips(shape, bin_factor, full_shape, focal_px, *, natural: bool, corner_depth: float):
+    """Yield ``(row slice, gain rows)`` of :func:`shading_gain`; each element is computed by the same
+    float32 operations in the same order whatever the strip height (elementwise, so strips are exact)."""
     h, w = shape
     height, width = full_shape
     b = bin_factor
     x = (np.arange(w) * b + (b - 1) / 2.0 - (width - 1) / 2.0).astype(np.float32)
     y = (np.arange(h) * b + (b - 1) / 2.0 - (height - 1) / 2.0).astype(np.float32)
-    d2 = x[None, :] ** 2 + y[:, None] ** 2
-    v = 1.0 - np.float32(corner_depth / (((width - 1) / 2.0) ** 2 + ((height - 1) / 2.0) ** 2)) * d2
-    if natural and focal_px:
-        v /= np.square(1.0 + d2 * np.float32(1.0 / focal_px**2))
-    return v.astype(np.float32, copy=False)
+    x2, y2 = x**2, y**2
+    c = np.float32(corner_depth / (((width - 1) / 2.0) ** 2 + ((height - 1) / 2.0) ** 2))
+    fall = natural and focal_px
+    k = np.float32(1.0 / focal_px**2) if fall else None
+    n = min(_GAIN_STRIP_ROWS, h)
+    d2, v, t = (np.empty((n, w), np.float32) for _ in range(3))
+    for top in range(0, h, n):
+        m = min(n, h - top)
+        dd, vv, tt = d2[:m], v[:m], t[:m]
+        np.add(x2[None, :], y2[top:top + m, None], out=dd)  # d^2 = x^2 + y^2
+        np.multiply(c, dd, out=vv)
+        np.subtract(1.0, vv, out=vv)  # 1 - corner_depth (d / d_corner)^2
+        if fall:
+            np.multiply(dd, k, out=tt)
+            np.add(1.0, tt, out=tt)
+            np.square(tt, out=tt)  # (1 + d^2 / f^2)^2 = 1 / cos^4(alpha)
+            np.divide(vv, tt, out=vv)
+        yield slice(top, top + m), vv
 
 
 def with_luminance(image: LinearImage, luminance: np.ndarray) -> LinearImage:
@@ -266,7 +305,7 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
 
     ``measured`` re-measures (``remeasure(image=, mapping=, distance_m=, tone=)`` -> shape,
     ``values(scale, lux, shape, distance_m)`` -> dict, ``shape``, ``image``, ``mapping``,
-    ``foot_mm``).  ``camera_beside``: the pinhole mapping was built with the camera at the light's
+    ``foot_mm``, and ``beam``, the map measured, which the tone term bends instead of rebuilding it).  ``camera_beside``: the pinhole mapping was built with the camera at the light's
     distance, so moving D moves the camera too.  ``shading`` is ``{"kind": "envelope" | "flat" |
     "none", "natural": bool, "corner_depth": float, "factor": float, "size": str}``.
     """
@@ -276,8 +315,9 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
         d = kw.pop("distance_m", None)
         return measured.values(scale, lux_at_peak, measured.remeasure(distance_m=d, **kw), d)
 
-    # every re-measurement is submitted first and runs on both cores (the map, contour and edge work
-    # is numpy/OpenCV that releases the GIL for much of its time)
+    # every re-measurement is submitted first, the dearest first, and runs on both cores (the map,
+    # contour and edge work is numpy/OpenCV that releases the GIL for much of its time); the terms are
+    # read in budget order whatever the order the jobs finish in
     pool = ThreadPoolExecutor(max_workers=_WORKERS)
     again = partial(pool.submit, again_now)
     jobs: dict = {}
@@ -291,12 +331,14 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
     if wall_scale_u > 0:
         jobs["scale"] = again(mapping=mapping_stretched(measured.mapping, 1.0 + wall_scale_u, measured.foot_mm))
     eps = ratio_delta / np.log(RATIO_SPAN)
-    if ratio_delta > 0:
-        jobs["tone"] = again(tone=eps)
     if shading["kind"] != "none":
-        gain = shading_gain(measured.image.shape, measured.image.bin_factor, measured.image.full_shape, focal_px,
-                            natural=shading["natural"], corner_depth=shading["corner_depth"])
-        jobs["shading"] = again(image=with_luminance(measured.image, measured.image.luminance / gain))
+        def shaded() -> dict:  # the photo divided by the shading envelope, on a worker
+            img = measured.image
+            lum = shading_divided(img.luminance, img.bin_factor, img.full_shape, focal_px,
+                                  natural=shading["natural"], corner_depth=shading["corner_depth"])
+            return again_now(image=with_luminance(img, lum))
+
+        jobs["shading"] = pool.submit(shaded)
     if wall_points is not None:
         from .wall import homography_mapping
 
@@ -310,12 +352,30 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
             except Exception:  # noqa: BLE001 - a degenerate draw is skipped
                 continue
             jobs["points"].append(again(mapping=replace(m, distortion=measured.mapping.distortion)))
+    if ratio_delta > 0:  # the cheapest (no map to build): last, so the two cores finish together
+        jobs["tone"] = pool.submit(_tone_moved, measured, eps, scale, lux_at_peak)
     try:
         return Budget(tuple(_terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m,
                                    camera_beside, wall_scale_u, ratio_delta, ratio_assumed, eps, shading, pixel_deg,
                                    block_deg)))
     finally:
         pool.shutdown(wait=True)
+
+
+def _tone_moved(measured, eps: float, scale: AbsoluteScale, lux_at_peak: float | None) -> dict:
+    """Values with the tone curve bent by ``eps``: ``remeasure(tone=eps)`` without rebuilding the map.
+
+    With no input moved the map rebuilt is the one measured (``measured.beam``: same image, mapping,
+    foot point, distance and axis), so the bent map is built from it; tests/test_speed_equivalence.py
+    checks that this gives exactly what ``measured.remeasure(tone=eps)`` gives.
+    """
+    from .measure import measure_shape
+
+    beam = getattr(measured, "beam", None)
+    if beam is None:
+        return measured.values(scale, lux_at_peak, measured.remeasure(tone=eps), None)
+    shape_ = measure_shape(tone_bent(beam, measured.shape.peak.value, eps), boundary_noise=False)
+    return measured.values(scale, lux_at_peak, shape_, None)
 
 
 def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m, camera_beside, wall_scale_u,

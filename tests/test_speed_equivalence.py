@@ -1,0 +1,167 @@
+"""Speed-ups that must not move any number: each fast path against the plain computation it replaces.
+
+Every check here is exact (``np.array_equal`` / ``==``): the fast paths reorder no arithmetic,
+they only skip work (a map rebuilt identically, NaN cells, temporaries, numpy call overhead).
+The references are the definitions themselves: numpy's median, a 0/1 matrix product, the
+censored-normal inverse of beamshot.floor written out on the whole array, the gain
+``V = cos^4(alpha) (1 - c d^2)`` computed on the whole image, and ``remeasure(tone=eps)``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from scipy.special import ndtr
+
+from beamshot.photo import decode_photo
+from beamshot.synth import HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, exposure_time_for_peak, render_photo
+
+BEAM = HotspotSpillBeam(peak_cd=10000.0, hotspot_fwhm_deg=8.0, spill_fraction=0.02, cutoff_deg=24.0,
+                        edge_width_deg=0.5)
+
+
+@pytest.mark.parametrize("n", [3, 4, 5, 8, 9, 100, 101, 777])
+def test_spill_median_is_numpys_median(n):
+    # numpy's definition: the middle order statistic, or the mean of the two middle ones
+    from beamshot.spill import _median
+
+    rng = np.random.default_rng(n)
+    for d in (rng.normal(size=n), rng.integers(0, 4, n).astype(float), np.full(n, 0.1)):
+        assert _median(d) == np.median(d)
+
+
+def test_sector_profiles_mark_missing_rows_as_the_matrix_product_did():
+    # reference: a sector row is NaN where (missing 0/1) @ (weight > 0) is positive
+    from beamshot.spill import _sector_columns, _sector_profiles
+
+    from conftest import analytic_map
+
+    beam = analytic_map(lambda t, p: np.exp(-(np.degrees(t) / 10.0) ** 2), theta_max_deg=40.0, d_phi_deg=2.0)
+    inten = beam.intensity.copy()
+    rng = np.random.default_rng(3)
+    inten[rng.random(inten.shape) < 0.02] = np.nan  # scattered holes
+    inten[300:, 40:75] = np.nan  # a corner of the photo
+    beam = replace(beam, intensity=inten)
+    _, profiles = _sector_profiles(beam)
+    n_sec = profiles.shape[0]
+    centres = np.arange(n_sec) * 360.0 / n_sec
+    col = np.degrees(beam.d_phi)
+    d = np.abs((np.degrees(beam.phi)[None, :] - centres[:, None] + 180.0) % 360.0 - 180.0)
+    weights = np.clip(180.0 / n_sec - d + col / 2, 0.0, col) / col
+    weights[weights < 1e-9] = 0.0
+    expect_nan = (np.isnan(inten).astype(float) @ (weights > 0).T.astype(float)) > 0
+    assert np.array_equal(np.isnan(profiles.T), expect_nan)
+    assert sum(len(c) for c in _sector_columns(weights)) == int((weights > 0).sum())
+
+
+def _unclipped_whole(m, sigma):
+    """beamshot.floor.unclipped_mean as first written: every step on the whole array."""
+    from beamshot.floor import _F_TABLE, _Z_TABLE, clipped_mean
+
+    r = np.asarray(m, float) / sigma
+    z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
+    for _ in range(2):
+        slope = ndtr(z)
+        step = (clipped_mean(z, 1.0) - r) / np.maximum(slope, 1e-3)
+        z = np.where(slope > 1e-3, z - step, z)
+    return z * sigma
+
+
+@pytest.mark.parametrize("sigma", [0.01, 1.0, 3.7])
+def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
+    from beamshot.floor import unclipped_mean
+
+    rng = np.random.default_rng(7)
+    m = rng.normal(0.5, 2.0, (120, 90)) * sigma
+    m[rng.random(m.shape) < 0.3] = np.nan
+    m[0, :6] = [0.0, -9 * sigma, 9 * sigma, 1e-300, -1e-300, 8.0 * sigma]  # table ends, zero, tiny
+    assert np.array_equal(unclipped_mean(m, sigma), _unclipped_whole(m, sigma), equal_nan=True)
+
+
+def _gain_whole(shape, b, full_shape, focal_px, natural, corner_depth):
+    """V on the whole image at once (the formula of beamshot.uncertainty.shading_gain, in float32)."""
+    h, w = shape
+    height, width = full_shape
+    x = (np.arange(w) * b + (b - 1) / 2.0 - (width - 1) / 2.0).astype(np.float32)
+    y = (np.arange(h) * b + (b - 1) / 2.0 - (height - 1) / 2.0).astype(np.float32)
+    d2 = x[None, :] ** 2 + y[:, None] ** 2
+    v = 1.0 - np.float32(corner_depth / (((width - 1) / 2.0) ** 2 + ((height - 1) / 2.0) ** 2)) * d2
+    if natural and focal_px:
+        v /= np.square(1.0 + d2 * np.float32(1.0 / focal_px**2))
+    return v
+
+
+@pytest.mark.parametrize("shape,b,natural,focal", [((75, 100), 2, True, 400.0), ((33, 50), 4, False, None),
+                                                   ((31, 7), 1, True, 55.5), ((1, 9), 3, True, 0.0)])
+def test_shading_gain_in_strips_equals_the_whole_image(shape, b, natural, focal):
+    from beamshot.uncertainty import shading_divided, shading_gain
+
+    full = (shape[0] * b + 1, shape[1] * b)
+    ref = _gain_whole(shape, b, full, focal, natural, 0.2)
+    got = shading_gain(shape, b, full, focal, natural=natural, corner_depth=0.2)
+    assert got.dtype == np.float32 and np.array_equal(got, ref)
+    lum = np.random.default_rng(1).random(shape, dtype=np.float32)
+    div = shading_divided(lum, b, full, focal, natural=natural, corner_depth=0.2)
+    assert div.dtype == np.float32 and np.array_equal(div, lum / ref)
+
+
+def _measured_of(photo, **options):
+    """The analysis' measured beam (beamshot.analysis._Measured) for ``photo``."""
+    import beamshot.analysis as analysis
+
+    seen = []
+    measure = analysis._measure_beam
+
+    def keep(*a, **k):
+        seen.append(measure(*a, **k))
+        return seen[-1]
+
+    analysis._measure_beam = keep
+    try:
+        report = analysis.analyze(photo, **options)
+    finally:
+        analysis._measure_beam = measure
+    return seen[-1], report
+
+
+def _photo(scene, **cam_kw):
+    base = dict(width_px=900, height_px=675, focal_35mm_mm=16, supersample=1, position_m=(0.15, 0.0, 0.0))
+    base.update(cam_kw)
+    cam = SynthCamera(**base)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(BEAM, scene, cam, target=0.8))
+    return decode_photo(encode_jpeg(render_photo(BEAM, scene, cam, seed=5), cam, quality=90), "beam.jpg"), cam
+
+
+@pytest.mark.parametrize("case", ["square pinhole", "tilted light, wall points"])
+def test_tone_term_from_the_measured_map_equals_remeasure(case):
+    # the tone term bends the map measured instead of rebuilding it: the same map, so the same values
+    from beamshot.scale import no_scale
+    from beamshot.uncertainty import _tone_moved
+
+    if case == "square pinhole":
+        photo, _ = _photo(Scene(distance_m=5.0))
+        measured, _ = _measured_of(photo, distance_m=5.0)
+    else:
+        scene = Scene(distance_m=5.0, light_yaw_deg=6.0)
+        photo, cam = _photo(scene, width_px=1200, height_px=900, position_m=(0.6, 0.1, 0.0), yaw_deg=-10.0)
+        from beamshot.wall import rotation_yaw_pitch
+
+        wall = np.array([[-1.2, 0.9], [1.2, 0.9], [1.2, -0.9], [-1.2, -0.9]])
+        r = rotation_yaw_pitch(cam.yaw_deg, cam.pitch_deg)
+        p = (np.c_[wall, np.full(4, 5.0)] - np.asarray(cam.position_m)) @ r
+        f, cx, cy = cam.focal_px, (cam.width_px - 1) / 2, (cam.height_px - 1) / 2
+        px = np.c_[p[:, 0] / p[:, 2] * f + cx, p[:, 1] / p[:, 2] * f + cy]
+        measured, _ = _measured_of(photo, distance_m=5.0, wall_points=(px, wall * 1000.0))
+        assert measured.axis_dir is not None  # the tilt was applied: the map's axis is not the wall's normal
+    scale = no_scale("relative, for the test")
+    eps = 0.075
+    fast = _tone_moved(measured, eps, scale, None)
+    slow = measured.values(scale, None, measured.remeasure(tone=eps), None)
+    assert fast.keys() == slow.keys()
+    for key in fast:
+        assert fast[key] == slow[key] or (np.isnan(fast[key]) and np.isnan(slow[key])), key
+    # and the map it starts from is the one remeasure() builds with nothing moved
+    rebuilt = measured.remeasure()
+    assert rebuilt.peak.value == measured.shape.peak.value
