@@ -165,3 +165,23 @@ def test_tone_term_from_the_measured_map_equals_remeasure(case):
     # and the map it starts from is the one remeasure() builds with nothing moved
     rebuilt = measured.remeasure()
     assert rebuilt.peak.value == measured.shape.peak.value
+
+
+def test_inside_outline_equals_matplotlib_contains_points():
+    # reference: matplotlib's Path.contains_points (W. R. Franklin's even-odd crossing test), point by point
+    from matplotlib.path import Path
+
+    from beamshot.report.plots import _inside_outline
+
+    rng = np.random.default_rng(11)
+    t = np.linspace(0, 2 * np.pi, 800, endpoint=False)
+    outlines = [np.c_[30 * np.cos(t) + 3 * np.cos(5 * t), 22 * np.sin(t)],  # a photo's view, 800 points
+                np.array([[0.0, 0.0], [10.0, 0.0], [10.0, 10.0], [0.0, 10.0]]),  # vertices on grid rows
+                np.cumsum(rng.normal(size=(60, 2)), axis=0) * 3,  # self-crossing
+                rng.normal(size=(5, 2)) * 20]
+    for n, half in ((401, 40.0), (241, 12.0), (61, 10.0)):
+        a = np.linspace(-half, half, n)
+        xx, yy = np.meshgrid(a, a)
+        for outline in outlines:
+            ref = Path(outline).contains_points(np.c_[xx.ravel(), yy.ravel()]).reshape(xx.shape)
+            assert np.array_equal(_inside_outline(outline, a, a), ref)

@@ -65,6 +65,9 @@ TABLE_KEYS = (
 FIG_WIDTH_IN = 6.0
 FIG_DPI = 170
 FONT_PT = 11.0
+#: zlib level of beam.png (lossless at any level): 3 writes it in about half the time of the
+#: default 6 for a file about 5 % larger (measured on the report picture; speed choice).
+PNG_COMPRESS_LEVEL = 3
 
 # Colours: cividis (perceptually uniform, made for colour-vision deficiency) for the map; marks
 # from the Okabe-Ito palette and told apart by line style and marker shape as well.
@@ -199,13 +202,39 @@ def _azimuthal_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
     phi = np.arctan2(yy, xx)
     vals = beam.sample(directions(theta, phi))
     if beam.footprint_deg is not None and np.any(np.isfinite(vals)):
-        from matplotlib.path import Path
         from scipy.ndimage import distance_transform_edt
 
-        inside = Path(beam.footprint_deg).contains_points(np.c_[xx.ravel(), yy.ravel()]).reshape(xx.shape)
+        inside = _inside_outline(beam.footprint_deg, a, a)
         _, (ri, ci) = distance_transform_edt(~np.isfinite(vals), return_indices=True)
         vals = np.where(inside, vals[ri, ci], np.nan)
     return a, vals
+
+
+def _inside_outline(outline: np.ndarray, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
+    """Which points of the grid ``(ys[i], xs[j])`` lie inside the closed polygon ``outline`` ``(n, 2)``.
+
+    The even-odd crossing test (W. R. Franklin's pnpoly, which matplotlib's ``Path.contains_points``
+    runs point by point) with the same comparisons in the same arithmetic, row by row: an edge from
+    ``p0`` to ``p1`` that straddles the row's ``y`` flips every point whose ``+x`` ray it crosses,
+    ``((y1 - y) (x0 - x1) >= (x1 - x) (y0 - y1)) == (y1 >= y)``.  Only the few edges that straddle
+    a row are evaluated, so a 401 x 401 grid costs milliseconds instead of a pass over every edge.
+    """
+    p0 = np.asarray(outline, float)
+    p1 = np.roll(p0, -1, axis=0)  # the outline is closed: the last vertex joins the first
+    above0 = p0[None, :, 1] >= ys[:, None]
+    above1 = p1[None, :, 1] >= ys[:, None]
+    rows, edges = np.nonzero(above0 != above1)  # row-major: each row's straddling edges together
+    inside = np.zeros((len(ys), len(xs)), bool)
+    if rows.size == 0:
+        return inside
+    x0, y0, x1, y1 = p0[edges, 0], p0[edges, 1], p1[edges, 0], p1[edges, 1]
+    ty = ys[rows]
+    lhs = (y1 - ty) * (x0 - x1)
+    rhs = (x1[:, None] - xs[None, :]) * (y0 - y1)[:, None]
+    flips = (lhs[:, None] >= rhs) == above1[rows, edges][:, None]
+    starts = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
+    inside[rows[starts]] = np.add.reduceat(flips.astype(np.int32), starts, axis=0) % 2 == 1
+    return inside
 
 
 def _ring_step_full_deg(half: float) -> float:
@@ -610,6 +639,6 @@ def beam_figure(report, path=None):
     if sub:
         fig.text(0.5, 1 - 0.64 / H, sub, ha="center", va="center", fontsize=FONT_PT * 0.9, color="#444444")
     if path is not None:
-        fig.savefig(path, dpi=FIG_DPI)
+        fig.savefig(path, dpi=FIG_DPI, pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
         plt.close(fig)
     return fig
