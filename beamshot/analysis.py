@@ -523,7 +523,7 @@ def _metered_value(image: LinearImage, photo, xy) -> tuple[float, float]:
     noise = float(np.std(patch) / np.sqrt(patch.size)) if patch.size > 1 else float("nan")
     if not (value > 0 and np.isfinite(noise)) or noise > 0.2 * value:
         raise BeamshotError(f"the metered point ({x:g}, {y:g}) is too dark in {photo.name} to scale the photo; meter "
-                            "a brighter point of the beam, such as the hotspot (--lux-at-peak)")
+                            "a brighter point of the beam, such as the hotspot (--lux without --lux-at)")
     return value, noise / value
 
 

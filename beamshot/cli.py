@@ -75,8 +75,20 @@ def _error(message: str) -> None:
     click.echo(f"beamshot: error: {_one_line(message)}", err=True)
 
 
+#: Notes about old spellings, printed when the command ends without an input problem (an exit 2
+#: is exactly one line: the error).
+_NOTES: list[str] = []
+
+
 def _note(message: str) -> None:
-    click.echo(f"note: {_one_line(message)}", err=True)
+    _NOTES.append(f"note: {_one_line(message)}")
+
+
+def _flush_notes(show: bool) -> None:
+    if show:
+        for line in _NOTES:
+            click.echo(line, err=True)
+    _NOTES.clear()
 
 
 def _fail(message: str):
@@ -162,18 +174,17 @@ class _Group(click.Group):
             if not isinstance(exc, Terminated):
                 raise
             code = EXIT_TERMINATED
+        _flush_notes(code != EXIT_INPUT)
         if not standalone_mode:
             return code
         sys.exit(code)
 
 
 def _show_usage_error(exc: click.UsageError) -> None:
-    """Click's usage error in three lines: usage, where help is, the error."""
+    """Click's usage error as one line: the error and where the help is."""
     ctx = exc.ctx
-    if ctx is not None:
-        click.echo(_one_line(ctx.get_usage()), err=True)
-        click.echo(f"Try '{ctx.command_path} --help' for help.", err=True)
-    _error(exc.format_message())
+    where = f" (see '{ctx.command_path} --help')" if ctx is not None else ""
+    _error(exc.format_message() + where)
 
 
 def _print_figures(report, *, units: str = "metric") -> None:
@@ -460,7 +471,7 @@ def far_field(ctx, near, far):
     from .farfield import compare_distances
     from .report.output import read_report_json
 
-    result = compare_distances(read_report_json(near), read_report_json(far))
+    result = compare_distances(read_report_json(near), read_report_json(far), names=(near, far))
     for line in result["lines"]:
         click.echo(line)
     if not result["consistent"]:
@@ -653,10 +664,10 @@ def camera_scale(photo, lux, at, meter_accuracy, name, out):
     k, rel, notes = camera_constant(img, p.exif, lux, xy, meter_accuracy=accuracy, name=p.name)
     profile = profile.with_step("scale", _file_records([p]), scale_constant=k, scale_uncertainty=rel,
                                 scale_notes=notes)
+    _save(profile, out)  # first: a profile refused on saving prints no constant
     click.echo(f"camera constant K = {k:.5g} lx (± {rel:.1%}); E = K v N^2 / (t S)")
     if "warning" in notes:
         click.echo(f"  ! {notes['warning']}")
-    _save(profile, out)
 
 
 @camera.command("show")

