@@ -145,7 +145,7 @@ def test_cli_calibration_round_trip(tmp_path):
     # the profile's response is used by analyze and recorded in the report
     res = CliRunner().invoke(cli, ["analyze", paths[2], "--distance", "5", "--camera", str(prof), "--json"])
     assert res.exit_code == 0, res.output
-    rep = json.loads(res.output)
+    rep = json.loads(res.stdout)
     assert rep["calibration"]["camera_profile"]["name"] == "cam"
 
 

@@ -40,7 +40,7 @@ def test_analyze_writes_report(photos, tmp_path):
     paths, truth = photos
     out = tmp_path / "rep"
     res = CliRunner().invoke(cli, ["analyze", str(paths["beam"]), "--distance", "5",
-                                   "--lux-at-peak", f"{truth['peak_lux_on_wall']:.0f}", "--out", str(out)])
+                                   "--lux", f"{truth['peak_lux_on_wall']:.0f}", "--out", str(out)])
     assert res.exit_code == 0, res.output
     assert "hotspot angle" in res.output and "cd" in res.output
     assert sorted(os.listdir(out)) == ["beam.png", "profile.csv", "report.json"]
@@ -61,7 +61,7 @@ def test_json_output(photos):
     paths, _ = photos
     res = CliRunner().invoke(cli, ["analyze", str(paths["beam"]), "--distance", "5", "--json", "--no-exif-scale"])
     assert res.exit_code == 0
-    data = json.loads(res.output)
+    data = json.loads(res.stdout)  # notes and file lines go to stderr: stdout is the JSON alone
     assert data["figures"]["peak_intensity"]["value"] is None
     assert data["figures"]["ra"]["value"] > 0
 
@@ -75,7 +75,7 @@ def test_json_output(photos):
     ("beam", ["--distance", "-3"], "distance"),
     ("beam", ["--distance", "5000"], "too large"),
     ("beam", ["--distance", "5", "--focal-35mm", "26", "--hfov", "70"], "not both"),
-    ("beam", ["--distance", "5", "--lux-at-peak", "300", "--reflectance", "0.8"], "drop one"),
+    ("beam", ["--distance", "5", "--lux", "300", "--reflectance", "0.8"], "drop one"),
     ("beam", ["--distance", "5", "--response", "banana"], "unknown curve"),
     ("beam", ["--distance", "5", "--ambient", "SMALL"], "same camera"),
 ])
@@ -121,7 +121,7 @@ def test_far_field_given_a_photo_is_one_line(photos):
 
 
 @pytest.mark.parametrize("option, value", [("--head-diameter", "-2"), ("--head-diameter", "0"),
-                                           ("--target-scale", "0"), ("--target-scale", "-1")])
+                                           ("--scale-bar-mm", "0"), ("--scale-bar-mm", "-1")])
 def test_nonsense_sizes_are_refused(photos, option, value):
     paths, _ = photos
     res = CliRunner().invoke(cli, ["analyze", str(paths["beam"]), "--distance", "5", option, value])
