@@ -114,6 +114,9 @@ def clipped_mean(mu, sigma):
     return np.where(sigma > 0, out, np.maximum(mu, 0.0))
 
 
+#: ``r = m / sigma`` above which :func:`unclipped_mean`'s Newton steps change nothing in float64
+#: (``ndtr(10) == 1.0`` and ``phi(10) / 10 ~ 8e-24``, below the unit roundoff 1.1e-16).
+_FAR_ABOVE = 10.0
 _Z_TABLE = np.linspace(-8.0, 8.0, 4001)
 _F_TABLE = _Z_TABLE * ndtr(_Z_TABLE) + np.exp(-0.5 * _Z_TABLE**2) / _SQRT_2PI  # f(z; 1), increasing
 
@@ -133,18 +136,21 @@ def unclipped_mean(m, sigma):
     sigma = float(sigma)
     if sigma <= 0:
         return m.copy()
-    # only the finite values are worked on (NaN stays NaN); each step is elementwise, so the values
-    # are those of the whole array
-    finite = np.isfinite(m)
-    out = np.full(m.shape, np.nan)
-    r = m[finite] / sigma
+    # only the finite values below _FAR_ABOVE sigma are worked on (NaN stays NaN); each step is
+    # elementwise, so the values are those of the whole array.  Above _FAR_ABOVE the start is z = r
+    # and both Newton steps are exactly 0 in floating point (Phi(z) rounds to 1 and phi(z) is below
+    # half an ulp of z), so the result there is r sigma as it stands.
+    r_all = m / sigma
+    out = r_all * sigma
+    work = (r_all <= _FAR_ABOVE) | (r_all == np.inf)  # NaN: left NaN
+    r = r_all[work]
     z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
     for _ in range(2):
         slope = ndtr(z)
         # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand
         step = (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
         z = np.where(slope > 1e-3, z - step, z)
-    out[finite] = z * sigma
+    out[work] = z * sigma
     return out
 
 

@@ -265,7 +265,8 @@ def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, d2: np
     h = max(2, k // 2)
     level = 0.5 * (ps[c - k] + max(ps[c + k], 0.0))
     seg = ps[c - k: c + k + 1]
-    flips = np.nonzero(np.diff((seg < level).astype(int)) != 0)[0]
+    below = seg < level
+    flips = np.flatnonzero(below[1:] != below[:-1])  # where the profile crosses the level
     if len(flips) != 1 or not seg[flips[0] + 1] < level:
         return step[0], step[1]
     v_h = _window_sum_variance(d2, h, [(start, c - k - h), (c + k + 1 + h, last)])
@@ -305,9 +306,12 @@ def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray,
     ok &= (jj[None, :] >= starts[:, None]) & (jj[None, :] < lasts[:, None] - k)
     for s in np.nonzero(ok.any(axis=1))[0]:
         cand = jj[ok[s]]
-        breaks = np.nonzero(np.diff(cand) > 1)[0]
+        if cand[-1] - cand[0] == len(cand) - 1:  # one contiguous run (the usual case): no split
+            runs = [cand]
+        else:
+            runs = np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1]  # outermost run first
         picks = []
-        for run in np.split(cand, breaks + 1)[::-1]:  # outermost run first
+        for run in runs:
             slope = smoothed[s, run - 1] - smoothed[s, run + 1]  # steepest in linear units: mid-point of the cut-off
             picks.append(int(run[np.argmax(slope)]))
         out[s] = picks

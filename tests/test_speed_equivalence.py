@@ -75,9 +75,12 @@ def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
 
     rng = np.random.default_rng(7)
     m = rng.normal(0.5, 2.0, (120, 90)) * sigma
+    m[60:] = rng.exponential(12.0, (60, 90)) * sigma  # far above the noise: the path without Newton steps
     m[rng.random(m.shape) < 0.3] = np.nan
     m[0, :6] = [0.0, -9 * sigma, 9 * sigma, 1e-300, -1e-300, 8.0 * sigma]  # table ends, zero, tiny
-    assert np.array_equal(unclipped_mean(m, sigma), _unclipped_whole(m, sigma), equal_nan=True)
+    m[1, :6] = [10.0 * sigma, np.nextafter(10.0, 11.0) * sigma, 1e300, np.inf, -np.inf, 1e6 * sigma]
+    with np.errstate(invalid="ignore", over="ignore"):  # the inf and 1e300 cells, in both
+        assert np.array_equal(unclipped_mean(m, sigma), _unclipped_whole(m, sigma), equal_nan=True)
 
 
 def _gain_whole(shape, b, full_shape, focal_px, natural, corner_depth):
