@@ -4,9 +4,12 @@ Run:  python benchmarks/bench_analysis.py [--sizes 12 48] [--repeat 3]
 
 Photos are rendered once by beamshot.synth into benchmarks/_cache/.  For each size the
 script times, in the same process and run: (a) plain decoding with OpenCV, (b) beamshot's
-decode (EXIF, orientation, hash), (c) analyze() without pictures; and reports the ratio of
-(c) to (a) - of the minimum times, and the median of the ratios of each repeat - plus the peak resident memory (VmHWM) of a separate process that runs (c) once.
-The photos carry phone-like sensor noise so that they compress (and decode) like real ones.
+decode (EXIF, orientation, hash), (c) analyze() without pictures, (d) writing beam.png for
+that report; and reports the ratio of (c) to (a) - of the minimum times, and the median of the
+ratios of each repeat - plus the peak resident memory (VmHWM) of a separate process that runs
+(c) once.  A second table gives the median seconds of each analysis stage (report.stage_seconds)
+and of beam.png.  The photos carry phone-like sensor noise so that they compress (and decode)
+like real ones.
 """
 
 from __future__ import annotations
@@ -72,27 +75,36 @@ def main() -> None:
     if args.render:
         print(ensure_photo(args.render))
         return
+    import tempfile
+
     from beamshot import analyze
     from beamshot.photo import load_photo
+    from beamshot.report.plots import beam_figure
 
     print(f"cores: {os.cpu_count()}, numpy {np.__version__}, opencv {cv2.__version__}")
     print(f"{'size':>6} {'file MB':>8} {'decode s':>9} {'load s':>8} {'analyze s':>10} {'ratio':>6} {'median':>7} {'peak RSS MB':>12}")
+    stage_rows = []
+    png = os.path.join(tempfile.mkdtemp(prefix="beamshot-bench-"), "beam.png")
     for mp in args.sizes:
         path = subprocess.run([sys.executable, __file__, "--render", str(mp)], capture_output=True, text=True,
                               check=True).stdout.strip().splitlines()[-1]
         size_mb = os.path.getsize(path) / 1e6
-        dec, load, ana = [], [], []
+        dec, load, ana, stages = [], [], [], []
         for _ in range(args.repeat):
             t0 = time.perf_counter()
             cv2.imread(path, cv2.IMREAD_COLOR)
             t1 = time.perf_counter()
             load_photo(path)
             t2 = time.perf_counter()
-            analyze(path, distance_m=5.0)
+            report = analyze(path, distance_m=5.0)
             t3 = time.perf_counter()
+            beam_figure(report, png)  # the first call also pays matplotlib's import and font cache
+            t4 = time.perf_counter()
             dec.append(t1 - t0)
             load.append(t2 - t1)
             ana.append(t3 - t2)
+            stages.append(dict(report.stage_seconds, **{"beam.png": t4 - t3}))
+        stage_rows.append((mp, {k: float(np.median([st[k] for st in stages])) for k in stages[0]}))
         d, lo, a = min(dec), min(load), min(ana)
         # each repeat times decode and analysis back to back, so the median of the per-repeat
         # ratios follows the machine's speed as it drifts (shared machines are noisy)
@@ -100,6 +112,11 @@ def main() -> None:
         rss = subprocess.run([sys.executable, __file__, "--child", path], capture_output=True, text=True, check=True)
         print(f"{mp:>4}MP {size_mb:>8.1f} {d:>9.3f} {lo:>8.3f} {a:>10.3f} {a / d:>6.2f} {pair:>7.2f} "
               f"{float(rss.stdout.strip().splitlines()[-1]):>12.0f}")
+    keys = list(stage_rows[0][1])
+    print(f"\nmedian seconds per stage over {args.repeat} repeats (report.stage_seconds; beam.png written after)")
+    print(f"{'size':>6} " + " ".join(f"{k:>12}" for k in keys))
+    for mp, med in stage_rows:
+        print(f"{mp:>4}MP " + " ".join(f"{med[k]:>12.3f}" for k in keys))
 
 if __name__ == "__main__":
     main()
