@@ -97,9 +97,13 @@ def find_peak(beam: BeamMap) -> Peak:
     filled = np.where(np.isfinite(inten), inten, -np.inf)
     # light smoothing (3 x 3 cells, wrapping in azimuth) to pick the starting point
     pad = np.concatenate([filled[:, -1:], filled, filled[:, :1]], axis=1)
-    across = pad[:, :-2] + pad[:, 1:-1] + pad[:, 2:]  # separable 3 x 3 box sum: azimuth, then theta
-    acc = filled.copy()
-    acc[1:-1] = (across[:-2] + across[1:-1] + across[2:]) / 9.0
+    # separable 3 x 3 box sum: azimuth, then theta (in place: the same additions in the same order)
+    across = np.add(pad[:, :-2], pad[:, 1:-1])
+    across += pad[:, 2:]
+    acc = filled  # a fresh array: its inner rows are overwritten by the smoothed sums
+    np.add(across[:-2], across[1:-1], out=acc[1:-1])
+    acc[1:-1] += across[2:]
+    acc[1:-1] /= 9.0
     k, j = np.unravel_index(int(np.argmax(acc)), acc.shape)
     centre = directions(beam.theta[k], beam.phi[j])
     coarse = float(acc[k, j])
