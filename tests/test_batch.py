@@ -299,3 +299,26 @@ def test_killed_three_times_and_resumed_does_every_item_once(shots, tmp_path):
     # a last run: everything is already done
     again = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=120)
     assert again.returncode == 0 and f"{KILL_ITEMS} already done (skipped), nothing to analyse" in again.stderr
+
+
+def test_the_documented_example_manifests_describe_the_same_batch(shots, tmp_path):
+    """docs/examples/batch-manifest.csv and .toml: every row plans (valid options), and the two give
+    the same items (same keys), once the photos they name exist."""
+    from beamshot.batch import plan
+
+    folder, _ = shots
+    docs = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "docs", "examples")
+    keys = []
+    for ext in ("csv", "toml"):
+        text = open(os.path.join(docs, f"batch-manifest.{ext}"), encoding="utf-8").read()
+        (tmp_path / f"m.{ext}").write_text(text)
+        for r in read_manifest(tmp_path / f"m.{ext}"):
+            photos = r.values["photos"]
+            for p in (photos if isinstance(photos, list) else photos.split(";")) + \
+                    [r.values[c] for c in ("ambient",) if c in r.values]:
+                (tmp_path / p).parent.mkdir(parents=True, exist_ok=True)
+                (tmp_path / p).write_bytes((folder / "narrow.jpg").read_bytes())
+        items = plan(tmp_path / f"m.{ext}", tmp_path / "out")
+        assert [it.error for it in items] == [None] * 3
+        keys.append([(it.name, it.key) for it in items])
+    assert keys[0] == keys[1]
