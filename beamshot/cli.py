@@ -690,6 +690,11 @@ def camera_list():
         click.echo(f"{name:28s} {path}")
 
 
+from .batch_cli import batch as _batch  # noqa: E402 - imports only click; the engine loads inside the command
+
+cli.add_command(_batch)
+
+
 def main(argv=None):
     """The ``beamshot`` console script: runs the command line and exits with its code."""
     cli.main(argv, prog_name="beamshot")

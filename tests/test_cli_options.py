@@ -397,3 +397,10 @@ def test_old_spelling_note_is_printed_when_the_command_succeeds(photo):
     res = CliRunner().invoke(cli, ["analyze", photo, "--distance", "5", "--lux-at-peak", "400"])
     assert res.exit_code == 0, res.output
     assert "note: --lux-at-peak is now --lux" in res.stderr
+
+
+def test_batch_is_a_command_of_the_main_cli(tmp_path):
+    res = CliRunner().invoke(cli, ["batch", "--help"])
+    assert res.exit_code == 0 and "MANIFEST" in res.output
+    res = CliRunner().invoke(cli, ["batch", str(tmp_path / "none.csv"), "--out", str(tmp_path / "out")])
+    assert res.exit_code == 2 and len(_stderr_lines(res)) == 1 and "Traceback" not in res.output
