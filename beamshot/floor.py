@@ -140,8 +140,8 @@ def unclipped_mean(m, sigma):
     # elementwise, so the values are those of the whole array.  Above _FAR_ABOVE the start is z = r
     # and both Newton steps are exactly 0 in floating point (Phi(z) rounds to 1 and phi(z) is below
     # half an ulp of z), so the result there is r sigma as it stands.
-    r_all = m / sigma
-    out = r_all * sigma
+    r_all = np.asarray(m / sigma)
+    out = np.asarray(r_all * sigma)
     work = (r_all <= _FAR_ABOVE) | (r_all == np.inf)  # NaN: left NaN
     r = r_all[work]
     z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))

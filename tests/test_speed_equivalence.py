@@ -81,6 +81,8 @@ def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
     m[1, :6] = [10.0 * sigma, np.nextafter(10.0, 11.0) * sigma, 1e300, np.inf, -np.inf, 1e6 * sigma]
     with np.errstate(invalid="ignore", over="ignore"):  # the inf and 1e300 cells, in both
         assert np.array_equal(unclipped_mean(m, sigma), _unclipped_whole(m, sigma), equal_nan=True)
+    for value in (-1.5 * sigma, 0.3 * sigma, 12.0 * sigma):  # a single value (0-d) as well
+        assert float(unclipped_mean(value, sigma)) == float(_unclipped_whole(value, sigma))
 
 
 def _gain_whole(shape, b, full_shape, focal_px, natural, corner_depth):
