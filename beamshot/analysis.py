@@ -393,7 +393,7 @@ def assemble(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measu
     if unc.ratio_source == "assumed":
         warnings.append(f"the tone curve ({resp.describe()}) is assumed, not measured; its possible error is carried in "
                         "the uncertainties - calibrate the camera's response (beamshot camera response), or give "
-                        "a bracket (several exposures of the beam on one analyze command line)")
+                        "a bracket (3 or more exposures of the beam on one analyze command line)")
     if pk.clipped:
         warnings.append("the hotspot is clipped: peak, hotspot and field figures are bounds or not measured; "
                         "lower the exposure or bracket")

@@ -138,7 +138,7 @@ def _bracket_response(photos: list[Photo], resp: Response, source: str, may_reco
     if rel is not None and rel > LINEARITY_WARN:
         warnings.append(f"the bracket's frames disagree by {rel:.1%} (RMS) after linearisation with the "
                         f"{used_resp.describe()}; intensity ratios carry that error - check that nothing moved "
-                        "or changed between frames, or calibrate the camera's response (camera response)")
+                        "or changed between frames, or calibrate the camera's response (beamshot camera response)")
     return used_resp, used, rel, note
 
 
@@ -166,8 +166,14 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
     linearity = None
     bracket_note: dict = {}
     if len(beam_photos) > 1:
+        _check_bracket_exposures(beam_photos)
         resp, source, linearity, bracket_note = _bracket_response(
             beam_photos, resp, source, source == "assumed" and not response_given, warnings)
+        if linearity is not None and linearity > BRACKET_REFUSE:
+            raise BeamshotError(f"the photos {', '.join(p.name for p in beam_photos)} disagree by {linearity:.0%} "
+                                "(RMS) after linearisation: they are not exposures of one unchanged scene (two lights, "
+                                "the light switched off or moved, or the camera moved); give one light's bracket per "
+                                "command, and a light-off photo with --ambient")
 
     # ---- offsets: the dark frame (which holds the black level) or the black level, once per frame
     inputs = [input_record("beam", p) for p in beam_photos]
@@ -249,6 +255,26 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
     warnings.extend(f"{p.name}: {n}" for p in beam_photos + companions for n in p.notes)
     return PreparedImage(image, beam_photos, beam_photo, inputs, resp, warnings, hdr_note, dark_note, amb_note,
                          flat_note, response_source=source, linearity_rel=linearity)
+
+
+#: Bracket frames whose exposures (t S / N^2) differ by less than this are the same exposure.
+SAME_EXPOSURE_REL = 0.02
+#: Frames that disagree by more than this after linearisation (relative RMS) are not one scene.
+BRACKET_REFUSE = 0.30
+
+
+def _check_bracket_exposures(photos: list[Photo]) -> None:
+    """A bracket is several exposures of one scene: two frames with the same exposure are not a
+    bracket (a light-off photo picked up by a wildcard, or two lights)."""
+    exposures = [p.exif.exposure_product() for p in photos]
+    if any(e is None for e in exposures):
+        return  # the merge measures the ratios itself
+    for i in range(len(photos)):
+        for j in range(i + 1, len(photos)):
+            if abs(exposures[i] / exposures[j] - 1.0) < SAME_EXPOSURE_REL:
+                raise BeamshotError(f"{photos[i].name} and {photos[j].name} have the same exposure, so they are not a "
+                                    "bracket (several exposures of one beam); give a light-off photo with --ambient, "
+                                    "and analyze each light with its own command")
 
 
 #: Light-off photo brighter than this fraction of the beam photo where the beam is brightest: refused.
