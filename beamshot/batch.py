@@ -374,7 +374,8 @@ def plan(manifest, out_dir, *, pictures: bool = True) -> list[Item]:
     seen: dict[str, int] = {}
     for r in rows:
         given_name = r.values.get("name")
-        label = given_name.strip() if isinstance(given_name, str) and given_name.strip() else None
+        label = str(given_name).strip() if isinstance(given_name, (str, int, float)) and \
+            not isinstance(given_name, bool) and str(given_name).strip() else None
         stem = label if label else f"row-{r.row}"
         try:
             kw, rec = _normalise(r, base, hashes, profiles)
@@ -391,7 +392,7 @@ def plan(manifest, out_dir, *, pictures: bool = True) -> list[Item]:
             continue
         seen[folder] = r.row
         marker = folder + ".done.json"
-        done = marker_key(marker) == key and os.path.isfile(os.path.join(folder, "report.json"))
+        done = _is_done(marker, folder, key)
         items.append(Item(r.row, label or _default_name(r), key, folder, marker, request, None, done))
     return items
 
@@ -444,6 +445,11 @@ def marker_key(marker: str) -> str | None:
         return data.get("key") if isinstance(data, dict) else None
     except (OSError, ValueError):
         return None
+
+
+def _is_done(marker: str, folder: str, key: str) -> bool:
+    """An item is done when its marker holds its key and its report set is in place."""
+    return marker_key(marker) == key and os.path.isfile(os.path.join(folder, "report.json"))
 
 
 def _fsync_dir(path: str) -> None:
@@ -518,11 +524,11 @@ def run_item(task: Task) -> Outcome:
         return Outcome(task.row, STATUS_SKIPPED, reason, pid=os.getpid(), peak_mb=_peak_mb())
 
     try:
-        if marker_key(task.marker) == task.key:
+        if _is_done(task.marker, task.folder, task.key):
             return skipped("finished by another run")
         _journal(task, "start")
         report = run(task.request)
-        if marker_key(task.marker) == task.key:
+        if _is_done(task.marker, task.folder, task.key):
             return skipped("finished by another run")
         write_report(report, task.folder, picture=task.pictures)
         _journal(task, "written")
@@ -647,29 +653,30 @@ def _run_local(tasks: list[Task], workers: int, report) -> None:
         pending = sorted(broken, key=lambda t: t.row)
 
 
-def _run_dask(tasks: list[Task], address: str, report) -> None:
+def _dask_client(address: str):
+    """A ``distributed.Client`` connected to the scheduler at ``address`` (one-line errors)."""
     try:
         import distributed
     except ImportError:
         raise BeamshotError("--scheduler needs the 'distributed' package: pip install beamshot[cluster]") from None
     try:
-        client = distributed.Client(address, timeout="20s")
+        return distributed.Client(address, timeout="10s")
     except (OSError, TimeoutError, ValueError) as exc:
         raise BeamshotError(f"cannot reach the Dask scheduler at {address} ({_one_line(exc)}); check the address "
                             "(e.g. tcp://host:8786) and that the scheduler is running") from None
-    try:
-        futures = {}
-        for t in tasks:
-            futures[client.submit(run_item, t, pure=False)] = t
-        for fut in distributed.as_completed(list(futures)):
-            t = futures[fut]
-            try:
-                report(fut.result())
-            except Exception as exc:  # noqa: BLE001 - a worker died, the task could not be run
-                report(Outcome(t.row, STATUS_FAILED, f"the cluster could not run this item ({type(exc).__name__}: "
-                               f"{_one_line(exc)})"))
-    finally:
-        client.close()
+
+
+def _run_dask(tasks: list[Task], client, report) -> None:
+    import distributed
+
+    futures = {client.submit(run_item, t, pure=False): t for t in tasks}
+    for fut in distributed.as_completed(list(futures)):
+        t = futures[fut]
+        try:
+            report(fut.result())
+        except Exception as exc:  # noqa: BLE001 - a worker died, the task could not be run
+            report(Outcome(t.row, STATUS_FAILED, f"the cluster could not run this item ({type(exc).__name__}: "
+                           f"{_one_line(exc)})"))
 
 
 def run_batch(manifest, out_dir, *, workers: int | None = None, scheduler: str | None = None,
@@ -677,8 +684,9 @@ def run_batch(manifest, out_dir, *, workers: int | None = None, scheduler: str |
     """Analyse every item of ``manifest`` not yet done into ``out_dir``; write the summary.
 
     ``progress(outcome, item)`` is called for each item as it finishes (and first for the items
-    skipped or refused at planning); ``on_plan(items)`` once the manifest is planned.  Raises :class:`BeamshotError` (nothing run) for a manifest
-    that cannot be read or an output folder that cannot be written.
+    skipped or refused at planning); ``on_plan(items)`` once the manifest is planned.  Raises
+    :class:`BeamshotError` (nothing run) for a manifest that cannot be read, an output folder that
+    cannot be written, or a cluster that cannot be reached.
     """
     out = os.path.abspath(os.fspath(out_dir))
     items = plan(manifest, out, pictures=pictures)
@@ -689,8 +697,6 @@ def run_batch(manifest, out_dir, *, workers: int | None = None, scheduler: str |
         raise BeamshotError(f"{out_dir}: cannot create the output folder ({exc.strerror or exc}); "
                             "choose a folder you can write to") from None
     by_row = {it.row: it for it in items}
-    if on_plan is not None:
-        on_plan(items)
     outcomes: dict[int, Outcome] = {}
 
     def report(outcome: Outcome) -> None:
@@ -698,24 +704,32 @@ def run_batch(manifest, out_dir, *, workers: int | None = None, scheduler: str |
         if progress is not None:
             progress(outcome, by_row[outcome.row])
 
-    n_workers: int | str = scheduler or (workers or default_workers())
-    with _batch_lock(out):
+    journal = os.environ.get(JOURNAL_ENV) or None
+    tasks = [Task(it.row, it.name, it.key, it.folder, it.marker, it.request, pictures, journal)
+             for it in items if it.error is None and not it.already_done]
+    with _batch_lock(out), contextlib.ExitStack() as stack:
+        client = None
+        if scheduler and tasks:  # connect first: an unreachable cluster stops the batch before it starts
+            client = _dask_client(scheduler)
+            stack.callback(client.close)
+        if on_plan is not None:
+            on_plan(items)
         _clean_marker_temps(items_dir)
+        for it in items:  # a marker whose report set was deleted: the item is done again
+            if it.error is None and not it.already_done and os.path.lexists(it.marker):
+                with contextlib.suppress(OSError):
+                    os.remove(it.marker)
         for it in items:
             if it.error is not None:
                 report(Outcome(it.row, STATUS_FAILED, it.error))
             elif it.already_done:
                 report(Outcome(it.row, STATUS_SKIPPED, None))
-        journal = os.environ.get(JOURNAL_ENV) or None
-        tasks = [Task(it.row, it.name, it.key, it.folder, it.marker, it.request, pictures, journal)
-                 for it in items if it.error is None and not it.already_done]
-        if tasks:
-            if scheduler:
-                _run_dask(tasks, scheduler, report)
-            else:
-                _run_local(tasks, workers or default_workers(), report)
+        if client is not None:
+            _run_dask(tasks, client, report)
+        elif tasks:
+            _run_local(tasks, workers or default_workers(), report)
         csv_path, json_path = write_summary(out, items, outcomes)
-    return BatchResult(items, outcomes, csv_path, json_path, n_workers)
+    return BatchResult(items, outcomes, csv_path, json_path, scheduler or (workers or default_workers()))
 
 
 # ---------------------------------------------------------------- the summary

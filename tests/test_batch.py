@@ -219,6 +219,13 @@ def test_resume_skips_done_items_and_redoes_a_changed_row(shots, tmp_path):
                         "prototype 3,narrow.jpg,6\n")
     changed = run_batch(manifest, out, workers=2, pictures=False)
     assert [changed.outcomes[r].status for r in (1, 2, 3)] == [STATUS_SKIPPED, STATUS_DONE, STATUS_SKIPPED]
+    # a report set deleted by hand: its marker no longer counts, the item is done again
+    import shutil
+
+    shutil.rmtree(changed.items[2].folder)
+    redo = run_batch(manifest, out, workers=1, pictures=False)
+    assert [redo.outcomes[r].status for r in (1, 2, 3)] == [STATUS_SKIPPED, STATUS_SKIPPED, STATUS_DONE]
+    assert marker_key(changed.items[2].marker) == changed.items[2].key
     p2 = _summary(out)[1]["figures"]["peak_intensity"]
     old = json.load(open(os.path.join(first.items[1].folder, "report.json")))["figures"]["peak_intensity"]
     # same photo, exposure-metadata scale: I = E D^2 scales with the distance squared (inverse-square law)
@@ -322,3 +329,23 @@ def test_the_documented_example_manifests_describe_the_same_batch(shots, tmp_pat
         assert [it.error for it in items] == [None] * 3
         keys.append([(it.name, it.key) for it in items])
     assert keys[0] == keys[1]
+
+
+def test_scheduler_problems_stop_the_batch_in_one_line(shots, tmp_path, monkeypatch):
+    """Without the distributed package, or with a scheduler that cannot be reached, nothing runs."""
+    folder, _ = shots
+    manifest = tmp_path / "m.csv"
+    manifest.write_text(f"photos,distance_m\n{folder / 'narrow.jpg'},5\n")
+    monkeypatch.setitem(sys.modules, "distributed", None)  # import distributed -> ImportError
+    with pytest.raises(BeamshotError, match=r"pip install beamshot\[cluster\]"):
+        run_batch(manifest, tmp_path / "out", scheduler="tcp://127.0.0.1:1")
+    monkeypatch.undo()
+    distributed = pytest.importorskip("distributed", reason="the 'distributed' package is not installed")
+
+    def refuse(address, **kw):
+        raise OSError(f"Timed out trying to connect to {address}")
+
+    monkeypatch.setattr(distributed, "Client", refuse)
+    with pytest.raises(BeamshotError, match="cannot reach the Dask scheduler at tcp://127.0.0.1:1"):
+        run_batch(manifest, tmp_path / "out", scheduler="tcp://127.0.0.1:1")
+    assert not os.path.exists(tmp_path / "out" / "summary.csv")
