@@ -283,3 +283,14 @@ def test_kill_at_random_moments_leaves_old_or_new_set(tmp_path, two_photos):
             assert _ours(parent) == [] and is_new(_set_of(out))
     print(f"\nkill test: {KILLS} kills over runs of {run_s:.1f} s: {counts}")
     assert counts["in the writing phase"] >= 1, counts
+
+
+def test_a_replaced_set_keeps_the_folders_permissions(tmp_path, reports):
+    # the swap puts a new folder in place; it takes the old folder's mode (POSIX permission bits)
+    import stat
+
+    out = tmp_path / "private"
+    write_report(reports[0], out, picture=False)
+    os.chmod(out, 0o700)
+    write_report(reports[1], out, picture=False)
+    assert stat.S_IMODE(os.stat(out).st_mode) == 0o700

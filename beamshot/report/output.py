@@ -35,6 +35,7 @@ import json
 import os
 import re
 import secrets
+import stat
 import shutil
 import signal
 import sys
@@ -348,6 +349,8 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 if picture:
                     beam_figure(report, os.path.join(tmp, "beam.png"))
                 _fsync_files(tmp)
+                if os.path.isdir(out):  # the new set keeps the folder's permissions (a private folder stays private)
+                    os.chmod(tmp, stat.S_IMODE(os.stat(out).st_mode))
                 _mask_signals(True)
                 try:
                     if not os.path.isdir(out):
