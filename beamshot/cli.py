@@ -396,9 +396,23 @@ def demo(out_dir):
     from .demo import write_demo_photos
     from .report.output import write_report
 
+    from .demo import DEMO_LIGHTS
+
     start = time.perf_counter()
+    ours = {"photos"} | {light.name for light in DEMO_LIGHTS}
+    if os.path.isdir(out_dir):
+        foreign = sorted(set(os.listdir(out_dir)) - ours)
+        if foreign:
+            raise BeamshotError(f"{out_dir}: holds files the demo did not write ({', '.join(foreign[:3])}"
+                                f"{', ...' if len(foreign) > 3 else ''}); choose another --out or empty that folder")
+    elif os.path.lexists(out_dir):
+        raise BeamshotError(f"{out_dir}: exists and is not a folder; choose another --out")
     photos_dir = os.path.join(out_dir, "photos")
-    lights = write_demo_photos(photos_dir)
+    try:
+        lights = write_demo_photos(photos_dir)
+    except OSError as exc:
+        raise BeamshotError(f"{out_dir}: cannot write the demo there ({exc.strerror or exc}); choose a folder you "
+                            "can write to") from None
     click.echo(f"rendered {len(lights)} synthetic beam photos (+ light-off frames) into {photos_dir}")
     rows = []
     for light in lights:

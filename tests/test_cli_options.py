@@ -404,3 +404,15 @@ def test_batch_is_a_command_of_the_main_cli(tmp_path):
     assert res.exit_code == 0 and "MANIFEST" in res.output
     res = CliRunner().invoke(cli, ["batch", str(tmp_path / "none.csv"), "--out", str(tmp_path / "out")])
     assert res.exit_code == 2 and len(_stderr_lines(res)) == 1 and "Traceback" not in res.output
+
+
+def test_demo_follows_the_out_rules(tmp_path):
+    # like analyze: a folder holding other files is refused, an unwritable place is an input problem
+    mine = tmp_path / "mine"
+    mine.mkdir()
+    (mine / "notes.txt").write_text("mine")
+    res = CliRunner().invoke(cli, ["demo", "--out", str(mine)])
+    assert res.exit_code == 2 and "notes.txt" in res.stderr and len(_stderr_lines(res)) == 1
+    assert sorted(os.listdir(mine)) == ["notes.txt"]
+    res = CliRunner().invoke(cli, ["demo", "--out", "/proc/beamshot-demo-test"])
+    assert res.exit_code == 2 and "choose a folder you can write to" in res.stderr
