@@ -82,6 +82,13 @@ def check_report(report, source: str = "report") -> None:
         fail("calibration", calibration, "an object holding absolute_scale")
 
 
+def _shown(fig: tuple, unit: str) -> str:
+    """``value ± u unit`` as the figures are printed everywhere (GUM 7.2.6 rounding)."""
+    from .figure import Figure
+
+    return Figure(fig[0], fig[1], unit, "").text()
+
+
 def _fig(report: dict, key: str):
     f = report.get("figures", {}).get(key)
     if not f or f.get("value") is None or f.get("uncertainty") is None:
@@ -142,7 +149,7 @@ def compare_distances(near: dict, far: dict, *, names: tuple[str, str] = ("the f
                      "same instrument at both distances; every other term is counted in both")
     consistent = True
     compared = 0
-    for key, (label, *_) in COMPARED_FIGURES.items():
+    for key, (label, unit, *_) in COMPARED_FIGURES.items():
         a, b = _fig(near, key), _fig(far, key)
         if a is None or b is None:
             lines.append(f"  {label}: not measured in both reports")
@@ -159,8 +166,8 @@ def compare_distances(near: dict, far: dict, *, names: tuple[str, str] = ("the f
         ok = abs(diff) <= AGREEMENT_SIGMAS * sigma
         consistent &= ok
         compared += 1
-        lines.append(f"  {label}: {a[0]:.4g} vs {b[0]:.4g} ({diff / a[0]:+.1%}, {abs(diff) / sigma:.1f} sigma) "
-                     + ("agree" if ok else "DISAGREE"))
+        lines.append(f"  {label}: {_shown(a, unit)} near, {_shown(b, unit)} far: {diff / a[0]:+.1%}, "
+                     f"{abs(diff) / sigma:.1f} sigma of the difference - " + ("agree" if ok else "DISAGREE"))
     if not compared:
         lines.append("nothing could be compared: the far-field check needs the peak intensity or the hotspot angle "
                      "with an uncertainty in both reports (give a lux reading or a camera constant for the peak)")
