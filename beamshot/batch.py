@@ -338,7 +338,11 @@ def _normalise(row: Row, base: str, hashes: dict, profiles: dict) -> tuple[dict,
         if col in opt:
             kw[arg] = opt[col]
     if "meter_accuracy_percent" in opt:
-        kw["lux_meter_accuracy"] = opt["meter_accuracy_percent"] / 100.0
+        pct = opt["meter_accuracy_percent"]
+        if 0 < pct < 1:  # the analyze command reads such a value as a fraction; here it is refused
+            raise _RowError(f"meter_accuracy_percent takes percent: {pct:g} looks like a fraction; "
+                            f"write {100 * pct:g} for +/-{100 * pct:g} %")
+        kw["lux_meter_accuracy"] = pct / 100.0
     if "scale_bar_mm" in opt:
         kw["target_scale"] = opt["scale_bar_mm"] / 100.0
     if "square" in opt:

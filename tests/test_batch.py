@@ -158,19 +158,21 @@ def test_dask_cluster_gives_the_local_pool_results(local_run, shots, tmp_path):
 def test_broken_rows_fail_alone(shots, tmp_path):
     folder, _ = shots
     manifest = tmp_path / "broken.csv"
-    manifest.write_text(f"name,photos,distance_m\nprototype 1,{folder / 'narrow.jpg'},5\n"
+    manifest.write_text(f"name,photos,distance_m,meter_accuracy_percent\nprototype 1,{folder / 'narrow.jpg'},5\n"
                         f"prototype 2,{folder / 'missing.jpg'},5\nprototype 3,{folder / 'narrow.jpg'},0\n"
-                        f"prototype 4,{folder / 'wide.jpg'},five\nprototype 5,{folder / 'wide.jpg'},5\n")
+                        f"prototype 4,{folder / 'wide.jpg'},five\nprototype 5,{folder / 'wide.jpg'},5\n"
+                        f"prototype 6,{folder / 'wide.jpg'},5,0.05\n")
     out = tmp_path / "out"
     res = CliRunner().invoke(batch, [str(manifest), "--out", str(out), "--pictures", "none"])
     assert res.exit_code == 2
-    assert f"3 of 5 items failed: see {out / 'summary.csv'}" in res.output
+    assert f"4 of 6 items failed: see {out / 'summary.csv'}" in res.output
     rows = {r["name"]: r for r in csv.DictReader(open(out / "summary.csv", encoding="utf-8"))}
-    assert [rows[f"prototype {i}"]["status"] for i in range(1, 6)] == \
-        [STATUS_DONE, STATUS_FAILED, STATUS_FAILED, STATUS_FAILED, STATUS_DONE]
+    assert [rows[f"prototype {i}"]["status"] for i in range(1, 7)] == \
+        [STATUS_DONE, STATUS_FAILED, STATUS_FAILED, STATUS_FAILED, STATUS_DONE, STATUS_FAILED]
     assert "missing.jpg: no such file" in rows["prototype 2"]["reason"]
     assert "distance must be a positive number, not 0 m" in rows["prototype 3"]["reason"]
     assert "distance_m 'five' is not a number" in rows["prototype 4"]["reason"]
+    assert "0.05 looks like a fraction; write 5 for +/-5 %" in rows["prototype 6"]["reason"]
     for r in rows.values():
         assert "\n" not in r["reason"]
         assert (r["peak_intensity"] != "") == (r["status"] == STATUS_DONE)
