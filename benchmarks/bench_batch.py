@@ -106,7 +106,8 @@ def main() -> None:
     size_mb = statistics.mean(os.path.getsize(p) for p in paths) / 1e6
     print(f"cores: {os.cpu_count()}, numpy {np.__version__}, opencv {cv2.__version__}; "
           f"{args.count} photos of {WIDTH}x{HEIGHT} ({size_mb:.1f} MB each), pictures: {args.pictures}")
-    print(f"decoding them one after another in one process (cv2.imread): {dec:.2f} s ({dec / args.count:.3f} s each)")
+    print(f"decoding them one after another in one process (cv2.imread): {dec:.2f} s ({dec / args.count:.3f} s each); "
+          f"load average before: {os.getloadavg()[0]:.1f} (other processes compete for the cores above ~0)")
     root = args.keep or tempfile.mkdtemp(prefix="beamshot-bench-batch-")
     walls, stage_means = {}, {}
     print(f"\n{'workers':>7} {'wall s':>8} {'ratio':>6} {'scaling':>8} {'s/item':>7} {'peak MB per worker':>22}")
@@ -126,7 +127,8 @@ def main() -> None:
         walls[w] = wall
         scaling = walls[args.workers[0]] / wall
         peaks = ", ".join(f"{v:.0f}" for v in sorted(peak.values()))
-        print(f"{w:>7} {wall:>8.1f} {wall / dec:>6.2f} {scaling:>7.2f}x {wall / args.count:>7.2f} {peaks:>22}")
+        print(f"{w:>7} {wall:>8.1f} {wall / dec:>6.2f} {scaling:>7.2f}x {wall / args.count:>7.2f} {peaks:>22}"
+              f"   (load average {os.getloadavg()[0]:.1f})")
         keys = list(done[0].stage_seconds)
         means = {k: statistics.mean(o.stage_seconds.get(k, 0.0) for o in done) for k in keys}
         means["writing files"] = statistics.mean(o.seconds - sum(o.stage_seconds.values()) for o in done)
