@@ -297,7 +297,7 @@ def test_killed_three_times_and_resumed_does_every_item_once(shots, tmp_path):
         path = os.path.join(out, r["folder"])
         assert sorted(os.listdir(path)) == ["profile.csv", "report.json"]
         times = [os.stat(os.path.join(path, n)).st_mtime for n in ("profile.csv", "report.json")]
-        assert max(times) - min(times) < 0.5
+        assert max(times) - min(times) < 1.5  # a restarted run needs longer than this to write again
         assert r["figures"]["hotspot_angle"]["value"] is not None
     leftovers = [n for n in os.listdir(items) if n.startswith(".beamshot-tmp-") or n.startswith(".beamshot-old-")
                  or n.endswith(".tmp")]
