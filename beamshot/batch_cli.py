@@ -67,17 +67,17 @@ class _Progress:
 
 @click.command("batch")
 @click.argument("manifest", type=click.Path(dir_okay=False))
-@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False),
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False), metavar="DIR",
               help="Folder for the items' report sets (DIR/items/...) and summary.csv / summary.json.")
-@click.option("--workers", type=click.IntRange(min=1), default=None, show_default="one per core",
-              help="Local worker processes.")
+@click.option("--workers", type=click.IntRange(min=1), default=None, metavar="N",
+              help="Local worker processes (default: one per core).")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Run on an existing Dask cluster at ADDRESS (e.g. tcp://host:8786); needs beamshot[cluster].")
 @click.option("--pictures", type=click.Choice(["all", "none"]), default="all", show_default=True,
               help="none: do not draw beam.png (faster on slow machines).")
 @click.pass_context
 def batch(ctx, manifest, out_dir, workers, scheduler, pictures):
-    """Analyse every row of MANIFEST (CSV or TOML, one analysis per row) into DIR.
+    """Analyse every row of MANIFEST (CSV or TOML, one analysis per row) into --out DIR.
 
     Runs on all local cores (or a Dask cluster with --scheduler); resumable: items already done
     with the same photos and options are skipped.  Writes DIR/summary.csv and DIR/summary.json.
