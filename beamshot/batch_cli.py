@@ -77,7 +77,7 @@ class _Progress:
               help="none: do not draw beam.png (faster on slow machines).")
 @click.pass_context
 def batch(ctx, manifest, out_dir, workers, scheduler, pictures):
-    """Analyse every row of MANIFEST (CSV or TOML, one analysis per row) into --out DIR.
+    """Analyze every row of MANIFEST (CSV or TOML, one analysis per row) into --out DIR.
 
     Runs on all local cores (or a Dask cluster with --scheduler); resumable: items already done
     with the same photos and options are skipped.  Writes DIR/summary.csv and DIR/summary.json.

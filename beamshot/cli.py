@@ -253,7 +253,7 @@ def cli():
     """
 
 
-@cli.command()
+@cli.command(short_help="Calibrated figures and report files from photos of a beam.")
 @click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @option("--distance", "distance_m", type=float, required=True, help="Light-to-wall distance in metres.")
 @option("--distance-uncertainty", "distance_u", type=float, default=0.02,
@@ -311,6 +311,8 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
             scale_bar_mm, target_scale, assume_square, head_mm, light_name, out_dir, as_json, as_json_full, units):
     """Analyze PHOTOS of a beam on a white wall: calibrated figures, report files.
 
+    Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft.
+
     Several photos are a bracket (same scene, different exposures) and are merged first.
     The camera stands beside the light square to the wall, or anywhere with --geometry.
     """
@@ -336,6 +338,10 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
         target_scale = scale_bar_mm / 100.0
     if as_json and as_json_full:
         _fail("give --json (compact) or --json-full (with the profile arrays), not both")
+    if geometry is None and (target_scale != 1.0 or not _defaulted(ctx, "scale_bar_mm")):
+        _note("the scale bar's length is used only with the printed target (--geometry); ignored here")
+    if units != "metric" and (as_json or as_json_full):
+        _note("--units changes the printed table only; report.json keeps metres")
     kw = {}
     if point is not None:
         kw["lux_point_px"] = point
@@ -387,7 +393,7 @@ def _decimals(text: str) -> int:
     return len(m.group(1) or "") if m else 0
 
 
-@cli.command()
+@cli.command(short_help="Render, analyze and check an invented three-prototype comparison.")
 @option("--out", "out_dir", type=click.Path(file_okay=False), default="beamshot-demo",
         help="Folder for the demo photos and reports.")
 def demo(out_dir):
@@ -443,7 +449,7 @@ def demo(out_dir):
     click.echo(f"done in {time.perf_counter() - start:.1f} s; open {os.path.join(out_dir, '*', 'beam.png')}")
 
 
-@cli.command()
+@cli.command(short_help="Write the printable wall target (PDF and PNG).")
 @option("--paper", type=click.Choice(["a4", "letter"]), default="a4",
         help="Paper size the target is printed on (print at 100 %, no 'fit to page').")
 @option("--out", "out", type=click.Path(), default=".",
@@ -472,7 +478,7 @@ def target(paper, out):
                "on, then remove it")
 
 
-@cli.command("far-field")
+@cli.command("far-field", short_help="Check the far field: one light's reports at two distances.")
 @click.argument("near", type=click.Path(dir_okay=False))
 @click.argument("far", type=click.Path(dir_okay=False))
 @click.pass_context
@@ -492,7 +498,7 @@ def far_field(ctx, near, far):
         ctx.exit(EXIT_DIFFERENCE)
 
 
-@cli.group()
+@cli.group(short_help="Calibrate a camera once and keep it in a profile.")
 def camera():
     """Calibrate a camera once, keep what was learned in a profile, and inspect profiles."""
 
@@ -526,7 +532,7 @@ def _save(profile, out):
 _PROFILE_OUT_HELP = "Write the profile to this file instead of the profile folder ('beamshot camera list')."
 
 
-@camera.command("response")
+@camera.command("response", short_help="Tone curve from a bracket of a still scene.")
 @click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @option("--name", required=True, help="Profile name (created or updated).")
 @option("--method", type=click.Choice(["debevec", "robertson"]), default="debevec",
@@ -556,7 +562,7 @@ def camera_response(photos, name, method, times, out):
     _save(profile, out)
 
 
-@camera.command("flat")
+@camera.command("flat", short_help="Lens shading from photos of an evenly lit white target.")
 @click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @option("--name", required=True, help="Profile name (created or updated).")
 @option("--dark", type=click.Path(dir_okay=False), default=None, help="Dark frame subtracted first.")
@@ -592,7 +598,7 @@ def camera_flat(photos, name, dark, out):
     _save(profile, out)
 
 
-@camera.command("flat-from-turns")
+@camera.command("flat-from-turns", short_help="Lens shading from beam photos with the camera turned.")
 @click.argument("photos", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @option("--name", required=True, help="Profile name (created or updated).")
 @option("--focal-35mm", type=float, default=None, help="35 mm-equivalent focal length (mm) if EXIF lacks it.")
@@ -653,7 +659,7 @@ def camera_flat_from_turns(photos, name, focal_35mm, hfov, out):
     _save(profile, out)
 
 
-@camera.command("scale")
+@camera.command("scale", short_help="The camera's absolute constant from a lux reading.")
 @click.argument("photo", type=click.Path(dir_okay=False))
 @option("--lux", type=float, required=True, metavar="LX", help="Lux-meter reading on the wall at the metered point.")
 @option("--at", "at", default=None, metavar="X,Y", show_default="the photo's centre",
@@ -684,7 +690,7 @@ def camera_scale(photo, lux, at, meter_accuracy, name, out):
         click.echo(f"  ! {notes['warning']}")
 
 
-@camera.command("show")
+@camera.command("show", short_help="Print a camera profile.")
 @click.argument("name")
 def camera_show(name):
     """Print a camera profile (a name or a file)."""
@@ -695,7 +701,7 @@ def camera_show(name):
     click.echo(json.dumps(load_profile(name).to_dict(), indent=2))
 
 
-@camera.command("list")
+@camera.command("list", short_help="List the camera profiles.")
 def camera_list():
     """List the camera profiles that can be used with --camera."""
     from .camera.profile import list_profiles
@@ -706,6 +712,7 @@ def camera_list():
 
 from .batch_cli import batch as _batch  # noqa: E402 - imports only click; the engine loads inside the command
 
+_batch.short_help = "Analyze every row of a manifest on all cores, resumably."
 cli.add_command(_batch)
 
 
