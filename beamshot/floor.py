@@ -187,8 +187,8 @@ def estimate_floor(beam: BeamMap, edge=None, *, bin_factor: int = 1, gain: np.nd
             return _floor_from(wall[dark], bin_factor, "beyond the spill edge")
     # darkest annulus: cumulative sums over rows give every window's sum and count at once
     rows = max(1, int(round(np.radians(ANNULUS_DEG) / beam.d_theta)))
-    s = np.r_[0.0, np.cumsum(np.where(valid, wall, 0.0).sum(axis=1))]
-    n = np.r_[0, np.cumsum(valid.sum(axis=1))]
+    s = np.concatenate(([0.0], np.cumsum(np.where(valid, wall, 0.0).sum(axis=1))))
+    n = np.concatenate(([0], np.cumsum(valid.sum(axis=1))))
     if len(beam.theta) < rows:
         return BlackFloor(0.0, 0.0, 0.0, 0, False, "no dark wall in the photo")
     win_s, win_n = s[rows:] - s[:-rows], n[rows:] - n[:-rows]
