@@ -386,7 +386,7 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
 
 
 def _decimals(text: str) -> int:
-    """Decimal places of the first number in a figure's text ('≈ 8.02 ± 0.15 deg' -> 2)."""
+    """Decimal places of the first number in a figure's text ('≈ 8.02 ± 0.15°' -> 2)."""
     import re
 
     m = re.search(r"[\d,]+(?:\.(\d+))?", text)
@@ -440,7 +440,7 @@ def demo(out_dir):
                 click.echo(f"  {label(key):26s} {fig.text(3):34s}")
                 continue
             unit = term(key).unit
-            truth_text = f"{truth:,.{_decimals(fig.text(3))}f}" + (f" {unit}" if unit else "")
+            truth_text = f"{truth:,.{_decimals(fig.text(3))}f}" + ("°" if unit == "deg" else f" {unit}" if unit else "")
             err = (fig.value - truth) / truth
             click.echo(f"  {label(key):26s} {fig.text(3):34s} {truth_text:>12s} {err:>+7.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}{os.sep}")

@@ -55,7 +55,7 @@ class Figure:
         if self.value is None:
             return f"not measured ({self.reason})"
         prefix = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "}.get(self.status, "")
-        unit = f" {self.unit}" if self.unit else ""
+        unit = "°" if self.unit == "deg" else (f" {self.unit}" if self.unit else "")
         if self.uncertainty is not None and self.uncertainty > 0:
             value, u = value_with_uncertainty(self.value, self.uncertainty)
             return f"{prefix}{value} ± {u}{unit}"
