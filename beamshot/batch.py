@@ -439,6 +439,8 @@ class Outcome:
     pid: int | None = None
     peak_mb: float | None = None
     details: str | None = None
+    #: CPU seconds of the worker process (all its threads) spent on this item
+    cpu_seconds: float | None = None
 
 
 def marker_key(marker: str) -> str | None:
@@ -522,7 +524,7 @@ def run_item(task: Task) -> Outcome:
     from .analysis import run
     from .report.output import write_report
 
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
 
     def skipped(reason):
         return Outcome(task.row, STATUS_SKIPPED, reason, pid=os.getpid(), peak_mb=_peak_mb())
@@ -543,7 +545,8 @@ def run_item(task: Task) -> Outcome:
         _journal(task, "done" if made else "again")
         if not made:
             return skipped("finished by another run at the same time")
-        return Outcome(task.row, STATUS_DONE, None, seconds, dict(report.stage_seconds), os.getpid(), _peak_mb())
+        return Outcome(task.row, STATUS_DONE, None, seconds, dict(report.stage_seconds), os.getpid(), _peak_mb(),
+                       cpu_seconds=round(time.process_time() - c0, 4))
     except BeamshotError as exc:
         return Outcome(task.row, STATUS_FAILED, _one_line(exc), round(time.perf_counter() - t0, 4),
                        pid=os.getpid(), peak_mb=_peak_mb())

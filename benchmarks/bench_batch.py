@@ -69,18 +69,17 @@ def ensure_photos(count: int) -> list[str]:
     return paths
 
 
-def decode_seconds(paths: list[str]) -> float:
-    """Seconds to decode every file one after another in this process (second of two passes)."""
+def decode_seconds(paths: list[str]) -> tuple[float, float]:
+    """Wall and CPU seconds to decode every file one after another in this process (second of two passes)."""
     import cv2
 
-    best = None
     for _ in range(2):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         for p in paths:
             if cv2.imread(p, cv2.IMREAD_COLOR) is None:
                 raise SystemExit(f"cannot decode {p}")
-        best = time.perf_counter() - t0
-    return best
+        wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+    return wall, cpu
 
 
 def main() -> None:
@@ -102,15 +101,16 @@ def main() -> None:
         fh.write("name,photos,distance_m\n")
         for i, p in enumerate(paths):
             fh.write(f"unit {i:02d},{os.path.basename(p)},5\n")
-    dec = decode_seconds(paths)
+    dec, dec_cpu = decode_seconds(paths)
     size_mb = statistics.mean(os.path.getsize(p) for p in paths) / 1e6
     print(f"cores: {os.cpu_count()}, numpy {np.__version__}, opencv {cv2.__version__}; "
           f"{args.count} photos of {WIDTH}x{HEIGHT} ({size_mb:.1f} MB each), pictures: {args.pictures}")
-    print(f"decoding them one after another in one process (cv2.imread): {dec:.2f} s ({dec / args.count:.3f} s each); "
+    print(f"decoding them one after another in one process (cv2.imread): {dec:.2f} s ({dec / args.count:.3f} s each, CPU {dec_cpu:.2f} s); "
           f"load average before: {os.getloadavg()[0]:.1f} (other processes compete for the cores above ~0)")
     root = args.keep or tempfile.mkdtemp(prefix="beamshot-bench-batch-")
     walls, stage_means = {}, {}
-    print(f"\n{'workers':>7} {'wall s':>8} {'ratio':>6} {'scaling':>8} {'s/item':>7} {'peak MB per worker':>22}")
+    print(f"\n{'workers':>7} {'wall s':>8} {'ratio':>6} {'scaling':>8} {'s/item':>7} {'CPU s/item':>11} "
+          f"{'CPU ratio':>10} {'peak MB per worker':>22}")
     for w in args.workers:
         out = os.path.join(root, f"out-{w}")
         shutil.rmtree(out, ignore_errors=True)
@@ -127,7 +127,9 @@ def main() -> None:
         walls[w] = wall
         scaling = walls[args.workers[0]] / wall
         peaks = ", ".join(f"{v:.0f}" for v in sorted(peak.values()))
-        print(f"{w:>7} {wall:>8.1f} {wall / dec:>6.2f} {scaling:>7.2f}x {wall / args.count:>7.2f} {peaks:>22}"
+        cpu = sum(o.cpu_seconds for o in done)
+        print(f"{w:>7} {wall:>8.1f} {wall / dec:>6.2f} {scaling:>7.2f}x {wall / args.count:>7.2f} "
+              f"{cpu / args.count:>11.2f} {cpu / dec_cpu:>10.2f} {peaks:>22}"
               f"   (load average {os.getloadavg()[0]:.1f})")
         keys = list(done[0].stage_seconds)
         means = {k: statistics.mean(o.stage_seconds.get(k, 0.0) for o in done) for k in keys}
