@@ -115,7 +115,7 @@ def test_csv_batch_figures_follow_the_inputs(local_run, shots):
         f = r["figures"]["hotspot_angle"]
         assert abs(f["value"] - truth[name]["hotspot_angle_deg"]) < 3 * f["uncertainty"], (name, f)
     # every figure of the vocabulary is a column, and each report set is whole (pictures off: no beam.png)
-    header = open(os.path.join(local_run, "summary.csv"), encoding="utf-8").readline().strip().split(",")
+    header = (local_run / "summary.csv").read_text(encoding="utf-8").splitlines()[0].split(",")
     for key in FIGURES:
         assert {key, f"{key}_uncertainty", f"{key}_unit", f"{key}_status"} <= set(header)
     for r in rows:
@@ -166,7 +166,7 @@ def test_broken_rows_fail_alone(shots, tmp_path):
     res = CliRunner().invoke(batch, [str(manifest), "--out", str(out), "--pictures", "none"])
     assert res.exit_code == 2
     assert f"4 of 6 items failed: see {out / 'summary.csv'}" in res.output
-    rows = {r["name"]: r for r in csv.DictReader(open(out / "summary.csv", encoding="utf-8"))}
+    rows = {r["name"]: r for r in csv.DictReader((out / "summary.csv").read_text(encoding="utf-8").splitlines())}
     assert [rows[f"prototype {i}"]["status"] for i in range(1, 7)] == \
         [STATUS_DONE, STATUS_FAILED, STATUS_FAILED, STATUS_FAILED, STATUS_DONE, STATUS_FAILED]
     assert "missing.jpg: no such file" in rows["prototype 2"]["reason"]
@@ -229,7 +229,8 @@ def test_resume_skips_done_items_and_redoes_a_changed_row(shots, tmp_path):
     assert [redo.outcomes[r].status for r in (1, 2, 3)] == [STATUS_SKIPPED, STATUS_SKIPPED, STATUS_DONE]
     assert marker_key(changed.items[2].marker) == changed.items[2].key
     p2 = _summary(out)[1]["figures"]["peak_intensity"]
-    old = json.load(open(os.path.join(first.items[1].folder, "report.json")))["figures"]["peak_intensity"]
+    with open(os.path.join(first.items[1].folder, "report.json"), encoding="utf-8") as fh:
+        old = json.load(fh)["figures"]["peak_intensity"]
     # same photo, exposure-metadata scale: I = E D^2 scales with the distance squared (inverse-square law)
     assert p2["value"] == pytest.approx(old["value"] * (5.5 / 5.0) ** 2, rel=1e-3)
 
@@ -299,7 +300,7 @@ def test_killed_three_times_and_resumed_does_every_item_once(shots, tmp_path):
         times = [os.stat(os.path.join(path, n)).st_mtime for n in ("profile.csv", "report.json")]
         assert max(times) - min(times) < 1.5  # a restarted run needs longer than this to write again
         assert r["figures"]["hotspot_angle"]["value"] is not None
-    leftovers = [n for n in os.listdir(items) if n.startswith(".beamshot-tmp-") or n.startswith(".beamshot-old-")
+    leftovers = [n for n in os.listdir(items) if n.startswith((".beamshot-tmp-", ".beamshot-old-"))
                  or n.endswith(".tmp")]
     assert leftovers == []
     assert len([n for n in os.listdir(items) if n.endswith(".done.json")]) == KILL_ITEMS
@@ -319,7 +320,8 @@ def test_the_documented_example_manifests_describe_the_same_batch(shots, tmp_pat
     docs = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "docs", "examples")
     keys = []
     for ext in ("csv", "toml"):
-        text = open(os.path.join(docs, f"batch-manifest.{ext}"), encoding="utf-8").read()
+        with open(os.path.join(docs, f"batch-manifest.{ext}"), encoding="utf-8") as fh:
+            text = fh.read()
         (tmp_path / f"m.{ext}").write_text(text)
         for r in read_manifest(tmp_path / f"m.{ext}"):
             photos = r.values["photos"]
