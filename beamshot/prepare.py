@@ -169,7 +169,10 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
         _check_bracket_exposures(beam_photos)
         resp, source, linearity, bracket_note = _bracket_response(
             beam_photos, resp, source, source == "assumed" and not response_given, warnings)
-        if linearity is not None and linearity > BRACKET_REFUSE:
+        recovered = bracket_note.get("response_choice", {}).get("consistency_recovered")
+        if linearity is not None and recovered is not None and min(linearity, recovered) > BRACKET_REFUSE:
+            # even the curve recovered from the frames themselves cannot make them agree: not one scene
+            # (a wrong named curve alone is warned about below, not refused)
             raise BeamshotError(f"the photos {', '.join(p.name for p in beam_photos)} disagree by {linearity:.0%} "
                                 "(RMS) after linearisation: they are not exposures of one unchanged scene (two lights, "
                                 "the light switched off or moved, or the camera moved); give one light's bracket per "
@@ -259,8 +262,10 @@ def prepare_image(photo, *, ambient, flat, dark, profile: CameraProfile, resp: R
 
 #: Bracket frames whose exposures (t S / N^2) differ by less than this are the same exposure.
 SAME_EXPOSURE_REL = 0.02
-#: Frames that disagree by more than this after linearisation (relative RMS) are not one scene.
-BRACKET_REFUSE = 0.30
+#: Frames that disagree by more than this after linearisation with the curve recovered from them
+#: (relative RMS) are not one scene: a recovered curve brings the frames of one still scene within
+#: about 1 % (0.15 % for a film-like S-curve camera in tests/test_bracket_selfcal.py).
+BRACKET_REFUSE = 0.10
 
 
 def _check_bracket_exposures(photos: list[Photo]) -> None:
