@@ -252,3 +252,21 @@ def test_clipped_photo_marks_the_clipped_area():
         assert "outside the photo" in texts
     finally:
         plt.close(fig)
+
+
+def test_caution_line_and_no_font_warnings_for_any_file_name(tmp_path):
+    # a photo named in a script the font lacks: the picture is written without a warning reaching
+    # the user, and it carries the safety line (pictures travel without their report)
+    import warnings
+
+    from beamshot.analysis import analyze
+    from beamshot.report.plots import CAUTION_LINE, beam_figure
+
+    pattern = HotspotSpillBeam(peak_cd=8000.0, hotspot_fwhm_deg=8.0, spill_fraction=0.02, cutoff_deg=30.0)
+    rep = analyze(_photo(pattern, name="光束.jpg"), distance_m=5.0)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        fig = beam_figure(rep)
+        beam_figure(rep, tmp_path / "beam.png")
+    assert not [w for w in caught if "Glyph" in str(w.message)]
+    assert CAUTION_LINE in [t.get_text() for t in fig.texts]

@@ -503,6 +503,13 @@ def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None
     shown = np.where(detected, mean, np.nan)
     sinks = np.flatnonzero(~detected[1:] & detected[:-1]) + 1
     shown[sinks] = level
+    spill = figures.get("spill_angle")
+    if spill is not None and spill.value is not None:
+        # past the spill edge the mean ends where it first sinks into the floor: what rises above it
+        # further out (a few cells in the photo's corners) is noise, not beam
+        past = np.flatnonzero((full > spill.value) & ~detected)
+        if past.size:
+            shown[past[0] + 1:] = np.nan
     (line,) = ax.plot(full, shown, color=_BLUE, lw=1.8, label="azimuthal mean")
     if floor is not None:
         ax.axhspan(bottom * 1e-3, floor, color="#555555", alpha=0.28, lw=0,
@@ -598,6 +605,10 @@ def _title(report) -> tuple[str, str]:
     return (name or photo or "beam"), sub
 
 
+#: The safety line at the foot of every picture (pictures are shared without their report).
+CAUTION_LINE = "Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft."
+
+
 def beam_figure(report, path=None):
     """The report picture in one column: title, map, colour bar, legend, radial profile, figures table.
 
@@ -610,7 +621,7 @@ def beam_figure(report, path=None):
     # panel heights from the top, inches: title, map, colour bar + label, legend, profile, table
     title_h, map_side, cbar_h, cbar_lab, legend_h = 0.85, W - 1.0, 0.17, 0.62, 1.25
     prof_h, prof_lab, table_h = 2.9, 0.75, 0.3 * n_rows
-    H = title_h + map_side + 0.12 + cbar_h + cbar_lab + legend_h + prof_h + prof_lab + table_h + 0.15
+    H = title_h + map_side + 0.12 + cbar_h + cbar_lab + legend_h + prof_h + prof_lab + table_h + 0.4
     fig = plt.figure(figsize=(W, H), dpi=FIG_DPI)
 
     def box(left, top, width, height):  # inches from the top-left corner -> figure fraction
@@ -638,7 +649,14 @@ def beam_figure(report, path=None):
     fig.text(0.5, 1 - 0.32 / H, title, ha="center", va="center", fontsize=FONT_PT * 1.3, weight="bold", gid="title")
     if sub:
         fig.text(0.5, 1 - 0.64 / H, sub, ha="center", va="center", fontsize=FONT_PT * 0.9, color="#444444")
+    fig.text(0.5, 0.06 / H, CAUTION_LINE, ha="center", va="bottom", fontsize=FONT_PT * 0.7, color="#444444",
+             gid="caution")
     if path is not None:
-        fig.savefig(path, dpi=FIG_DPI, pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
+        import warnings
+
+        with warnings.catch_warnings():
+            # a title in a script the font lacks (a CJK file name) is drawn with boxes, not a warning
+            warnings.filterwarnings("ignore", message="Glyph .* missing from font")
+            fig.savefig(path, dpi=FIG_DPI, pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
         plt.close(fig)
     return fig
