@@ -25,7 +25,8 @@ from .camera.linearize import LinearImage
 from .camera.profile import CameraProfile, load_profile
 from .camera.response import Response, parse_response
 from .errors import BeamshotError
-from .measure import beam_figures, measure_shape
+from .figure import not_measured
+from .measure import _clipped_edge_reason, beam_figures, measure_shape
 from .prepare import PreparedImage, input_record, load_input, prepare_image, same_size
 from .request import DEFAULT_DISTANCE_UNCERTAINTY_M, MAX_DISTANCE_M, MIN_DISTANCE_M, Request
 from .profile import radial_profile
@@ -372,6 +373,9 @@ def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncerta
     figures = {k: (replace(f, budget=tuple(budget.of(k).items())) if f.value is not None and f.uncertainty else f)
                for k, f in figures.items()}
     figures["light_tilt"] = _tilt_figure(measured.pose, req.setup.assume_square, measured.shape.edge)
+    edge_reason = _clipped_edge_reason(measured.shape, measured.beam) if measured.shape.peak.clipped else None
+    if edge_reason and not req.setup.assume_square:
+        figures["light_tilt"] = not_measured("deg", figures["light_tilt"].method, edge_reason)
     return figures
 
 
@@ -395,8 +399,9 @@ def assemble(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measu
                         "the uncertainties - calibrate the camera's response (beamshot camera response), or give "
                         "a bracket (3 or more exposures of the beam on one analyze command line)")
     if pk.clipped:
-        warnings.append("the hotspot is clipped: peak, hotspot and field figures are bounds or not measured; "
-                        "lower the exposure or bracket")
+        warnings.append("the hotspot is clipped: the figures that depend on its level are bounds or not measured"
+                        + (" (the peak itself comes from the lux reading)" if scale.kind == "lux_meter" else "")
+                        + "; lower the exposure or bracket")
     with np.errstate(invalid="ignore"):
         peak_level = float(np.nanmax(image.luminance))
     if not pk.clipped and peak_level < _LOW_EXPOSURE_LEVEL:
@@ -589,7 +594,9 @@ def _measure_beam(image: LinearImage, mapping, distance_m: float, f_u: float, na
     beam = _beam_map(image, mapping, axis.centre_mm, distance_m)
     shape_ = measure_shape(beam)
     pose = None
-    if assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION:
+    trusted = not (shape_.peak.clipped and _clipped_edge_reason(shape_, beam))  # not a clipped plateau's rim
+    if (assume_square is False and shape_.edge.complete and shape_.edge.sharp_fraction >= TILT_MIN_SHARP_FRACTION
+            and trusted):
         edge = shape_.edge
         pts = edge_to_wall(edge.theta, edge.phi, axis.centre_mm, None, distance_m)
         peak_mm = tuple(edge_to_wall(np.array([shape_.peak.theta]), np.array([shape_.peak.phi]), axis.centre_mm,

@@ -93,6 +93,8 @@ def _fig(report: dict, key: str):
     f = report.get("figures", {}).get(key)
     if not f or f.get("value") is None or f.get("uncertainty") is None:
         return None
+    if f.get("status") not in ("measured", "estimate"):
+        return None  # a bound (a clipped or too small hotspot) is not a value to compare
     return float(f["value"]), float(f["uncertainty"]), dict(f.get("budget") or {})
 
 
@@ -152,7 +154,7 @@ def compare_distances(near: dict, far: dict, *, names: tuple[str, str] = ("the f
     for key, (label, unit, *_) in COMPARED_FIGURES.items():
         a, b = _fig(near, key), _fig(far, key)
         if a is None or b is None:
-            lines.append(f"  {label}: not measured in both reports")
+            lines.append(f"  {label}: not measured (or only a bound) in both reports, cannot be compared")
             continue
         diff = b[0] - a[0]
         sigma = combined_sigma(a, b, shared)

@@ -218,13 +218,18 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
                    + (f", {pooled:.0%} one found on wider azimuth ranges where a sector alone is too noisy"
                       if pooled else "")
                    + "; the rest use the 0.5 % of peak threshold); full angle of the cone of equal solid angle")
-    if edge.complete:
+    edge_reason = _clipped_edge_reason(shape, beam) if clipped else None
+    if edge_reason:
+        figs["spill_angle"] = not_measured("deg", edge_method, edge_reason)
+    elif edge.complete:
         figs["spill_angle"] = fig("spill_angle", "deg", edge_method)
     else:
         figs["spill_angle"] = not_measured("deg", edge_method, _coverage_reason(edge))
     for key, phi, word in (("spill_angle_horizontal", 0.0, "horizontal"), ("spill_angle_vertical", 90.0, "vertical")):
         method = f"spill edge to spill edge across the beam axis along the wall's {word}"
-        if np.isfinite(values[key]):
+        if edge_reason:
+            figs[key] = not_measured("deg", method, edge_reason)
+        elif np.isfinite(values[key]):
             figs[key] = fig(key, "deg", method)
         else:
             figs[key] = not_measured("deg", method, _coverage_reason(edge, phi))
@@ -241,6 +246,8 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
             method = flux_method + zone
             if not scale.absolute:
                 figs[key] = not_measured("lm", flux_method, scale.description)
+            elif key == "beam_flux" and edge_reason:
+                figs[key] = not_measured("lm", method, edge_reason)
             elif key != "hotspot_flux" and fx.spill is None:
                 figs[key] = not_measured("lm", method, _coverage_reason(edge))
             elif clipped and key == "spill_flux":
@@ -288,6 +295,29 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
     return {k: figs[k] for k in FIGURE_ORDER if k in figs}
 
 
+#: With a clipped hotspot, a spill edge this close (deg) to the clipped area may be the plateau's rim.
+CLIPPED_EDGE_MARGIN_DEG = 3.0
+
+
+def _clipped_edge_reason(shape: BeamShape, beam: BeamMap) -> str | None:
+    """Why the spill edge of a clipped photo cannot be trusted, or None: a sector that found no sharp
+    cut-off of its own fell back to a level relative to the peak, which the photo does not show; and
+    an edge next to the clipped area may be the rim of the clipped plateau, not the bezel's cut-off."""
+    edge = shape.edge
+    if not edge.complete:
+        return None
+    if edge.sharp_fraction < 1.0:
+        return ("the hotspot is clipped, and the spill edge was found partly by a level relative to the peak, "
+                "which the photo does not show; lower the exposure or give a bracket")
+    sat = np.any(beam.saturated, axis=1)
+    if np.any(sat):
+        reach = float(np.max(beam.theta[sat]))
+        if np.min(edge.theta) < reach + np.radians(CLIPPED_EDGE_MARGIN_DEG):
+            return ("the hotspot is clipped, and the spill edge lies next to the clipped area, where it may be the "
+                    "rim of the clipped plateau; lower the exposure or give a bracket")
+    return None
+
+
 #: A contour must be at least this many working pixels across to be measured: below it, the
 #: 72 rays cross the same few pixels and the crossing interpolation, the pixel footprint and the
 #: map's smoothing dominate (common practice in image metrology: about 10 samples across a feature).
@@ -320,10 +350,18 @@ def _resolution_limits(figs: dict, values: dict, pixel_deg: float, pinned: bool)
             if f is not None and f.value is not None:
                 figs[key] = not_measured(f.unit, f.method, reason)
         if size_key == "hotspot_angle" and not pinned:
-            f = figs.get("peak_intensity")
+            for key in ("peak_intensity", "beam_distance"):
+                f = figs.get(key)
+                if f is not None and f.value is not None and f.status in ("measured", "estimate"):
+                    figs[key] = Figure(f.value, f.uncertainty, f.unit, f.method, "lower_bound",
+                                       reason + "; averaging over pixels lowers a narrow peak")
+        elif size_key == "hotspot_angle":
+            # a lux reading at the peak scales the pixel-averaged (lowered) peak: every flux is too large
+            f = figs.get("beam_flux")
             if f is not None and f.value is not None and f.status in ("measured", "estimate"):
-                figs["peak_intensity"] = Figure(f.value, f.uncertainty, f.unit, f.method, "lower_bound",
-                                                reason + "; averaging over pixels lowers a narrow peak")
+                figs["beam_flux"] = Figure(f.value, f.uncertainty, f.unit, f.method, "upper_bound",
+                                           reason + "; the lux reading scales a pixel-averaged peak, so the map "
+                                           "is too bright: an upper bound")
 
 
 def _coverage_reason(edge: SpillEdge, phi_deg: float | None = None) -> str:

@@ -31,7 +31,8 @@ def test_a_hotspot_a_few_pixels_across_is_not_measured():
         assert "pixels across" in f.reason and "zoom in" in f.reason
     # without a meter the pixel-averaged peak is only a lower bound
     pk = rep["peak_intensity"]
-    assert pk.status == "lower_bound"
+    assert pk.status == "lower_bound" and rep["beam_distance"].status == "lower_bound"
+    assert pk.value <= truth["peak_cd"]  # honest synthetic EXIF: the scale is right, the averaged peak lower
     # the spill edge (60 deg full) is ~40 pixels across and still measured, within 2 sigma
     sp = rep["spill_angle"]
     assert sp.status in ("measured", "estimate")
