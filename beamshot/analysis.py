@@ -301,8 +301,9 @@ def absolute_scale(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped,
     warnings: list[str] = []
     lux = s.lux_reading_lx
     if lux is not None and s.lux_point_px is not None:
-        value, noise = _metered_value(mapped.image, loaded.beam[0], s.lux_point_px)
-        scale = scale_from_lux_at_point(lux, value, noise, tuple(s.lux_point_px), meter_accuracy=s.lux_meter_accuracy)
+        value, noise, grad_px = _metered_value(mapped.image, loaded.beam[0], s.lux_point_px)
+        scale = scale_from_lux_at_point(lux, value, noise, tuple(s.lux_point_px), meter_accuracy=s.lux_meter_accuracy,
+                                        extra=_point_terms(linear, loaded, mapped, s.lux_point_px, value, grad_px))
     elif lux is not None:
         cos_inc = measured.cos_incidence(pk)
         scale = scale_from_lux_meter(lux, pk.value, float(np.arccos(cos_inc)), s.distance_m,
@@ -507,29 +508,60 @@ def _check_constant_against_meter(scale, profile, exif, warnings: list[str]) -> 
 _METER_PATCH_HALF = 2
 
 
-def _metered_value(image: LinearImage, photo, xy) -> tuple[float, float]:
-    """Linear value and its relative 1-sigma noise at pixel ``xy`` = (x, y) of the photo (as shown, y down)."""
+#: How far (mm) the meter's sensor may sit from the point given, 1 sigma (assumption: about 1 cm).
+METER_PLACEMENT_MM = 10.0
+
+
+def _metered_value(image: LinearImage, photo, xy) -> tuple[float, float, float]:
+    """Linear value, its relative 1-sigma noise and its relative gradient per working pixel at pixel
+    ``xy`` = (x, y) of the photo (as shown, y down), interpolated on the working image."""
+    import cv2
+
     x, y = float(xy[0]), float(xy[1])
     full_h, full_w = image.full_shape
     if not (0 <= x < full_w and 0 <= y < full_h):
         raise BeamshotError(f"the metered point ({x:g}, {y:g}) is outside {photo.name} ({full_w}x{full_h} pixels); "
                             "give X,Y in pixels of the photo as shown, x right and y down from the top-left corner")
     b = image.bin_factor
-    r, c = int(y // b), int(x // b)
+    cx, cy = (x - (b - 1) / 2) / b, (y - (b - 1) / 2) / b  # working-pixel coordinates of the full-res pixel
+    r, c = int(round(cy)), int(round(cx))
     h = _METER_PATCH_HALF
     rows = slice(max(r - h, 0), r + h + 1)
     cols = slice(max(c - h, 0), c + h + 1)
     if np.any(image.saturated[rows, cols]):
         raise BeamshotError(f"the metered point ({x:g}, {y:g}) is clipped in {photo.name}; meter a point that is not "
                             "overexposed, or lower the exposure")
-    patch = image.luminance[rows, cols].astype(float)
-    patch = patch[np.isfinite(patch)]
-    value = float(np.mean(patch)) if patch.size else float("nan")
-    noise = float(np.std(patch) / np.sqrt(patch.size)) if patch.size > 1 else float("nan")
+    lum = np.ascontiguousarray(np.nan_to_num(image.luminance, nan=0.0), dtype=np.float32)
+    n = 2 * h + 1
+    patch = cv2.getRectSubPix(lum, (n, n), (cx, cy)).astype(float)  # bilinear, border replicated
+    value = float(np.mean(patch))
+    noise = float(np.std(patch) / np.sqrt(patch.size))
     if not (value > 0 and np.isfinite(noise)) or noise > 0.2 * value:
         raise BeamshotError(f"the metered point ({x:g}, {y:g}) is too dark in {photo.name} to scale the photo; meter "
                             "a brighter point of the beam, such as the hotspot (--lux without --lux-at)")
-    return value, noise / value
+    gy, gx = np.gradient(patch)
+    grad = float(np.hypot(np.mean(gx), np.mean(gy)) / value)
+    return value, noise / value, grad
+
+
+def _point_terms(linear, loaded, mapped, xy, value: float, grad_px: float) -> dict:
+    """Relative 1-sigma terms of a scale metered at a point: where the meter sat (the relative
+    gradient times METER_PLACEMENT_MM), and the tone curve's error over the ratio from that point
+    to the peak (the power-law bend of beamshot.uncertainty: eps ln(v_peak / v_point))."""
+    terms = {}
+    b = mapped.image.bin_factor
+    p = np.array([[float(xy[0]), float(xy[1])], [float(xy[0]) + b, float(xy[1])]])
+    mm = mapped.mapping.image_to_wall(p) if mapped.mapping is not None else None
+    if mm is not None and np.all(np.isfinite(mm)):
+        mm_per_px = float(np.linalg.norm(mm[1] - mm[0]))
+        if mm_per_px > 0:
+            terms["meter placement"] = grad_px / mm_per_px * METER_PLACEMENT_MM
+    ratio_delta, _ = _ratio_error(linear.prep, linear.prep.resp, loaded.profile)
+    with np.errstate(invalid="ignore"):
+        v_peak = float(np.nanmax(mapped.image.luminance))
+    if ratio_delta > 0 and v_peak > value:
+        terms["tone curve from the point to the peak"] = ratio_delta / np.log(RATIO_SPAN) * np.log(v_peak / value)
+    return terms
 
 
 def _with_lens(mapping, lens):

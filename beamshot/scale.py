@@ -93,7 +93,7 @@ def scale_from_lux_meter(lux: float, peak_relative: float, peak_theta: float, di
 
 
 def scale_from_lux_at_point(lux: float, value: float, value_rel_noise: float, xy: tuple[float, float],
-                            *, meter_accuracy: float | None = None) -> AbsoluteScale:
+                            *, meter_accuracy: float | None = None, extra: dict | None = None) -> AbsoluteScale:
     """Scale from a lux-meter reading at a wall point whose linear pixel value is ``value``.
 
     A matte (Lambertian) wall's luminance is proportional to its illuminance, so the photo's
@@ -102,7 +102,8 @@ def scale_from_lux_at_point(lux: float, value: float, value_rel_noise: float, xy
     noise of the sampled patch.
     """
     acc = DEFAULT_LUX_METER_ACCURACY if meter_accuracy is None else meter_accuracy
-    rel = float(np.hypot(acc, value_rel_noise))
+    extra = dict(extra or {})
+    rel = float(np.sqrt(acc**2 + value_rel_noise**2 + sum(v**2 for v in extra.values())))
     return AbsoluteScale(
         lux_per_unit=float(lux / value),
         rel_uncertainty=rel,
@@ -110,7 +111,8 @@ def scale_from_lux_at_point(lux: float, value: float, value_rel_noise: float, xy
         description=(f"lux-meter reading of {lux:g} lx on the wall at pixel ({xy[0]:g}, {xy[1]:g}) of the photo "
                      "(E proportional to the linear pixel value on a matte wall)"),
         assumptions=(f"lux meter accurate to {acc:.0%} (1 sigma)", "the wall is equally matte and white at the "
-                     "metered point and in the beam"),
+                     "metered point and in the beam",
+                     *(f"{name}: {v:.1%} (1 sigma)" for name, v in extra.items())),
     )
 
 
