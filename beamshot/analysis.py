@@ -531,9 +531,12 @@ def _metered_value(image: LinearImage, photo, xy) -> tuple[float, float, float]:
     if np.any(image.saturated[rows, cols]):
         raise BeamshotError(f"the metered point ({x:g}, {y:g}) is clipped in {photo.name}; meter a point that is not "
                             "overexposed, or lower the exposure")
-    lum = np.ascontiguousarray(np.nan_to_num(image.luminance, nan=0.0), dtype=np.float32)
     n = 2 * h + 1
-    patch = cv2.getRectSubPix(lum, (n, n), (cx, cy)).astype(float)  # bilinear, border replicated
+    # a small window around the point (not a copy of the whole image), NaN outside the photo as 0
+    r0, c0 = max(r - h - 2, 0), max(c - h - 2, 0)
+    window = image.luminance[r0:r + h + 3, c0:c + h + 3]
+    lum = np.ascontiguousarray(np.nan_to_num(window, nan=0.0), dtype=np.float32)
+    patch = cv2.getRectSubPix(lum, (n, n), (cx - c0, cy - r0)).astype(float)  # bilinear, border replicated
     value = float(np.mean(patch))
     noise = float(np.std(patch) / np.sqrt(patch.size))
     if not (value > 0 and np.isfinite(noise)) or noise > 0.2 * value:

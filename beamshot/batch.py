@@ -38,7 +38,7 @@ import traceback
 from dataclasses import dataclass, field
 
 from . import __version__
-from .errors import BeamshotError
+from .errors import BeamshotError, read_user_file
 
 __all__ = ["COLUMNS", "KEY_FORMAT", "STATUS_DONE", "STATUS_SKIPPED", "STATUS_FAILED", "JOURNAL_ENV", "Row",
            "Item", "Task", "Outcome", "BatchResult", "read_manifest", "plan", "run_batch", "run_item",
@@ -102,15 +102,7 @@ def read_manifest(path) -> list[Row]:
     """The rows of a CSV (``.csv``) or TOML (``.toml``) manifest.  Refuses, in one line, a manifest
     that cannot be read, has no rows, or names a column that is not in :data:`COLUMNS`."""
     path = os.fspath(path)
-    try:
-        with open(path, "rb") as fh:
-            raw = fh.read()
-    except FileNotFoundError:
-        raise BeamshotError(f"{path}: no such manifest; check the path") from None
-    except IsADirectoryError:
-        raise BeamshotError(f"{path}: is a folder; give the manifest file (.csv or .toml)") from None
-    except OSError as exc:
-        raise BeamshotError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    raw = read_user_file(path, "give the manifest file (.csv or .toml)")
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:

@@ -233,6 +233,14 @@ class _FieldCheck:
             self.fail(field_name, value, "a text" + (" (not empty)" if required else " or null"))
         return value
 
+    def image_size(self, field_name: str, size) -> tuple[int, int]:
+        """``[width, height]`` in whole pixels within the profile's limits."""
+        lo_px, hi_px = PROFILE_LIMITS["image_side_px"]
+        if (not isinstance(size, list) or len(size) != 2
+                or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
+            self.fail(field_name, size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
+        return size[0], size[1]
+
     def mapping(self, field_name: str, value) -> dict:
         if not isinstance(value, dict):
             self.fail(field_name, value, "an object {...}" + ("" if field_name == "response" else " or null"))
@@ -305,12 +313,7 @@ def _flat_from(check: _FieldCheck, ff) -> FlatField | None:
         return None
     check.mapping("flat_field", ff)
     b = check.numbers("flat_field.coefficients", ff.get("coefficients"), 3)
-    lo_px, hi_px = PROFILE_LIMITS["image_side_px"]
-    size = ff.get("image_size")
-    if (not isinstance(size, list) or len(size) != 2
-            or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
-        check.fail("flat_field.image_size", size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
-    w, h = size
+    w, h = check.image_size("flat_field.image_size", ff.get("image_size"))
     residual = check.number("flat_field.residual_rms", ff.get("residual_rms"), *PROFILE_LIMITS["flat_residual_rms"],
                             required=True)
     reach = check.number("flat_field.data_to_radius", ff.get("data_to_radius", 1.0),
@@ -344,12 +347,7 @@ def _distortion_from(check: _FieldCheck, dist) -> Distortion | None:
     if not dist:
         return None
     check.mapping("distortion", dist)
-    lo_px, hi_px = PROFILE_LIMITS["image_side_px"]
-    size = dist.get("image_size")
-    if (not isinstance(size, list) or len(size) != 2
-            or not all(isinstance(v, int) and not isinstance(v, bool) and lo_px <= v <= hi_px for v in size)):
-        check.fail("distortion.image_size", size, f"[width, height] in whole pixels, {lo_px}-{hi_px}")
-    w, h = size
+    w, h = check.image_size("distortion.image_size", dist.get("image_size"))
     # focal lengths in pixels: a horizontal view between about 157 and 0.6 degrees (common practice:
     # the widest rectilinear lenses reach about 120 degrees), square pixels within a factor of 2
     lo_f, hi_f = (r * max(w, h) for r in PROFILE_LIMITS["distortion_focal_over_side"])
