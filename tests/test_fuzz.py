@@ -31,6 +31,7 @@ import io
 import json
 import math
 import os
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -232,8 +233,21 @@ class Run:
         return self.stderr.strip()
 
 
+_WORKDIRS: list[str] = []
+
+
 def _workdir() -> str:
-    return tempfile.mkdtemp(prefix="beamshot-fuzz-")
+    """A fresh folder for one example; all of them are removed when the module's tests end."""
+    path = tempfile.mkdtemp(prefix="beamshot-fuzz-")
+    _WORKDIRS.append(path)
+    return path
+
+
+@pytest.fixture(scope="module", autouse=True)
+def _remove_workdirs():
+    yield
+    while _WORKDIRS:
+        shutil.rmtree(_WORKDIRS.pop(), ignore_errors=True)
 
 
 def _write(workdir, name, data: bytes) -> str:

@@ -67,11 +67,36 @@ def test_new_set_replaces_the_old_one_whole(tmp_path, reports):
     assert sorted(os.listdir(out)) == sorted(REPORT_FILES)
     # a set without a picture replaces the three files as a set: no beam.png of the old set stays
     written = write_report(reports[1], out, picture=False)
-    assert sorted(os.listdir(out)) == ["profile.csv", "report.json"]
-    assert sorted(os.path.basename(p) for p in written) == ["profile.csv", "report.json"]
+    assert sorted(os.listdir(out)) == ["intensity-map.npz", "profile.csv", "report.json"]
+    assert sorted(os.path.basename(p) for p in written) == ["intensity-map.npz", "profile.csv", "report.json"]
     data = json.loads((out / "report.json").read_text())
     assert data["inputs"][0]["sha256"] == reports[1].inputs[0]["sha256"]
     assert _ours(tmp_path) == []
+
+
+def test_intensity_map_round_trips_and_bad_maps_are_one_line(tmp_path, reports):
+    from beamshot.errors import BeamshotError
+    from beamshot.report.intensity_map import read_intensity_map
+
+    out = tmp_path / "M"
+    write_report(reports[0], out, picture=False)
+    back = read_intensity_map(out / "report.json")
+    beam = reports[0].beam
+    assert back.unit == beam.unit and back.distance_m == beam.distance_m
+    np.testing.assert_allclose(back.theta, beam.theta, rtol=1e-12)
+    np.testing.assert_allclose(back.phi, beam.phi, rtol=1e-12)
+    # float32 holds 7 significant digits, more than the figures' 6
+    np.testing.assert_allclose(back.intensity, beam.intensity, rtol=1e-6)
+    assert np.array_equal(np.isnan(back.intensity), np.isnan(beam.intensity))
+    assert np.array_equal(back.saturated, beam.saturated)
+    bad = tmp_path / "bad.npz"
+    for blob in (b"", b"PK\x03\x04 not really", (out / "report.json").read_bytes()):
+        bad.write_bytes(blob)
+        with pytest.raises(BeamshotError) as err:
+            read_intensity_map(bad)
+        assert "\n" not in str(err.value) and str(bad) in str(err.value)
+    with pytest.raises(BeamshotError, match="no intensity map"):
+        read_intensity_map(tmp_path / "nowhere")
 
 
 def test_a_folder_with_other_files_is_refused_and_left_alone(tmp_path, reports):
@@ -124,7 +149,7 @@ def test_died_between_the_two_renames_is_put_right(tmp_path, reports):
     aside = tmp_path / f".beamshot-old-{key}-999999-0123abcd"
     os.rename(out, aside)  # the first rename of the fallback swap done, the second never happened
     output._tidy(str(tmp_path), key, str(out))
-    assert sorted(os.listdir(out)) == ["profile.csv", "report.json"] and _ours(tmp_path) == []
+    assert sorted(os.listdir(out)) == ["intensity-map.npz", "profile.csv", "report.json"] and _ours(tmp_path) == []
     # and when the new set already stands, a set-aside old one is removed by the next run
     shutil.copytree(out, aside)
     write_report(reports[1], out, picture=False)

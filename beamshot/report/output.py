@@ -1,4 +1,4 @@
-"""Write a BeamReport to a folder as one set: report.json, profile.csv, beam.png.
+"""Write a BeamReport to a folder as one set: report.json, profile.csv, intensity-map.npz, beam.png.
 
 A reader of ``--out`` sees the old set or the new set, never a mix, and nothing of ours is
 left beside it:
@@ -52,7 +52,7 @@ if TYPE_CHECKING:  # imported lazily: the command line imports this module's Ter
 __all__ = ["REPORT_FILES", "STALE_AFTER_S", "LOCK_WAIT_S", "Terminated", "write_report", "write_json",
            "write_profile_csv", "read_report_json", "output_key"]
 
-REPORT_FILES = ("report.json", "profile.csv", "beam.png")
+REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png")
 #: Our temporary and set-aside folders of *other* outputs are removed once older than this (s).
 STALE_AFTER_S = 24 * 3600.0
 #: How long a run waits for another run writing the same --out before refusing (s).
@@ -302,6 +302,7 @@ def _sigterm_as_exception():
 def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[str]:
     """Write all report files into ``out_dir`` as one set, replacing an older set whole; returns
     their paths.  Refuses (:class:`BeamshotError`) a folder holding files beamshot did not write."""
+    from .intensity_map import MAP_FILE, write_intensity_map
     from .plots import beam_figure
 
     out_arg = os.fspath(out_dir)
@@ -346,6 +347,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                         continue
                 write_json(report, os.path.join(tmp, "report.json"))
                 write_profile_csv(report, os.path.join(tmp, "profile.csv"))
+                write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
                 if picture:
                     beam_figure(report, os.path.join(tmp, "beam.png"))
                 _fsync_files(tmp)
