@@ -322,9 +322,10 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
     again = partial(pool.submit, again_now)
     jobs: dict = {}
     d2 = distance_m + distance_u_m
-    if distance_u_m > 0:
-        jobs["distance"] = again(distance_m=d2, mapping=mapping_stretched(measured.mapping, d2 / distance_m,
-                                                                          measured.foot_mm) if camera_beside else None)
+    if distance_u_m > 0 and camera_beside:  # no map to build: the same map, intensities times (D'/D)^2
+        jobs["distance"] = _Done(measured.values(scale, lux_at_peak, shape_at_distance(shape, (d2 / distance_m) ** 2), d2))
+    elif distance_u_m > 0:
+        jobs["distance"] = again(distance_m=d2)
     if camera_distance_m is not None and distance_u_m > 0:
         jobs["camera"] = again(mapping=mapping_stretched(measured.mapping, 1.0 + distance_u_m / camera_distance_m,
                                                          measured.foot_mm))
@@ -360,6 +361,32 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
                                    block_deg)))
     finally:
         pool.shutdown(wait=True)
+
+
+class _Done:
+    """A result known without a job (the same face as a future's)."""
+
+    def __init__(self, value):
+        self._value = value
+
+    def result(self):
+        return self._value
+
+
+def shape_at_distance(shape, factor: float):
+    """The shape the map rebuilt at distance ``D'`` would give when the camera stands beside the light.
+
+    The camera beside the light sees the wall scaled with D, so the wall point toward a direction
+    (theta, phi) falls on the same pixel at ``D'`` as at ``D``: the same illuminance E.  The map,
+    ``I = E D^2 / cos^3 theta`` (IES 9.1.1/9.1.2), is the old one times ``factor = (D'/D)^2``, and
+    every step of ``measure_shape`` is scale-equivariant (contours and the spill cut-off at levels
+    relative to the peak and the floor), so the angles stay and the peak and fluxes scale.
+    tests/test_speed_equivalence.py checks this against the map rebuilt.
+    """
+    fx = shape.flux
+    return replace(shape, peak=replace(shape.peak, value=shape.peak.value * factor),
+                   flux=None if fx is None else replace(fx, hotspot=fx.hotspot * factor,
+                                                        spill=None if fx.spill is None else fx.spill * factor))
 
 
 def _tone_moved(measured, eps: float, scale: AbsoluteScale, lux_at_peak: float | None) -> dict:

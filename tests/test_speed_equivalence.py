@@ -172,6 +172,28 @@ def test_tone_term_from_the_measured_map_equals_remeasure(case):
     assert rebuilt.peak.value == measured.shape.peak.value
 
 
+@pytest.mark.parametrize("u", [0.02, 0.3])
+def test_distance_term_beside_the_light_equals_the_map_rebuilt(u):
+    # the camera beside the light: moving D stretches the wall with it, so the map rebuilt at
+    # D + u(D) is the old one times ((D + u)/D)^2 (I = E D^2 / cos^3, IES 9.1.1); equal to the
+    # report's 6 significant digits (the rebuilt map differs from the scaled one by float rounding)
+    from beamshot.report.model import rounded
+    from beamshot.scale import scale_from_lux_meter, no_scale
+    from beamshot.uncertainty import mapping_stretched, shape_at_distance
+
+    photo, _ = _photo(Scene(distance_m=5.0))
+    measured, _ = _measured_of(photo, distance_m=5.0)
+    d, d2 = 5.0, 5.0 + u
+    pk = measured.shape.peak
+    for scale, lux in ((no_scale("relative, for the test"), None),
+                       (scale_from_lux_meter(400.0, pk.value, float(pk.theta), d), 400.0)):
+        fast = measured.values(scale, lux, shape_at_distance(measured.shape, (d2 / d) ** 2), d2)
+        rebuilt = measured.remeasure(distance_m=d2, mapping=mapping_stretched(measured.mapping, d2 / d, measured.foot_mm))
+        slow = measured.values(scale, lux, rebuilt, d2)
+        assert rounded(fast) == rounded(slow)
+        assert fast["beam_flux_rel"] != measured.values(scale, lux)["beam_flux_rel"]  # the term is not zero
+
+
 def test_inside_outline_equals_matplotlib_contains_points():
     # reference: matplotlib's Path.contains_points (W. R. Franklin's even-odd crossing test), point by point
     from matplotlib.path import Path
