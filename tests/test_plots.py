@@ -270,3 +270,13 @@ def test_caution_line_and_no_font_warnings_for_any_file_name(tmp_path):
         beam_figure(rep, tmp_path / "beam.png")
     assert not [w for w in caught if "Glyph" in str(w.message)]
     assert CAUTION_LINE in [t.get_text() for t in fig.texts]
+
+
+def test_log_ticks_are_plain_decades():
+    # decade labels without math typesetting: each names its power of ten exactly
+    from beamshot.report.plots import _decade_text
+
+    for e in range(-9, 10):
+        text = _decade_text(10.0 ** e)
+        assert float(text.replace(",", "")) == pytest.approx(10.0 ** e, rel=1e-12), text
+    assert _decade_text(3.0) == "" and _decade_text(0.0) == "" and _decade_text(float("nan")) == ""

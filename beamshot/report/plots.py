@@ -522,6 +522,7 @@ def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None
         if f is not None and f.value is not None:
             ax.axvline(f.value, label=vocabulary.label(key), **style)
     ax.set_yscale("log")
+    _plain_log_ticks(ax.yaxis)
     ax.set_ylim(bottom, top * 2.0)
     ax.set_xlim(0, full.max() if full.size else 1)
     ax.set_xlabel("full cone angle (°), twice the angle from the axis", fontsize=fontsize)
@@ -530,6 +531,29 @@ def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None
     ax.grid(True, which="major", alpha=0.3)
     ax.legend(fontsize=fontsize * 0.8, loc="best", framealpha=0.9, handlelength=2.2, labelspacing=0.3)
     return line
+
+
+def _decade_text(v: float, pos=None) -> str:
+    """A decade tick as plain text ("0.01", "100", "10,000", "1e7"): no math typesetting, which
+    costs more than the rest of the profile panel to lay out."""
+    if not (v > 0 and np.isfinite(v)):
+        return ""
+    e = int(round(np.log10(v)))
+    if abs(np.log10(v) - e) > 1e-6:
+        return ""
+    if -3 <= e < 0:
+        return f"{10.0 ** e:.{-e}f}"
+    if 0 <= e <= 6:
+        return f"{10 ** e:,}"  # grouped as the figures table groups
+    return f"1e{e}"
+
+
+def _plain_log_ticks(axis) -> None:
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullLocator
+
+    axis.set_major_locator(LogLocator(base=10.0, numticks=12))
+    axis.set_major_formatter(FuncFormatter(_decade_text))
+    axis.set_minor_locator(NullLocator())  # decades only: minor ticks cost more to lay out than they tell
 
 
 # ----------------------------------------------------------------------------- the figures table
