@@ -313,6 +313,7 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
         cb = plt.colorbar(im, ax=ax, fraction=0.046, pad=0.03, extend="min")
     cb.set_label(label or ("intensity (relative to peak)" if relative else "intensity (cd)"), fontsize=fontsize)
     cb.ax.tick_params(labelsize=fontsize * 0.9)
+    _plain_log_ticks(cb.long_axis)
 
     # rings at round full cone angles, labelled with the full angle (twice the radius drawn)
     step = _ring_step_full_deg(half)
