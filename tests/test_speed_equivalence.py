@@ -212,3 +212,18 @@ def test_inside_outline_equals_matplotlib_contains_points():
         for outline in outlines:
             ref = Path(outline).contains_points(np.c_[xx.ravel(), yy.ravel()]).reshape(xx.shape)
             assert np.array_equal(_inside_outline(outline, a, a), ref)
+
+
+def test_row_percentiles_equal_numpys_nanpercentile():
+    # reference: numpy's nanpercentile, linear method (Hyndman & Fan 1996 definition 7), row by row
+    from beamshot.report.plots import row_percentiles
+
+    rng = np.random.default_rng(11)
+    v = rng.lognormal(size=(300, 180))
+    v[rng.random(v.shape) < 0.3] = np.nan
+    v[5, 1:] = np.nan  # a row with one value
+    v[7, :] = 2.5  # ties
+    q = (10, 50, 90, 0, 100, 33.3)
+    got = row_percentiles(v, q)
+    want = np.nanpercentile(v, q, axis=1)
+    assert np.array_equal(got, want)
