@@ -514,8 +514,10 @@ def run_item(task: Task) -> Outcome:
     """Analyse one item and write its report set and done-marker.  Never raises for the item's own
     problems: an input problem or an internal error comes back as a failed :class:`Outcome`."""
     from .analysis import run
+    from .memory_reuse import keep_freed_memory
     from .report.output import write_report
 
+    keep_freed_memory()  # once per worker process: the next item reuses this one's freed buffers
     t0, c0 = time.perf_counter(), time.process_time()
 
     def skipped(reason):
