@@ -67,8 +67,8 @@ def figure_rows(figures: dict, *, with_method: bool = True) -> list[str]:
                  f'<td class="unit">{esc(vocabulary.unit_text(f.get("unit", "")) or "—")}</td>',
                  f'<td><span class="status s-{esc(status)}">{esc(vocabulary.STATUS_WORDS.get(status, status))}</span></td>']
         if with_method:
-            cells.append(f'<td class="method">{esc(method)}</td>')
-        cells.append(f'<td class="def">{esc(t.definition)}</td>')
+            cells.append(f'<td class="method wide">{esc(method)}</td>')
+        cells.append(f'<td class="def wide">{esc(t.definition)}</td>')
         rows.append(f'<tr class="{cls}" {attrs}>' + "".join(cells) + "</tr>")
     return rows
 
@@ -78,7 +78,7 @@ def _figures_section(d: dict) -> str:
     return ('<section id="figures"><h2>Figures</h2>'
             '<p class="note">Value ± one standard uncertainty (1σ). Marks: ≈ estimate (rests on assumptions '
             'named in the method), ≥ lower bound, ≤ upper bound; “not measured” gives the reason.</p>'
-            + table(["figure", "value ± 1σ", "unit", "status", "method", "definition"], rows, cls="figures")
+            + table(["figure", "value ± 1σ", "unit", "status", "method", "definition"], rows, cls="figures rows2")
             + _budget_details(d["figures"]) + "</section>")
 
 

@@ -112,8 +112,9 @@ def _figures_table(lights: list[dict]) -> str:
     return table(head, rows, cls="compare-figures")
 
 
-def _differences_table(diffs: list[dict]) -> str:
-    rows = []
+def _differences_tables(diffs: list[dict]) -> str:
+    """One table per pair of lights (b − a), in the JSON's order; more than three pairs fold away."""
+    pairs: dict[tuple[str, str], list[str]] = {}
     for d in diffs:
         d = _dict(d)
         key = str(d.get("figure", ""))
@@ -124,20 +125,24 @@ def _differences_table(diffs: list[dict]) -> str:
             text = "—"
         else:
             text = Figure(value=diff, uncertainty=u, unit=unit, method="").text()
-            text = ("+" if diff > 0 else "") + text
+            if diff > 0 and any(ch in "123456789" for ch in text.split("±")[0]):
+                text = "+" + text  # a rise is signed; a difference that rounds to zero is not
         verdict = str(d.get("verdict", ""))
         k = _num(d.get("k"))
-        rows.append(
+        pairs.setdefault((str(d.get("a", "")), str(d.get("b", ""))), []).append(
             f'<tr data-figure="{esc(key)}" data-difference="{number_attr(diff)}" '
             f'data-combined-uncertainty="{number_attr(u)}" data-verdict="{esc(verdict)}">'
-            f'<td data-label="figure">{esc(label)}</td><td data-label="a">{esc(d.get("a", ""))}</td>'
-            f'<td data-label="b">{esc(d.get("b", ""))}</td>'
-            f'<td class="num" data-label="b − a ± u_c">{esc(text)}</td>'
-            f'<td class="num" data-label="k">{esc(f"{k:g}" if k is not None else "—")}</td>'
-            f'<td data-label="verdict" class="{_VERDICT_CLASS.get(verdict, "")}">{esc(verdict)}</td>'
-            f'<td data-label="why" class="method">{esc(d.get("reason") or "")}</td></tr>')
-    return table(["figure", "a", "b", "b − a ± u_c (1σ)", "k", "verdict", "why not compared"], rows,
-                 cls="differences stack")
+            f'<td>{esc(label)}</td><td class="num">{esc(text)}</td>'
+            f'<td class="{_VERDICT_CLASS.get(verdict, "")}">{esc(verdict)}</td>'
+            f'<td class="num">{esc(f"k = {k:g}" if k is not None else "")}</td>'
+            f'<td class="method wide">{esc(d.get("reason") or "")}</td></tr>')
+    out = []
+    for i, ((a, b), rows) in enumerate(pairs.items()):
+        opened = " open" if len(pairs) <= 3 or i == 0 else ""
+        out.append(f"<details{opened}><summary><strong>{esc(b)}</strong> − <strong>{esc(a)}</strong></summary>"
+                   + table(["figure", "b − a ± u_c (1σ)", "verdict", "coverage", "why not compared"], rows,
+                           cls="differences rows2") + "</details>")
+    return "".join(out)
 
 
 def _facts(d: dict) -> str:
@@ -193,7 +198,7 @@ def comparison_html(data: dict, out_dir) -> str:
     sections.append('<section id="differences"><h2>Differences</h2><p class="note">b − a with the combined '
                     'standard uncertainty u_c; significant when |b − a| &gt; k·u_c, otherwise not '
                     'distinguishable. Bounds and figures that are not measured are not compared.</p>'
-                    + (_differences_table(diffs) if diffs else '<p class="note">None.</p>') + "</section>")
+                    + (_differences_tables(diffs) if diffs else '<p class="note">None.</p>') + "</section>")
     light_rows = [f'<tr><td data-label="label">{esc(lab)}</td><td data-label="report"><code>'
                   f'{esc(li.get("report", ""))}</code></td><td data-label="unit">{esc(li.get("unit", ""))}</td>'
                   f'<td data-label="wall distance">{esc(li.get("distance_m", ""))}'

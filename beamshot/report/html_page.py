@@ -79,14 +79,15 @@ dl.facts { display: grid; grid-template-columns: max-content 1fr; gap: 0.2rem 0.
 dl.facts dt { color: var(--muted); }
 dl.facts dd { margin: 0; overflow-wrap: anywhere; }
 @media (max-width: 640px) {
-  table.figures thead { display: none; }
-  table.figures tr { display: grid; grid-template-columns: minmax(0, 1fr) auto; column-gap: 0.6rem;
-                     border-bottom: 1px solid var(--rule); padding: 0.35rem 0; }
-  table.figures td { border: 0; padding: 0.05rem 0.2rem; min-width: 0; }
-  table.figures td:first-child { min-width: 0; font-weight: 600; }
+  table.rows2 thead { display: none; }
+  table.rows2 tr { display: grid; grid-template-columns: minmax(0, 1fr) auto; column-gap: 0.6rem;
+                   border-bottom: 1px solid var(--rule); padding: 0.35rem 0; }
+  table.rows2 td { border: 0; padding: 0.05rem 0.2rem; min-width: 0; }
+  table.rows2 td.wide { grid-column: 1 / -1; }
+  table.rows2 td:empty { display: none; }
+  table.rows2 td:first-child { font-weight: 600; min-width: 0; }
   table.figures tr.part td:first-child { padding-left: 1rem; font-weight: 400; }
   table.figures td.unit { display: none; }
-  table.figures td.method, table.figures td.def { grid-column: 1 / -1; min-width: 0; }
   table.figures td.method::before { content: "method: "; font-style: italic; }
   table.figures td.def::before { content: "means: "; font-style: italic; }
   table.stack thead { display: none; }
@@ -100,7 +101,7 @@ dl.facts dd { margin: 0; overflow-wrap: anywhere; }
   body { font-size: 15px; }
 }
 table.settings td:first-child code { white-space: nowrap; word-break: normal; overflow-wrap: normal; }
-details summary { cursor: pointer; color: var(--accent); }
+details summary { cursor: pointer; color: var(--accent); margin: 0.4rem 0; }
 footer { color: var(--muted); font-size: 0.82rem; text-align: center; padding: 1rem; }
 """
 
