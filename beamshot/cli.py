@@ -715,6 +715,13 @@ from .batch_cli import batch as _batch  # noqa: E402 - imports only click; the e
 _batch.short_help = "Analyze every row of a manifest on all cores, resumably."
 cli.add_command(_batch)
 
+from .compare_cli import compare as _compare, reach as _reach  # noqa: E402 - imports only click
+
+_compare.short_help = "Compare 2-12 lights at one common exposure."
+_reach.short_help = "How far and wide a light reaches: axis and ground illuminance."
+cli.add_command(_compare)
+cli.add_command(_reach)
+
 
 def main(argv=None):
     """The ``beamshot`` console script: runs the command line and exits with its code."""

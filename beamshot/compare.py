@@ -233,7 +233,7 @@ def compare_figures(lights: list[Light], *, same_meter: bool = False, k: float =
             shared = tuple(t for t in SHARED_SCALE_TERMS if same_meter and _same_instrument(a.report, b.report, t))
             for key in keys:
                 fa, fb = a.figures.get(key) or {}, b.figures.get(key) or {}
-                entry = {"figure": key, "label": figure_label(key), "unit": FIGURES[key].unit, "a": a.label,
+                entry = {"figure": key, "label": _full_label(key), "unit": FIGURES[key].unit, "a": a.label,
                          "b": b.label, "difference": None, "combined_uncertainty": None, "k": k,
                          "verdict": "not compared", "reason": None}
                 reason = _not_comparable(fa, fb, a.label, b.label)
@@ -249,6 +249,12 @@ def compare_figures(lights: list[Light], *, same_meter: bool = False, k: float =
                 entry["reason"] = reason
                 out.append(entry)
     return out
+
+
+def _full_label(key: str) -> str:
+    """The vocabulary's label, with the parent figure's for the horizontal / vertical parts."""
+    t = FIGURES[key]
+    return f"{figure_label(t.part_of)}, {t.label}" if t.part_of else t.label
 
 
 def _not_comparable(fa: dict, fb: dict, la: str, lb: str) -> str | None:
@@ -405,7 +411,7 @@ def comparison_dict(comp: Comparison, out_dir: str, *, reach: bool = True) -> di
         figs = {}
         for key, f in x.figures.items():
             e = _figure_entry(f)
-            e["label"] = figure_label(key)
+            e["label"] = _full_label(key) if key in FIGURES else figure_label(key)
             figs[key] = e
         settings = x.report.get("settings") or {}
         lights.append({"label": x.label,

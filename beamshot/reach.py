@@ -32,7 +32,7 @@ from .figure import Figure, not_measured
 
 __all__ = ["BEAM_DISTANCE_LUX", "BRIGHT_POINT_LUX", "GROUND_LEVELS_LUX", "DEFAULT_HEIGHT_M", "DEFAULT_TILT_DEG",
            "axis_illuminance", "axis_distance_m", "distance_figure", "GroundMap", "ground_illuminance",
-           "ground_directions", "Reach", "reach_of"]
+           "ground_directions", "lit_extent", "Reach", "reach_of"]
 
 #: ANSI/PLATO FL 1 beam distance level, lx.
 BEAM_DISTANCE_LUX = 0.25
@@ -126,6 +126,23 @@ def ground_illuminance(beam: BeamMap, *, height_m: float = DEFAULT_HEIGHT_M, til
     return GroundMap(x, y, e, "lx" if beam.unit == "cd" else "relative", float(height_m), float(tilt_deg))
 
 
+def lit_extent(beam: BeamMap, *, height_m: float = DEFAULT_HEIGHT_M, tilt_deg: float = DEFAULT_TILT_DEG,
+               level: float | None = None, search_m: float = 400.0) -> tuple[float, float]:
+    """How far ahead and to each side (m) the ground gets at least ``level`` (default: 0.25 lx for a
+    map in cd, 0.1 % of the largest value otherwise), with a margin, for a picture that shows the lit
+    ground and little else.  Found on a coarse grid; at least 5 m ahead and 2 m to each side."""
+    g = ground_illuminance(beam, height_m=height_m, tilt_deg=tilt_deg, reach_m=search_m, n=321)
+    e = g.illuminance
+    if level is None:
+        level = BEAM_DISTANCE_LUX if g.unit == "lx" else 1e-3 * float(np.nanmax(e)) if np.any(np.isfinite(e)) else 0.0
+    lit = np.isfinite(e) & (e >= level)
+    if not lit.any():
+        return 5.0, 2.0
+    yy, xx = np.meshgrid(g.y_m, g.x_m, indexing="ij")
+    step = g.y_m[1] - g.y_m[0]
+    return max(5.0, 1.15 * float(yy[lit].max()) + step), max(2.0, 1.3 * float(np.abs(xx[lit]).max()) + step)
+
+
 @dataclass(frozen=True)
 class Reach:
     """Axis distances (figures in m) at the FL 1 level and the bright level, and the ground map."""
@@ -140,11 +157,11 @@ def reach_of(beam: BeamMap, peak: Figure, *, height_m: float = DEFAULT_HEIGHT_M,
              tilt_deg: float = DEFAULT_TILT_DEG, reach_m: float | None = None) -> Reach:
     """Distances on the axis and the ground map for one light.
 
-    The ground grid reaches 1.2 x the beam distance (at least 20 m, at most 400 m) when the peak
-    is in cd, else 60 m (project choices for a readable picture).
+    The ground grid covers the ground lit to 0.25 lx (:func:`lit_extent`) unless ``reach_m`` is given.
     """
     bd = distance_figure(peak, BEAM_DISTANCE_LUX)
+    half = None
     if reach_m is None:
-        reach_m = float(np.clip(1.2 * bd.value, 20.0, 400.0)) if bd.value is not None else 60.0
-    ground = ground_illuminance(beam, height_m=height_m, tilt_deg=tilt_deg, reach_m=reach_m)
+        reach_m, half = lit_extent(beam, height_m=height_m, tilt_deg=tilt_deg)
+    ground = ground_illuminance(beam, height_m=height_m, tilt_deg=tilt_deg, reach_m=reach_m, half_width_m=half)
     return Reach(bd, distance_figure(peak, BRIGHT_POINT_LUX), ground, peak)

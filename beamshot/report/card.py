@@ -47,7 +47,7 @@ def card_figure(comp, index: int, path=None):
              color=_INK)
     fig.text(0.35 / W, 1 - 0.82 / H, "beam on a wall at {:g} m, one exposure for {} lights".format(
         ex["wall_distance_m"], len(comp.lights)), ha="left", va="center", fontsize=10, color=_MUTED)
-    side = 4.2
+    side = 4.7
     ax = fig.add_axes(box((W - side) / 2, 1.05, side, side))
     tile = comp.wall_tiles[index]
     rgb = np.repeat(np.nan_to_num(tile, nan=0.0)[..., None], 3, axis=2)

@@ -29,6 +29,7 @@ RATIO_LIMIT_STOPS = 2.0
 #: Figures shown in the sheet's table (all of them are in comparison.json).
 SHEET_KEYS = ("peak_intensity", "beam_distance", "hotspot_angle", "field_angle", "spill_angle", "ra")
 _OUTSIDE = "#d9d9d9"
+_DARK_BOX = {"facecolor": "black", "alpha": 0.6, "edgecolor": "none", "pad": 1.5}
 DPI = 150
 FONT_PT = 9.0
 CAUTION_LINE = "Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft."
@@ -113,7 +114,7 @@ def _angle_rings(ax, half):
     for r in np.arange(step, half + 1e-9, step):
         ax.plot(r * np.cos(t), r * np.sin(t), color="white", lw=0.5, alpha=0.6)
     ax.text(0.03, 0.03, f"rings every {2 * step:g}° (full cone)", transform=ax.transAxes, fontsize=FONT_PT * 0.7,
-            color="white", va="bottom")
+            color="white", va="bottom", bbox=_DARK_BOX)
 
 
 def sheet_figure(comp, path=None):
@@ -162,7 +163,7 @@ def sheet_figure(comp, path=None):
         _show_wall(ax_w, comp.wall_tiles[i], half_m)
         if i == 0:
             ax_w.text(0.03, 0.97, f"wall at {ex['wall_distance_m']:g} m, ±{half_m:.1f} m", transform=ax_w.transAxes,
-                      fontsize=FONT_PT * 0.7, color="white", va="top")
+                      fontsize=FONT_PT * 0.7, color="white", va="top", bbox=_DARK_BOX)
         ax_a = fig.add_axes(box(left, top + lab_h + tile + gap, tile, tile))
         shown = np.where(comp.angular_tiles[i] > 0, comp.angular_tiles[i], norm.vmin * 1e-3)
         shown = np.where(np.isfinite(comp.angular_tiles[i]), shown, np.nan)
@@ -336,18 +337,20 @@ def difference_figure(comp, path=None):
 
 def reach_overlay_figure(comp, path=None):
     """Every light's axis illuminance against distance, and its 1 lx and 0.25 lx footprints on the ground."""
-    from ..reach import BEAM_DISTANCE_LUX, BRIGHT_POINT_LUX, DEFAULT_HEIGHT_M, DEFAULT_TILT_DEG, ground_illuminance
+    from ..reach import (BEAM_DISTANCE_LUX, BRIGHT_POINT_LUX, DEFAULT_HEIGHT_M, DEFAULT_TILT_DEG, ground_illuminance,
+                         lit_extent)
     from .reach_plots import plot_axis_illuminance
 
     plt = _pyplot()
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(7.2, 9.4), dpi=DPI, gridspec_kw={"height_ratios": (1, 1.25)})
     peaks = [(x.figures.get("peak_intensity") or {}) for x in comp.lights]
     plot_axis_illuminance([(plain(x.label, 30), p) for x, p in zip(comp.lights, peaks)], ax=ax1)
-    d_max = max((2 * np.sqrt(p["value"]) for p in peaks if p.get("value")), default=50.0)
-    reach_m = float(np.clip(1.15 * d_max, 20.0, 400.0))
+    extents = [lit_extent(x.beam, height_m=DEFAULT_HEIGHT_M, tilt_deg=DEFAULT_TILT_DEG) for x in comp.lights]
+    reach_m = max(e[0] for e in extents)
+    half_m = max(max(e[1] for e in extents), reach_m / 8)
     for i, light in enumerate(comp.lights):
         g = ground_illuminance(light.beam, height_m=DEFAULT_HEIGHT_M, tilt_deg=DEFAULT_TILT_DEG, reach_m=reach_m,
-                               n=201)
+                               half_width_m=half_m, n=301)
         st = style(i)
         e = np.where(np.isfinite(g.illuminance), g.illuminance, 0.0)
         ax2.contour(g.x_m, g.y_m, e, levels=[BEAM_DISTANCE_LUX], colors=[st["color"]], linewidths=1.0,
@@ -358,15 +361,14 @@ def reach_overlay_figure(comp, path=None):
     ax2.plot([], [], color="#555555", lw=1.8, label=f"{BRIGHT_POINT_LUX:g} lx (solid / own dash)")
     ax2.plot([], [], color="#555555", lw=1.0, ls=":", label=f"{BEAM_DISTANCE_LUX:g} lx (dotted)")
     ax2.plot([0], [0], marker="^", color="black", ms=8, ls="none", label="the light")
-    ax2.set_xlim(-reach_m / 4, reach_m / 4)
+    ax2.set_xlim(-half_m, half_m)
     ax2.set_ylim(0, reach_m)
-    ax2.set_aspect("equal")
     ax2.set_xlabel("across (m)", fontsize=FONT_PT)
     ax2.set_ylabel("ahead (m)", fontsize=FONT_PT)
     ax2.grid(True, color="#dddddd", lw=0.6)
     ax2.legend(fontsize=FONT_PT * 0.75, loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False)
     ax2.set_title(f"on flat ground, light {DEFAULT_HEIGHT_M:g} m high, tilted {DEFAULT_TILT_DEG:g}° down "
-                  "(E = I·h / r³)", fontsize=FONT_PT * 1.05, loc="left")
+                  "(E = I·h / r³); across stretched", fontsize=FONT_PT * 1.05, loc="left")
     fig.text(0.5, 0.005, CAUTION_LINE + " Never aim a light at traffic.", ha="center", va="bottom",
              fontsize=FONT_PT * 0.7, color="#444444")
     fig.tight_layout(rect=(0, 0.015, 1, 1))

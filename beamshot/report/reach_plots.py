@@ -79,7 +79,7 @@ def plot_ground(ground, *, ax=None, cbar_ax=None):
     cmap = plt.get_cmap("cividis").with_extremes(under="#000000", bad="#d9d9d9")
     shown = np.where(np.isfinite(e), np.maximum(e, norm.vmin * 1e-3), np.nan)
     im = ax.imshow(shown, origin="lower", extent=(ground.x_m[0], ground.x_m[-1], ground.y_m[0], ground.y_m[-1]),
-                   cmap=cmap, norm=norm, interpolation="bilinear", aspect="equal")
+                   cmap=cmap, norm=norm, interpolation="bilinear", aspect="auto")
     if levels:
         filled = np.where(np.isfinite(e), e, 0.0)
         cs = ax.contour(ground.x_m, ground.y_m, filled, levels=levels, colors="white", linewidths=1.0)
@@ -103,7 +103,7 @@ def reach_figure(reach, label: str, path=None):
     from .plots import _pyplot
 
     plt = _pyplot()
-    W, H = 7.2, 12.0
+    W, H = 7.2, 12.45
     fig = plt.figure(figsize=(W, H), dpi=DPI)
     fig.text(0.5, 1 - 0.3 / H, plain(label, 50), ha="center", va="center", fontsize=FONT_PT * 1.5, weight="bold")
     bd, bright = reach.beam_distance, reach.bright_distance
@@ -117,7 +117,7 @@ def reach_figure(reach, label: str, path=None):
     cax = fig.add_axes([0.12, 1 - 11.55 / H, 0.82, 0.14 / H])
     plot_ground(g, ax=ax2, cbar_ax=cax)
     ax2.set_title(f"on flat ground: light {g.height_m:g} m high, tilted {g.tilt_deg:g}° down, "
-                  "E = I·cos(i)/r² = I·h/r³", fontsize=FONT_PT * 1.0, loc="left")
+                  "E = I·cos(i)/r² = I·h/r³ (across stretched)", fontsize=FONT_PT * 1.0, loc="left")
     fig.text(0.5, 0.05 / H, CAUTION_LINE + " Never aim a light at traffic.", ha="center", va="bottom",
              fontsize=FONT_PT * 0.7, color="#444444")
     return _save(fig, path)
