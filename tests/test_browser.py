@@ -20,12 +20,11 @@ import os
 import shutil
 
 import pytest
+from conftest import make_shot
+from test_html import EVIL_FILE, EVIL_NAME, assert_visible_value, comparison_fixture
 
 from beamshot.report.output import write_report
 from beamshot.synth import HotspotSpillBeam, encode_jpeg, render_photo
-
-from conftest import make_shot
-from test_html import EVIL_FILE, EVIL_NAME, assert_visible_value, comparison_fixture
 
 CHROMIUM = os.environ.get("BEAMSHOT_CHROMIUM", "/usr/bin/chromium")
 #: Flags for a quiet, offline headless run (no sandbox: CI containers run as root).

@@ -12,16 +12,19 @@ import re
 from html.parser import HTMLParser
 
 import pytest
+from conftest import make_shot
 
 from beamshot.errors import BeamshotError
 from beamshot.report.html import HTML_FILE, report_html
+from beamshot.report.html_comparison import (
+    COMPARISON_HTML,
+    comparison_html,
+    write_comparison_html,
+)
 from beamshot.report.html_page import esc
-from beamshot.report.html_comparison import COMPARISON_HTML, comparison_html, write_comparison_html
 from beamshot.report.model import CAUTIONS
 from beamshot.report.output import REPORT_FILES, write_report
 from beamshot.synth import encode_jpeg, render_photo
-
-from conftest import make_shot
 
 #: A light name and a file name that would be markup if not escaped.
 EVIL_NAME = 'proto <script>alert("x")</script> & "co"'
@@ -78,7 +81,7 @@ def assert_self_contained(text: str) -> None:
         for name in ("src", "href", "srcset", "poster", "data", "action", "background", "xlink:href"):
             if name in attrs:
                 assert name == "src" and attrs[name].startswith("data:image/png;base64,"), (tag, name, attrs[name][:60])
-    assert not re.search(r"https?:", text, re.I)
+    assert not re.search(r"https?:", text, re.IGNORECASE)
     assert not re.search(r"""(["'(=\s])//[^\s]""", text)
     assert "url(" not in text and "@import" not in text
     assert 'http-equiv="Content-Security-Policy"' in text and "default-src 'none'" in text
@@ -110,7 +113,7 @@ def assert_visible_value(shown: str, f: dict) -> None:
     digits = m.group(0).split(".")[1] if "." in m.group(0) else ""
     half_step = 0.5 * 10 ** -len(digits) if "e" not in m.group(0) else abs(f["value"]) * 5e-3
     if f["uncertainty"]:
-        assert f"± " in shown
+        assert "± " in shown
     assert abs(printed - f["value"]) <= half_step + 1e-9 * abs(f["value"]) or \
         abs(printed - f["value"]) <= 5e-3 * abs(f["value"]), (shown, f["value"])
 
@@ -131,7 +134,7 @@ def analysed(tmp_path_factory, reflector_beam):
 
 
 def test_every_set_holds_a_self_contained_page_with_the_json_numbers(analysed):
-    report, out = analysed
+    _, out = analysed
     assert sorted(os.listdir(out)) == sorted(REPORT_FILES)
     text = (out / HTML_FILE).read_text(encoding="utf-8")
     assert_self_contained(text)
@@ -158,7 +161,7 @@ def test_every_set_holds_a_self_contained_page_with_the_json_numbers(analysed):
 
 
 def test_user_text_is_escaped(analysed):
-    report, out = analysed
+    _, out = analysed
     text = (out / HTML_FILE).read_text(encoding="utf-8")
     assert "<script" not in text.lower()
     assert "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt; &amp; &quot;co&quot;" in text  # light name
@@ -184,7 +187,7 @@ def test_relative_report_says_relative(analysed, tmp_path):
     """Without any absolute scale the page says so and labels the map and profiles relative."""
     from beamshot import analyze
 
-    report, out = analysed
+    _, out = analysed
     photo = out.parent / EVIL_FILE
     rel = analyze(str(photo), distance_m=5.0, use_exif_scale=False)
     assert rel.beam.unit != "cd"
@@ -207,7 +210,7 @@ def comparison_fixture(folder, *, labels=("prototype 1", "prototype 2"), schema=
     folder.mkdir(parents=True, exist_ok=True)
     for name in ("sheet.png", "profiles.png", "difference.png", "card-1.png", "card-2.png"):
         _png(folder / name)
-    fig = lambda v, u, unit, status="measured": {"value": v, "uncertainty": u, "unit": unit,  # noqa: E731
+    fig = lambda v, u, unit, status="measured": {"value": v, "uncertainty": u, "unit": unit,
                                                  "status": status, "label": unit}
     data = {
         "schema": schema, "schema_version": version, "created_utc": "2026-12-03T18:00:00+00:00",
@@ -251,7 +254,8 @@ def test_comparison_page_embeds_pictures_and_holds_the_json_numbers(tmp_path):
     data = comparison_fixture(folder, labels=("<script>alert(1)</script> A&B", "prototype 2"))
     path = write_comparison_html(folder)
     assert os.path.basename(path) == COMPARISON_HTML
-    text = open(path, encoding="utf-8").read()
+    with open(path, encoding="utf-8") as fh:
+        text = fh.read()
     assert_self_contained(text)
     page = parse(text)
     imgs = [a for t, a in page.tags if t == "img"]
@@ -277,7 +281,8 @@ def test_comparison_page_refuses_other_files_and_skips_unsafe_picture_names(tmp_
     _png(secret, (255, 0, 0))
     data["pictures"].update({"difference": None, "profiles": "../secret.png", "sheet": "/etc/passwd"})
     (folder / "comparison.json").write_text(json.dumps(data), encoding="utf-8")
-    text = open(write_comparison_html(folder), encoding="utf-8").read()
+    with open(write_comparison_html(folder), encoding="utf-8") as fh:
+        text = fh.read()
     assert len([t for t, _ in parse(text).tags if t == "img"]) == 2  # the cards only
     assert "is not in the folder" in text
     # another schema, a newer major version, no comparison.json: one-line BeamshotError each

@@ -22,7 +22,7 @@ from .. import vocabulary
 from ..figure import Figure
 from .html_page import esc, number_attr, page, png_data_uri, table, write_text_atomic
 
-__all__ = ["HTML_FILE", "report_html", "write_report_html", "figure_rows", "write_comparison_html"]
+__all__ = ["HTML_FILE", "figure_rows", "report_html", "write_comparison_html", "write_report_html"]
 
 HTML_FILE = "report.html"
 #: Iso-intensity lines drawn on the map besides the analysis' own 50 % and 10 % contours (fraction of peak).
@@ -111,9 +111,13 @@ def _map_png(report) -> bytes:
     """The intensity map (beamshot.report.plots) with iso-intensity lines at :data:`ISO_LEVELS` of the peak."""
     import warnings
 
-    from .plots import intensity_label, noise_floor, plot_intensity_map, _pyplot  # noqa: PLC2701 (same package)
+    import matplotlib
 
-    plt = _pyplot()
+    from .plots import intensity_label, noise_floor, plot_intensity_map
+
+    matplotlib.use("Agg", force=False)  # no display needed (as beamshot.report.plots does)
+    import matplotlib.pyplot as plt
+
     beam = report.beam
     W = MAP_WIDTH_IN
     side, cbar, cbar_lab, legend = W - 0.6, 0.16, 0.6, 1.0

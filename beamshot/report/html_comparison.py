@@ -20,7 +20,7 @@ from ..errors import BeamshotError, read_user_file
 from ..figure import Figure
 from .html_page import esc, number_attr, page, png_data_uri, table, write_text_atomic
 
-__all__ = ["COMPARISON_JSON", "COMPARISON_HTML", "comparison_html", "write_comparison_html", "read_comparison_json"]
+__all__ = ["COMPARISON_HTML", "COMPARISON_JSON", "comparison_html", "read_comparison_json", "write_comparison_html"]
 
 COMPARISON_JSON = "comparison.json"
 COMPARISON_HTML = "comparison.html"

@@ -17,7 +17,7 @@ import html
 import json
 import os
 
-__all__ = ["esc", "png_data_uri", "page", "number_attr", "table", "CSP"]
+__all__ = ["CSP", "esc", "number_attr", "page", "png_data_uri", "table"]
 
 #: Nothing may be fetched: images only from data: URIs, styles only inline, no scripts, no frames.
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'"

@@ -15,7 +15,7 @@ import numpy as np
 
 from .html_page import esc
 
-__all__ = ["svg_chart", "nice_ticks"]
+__all__ = ["nice_ticks", "svg_chart"]
 
 _W, _H = 460, 310
 _L, _R, _T, _B = 62, 12, 52, 46  # margins (SVG units)
@@ -56,7 +56,7 @@ def _fmt(x: float) -> str:
 
 
 def _thin(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    step = max(1, int(math.ceil(len(x) / MAX_POINTS)))
+    step = max(1, math.ceil(len(x) / MAX_POINTS))
     return x[::step], y[::step]
 
 
@@ -78,7 +78,7 @@ def svg_chart(series: list[tuple[str, np.ndarray, np.ndarray]], *, xlabel: str, 
         if top - bottom < 1:
             bottom = top - 1
         y0, y1 = float(bottom), float(top)
-        yt = [float(k) for k in range(int(bottom), int(top) + 1)]
+        yt = [float(k) for k in range(bottom, top + 1)]
         ylab = [_fmt(10 ** k) for k in yt]
 
         def ty(v):
@@ -98,8 +98,8 @@ def svg_chart(series: list[tuple[str, np.ndarray, np.ndarray]], *, xlabel: str, 
     def py(v):
         return _T + ph - (np.asarray(v, float) - y0) / (y1 - y0) * ph
 
-    out = [f'<svg viewBox="0 0 {_W} {_H}" role="img" '
-           f'aria-label="{esc(title)}" id="{esc(gid)}" font-family="system-ui, sans-serif" font-size="13">',
+    out = [(f'<svg viewBox="0 0 {_W} {_H}" role="img" '
+            f'aria-label="{esc(title)}" id="{esc(gid)}" font-family="system-ui, sans-serif" font-size="13">'),
            f'<rect x="{_L}" y="{_T}" width="{pw}" height="{ph}" fill="#ffffff" stroke="#b9b5aa"/>']
     for t, lab in zip(yt, ylab):
         if y0 - 1e-9 <= t <= y1 + 1e-9:
