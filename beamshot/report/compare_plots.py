@@ -27,7 +27,7 @@ MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*", "<", ">", "h", "p")
 RATIO_CMAP_COLOURS = ("#0a4a7a", "#4f9bd0", "#f7f7f7", "#f0a64a", "#8c4a00")
 RATIO_LIMIT_STOPS = 2.0
 #: Figures shown in the sheet's table (all of them are in comparison.json).
-SHEET_KEYS = ("peak_intensity", "beam_distance", "hotspot_angle", "field_angle", "spill_angle", "ra")
+SHEET_KEYS = ("peak_intensity", "beam_distance", "hotspot_angle", "spill_angle", "ra")
 _OUTSIDE = "#d9d9d9"
 _DARK_BOX = {"facecolor": "black", "alpha": 0.6, "edgecolor": "none", "pad": 1.5}
 DPI = 150
@@ -122,17 +122,19 @@ def sheet_figure(comp, path=None):
 
     Returns the matplotlib figure (closed after saving when ``path`` is given).
     """
+    import textwrap
+
     plt = _pyplot()
     n = len(comp.lights)
     cols, rows = _grid(n)
     ex = comp.exposure
     W = 7.2
     tile = (W - 0.4) / cols - 0.15
-    head_h, lab_h, gap = 1.05, 0.3, 0.12
+    head_h, lab_h, gap = 1.05, 0.45, 0.12
     block = lab_h + 2 * tile + gap * 2
     cbar_h = 0.85
-    table_h = 0.45 + 0.26 * (n + 1)
-    notes_h = 0.2 * (len(comp.notes) + 1) + 0.3
+    table_h = 0.55 + 0.3 * (n + 1)
+    notes_h = 0.16 * sum(len(textwrap.wrap(t, 125)) for t in ["Notes:", *comp.notes]) + 0.55
     H = head_h + rows * block + cbar_h + table_h + notes_h
     fig = plt.figure(figsize=(W, H), dpi=DPI)
 
@@ -157,8 +159,11 @@ def sheet_figure(comp, path=None):
         r, c = divmod(i, cols)
         left = 0.2 + c * (tile + 0.15)
         top = head_h + r * block
-        fig.text((left + tile / 2) / W, 1 - (top + lab_h / 2) / H, plain(light.label, 28), ha="center", va="center",
-                 fontsize=FONT_PT, weight="bold", color="black")
+        import textwrap
+
+        name = "\n".join(textwrap.wrap(plain(light.label, 56), 28 if cols == 3 else 44)[:2])
+        fig.text((left + tile / 2) / W, 1 - (top + lab_h / 2) / H, name, ha="center", va="center",
+                 fontsize=FONT_PT, weight="bold", color="black", linespacing=1.1)
         ax_w = fig.add_axes(box(left, top + lab_h, tile, tile))
         _show_wall(ax_w, comp.wall_tiles[i], half_m)
         if i == 0:
@@ -191,9 +196,9 @@ def sheet_figure(comp, path=None):
 
     wrapped = []
     for t in lines:
-        wrapped += textwrap.wrap(t, 150) or [""]
+        wrapped += textwrap.wrap(t, 125) or [""]
     fig.text(0.15 / W, 1 - y / H, "\n".join(plain(w, 200) for w in wrapped), ha="left", va="top",
-             fontsize=FONT_PT * 0.62, color="#333333", linespacing=1.3)
+             fontsize=FONT_PT * 0.72, color="#333333", linespacing=1.3)
     fig.text(0.5, 0.05 / H, CAUTION_LINE, ha="center", va="bottom", fontsize=FONT_PT * 0.7, color="#444444")
     # the notes block may be longer than its estimate: grow the canvas rather than clip
     return _save(fig, path)
@@ -216,7 +221,7 @@ def _figures_table(ax, comp):
     keys = [k for k in SHEET_KEYS if any(k in x.figures for x in comp.lights)]
     n = len(comp.lights) + 1
     ncol = len(keys) + 1
-    x0 = 0.2
+    x0 = 0.21
     colw = (1 - x0) / len(keys)
     y = lambda i: 1.0 - (i + 0.5) / n  # noqa: E731
     for j, k in enumerate(keys):
@@ -224,12 +229,12 @@ def _figures_table(ax, comp):
         unit = vocabulary.unit_text(t.unit)
         name = t.label.split(" (")[0]
         ax.text(x0 + (j + 0.5) * colw, y(0), f"{name}\n{('(' + unit + ')') if unit else ''}", ha="center",
-                va="center", fontsize=FONT_PT * 0.72, weight="bold", color="#333333", transform=ax.transAxes)
+                va="center", fontsize=FONT_PT * 0.85, weight="bold", color="#333333", transform=ax.transAxes)
     verdicts = _verdicts_against_first(comp)
     for i, light in enumerate(comp.lights, start=1):
         if i % 2 == 0:
             ax.axhspan(y(i) - 0.5 / n, y(i) + 0.5 / n, color="#f0f0f0", lw=0, zorder=0)
-        ax.text(0.0, y(i), plain(light.label, 22), ha="left", va="center", fontsize=FONT_PT * 0.8,
+        ax.text(0.0, y(i), plain(light.label, 20), ha="left", va="center", fontsize=FONT_PT * 0.85,
                 transform=ax.transAxes)
         for j, k in enumerate(keys):
             f = light.figures.get(k)
@@ -237,12 +242,12 @@ def _figures_table(ax, comp):
             sig = verdicts.get((i - 1, k)) == "significant"
             grey = not f or f.get("status") == "not_measured"
             ax.text(x0 + (j + 0.5) * colw, y(i), txt + (" *" if sig else ""), ha="center", va="center",
-                    fontsize=FONT_PT * 0.72, weight="bold" if sig else "normal",
+                    fontsize=FONT_PT * 0.85, weight="bold" if sig else "normal",
                     color="#8a8a8a" if grey else "black", transform=ax.transAxes)
     ax.set_ylim(0, 1)
     ax.text(0.0, -0.02, "value ± 1σ; ≈ estimate, ≥ / ≤ bound, — not measured;  * differs from the first light "
             "beyond k = 2 combined uncertainties (bounds are never compared)", transform=ax.transAxes,
-            fontsize=FONT_PT * 0.62, va="top", color="#333333")
+            fontsize=FONT_PT * 0.7, va="top", color="#333333")
     return ncol
 
 
