@@ -21,7 +21,13 @@ import shutil
 
 import pytest
 from conftest import make_shot
-from test_html import EVIL_FILE, EVIL_NAME, assert_visible_value, comparison_fixture
+from test_html import (  # noqa: F401 (fixture)
+    EVIL_FILE,
+    EVIL_NAME,
+    analysed,
+    assert_visible_value,
+    comparison_fixture,
+)
 
 from beamshot.report.output import write_report
 from beamshot.synth import HotspotSpillBeam, encode_jpeg, render_photo
@@ -103,14 +109,13 @@ def _photo(folder, beam, name, seed=1):
 
 
 @pytest.fixture(scope="module")
-def pages(tmp_path_factory, reflector_beam):
-    """A report set (hostile file and light names) and a compare folder of two lights (peaks 2x apart)."""
+def pages(tmp_path_factory, analysed):  # noqa: F811 (the fixture imported above)
+    """The report set of tests/test_html.py (hostile file and light names) and a compare folder of it
+    and a second light (half the peak, a wider hotspot)."""
     from beamshot import analyze
 
+    _, report_set = analysed
     folder = tmp_path_factory.mktemp("pages")
-    photo, lux = _photo(folder, reflector_beam, EVIL_FILE)
-    report = analyze(str(photo), distance_m=5.0, lux_at_peak=lux, light_name=EVIL_NAME)
-    write_report(report, folder / "set")
     cmp = folder / "cmp"
     try:
         from beamshot.compare import compare
@@ -125,8 +130,8 @@ def pages(tmp_path_factory, reflector_beam):
         photo2, lux2 = _photo(folder, wide, "wide.jpg", seed=2)
         second = analyze(str(photo2), distance_m=5.0, lux_at_peak=lux2, light_name="prototype 2, wide reflector")
         write_report(second, folder / "set2", picture=False)
-        compare([str(folder / "set"), str(folder / "set2")], out_dir=str(cmp))
-    return folder / "set", cmp
+        compare([str(report_set), str(folder / "set2")], out_dir=str(cmp))
+    return report_set, cmp
 
 
 @pytest.mark.parametrize("width", [DESKTOP, PHONE])

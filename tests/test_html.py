@@ -118,7 +118,7 @@ def assert_visible_value(shown: str, f: dict) -> None:
         abs(printed - f["value"]) <= 5e-3 * abs(f["value"]), (shown, f["value"])
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")  # shared with tests/test_browser.py
 def analysed(tmp_path_factory, reflector_beam):
     """One small synthetic photo with a hostile file name and light name, analysed (lux at the peak)."""
     from beamshot import analyze
