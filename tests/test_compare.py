@@ -231,3 +231,20 @@ def test_refusals_are_one_line(folders, tmp_path):
     (nomap / "intensity-map.npz").unlink()
     _one_line_refusal(["compare", a, str(nomap), *out], "no intensity map")
     assert not (tmp_path / "x").exists()
+
+
+def test_same_meter_cancels_the_shared_term(reports):
+    # GUM 5.2.2 with correlation 1: a term that is the same error in both enters as the difference of
+    # its contributions, so two equal contributions of 500 cd leave sqrt(2 * 600^2 - 2 * 500^2)
+    def light(label):
+        data = json.loads(json.dumps(reports["a1"].to_dict()))
+        data["calibration"]["absolute_scale"]["kind"] = "lux_meter"
+        data["figures"]["peak_intensity"].update(value=10000.0, uncertainty=600.0, status="measured",
+                                                 budget={"lux meter": 500.0, "noise": float(np.sqrt(600**2 - 500**2))})
+        return Light(label, f"/nowhere/{label}/report.json", data, reports["a1"].beam)
+
+    pair = [light("a"), light("b")]
+    independent = {d["figure"]: d for d in compare_figures(pair)}["peak_intensity"]
+    shared = {d["figure"]: d for d in compare_figures(pair, same_meter=True)}["peak_intensity"]
+    assert independent["combined_uncertainty"] == pytest.approx(np.sqrt(2) * 600.0, rel=1e-9)
+    assert shared["combined_uncertainty"] == pytest.approx(np.sqrt(2 * 600.0**2 - 2 * 500.0**2), rel=1e-9)
