@@ -175,6 +175,13 @@ def test_compare_command_writes_the_set(folders, tmp_path):
     fig = data["lights"][0]["figures"]["hotspot_angle"]
     assert set(fig) >= {"value", "uncertainty", "unit", "status", "label"}
     assert {d["verdict"] for d in data["differences"]} <= {"significant", "not distinguishable", "not compared"}
+    # every key written is documented in docs/compare.md (the HTML page and other readers rely on it)
+    from pathlib import Path
+
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "compare.md").read_text()
+    for part in (data, data["exposure"], data["lights"][0], data["differences"][0], data["pictures"]):
+        for key in part:
+            assert f"`{key}`" in doc or f'"{key}"' in doc, key
     pics = data["pictures"]
     assert pics["difference"] == "difference.png" and len(pics["cards"]) == 2
     from PIL import Image
