@@ -198,7 +198,11 @@ def _profiles_svg(report, figures: dict) -> str:
             marks.append((float(f["value"]), vocabulary.label(key)))
     spill = figures.get("spill_angle", {}).get("value")
     full_max = min(2 * reach, 1.25 * spill) if spill else 2 * reach
-    radial = svg_chart([("azimuthal mean", 2 * np.asarray(p.theta_deg), mean * scale)],
+    from .plots import noise_floor
+
+    noise = noise_floor(beam, (report.contours or {}).get("edge"), p)
+    level = noise.mean_level * scale if noise is not None else None
+    radial = svg_chart([("azimuthal mean", 2 * np.asarray(p.theta_deg), mean * scale)], floor=level,
                        xlabel="full cone angle (°), twice the angle from the axis", ylabel=ylabel, log_y=True,
                        x_range=(0.0, max(full_max, 1.0)), marks=marks, title="radial profile (log scale)",
                        gid="radial-profile")
@@ -208,7 +212,7 @@ def _profiles_svg(report, figures: dict) -> str:
     planes = svg_chart([("horizontal (right +)", h_ang, h_val * scale), ("vertical (up +)", v_ang, v_val * scale)],
                        xlabel="angle from the beam axis (°)", ylabel=ylabel, log_y=False, x_range=(-half, half),
                        title="horizontal and vertical planes (linear scale)", gid="plane-profiles")
-    return radial, planes
+    return radial, planes, level
 
 
 def _pictures_section(report, d: dict, picture: bool) -> str:
@@ -219,7 +223,12 @@ def _pictures_section(report, d: dict, picture: bool) -> str:
     uri = png_data_uri(_map_png(report))
     unit_note = ("intensity in cd" if report.beam.unit == "cd"
                  else "intensity relative to the peak (no absolute scale)")
-    radial, planes = _profiles_svg(report, d["figures"])
+    radial, planes, level = _profiles_svg(report, d["figures"])
+    below = (f" Values below the detection level of the dark wall beyond the spill ({_short(level)}"
+             f"{' cd' if report.beam.unit == 'cd' else ' of the peak'}: its median + 3σ) are not drawn."
+             if level else "")
+    clipped = (" The photo is clipped (overexposed) in the hatched area of the map: there the profiles show the "
+               "clipped level, not the beam." if np.any(report.beam.saturated) else "")
     return ('<section id="pictures"><h2>Map and profiles</h2><div class="pictures two">'
             f'<figure><img src="{uri}" alt="intensity map of the beam with angle rings and contours" '
             f'width="{int(MAP_WIDTH_IN * MAP_DPI)}"><figcaption>Intensity I(θ, φ) seen from behind the light, '
@@ -227,8 +236,8 @@ def _pictures_section(report, d: dict, picture: bool) -> str:
             'lines the 50 % and 10 % contours; dotted white lines are iso-intensity lines at 1 % and 0.1 % of '
             'the peak where the map reaches them above its noise floor.</figcaption></figure>'
             f'<div><figure>{radial}<figcaption>Mean over azimuth at each angle, with the hotspot, field and '
-            f'spill angles.</figcaption></figure><figure>{planes}<figcaption>Cuts through the beam axis in '
-            'the wall\'s horizontal and vertical planes.</figcaption></figure></div>'
+            f'spill angles.{esc(below)}{esc(clipped)}</figcaption></figure><figure>{planes}<figcaption>Cuts through the beam '
+            'axis in the wall\'s horizontal and vertical planes.</figcaption></figure></div>'
             '</div></section>')
 
 

@@ -62,23 +62,24 @@ def _thin(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def svg_chart(series: list[tuple[str, np.ndarray, np.ndarray]], *, xlabel: str, ylabel: str, log_y: bool,
               x_range: tuple[float, float], marks: list[tuple[float, str]] = (), title: str = "",
-              gid: str = "chart") -> str:
+              gid: str = "chart", floor: float | None = None) -> str:
     """An SVG line chart.  ``series``: (name, x, y); non-finite or (log) non-positive points break the line.
 
-    ``marks``: vertical lines at x with a short label.  Returns ``<svg>`` markup (all text escaped).
+    ``marks``: vertical lines at x with a short label.  ``floor`` (log axis): values below it (the
+    noise level) are not drawn and the axis starts at its decade.  Returns ``<svg>`` markup (all
+    text escaped).
     """
+    floor = floor if (log_y and floor is not None and math.isfinite(floor) and floor > 0) else None
     x0, x1 = x_range
     ys = [np.asarray(y, float)[(np.asarray(x, float) >= x0) & (np.asarray(x, float) <= x1)] for _, x, y in series]
-    finite = np.concatenate([y[np.isfinite(y) & ((y > 0) if log_y else True)] for y in ys] or [np.array([])])
+    low = floor if floor is not None else 0.0
+    finite = np.concatenate([y[np.isfinite(y) & ((y > low) if log_y else True)] for y in ys] or [np.array([])])
     if finite.size == 0:
         return f'<p class="note">No {esc(title or "profile")} could be drawn: no finite values.</p>'
     if log_y:
-        top = math.ceil(math.log10(finite.max()) + 1e-9)
-        bottom = max(math.floor(math.log10(max(finite.min(), 10 ** (top - MAX_DECADES)))), top - MAX_DECADES)
-        if top - bottom < 1:
-            bottom = top - 1
-        y0, y1 = float(bottom), float(top)
-        yt = [float(k) for k in range(bottom, top + 1)]
+        y1 = math.log10(finite.max()) + 0.08  # a little headroom above the largest value
+        y0 = float(max(math.floor(math.log10(finite.min())), math.floor(y1 - MAX_DECADES)))
+        yt = [float(k) for k in range(math.ceil(y0), math.floor(y1) + 1)]
         ylab = [_fmt(10 ** k) for k in yt]
 
         def ty(v):
@@ -120,7 +121,7 @@ def svg_chart(series: list[tuple[str, np.ndarray, np.ndarray]], *, xlabel: str, 
                        f'text-anchor="{"end" if right else "start"}" fill="#1f2430" font-size="11" paint-order="stroke" stroke="#ffffff" stroke-width="3">{esc(lab)}</text>')
     for i, (name, x, y) in enumerate(series):
         x, y = _thin(np.asarray(x, float), np.asarray(y, float))
-        ok = np.isfinite(y) & (x >= x0) & (x <= x1) & ((y > 0) if log_y else True)
+        ok = np.isfinite(y) & (x >= x0) & (x <= x1) & ((y > low) if log_y else True)
         with np.errstate(divide="ignore", invalid="ignore"):
             yv = np.clip(ty(np.where(ok, y, 1.0)), y0, y1)
         runs, cur = [], []
