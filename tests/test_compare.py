@@ -255,3 +255,21 @@ def test_same_meter_cancels_the_shared_term(reports):
     shared = {d["figure"]: d for d in compare_figures(pair, same_meter=True)}["peak_intensity"]
     assert independent["combined_uncertainty"] == pytest.approx(np.sqrt(2) * 600.0, rel=1e-9)
     assert shared["combined_uncertainty"] == pytest.approx(np.sqrt(2 * 600.0**2 - 2 * 500.0**2), rel=1e-9)
+
+
+@pytest.mark.filterwarnings("ignore:.*Machado et al.*:UserWarning")
+@pytest.mark.parametrize("deficiency", ["Protanomaly", "Deuteranomaly", "Tritanomaly"])
+def test_ratio_colours_stay_apart_for_colour_vision_deficiency(deficiency):
+    # Machado, Oliveira & Fernandes 2009 simulation (colour-science's matrix_cvd_Machado2009, severity 1),
+    # CIE 1976 L*a*b* distances (CIE 15:2018): the two ends of the ratio map and each end against the
+    # middle stay far apart (Delta E > 20, a clearly visible difference, common practice)
+    colour = pytest.importorskip("colour")
+    from beamshot.report.compare_plots import ratio_cmap
+
+    cmap = ratio_cmap()
+    srgb = np.array([cmap(x)[:3] for x in (0.0, 0.5, 1.0)])
+    linear = colour.models.eotf_sRGB(srgb)  # IEC 61966-2-1 decoding
+    seen = np.clip(linear @ colour.matrix_cvd_Machado2009(deficiency, 1.0).T, 0, 1)
+    lab = colour.XYZ_to_Lab(colour.sRGB_to_XYZ(colour.models.eotf_inverse_sRGB(seen)))
+    de = lambda i, j: float(np.linalg.norm(lab[i] - lab[j]))  # noqa: E731
+    assert de(0, 2) > 20 and de(0, 1) > 20 and de(1, 2) > 20
