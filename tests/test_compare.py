@@ -257,7 +257,7 @@ def test_same_meter_cancels_the_shared_term(reports):
     assert shared["combined_uncertainty"] == pytest.approx(np.sqrt(2 * 600.0**2 - 2 * 500.0**2), rel=1e-9)
 
 
-@pytest.mark.filterwarnings("ignore:.*Machado et al.*:UserWarning")
+@pytest.mark.filterwarnings("ignore:.*Machado et al.*")
 @pytest.mark.parametrize("deficiency", ["Protanomaly", "Deuteranomaly", "Tritanomaly"])
 def test_ratio_colours_stay_apart_for_colour_vision_deficiency(deficiency):
     # Machado, Oliveira & Fernandes 2009 simulation (colour-science's matrix_cvd_Machado2009, severity 1),
