@@ -221,7 +221,8 @@ def comparison_fixture(folder, *, labels=("prototype 1", "prototype 2"), schema=
             {"label": labels[0], "report": "../p1/report.json", "unit": "cd", "distance_m": 5.0,
              "scale": "lux_meter", "card": "card-1.png",
              "figures": {"peak_intensity": fig(12000.0, 600.0, "cd"), "hotspot_angle": fig(8.07, 0.41, "deg"),
-                         "spill_flux": fig(None, None, "lm", "not_measured")}},
+                         "spill_flux": {**fig(None, None, "lm", "not_measured"),
+                                        "reason": "no absolute scale <here>"}}, "clipped": True},
             {"label": labels[1], "report": "../p2/report.json", "unit": "cd", "distance_m": 5.0,
              "scale": "lux_meter", "card": "card-2.png",
              "figures": {"peak_intensity": fig(6100.0, 300.0, "cd"), "hotspot_angle": fig(8.2, 0.4, "deg"),
@@ -272,6 +273,8 @@ def test_comparison_page_embeds_pictures_and_holds_the_json_numbers(tmp_path):
     visible = " ".join(page.text)
     assert "-5,900 ± 670 cd" in visible and "+0.13 ± 0.57°" in visible  # b - a with its sign, GUM rounding
     assert "not measured in prototype 1" in visible and all(c in visible for c in CAUTIONS)
+    assert "spill flux: no absolute scale <here>" in visible  # the reason a figure is missing, escaped
+    assert "yes: its brightest part is a lower bound" in visible  # the clipped light
 
 
 def test_comparison_page_refuses_other_files_and_skips_unsafe_picture_names(tmp_path):

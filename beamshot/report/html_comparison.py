@@ -109,7 +109,16 @@ def _figures_table(lights: list[dict]) -> str:
         cls = "part" if t.part_of else ""
         rows.append(f'<tr class="{cls}"><td>{esc(t.label)}</td>{"".join(cells)}</tr>')
     head = ["figure"] + [str(li.get("label", f"light {i + 1}")) for i, li in enumerate(lights)]
-    return table(head, rows, cls="compare-figures")
+    why = []
+    for i, li in enumerate(lights):
+        for key in keys:
+            f = _dict(_dict(li.get("figures")).get(key))
+            if f.get("reason"):
+                why.append(f"<li><strong>{esc(li.get('label', f'light {i + 1}'))}</strong>, "
+                           f"{esc(vocabulary.label(key))}: {esc(f['reason'])}</li>")
+    folded = (f"<details><summary>Why a figure is not measured or only a bound ({len(why)})</summary>"
+              f'<ul class="reasons">{"".join(why)}</ul></details>' if why else "")
+    return table(head, rows, cls="compare-figures") + folded
 
 
 def _differences_tables(diffs: list[dict]) -> str:
@@ -145,9 +154,24 @@ def _differences_tables(diffs: list[dict]) -> str:
     return "".join(out)
 
 
+def _clipped_text(clipped) -> str:
+    if clipped is None:
+        return "—"
+    return "yes: its brightest part is a lower bound" if clipped else "no"
+
+
+#: Unit suffixes of JSON keys (docs/report-schema.md convention: the unit is in the key's name).
+_KEY_UNITS = (("_m", " m"), ("_deg", "°"), ("_px", " px"), ("_lx", " lx"))
+
+
 def _facts(d: dict) -> str:
     items = []
     for k, v in d.items():
+        k = str(k)
+        for suffix, unit in _KEY_UNITS:
+            if k.endswith(suffix) and _num(v) is not None:
+                k, v = k[: -len(suffix)], f"{_num(v):g}{unit}"
+                break
         if isinstance(v, dict):
             v = ", ".join(f"{a}: {b}" for a, b in v.items())
         elif isinstance(v, bool):
@@ -203,9 +227,11 @@ def comparison_html(data: dict, out_dir) -> str:
                   f'{esc(li.get("report", ""))}</code></td><td data-label="unit">{esc(li.get("unit", ""))}</td>'
                   f'<td data-label="wall distance">{esc(li.get("distance_m", ""))}'
                   f'{" m" if _num(li.get("distance_m")) is not None else ""}</td>'
-                  f'<td data-label="scale">{esc(li.get("scale", ""))}</td></tr>' for lab, li in zip(labels, lights)]
+                  f'<td data-label="scale">{esc(li.get("scale", ""))}</td>'
+                  f'<td data-label="clipped">{_clipped_text(li.get("clipped"))}</td></tr>'
+                  for lab, li in zip(labels, lights)]
     sections.append('<section id="inputs"><h2>Lights and rendering</h2>'
-                    + table(["label", "report", "unit", "wall distance", "scale"], light_rows, cls="stack")
+                    + table(["label", "report", "unit", "wall distance", "scale", "clipped"], light_rows, cls="stack")
                     + "<h3>Common exposure</h3>" + _facts(_dict(data.get("exposure"))) + "</section>")
     cards = [c for c in _list(pics.get("cards"))]
     if cards:
