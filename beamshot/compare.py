@@ -145,19 +145,21 @@ def resolve_labels(n: int, labels) -> list[str | None]:
 
 
 def _unique_labels(lights: list[Light], notes: list[str]) -> list[Light]:
+    """Lights sharing a label get ' #2', ' #3'... in order, with one note naming them."""
     from dataclasses import replace
 
     seen: dict[str, int] = {}
-    out = []
+    out, renamed = [], []
     for light in lights:
         k = seen.get(light.label, 0) + 1
         seen[light.label] = k
         if k > 1:
-            new = f"{light.label} #{k}"
-            notes.append(f"two lights are called '{light.label}': the later one is shown as '{new}' "
-                         "(give --label to name them)")
-            light = replace(light, label=new)
+            light = replace(light, label=f"{light.label} #{k}")
+            renamed.append(light.label)
         out.append(light)
+    if renamed:
+        shown = ", ".join(f"'{r}'" for r in renamed[:4]) + (", ..." if len(renamed) > 4 else "")
+        notes.append(f"lights with the same name are numbered in the order given ({shown}); give --label to name them")
     return out
 
 

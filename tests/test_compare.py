@@ -273,3 +273,9 @@ def test_ratio_colours_stay_apart_for_colour_vision_deficiency(deficiency):
     lab = colour.XYZ_to_Lab(colour.sRGB_to_XYZ(colour.models.eotf_inverse_sRGB(seen)))
     de = lambda i, j: float(np.linalg.norm(lab[i] - lab[j]))  # noqa: E731
     assert de(0, 2) > 20 and de(0, 1) > 20 and de(1, 2) > 20
+
+
+def test_same_names_are_numbered_with_one_note(reports):
+    comp = build_comparison([_light(reports["a1"], "p"), _light(reports["a2"], "p"), _light(reports["half"], "p")])
+    assert [x.label for x in comp.lights] == ["p", "p #2", "p #3"]
+    assert sum("same name" in n for n in comp.notes) == 1

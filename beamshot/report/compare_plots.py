@@ -135,7 +135,7 @@ def sheet_figure(comp, path=None):
     cbar_h = 0.85
     table_h = 0.55 + 0.3 * (n + 1)
     notes_h = 0.16 * sum(len(textwrap.wrap(t, 125)) for t in ["Notes:", *comp.notes]) + 0.55
-    H = head_h + rows * block + cbar_h + table_h + notes_h
+    H = head_h + rows * block + cbar_h + table_h + 0.1 + notes_h
     fig = plt.figure(figsize=(W, H), dpi=DPI)
 
     def box(left, top, width, height):
@@ -190,7 +190,7 @@ def sheet_figure(comp, path=None):
     y += cbar_h
     ax_t = fig.add_axes(box(0.15, y, W - 0.3, table_h - 0.1))
     _figures_table(ax_t, comp)
-    y += table_h
+    y += table_h + 0.1
     lines = ["Notes:"] + [f"· {t}" for t in comp.notes]
     import textwrap
 
