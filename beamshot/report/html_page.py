@@ -109,10 +109,18 @@ footer { color: var(--muted); font-size: 0.82rem; text-align: center; padding: 1
 def esc(value) -> str:
     """Text from anywhere, safe in HTML text and in quoted attributes (``html.escape``, quotes too).
 
+    A file name that is not valid UTF-8 (its bytes kept as lone surrogates by ``os.fsdecode``)
+    shows U+FFFD for each such byte instead of failing when the page is written.
+
     >>> esc('<script>alert("x")</script> & co')
     '&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt; &amp; co'
+    >>> esc("bad" + chr(0xDCFF) + "name.jpg") == "bad" + chr(0xFFFD) + "name.jpg"
+    True
     """
-    return html.escape("" if value is None else str(value), quote=True)
+    text = "" if value is None else str(value)
+    if any(0xD800 <= ord(ch) <= 0xDFFF for ch in text):
+        text = "".join("\ufffd" if 0xD800 <= ord(ch) <= 0xDFFF else ch for ch in text)
+    return html.escape(text, quote=True)
 
 
 def number_attr(x) -> str:
