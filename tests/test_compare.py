@@ -279,3 +279,21 @@ def test_same_names_are_numbered_with_one_note(reports):
     comp = build_comparison([_light(reports["a1"], "p"), _light(reports["a2"], "p"), _light(reports["half"], "p")])
     assert [x.label for x in comp.lights] == ["p", "p #2", "p #3"]
     assert sum("same name" in n for n in comp.notes) == 1
+
+
+def test_wall_view_follows_the_cosine_cubed_law_and_keeps_up_at_the_top():
+    from beamshot.compare import angular_intensity, wall_illuminance
+
+    from conftest import analytic_map
+
+    # REFERENCES appendix A4 (inverse-square and cosine laws, E = I cos^3(theta) / D^2):
+    # 1000 cd, D = 5 m, theta = 30 deg -> 25.9808 lx
+    uniform = analytic_map(lambda t, p: np.full_like(t, 1000.0), theta_max_deg=60.0)
+    half = 5.0 * np.tan(np.radians(30.0))
+    e = wall_illuminance(uniform, half, 5.0, n=3)  # pixels at -half, 0, +half
+    assert e[1, 2] == pytest.approx(25.9808, abs=1e-4) and e[1, 1] == pytest.approx(1000 / 25, abs=1e-9)
+    # a beam brighter upward (phi = 90 deg, counter-clockwise from the right seen from behind the light)
+    # is brighter in row 0 of both tiles, and brighter to the right (phi = 0) in the last column
+    upward = analytic_map(lambda t, p: 1000.0 * (1 + 0.5 * np.sin(p) + 0.2 * np.cos(p)), theta_max_deg=60.0)
+    for tile in (wall_illuminance(upward, 2.0, 5.0, n=101), angular_intensity(upward, 20.0, n=101)):
+        assert tile[2, 50] > tile[-3, 50] and tile[50, -3] > tile[50, 2]
