@@ -268,7 +268,8 @@ def _not_comparable(fa: dict, fb: dict, la: str, lb: str) -> str | None:
     for f, who in ((fa, la), (fb, lb)):
         st = f.get("status")
         if st in ("lower_bound", "upper_bound"):
-            return (f"only {'a lower' if st == 'lower_bound' else 'an upper'} bound for {who}: a bound is not a value with an uncertainty, "
+            which = "a lower" if st == "lower_bound" else "an upper"
+            return (f"only {which} bound for {who}: a bound is not a value with an uncertainty, "
                     "so a difference to it cannot be tested")
     for f, who in ((fa, la), (fb, lb)):
         if f.get("uncertainty") is None:
@@ -322,8 +323,7 @@ def build_comparison(lights: list[Light], *, wall_distance_m: float = WALL_DISTA
         notes.append(f"not every light is in cd ({', '.join(rel)} relative: no lux reading, camera constant or "
                      "exposure metadata): every map is normalised to its own peak, so the pictures compare beam "
                      "shapes, not brightness")
-    estimated = [x.label for x in lights if x.unit == "cd"
-                 and ((x.report.get("calibration") or {}).get("absolute_scale") or {}).get("kind") == "exposure_metadata"]
+    estimated = [x.label for x in lights if x.unit == "cd" and _scale_kind(x) == "exposure_metadata"]
     if absolute and estimated:
         notes.append(f"the absolute scale of {', '.join(estimated)} is estimated from exposure metadata (about "
                      "±28 %): brightness differences in the pictures carry that uncertainty")
@@ -393,6 +393,11 @@ def build_comparison(lights: list[Light], *, wall_distance_m: float = WALL_DISTA
                       created_utc=dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds"))
 
 
+def _scale_kind(light: Light):
+    """The report's ``calibration.absolute_scale.kind`` (None when absent)."""
+    return ((light.report.get("calibration") or {}).get("absolute_scale") or {}).get("kind")
+
+
 def _slug(text: str) -> str:
     s = re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")
     return s[:32] or "light"
@@ -419,7 +424,7 @@ def comparison_dict(comp: Comparison, out_dir: str, *, reach: bool = True) -> di
         lights.append({"label": x.label,
                        "report": os.path.relpath(os.path.abspath(x.report_path), os.path.abspath(out_dir)),
                        "unit": x.unit, "distance_m": settings.get("distance_m", x.beam.distance_m),
-                       "scale": ((x.report.get("calibration") or {}).get("absolute_scale") or {}).get("kind"),
+                       "scale": _scale_kind(x),
                        "clipped": x.clipped, "card": card, "figures": figs})
     cautions = list(CAUTIONS)
     for x in comp.lights:

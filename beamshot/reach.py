@@ -68,7 +68,8 @@ def distance_figure(peak: Figure, lux: float) -> Figure:
     """
     method = f"sqrt(I_peak / {lux:g} lx) on the beam axis (inverse-square law)"
     if peak.value is None or peak.unit != "cd" or peak.status == "not_measured":
-        return not_measured("m", method, "the peak intensity is not in cd (" + (peak.reason or "no absolute scale") + ")")
+        why = peak.reason or "no absolute scale"
+        return not_measured("m", method, f"the peak intensity is not in cd ({why})")
     d = axis_distance_m(peak.value, lux)
     u = None if peak.uncertainty is None else d * peak.uncertainty / (2.0 * peak.value)
     budget = tuple((k, d * v / (2.0 * peak.value)) for k, v in peak.budget) if peak.budget else ()

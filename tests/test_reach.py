@@ -85,7 +85,7 @@ def test_lit_extent_and_reach_of():
     # uniform 1000 cd cone to 40 deg, level 0.25 lx: I h / r^3 = 0.25 -> r = (1000 * 1.5 / 0.25)^(1/3) = 18.17 m
     beam = analytic_map(lambda t, p: np.where(t < np.radians(40.0), 1000.0, 0.0))
     beam = beam.scaled(1.0, "cd")
-    ahead, side = lit_extent(beam, height_m=1.5, tilt_deg=0.0)
+    ahead, _ = lit_extent(beam, height_m=1.5, tilt_deg=0.0)
     r = (1000 * 1.5 / 0.25) ** (1 / 3)
     far = np.sqrt(r**2 - 1.5**2)
     assert 1.15 * far <= ahead <= 1.15 * far + 2 * 400 / 320 + 1e-9

@@ -145,7 +145,7 @@ def sheet_figure(comp, path=None):
     fig.text(0.5, 1 - 0.28 / H, f"{n} lights at one exposure", ha="center", va="center", fontsize=FONT_PT * 1.5,
              weight="bold")
     full = (f"full scale {ex['full_scale']:.3g} lx (the brightest, {plain(ex['full_scale_light'], 30)})"
-            if comp.absolute else f"full scale: each light's own peak")
+            if comp.absolute else "full scale: each light's own peak")
     fig.text(0.5, 1 - 0.58 / H, f"{mode} · wall at {ex['wall_distance_m']:g} m, {full}",
              ha="center", va="center", fontsize=FONT_PT * 0.85, color="#333333")
     fig.text(0.5, 1 - 0.82 / H, f"tone: sRGB encoding (IEC 61966-2-1) · maps: ±{ex['half_angle_deg']:.0f}° "
