@@ -101,8 +101,13 @@ dl.facts dd { margin: 0; overflow-wrap: anywhere; }
   body { font-size: 15px; }
 }
 table.settings td:first-child code { white-space: nowrap; word-break: normal; overflow-wrap: normal; }
+table.compare-figures td:first-child, table.compare-figures th:first-child { position: sticky; left: 0;
+  background: var(--card); z-index: 1; box-shadow: 1px 0 0 var(--rule); }
+table.compare-figures thead th:first-child { background: var(--band); }
+.narrow-only { display: none; }
 details summary { cursor: pointer; color: var(--accent); margin: 0.4rem 0; }
 footer { color: var(--muted); font-size: 0.82rem; text-align: center; padding: 1rem; }
+@media (max-width: 640px) { .narrow-only { display: block; } }
 """
 
 
