@@ -89,6 +89,7 @@ def _budget_details(figures: dict) -> str:
         if not b:
             continue
         unit = vocabulary.unit_text(f.get("unit", ""))
+        unit = unit if unit in ("°", "") else f" {unit}"
         items = "".join(f"<tr><td>{esc(src)}</td><td class=\"num\">{esc(_short(u))}{esc(unit)}</td></tr>"
                         for src, u in b.items())
         parts.append(f"<h3>{esc(vocabulary.label(key))}</h3><div class=\"scroll\"><table><tbody>{items}"
