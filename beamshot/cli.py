@@ -405,7 +405,7 @@ def demo(out_dir):
     from .demo import DEMO_LIGHTS
 
     start = time.perf_counter()
-    ours = {"photos"} | {light.name for light in DEMO_LIGHTS}
+    ours = {"photos", "comparison"} | {light.name for light in DEMO_LIGHTS}
     if os.path.isdir(out_dir):
         foreign = sorted(set(os.listdir(out_dir)) - ours)
         if foreign:
@@ -446,6 +446,12 @@ def demo(out_dir):
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}{os.sep}")
     click.echo("\n≈ marks an estimate: most of its uncertainty comes from an assumption (here the assumed tone "
                "curve and lens shading of an uncalibrated camera); see each report's warnings")
+    from .compare import compare as run_compare
+
+    folders = [os.path.join(out_dir, light["name"]) for light, _ in rows]
+    run_compare(folders, out_dir=os.path.join(out_dir, "comparison"))
+    click.echo(f"compared at one exposure (beamshot compare {' '.join(folders)} --out "
+               f"{os.path.join(out_dir, 'comparison')}): {os.path.join(out_dir, 'comparison', 'sheet.png')}")
     click.echo(f"done in {time.perf_counter() - start:.1f} s; open {os.path.join(out_dir, '*', 'beam.png')}")
 
 
@@ -714,6 +720,13 @@ from .batch_cli import batch as _batch  # noqa: E402 - imports only click; the e
 
 _batch.short_help = "Analyze every row of a manifest on all cores, resumably."
 cli.add_command(_batch)
+
+from .compare_cli import compare as _compare, reach as _reach  # noqa: E402 - imports only click
+
+_compare.short_help = "Compare 2-12 lights at one common exposure."
+_reach.short_help = "How far and wide a light reaches: axis and ground illuminance."
+cli.add_command(_compare)
+cli.add_command(_reach)
 
 
 def main(argv=None):

@@ -119,7 +119,7 @@ def test_csv_batch_figures_follow_the_inputs(local_run, shots):
     for key in FIGURES:
         assert {key, f"{key}_uncertainty", f"{key}_unit", f"{key}_status"} <= set(header)
     for r in rows:
-        assert sorted(os.listdir(os.path.join(local_run, r["folder"]))) == ["intensity-map.npz", "profile.csv", "report.json"]
+        assert sorted(os.listdir(os.path.join(local_run, r["folder"]))) == ["intensity-map.npz", "profile.csv", "report.html", "report.json"]
 
 
 def test_toml_gives_the_same_summary_as_csv(local_run, shots, tmp_path):
@@ -296,7 +296,7 @@ def test_killed_three_times_and_resumed_does_every_item_once(shots, tmp_path):
         assert mine.count("start") >= 1
         # one whole set from one run: only our files, written together (a mix would span runs, seconds apart)
         path = os.path.join(out, r["folder"])
-        assert sorted(os.listdir(path)) == ["intensity-map.npz", "profile.csv", "report.json"]
+        assert sorted(os.listdir(path)) == ["intensity-map.npz", "profile.csv", "report.html", "report.json"]
         times = [os.stat(os.path.join(path, n)).st_mtime for n in ("profile.csv", "report.json")]
         assert max(times) - min(times) < 1.5  # a restarted run needs longer than this to write again
         assert r["figures"]["hotspot_angle"]["value"] is not None

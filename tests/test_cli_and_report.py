@@ -43,7 +43,7 @@ def test_analyze_writes_report(photos, tmp_path):
                                    "--lux", f"{truth['peak_lux_on_wall']:.0f}", "--out", str(out)])
     assert res.exit_code == 0, res.output
     assert "hotspot angle" in res.output and "cd" in res.output
-    assert sorted(os.listdir(out)) == ["beam.png", "intensity-map.npz", "profile.csv", "report.json"]
+    assert sorted(os.listdir(out)) == ["beam.png", "intensity-map.npz", "profile.csv", "report.html", "report.json"]
     data = read_report_json(out / "report.json")
     assert data["schema"] == "beamshot.report" and data["schema_version"].startswith("1.")
     assert data["inputs"][0]["sha256"] and data["inputs"][0]["exif"]["iso"] == 100.0

@@ -65,10 +65,10 @@ def test_new_set_replaces_the_old_one_whole(tmp_path, reports):
     out = tmp_path / "X"
     write_report(reports[0], out)
     assert sorted(os.listdir(out)) == sorted(REPORT_FILES)
-    # a set without a picture replaces the three files as a set: no beam.png of the old set stays
+    # a set without a picture replaces the files as a set: no beam.png of the old set stays (the page stays, without pictures)
     written = write_report(reports[1], out, picture=False)
-    assert sorted(os.listdir(out)) == ["intensity-map.npz", "profile.csv", "report.json"]
-    assert sorted(os.path.basename(p) for p in written) == ["intensity-map.npz", "profile.csv", "report.json"]
+    assert sorted(os.listdir(out)) == ["intensity-map.npz", "profile.csv", "report.html", "report.json"]
+    assert sorted(os.path.basename(p) for p in written) == ["intensity-map.npz", "profile.csv", "report.html", "report.json"]
     data = json.loads((out / "report.json").read_text())
     assert data["inputs"][0]["sha256"] == reports[1].inputs[0]["sha256"]
     assert _ours(tmp_path) == []
@@ -149,7 +149,7 @@ def test_died_between_the_two_renames_is_put_right(tmp_path, reports):
     aside = tmp_path / f".beamshot-old-{key}-999999-0123abcd"
     os.rename(out, aside)  # the first rename of the fallback swap done, the second never happened
     output._tidy(str(tmp_path), key, str(out))
-    assert sorted(os.listdir(out)) == ["intensity-map.npz", "profile.csv", "report.json"] and _ours(tmp_path) == []
+    assert sorted(os.listdir(out)) == ["intensity-map.npz", "profile.csv", "report.html", "report.json"] and _ours(tmp_path) == []
     # and when the new set already stands, a set-aside old one is removed by the next run
     shutil.copytree(out, aside)
     write_report(reports[1], out, picture=False)

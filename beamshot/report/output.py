@@ -1,4 +1,4 @@
-"""Write a BeamReport to a folder as one set: report.json, profile.csv, intensity-map.npz, beam.png.
+"""Write a BeamReport to a folder as one set: report.json, profile.csv, intensity-map.npz, beam.png, report.html.
 
 A reader of ``--out`` sees the old set or the new set, never a mix, and nothing of ours is
 left beside it:
@@ -52,7 +52,7 @@ if TYPE_CHECKING:  # imported lazily: the command line imports this module's Ter
 __all__ = ["REPORT_FILES", "STALE_AFTER_S", "LOCK_WAIT_S", "Terminated", "write_report", "write_json",
            "write_profile_csv", "read_report_json", "output_key"]
 
-REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png")
+REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png", "report.html")
 #: Our temporary and set-aside folders of *other* outputs are removed once older than this (s).
 STALE_AFTER_S = 24 * 3600.0
 #: How long a run waits for another run writing the same --out before refusing (s).
@@ -302,6 +302,7 @@ def _sigterm_as_exception():
 def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[str]:
     """Write all report files into ``out_dir`` as one set, replacing an older set whole; returns
     their paths.  Refuses (:class:`BeamshotError`) a folder holding files beamshot did not write."""
+    from .html import HTML_FILE, write_report_html
     from .intensity_map import MAP_FILE, write_intensity_map
     from .plots import beam_figure
 
@@ -350,6 +351,8 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
                 if picture:
                     beam_figure(report, os.path.join(tmp, "beam.png"))
+                # the page is always written (without pictures it holds the tables and says so)
+                write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture)
                 _fsync_files(tmp)
                 if os.path.isdir(out):  # the new set keeps the folder's permissions (a private folder stays private)
                     os.chmod(tmp, stat.S_IMODE(os.stat(out).st_mode))
