@@ -20,13 +20,13 @@ import numpy as np
 
 from .. import vocabulary
 from ..figure import Figure
+from .plots import ISO_LEVELS  # noqa: F401 - the levels the map draws, named in its caption
 from .html_page import esc, number_attr, page, png_data_uri, table, write_text_atomic
 
 __all__ = ["HTML_FILE", "figure_rows", "report_html", "write_comparison_html", "write_report_html"]
 
 HTML_FILE = "report.html"
 #: Iso-intensity lines drawn on the map besides the analysis' own 50 % and 10 % contours (fraction of peak).
-ISO_LEVELS = (0.01, 0.001)
 #: Map picture: width in inches and resolution (about 800 px wide, sharp when shown 400-600 px wide).
 MAP_WIDTH_IN, MAP_DPI = 5.4, 150
 
@@ -109,7 +109,8 @@ def _short(x) -> str:
 # ------------------------------------------------------------------------------- pictures
 
 def _map_png(report) -> bytes:
-    """The intensity map (beamshot.report.plots) with iso-intensity lines at :data:`ISO_LEVELS` of the peak."""
+    """The intensity map drawn on its own (beamshot.report.plots), for a page written without beam.png's
+    drawing at hand; :func:`beamshot.report.output.write_report` passes the map panel of beam.png instead."""
     import warnings
 
     import matplotlib
@@ -134,49 +135,14 @@ def _map_png(report) -> bytes:
     unit = "cd" if beam.unit == "cd" else "relative"
     label = intensity_label(report, unit)
     noise = noise_floor(beam, (report.contours or {}).get("edge"), report.profile)
-    im = plot_intensity_map(beam, report.contours, ax=ax, noise=noise, label=label, cbar_ax=ax_cb, legend_ax=ax_leg,
-                            fontsize=10.0)
-    _iso_lines(ax, beam, im)
+    plot_intensity_map(beam, report.contours, ax=ax, noise=noise, label=label, cbar_ax=ax_cb, legend_ax=ax_leg,
+                       fontsize=10.0)
     buf = io.BytesIO()
     with warnings.catch_warnings():
         warnings.filterwarnings("ignore", message="Glyph .* missing from font")
         fig.savefig(buf, format="png", dpi=MAP_DPI, pil_kwargs={"compress_level": 6})
     plt.close(fig)
     return buf.getvalue()
-
-
-def _iso_lines(ax, beam, im) -> None:
-    """Thin labelled iso-intensity lines at :data:`ISO_LEVELS` x peak, where they lie above the map's floor.
-
-    The map is looked up at the nearest cell of the azimuthal-equidistant grid the picture shows
-    (x = theta cos phi, y = theta sin phi, degrees).
-    """
-    x0, x1 = ax.get_xlim()
-    a = np.linspace(x0, x1, 301)
-    xx, yy = np.meshgrid(a, a)
-    th = np.radians(np.hypot(xx, yy))
-    k = np.round((th - beam.theta[0]) / beam.d_theta).astype(int)
-    j = np.round((np.mod(np.arctan2(yy, xx), 2 * np.pi) - beam.phi[0]) / beam.d_phi).astype(int) % len(beam.phi)
-    inside = k < len(beam.theta)
-    vals = np.full(xx.shape, np.nan)
-    vals[inside] = beam.intensity[np.clip(k[inside], 0, None), j[inside]]
-    finite = vals[np.isfinite(vals)]
-    if finite.size == 0:
-        return
-    peak = float(np.max(finite))
-    if not peak > 0:
-        return
-    floor = float(im.norm.vmin) / (1.0 / peak if beam.unit != "cd" else 1.0)
-    levels = [lv for lv in sorted(ISO_LEVELS) if lv * peak > floor]
-    if not levels:
-        return
-    from scipy.ndimage import gaussian_filter
-
-    rel = np.where(np.isfinite(vals), vals / peak, np.nan)
-    smooth = gaussian_filter(np.nan_to_num(rel, nan=0.0), 1.0)  # one grid step: keeps noise from fraying the line
-    smooth[~np.isfinite(rel)] = np.nan
-    cs = ax.contour(a, a, smooth, levels=levels, colors="white", linewidths=0.8, linestyles="dotted", zorder=5)
-    ax.clabel(cs, fmt={lv: f"{lv * 100:g} %" for lv in levels}, fontsize=8, colors="white", inline=True)
 
 
 def _profiles_svg(report, figures: dict) -> str:
@@ -216,12 +182,12 @@ def _profiles_svg(report, figures: dict) -> str:
     return radial, planes, level
 
 
-def _pictures_section(report, d: dict, picture: bool) -> str:
+def _pictures_section(report, d: dict, picture: bool, map_png: bytes | None = None) -> str:
     if not picture:
         return ('<section id="pictures"><h2>Map and profiles</h2><p class="note">Pictures were turned off for '
                 'this analysis (no map or profile drawn); the numbers are in the table above and in profile.csv '
                 'and intensity-map.npz beside this page.</p></section>')
-    uri = png_data_uri(_map_png(report))
+    uri = png_data_uri(map_png if map_png is not None else _map_png(report))
     unit_note = ("intensity in cd" if report.beam.unit == "cd"
                  else "intensity relative to the peak (no absolute scale)")
     radial, planes, level = _profiles_svg(report, d["figures"])
@@ -328,8 +294,10 @@ def cautions_section(cautions) -> str:
 
 # ------------------------------------------------------------------------------- the page
 
-def report_html(report, *, picture: bool = True) -> str:
-    """The whole report page as text.  With ``picture=False`` no map or profile is drawn (says so)."""
+def report_html(report, *, picture: bool = True, map_png: bytes | None = None) -> str:
+    """The whole report page as text.  With ``picture=False`` no map or profile is drawn (says so);
+    ``map_png``, the map panel already drawn for beam.png (:func:`beamshot.report.plots.beam_pictures`),
+    saves drawing it again."""
     from .model import CAUTIONS
 
     d = report.to_dict()
@@ -341,7 +309,7 @@ def report_html(report, *, picture: bool = True) -> str:
            if beams and name else "",
            f"wall at {s['distance_m']:g} m" if s.get("distance_m") else "",
            "absolute scale (cd)" if report.beam.unit == "cd" else "relative scale (no cd)"]
-    sections = [_figures_section(d), _pictures_section(report, d, picture), warnings_section(d.get("warnings", [])),
+    sections = [_figures_section(d), _pictures_section(report, d, picture, map_png), warnings_section(d.get("warnings", [])),
                 _inputs_section(d), cautions_section(CAUTIONS)]
     tool = d.get("tool", {})
     footer = (f"beamshot {tool.get('version', '')} · report schema {d.get('schema_version', '')} · "
@@ -349,6 +317,6 @@ def report_html(report, *, picture: bool = True) -> str:
     return page(f"{title}: beam report", " · ".join(x for x in sub if x), sections, footer)
 
 
-def write_report_html(report, path, *, picture: bool = True) -> None:
+def write_report_html(report, path, *, picture: bool = True, map_png: bytes | None = None) -> None:
     """Write :func:`report_html` to ``path`` (UTF-8)."""
-    write_text_atomic(path, report_html(report, picture=picture))
+    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png))

@@ -304,7 +304,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
     their paths.  Refuses (:class:`BeamshotError`) a folder holding files beamshot did not write."""
     from .html import HTML_FILE, write_report_html
     from .intensity_map import MAP_FILE, write_intensity_map
-    from .plots import beam_figure
+    from . import plots
 
     out_arg = os.fspath(out_dir)
     out = os.path.abspath(out_arg)
@@ -349,10 +349,13 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 write_json(report, os.path.join(tmp, "report.json"))
                 write_profile_csv(report, os.path.join(tmp, "profile.csv"))
                 write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
-                if picture:
-                    beam_figure(report, os.path.join(tmp, "beam.png"))
+                map_png = None
+                if picture:  # one drawing: beam.png, and its map panel for the page
+                    png, map_png = plots.beam_pictures(report)
+                    with open(os.path.join(tmp, "beam.png"), "wb") as fh:
+                        fh.write(png)
                 # the page is always written (without pictures it holds the tables and says so)
-                write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture)
+                write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png)
                 _fsync_files(tmp)
                 if os.path.isdir(out):  # the new set keeps the folder's permissions (a private folder stays private)
                     os.chmod(tmp, stat.S_IMODE(os.stat(out).st_mode))

@@ -68,6 +68,8 @@ FONT_PT = 11.0
 #: zlib level of beam.png (lossless at any level): 3 writes it in about half the time of the
 #: default 6 for a file about 5 % larger (measured on the report picture; speed choice).
 PNG_COMPRESS_LEVEL = 3
+#: Iso-intensity lines drawn on the map, as fractions of the peak (beside the 50 % and 10 % contours).
+ISO_LEVELS = (0.01, 0.001)
 
 # Colours: cividis (perceptually uniform, made for colour-vision deficiency) for the map; marks
 # from the Okabe-Ito palette and told apart by line style and marker shape as well.
@@ -266,6 +268,41 @@ def _scale_is_estimate(report) -> bool:
     return (pk is not None and pk.status == "estimate") or scale.get("kind") == "exposure_metadata"
 
 
+def _iso_lines(ax, beam, im) -> list[float]:
+    """Thin labelled iso-intensity lines at :data:`ISO_LEVELS` x peak, where they lie above the map's floor.
+
+    The map is looked up at the nearest cell of the azimuthal-equidistant grid the picture shows
+    (x = theta cos phi, y = theta sin phi, degrees).
+    """
+    x0, x1 = ax.get_xlim()
+    a = np.linspace(x0, x1, 301)
+    xx, yy = np.meshgrid(a, a)
+    th = np.radians(np.hypot(xx, yy))
+    k = np.round((th - beam.theta[0]) / beam.d_theta).astype(int)
+    j = np.round((np.mod(np.arctan2(yy, xx), 2 * np.pi) - beam.phi[0]) / beam.d_phi).astype(int) % len(beam.phi)
+    inside = k < len(beam.theta)
+    vals = np.full(xx.shape, np.nan)
+    vals[inside] = beam.intensity[np.clip(k[inside], 0, None), j[inside]]
+    finite = vals[np.isfinite(vals)]
+    if finite.size == 0:
+        return []
+    peak = float(np.max(finite))
+    if not peak > 0:
+        return []
+    floor = float(im.norm.vmin) / (1.0 / peak if beam.unit != "cd" else 1.0)
+    levels = [lv for lv in sorted(ISO_LEVELS) if lv * peak > floor]
+    if not levels:
+        return []
+    from scipy.ndimage import gaussian_filter
+
+    rel = np.where(np.isfinite(vals), vals / peak, np.nan)
+    smooth = gaussian_filter(np.nan_to_num(rel, nan=0.0), 1.0)  # one grid step: keeps noise from fraying the line
+    smooth[~np.isfinite(rel)] = np.nan
+    cs = ax.contour(a, a, smooth, levels=levels, colors="white", linewidths=0.8, linestyles="dotted", zorder=5)
+    ax.clabel(cs, fmt={lv: f"{lv * 100:g} %" for lv in levels}, fontsize=8, colors="white", inline=True)
+    return levels
+
+
 def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, half_width_deg=None,
                        noise: NoiseFloor | None = None, label: str | None = None, fontsize: float = FONT_PT,
                        cbar_ax=None, legend_ax=None):
@@ -307,6 +344,7 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
                            interpolation="nearest")
 
     im = draw(ax, a, vals)
+    iso = _iso_lines(ax, beam, im)
     if cbar_ax is not None:
         cb = plt.colorbar(im, cax=cbar_ax, orientation="horizontal", extend="min")
     else:
@@ -331,6 +369,11 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     pk = contours.get("peak")
     clipped = bool(pk is not None and pk.clipped)
     handles = [_ring_handle()]
+    if iso:
+        from matplotlib.lines import Line2D
+
+        handles.append(Line2D([], [], color="#555555", lw=1.0, ls="dotted",
+                              label="iso-intensity: " + ", ".join(f"{lv * 100:g} %" for lv in iso) + " of peak"))
     if np.any(beam.saturated):
         handles.append(_draw_clipped(ax, beam, a))
     handles += _draw_marks(ax, contours, edge, pk, clipped)
@@ -654,6 +697,39 @@ def _title(report) -> tuple[str, str]:
 CAUTION_LINE = "Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft."
 
 
+def beam_pictures(report) -> tuple[bytes, bytes]:
+    """beam.png's bytes, and its upper part (title, map, colour bar and legend) for the HTML page,
+    from one drawing of :func:`beam_figure`; PNG at ``FIG_DPI``, RGB."""
+    import warnings
+
+    plt = _pyplot()
+    fig = beam_figure(report)
+    try:
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message="Glyph .* missing from font")
+            fig.canvas.draw()
+        rgb = np.asarray(fig.canvas.buffer_rgba())[..., :3]
+        renderer = fig.canvas.get_renderer()
+        legend_ax = next(a for a in fig.axes if a.get_label() == "legend")
+        bottoms = [legend_ax.get_window_extent(renderer).y0]
+        if legend_ax.get_legend() is not None:
+            bottoms.append(legend_ax.get_legend().get_window_extent(renderer).y0)
+        cut = int(np.clip(rgb.shape[0] - min(bottoms) - 2, 1, rgb.shape[0]))  # above the profile panel's frame
+        return _png_bytes(rgb), _png_bytes(rgb[:cut])
+    finally:
+        plt.close(fig)
+
+
+def _png_bytes(rgb: np.ndarray) -> bytes:
+    import cv2
+
+    ok, data = cv2.imencode(".png", cv2.cvtColor(np.ascontiguousarray(rgb), cv2.COLOR_RGB2BGR),
+                            [cv2.IMWRITE_PNG_COMPRESSION, PNG_COMPRESS_LEVEL])
+    if not ok:  # pragma: no cover - OpenCV encodes any 8-bit RGB array
+        raise RuntimeError("PNG encoding failed")
+    return data.tobytes()
+
+
 def beam_figure(report, path=None):
     """The report picture in one column: title, map, colour bar, legend, radial profile, figures table.
 
@@ -677,7 +753,7 @@ def beam_figure(report, path=None):
     y += map_side + 0.12
     ax_cb = fig.add_axes(box(0.5, y, map_side, cbar_h))
     y += cbar_h + cbar_lab
-    ax_leg = fig.add_axes(box(0.2, y, W - 0.4, legend_h))
+    ax_leg = fig.add_axes(box(0.2, y, W - 0.4, legend_h), label="legend")
     y += legend_h
     ax_prof = fig.add_axes(box(0.95, y, W - 1.15, prof_h))
     y += prof_h + prof_lab
