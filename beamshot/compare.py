@@ -465,69 +465,17 @@ def _is_comparison_set(path: str) -> tuple[bool, list[str]]:
 
 
 def write_comparison(comp: Comparison, out_dir) -> list[str]:
-    """Write comparison.json and the pictures into ``out_dir`` as one set, replacing an older set whole.
-
-    Uses the output-set machinery of :mod:`beamshot.report.output` (lock, tidy, temporary folder,
-    atomic exchange); the HTML page (``write_comparison_html``, when the package has it) is
-    written into the same temporary folder last, so it belongs to the set.
-    """
-    from .report import output as o
+    """Write comparison.json, the pictures and comparison.html into ``out_dir`` as one set,
+    replacing an older set whole (:func:`beamshot.report.output.write_set`)."""
+    from .report.output import write_set
 
     out_arg = os.fspath(out_dir)
     out = os.path.realpath(os.path.abspath(out_arg))
-    parent, base = os.path.split(out)
-    if not base:
-        raise BeamshotError(f"{out_arg}: give a folder below the file-system root for --out")
-    try:
-        os.makedirs(parent, exist_ok=True)
-    except OSError as exc:
-        raise o._fail_os(out_arg, exc, "create the output folder") from None
-    if os.path.lexists(out) and not os.path.isdir(out):
-        raise BeamshotError(f"{out_arg}: exists and is not a folder; choose another --out")
     inputs = [os.path.realpath(os.path.dirname(os.path.abspath(x.report_path))) for x in comp.lights]
     if out in inputs:
         raise BeamshotError(f"{out_arg}: is one of the analysis folders being compared; choose a new folder for --out")
-    key = o.output_key(out)
-    tmp = None
-    with o._sigterm_as_exception():
-        try:
-            with o._lock(parent, key, out_arg):
-                o._tidy(parent, key, out)
-                if os.path.isdir(out):
-                    ours, foreign = _is_comparison_set(out)
-                    if not ours:
-                        shown = ", ".join(foreign[:3]) + (", ..." if len(foreign) > 3 else "")
-                        raise BeamshotError(f"{out_arg}: holds files beamshot compare did not write ({shown}); "
-                                            "choose another --out or empty that folder")
-                import secrets
-
-                tmp = os.path.join(parent, f"{o._TMP}{key}-{os.getpid()}-{secrets.token_hex(4)}")
-                os.mkdir(tmp)
-                _write_files(comp, tmp, out_arg)
-                o._fsync_files(tmp)
-                if os.path.isdir(out):
-                    import stat
-
-                    os.chmod(tmp, stat.S_IMODE(os.stat(out).st_mode))
-                o._mask_signals(True)
-                try:
-                    if not os.path.isdir(out):
-                        os.rename(tmp, out)
-                        tmp = None
-                    elif not o._exchange(tmp, out):
-                        aside = os.path.join(parent, f"{o._OLD}{key}-{os.getpid()}-{secrets.token_hex(4)}")
-                        os.rename(out, aside)
-                        os.rename(tmp, out)
-                        tmp = aside
-                    o._fsync_dir(parent)
-                finally:
-                    o._mask_signals(False)
-        except OSError as exc:
-            raise o._fail_os(out_arg, exc, "write the comparison there") from None
-        finally:
-            if tmp is not None:
-                o._rmtree(tmp)
-    return [os.path.join(out_arg, name) for name in sorted(os.listdir(out))]
+    return write_set(out_dir, lambda tmp: _write_files(comp, tmp, out_arg), is_ours=_is_comparison_set,
+                     writer="beamshot compare", doing="write the comparison there")
 
 
 def _write_files(comp: Comparison, folder: str, out_arg: str) -> None:
@@ -546,18 +494,9 @@ def _write_files(comp: Comparison, folder: str, out_arg: str) -> None:
         reach_overlay_figure(comp, os.path.join(folder, "reach.png"))
     for i, name in enumerate(data["pictures"]["cards"]):
         card_figure(comp, i, os.path.join(folder, name))
-    html = _html_writer()
-    if html is not None:
-        html(folder)
+    from .report.html import write_comparison_html
 
-
-def _html_writer():
-    """``beamshot.report.html.write_comparison_html`` when the package has it (written by the HTML work), else None."""
-    try:
-        from .report import html
-    except ImportError:
-        return None
-    return getattr(html, "write_comparison_html", None)
+    write_comparison_html(folder)  # last: the page reads the files above
 
 
 def compare(paths, *, labels=None, out_dir=None, wall_distance_m: float = WALL_DISTANCE_M,

@@ -50,7 +50,7 @@ if TYPE_CHECKING:  # imported lazily: the command line imports this module's Ter
     from .model import BeamReport
 
 __all__ = ["REPORT_FILES", "STALE_AFTER_S", "LOCK_WAIT_S", "Terminated", "write_report", "write_json",
-           "write_profile_csv", "read_report_json", "output_key"]
+           "write_profile_csv", "read_report_json", "output_key", "write_set"]
 
 REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png", "report.html")
 #: Our temporary and set-aside folders of *other* outputs are removed once older than this (s).
@@ -302,10 +302,32 @@ def _sigterm_as_exception():
 def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[str]:
     """Write all report files into ``out_dir`` as one set, replacing an older set whole; returns
     their paths.  Refuses (:class:`BeamshotError`) a folder holding files beamshot did not write."""
+    from . import plots
     from .html import HTML_FILE, write_report_html
     from .intensity_map import MAP_FILE, write_intensity_map
-    from . import plots
 
+    def fill(tmp: str) -> None:
+        write_json(report, os.path.join(tmp, "report.json"))
+        write_profile_csv(report, os.path.join(tmp, "profile.csv"))
+        write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
+        map_png = None
+        if picture:  # one drawing: beam.png, and its map panel for the page
+            png, map_png = plots.beam_pictures(report)
+            with open(os.path.join(tmp, "beam.png"), "wb") as fh:
+                fh.write(png)
+        # the page is always written (without pictures it holds the tables and says so)
+        write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png)
+
+    return write_set(out_dir, fill, is_ours=_is_our_set, writer="beamshot", doing="write the report files there")
+
+
+def write_set(out_dir, fill, *, is_ours, writer: str, doing: str) -> list[str]:
+    """Write one set of files into ``out_dir`` whole: ``fill(folder)`` writes them into a new
+    temporary folder beside it, which then replaces ``out_dir`` atomically (renameat2 exchange, or
+    two renames put right by the next run), under a lock, keeping the folder's permissions.
+    ``is_ours(path) -> (bool, foreign names)`` says whether an existing folder may be replaced;
+    ``writer`` names the command in the refusal, ``doing`` the action in a file-system error.
+    Returns the paths of the files written."""
     out_arg = os.fspath(out_dir)
     out = os.path.abspath(out_arg)
     if os.path.islink(out):
@@ -334,10 +356,10 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 finally:
                     _mask_signals(False)
                 if os.path.isdir(out):
-                    ours, foreign = _is_our_set(out)
+                    ours, foreign = is_ours(out)
                     if not ours:
                         shown = ", ".join(foreign[:3]) + (", ..." if len(foreign) > 3 else "")
-                        raise BeamshotError(f"{out_arg}: holds files beamshot did not write ({shown}); "
+                        raise BeamshotError(f"{out_arg}: holds files {writer} did not write ({shown}); "
                                             "choose another --out or empty that folder")
                 while tmp is None:
                     candidate = os.path.join(parent, f"{_TMP}{key}-{os.getpid()}-{secrets.token_hex(4)}")
@@ -346,16 +368,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                         tmp = candidate
                     except FileExistsError:
                         continue
-                write_json(report, os.path.join(tmp, "report.json"))
-                write_profile_csv(report, os.path.join(tmp, "profile.csv"))
-                write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
-                map_png = None
-                if picture:  # one drawing: beam.png, and its map panel for the page
-                    png, map_png = plots.beam_pictures(report)
-                    with open(os.path.join(tmp, "beam.png"), "wb") as fh:
-                        fh.write(png)
-                # the page is always written (without pictures it holds the tables and says so)
-                write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png)
+                fill(tmp)
                 _fsync_files(tmp)
                 if os.path.isdir(out):  # the new set keeps the folder's permissions (a private folder stays private)
                     os.chmod(tmp, stat.S_IMODE(os.stat(out).st_mode))
@@ -378,7 +391,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 finally:
                     _mask_signals(False)
         except OSError as exc:
-            raise _fail_os(out_arg, exc, "write the report files there") from None
+            raise _fail_os(out_arg, exc, doing) from None
         finally:
             if tmp is not None:
                 _mask_signals(True)
