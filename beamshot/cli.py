@@ -305,10 +305,14 @@ def cli():
         help="Print the whole report as JSON, profile arrays included (as report.json).")
 @option("--units", type=click.Choice(["metric", "imperial"]), default="metric",
         help="Units of printed distances: imperial adds feet and yards (the report keeps metres).")
+@option("--colour", "colour", is_flag=True,
+        help="Also measure colour across the beam: chromaticity, CCT and Duv of hotspot, corona and spill, "
+             "tint uniformity, and tint.png (see docs/colour.md).")
 @click.pass_context
 def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux_at_peak, meter_accuracy, reflectance,
             no_exif_scale, focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points,
-            scale_bar_mm, target_scale, assume_square, head_mm, light_name, out_dir, as_json, as_json_full, units):
+            scale_bar_mm, target_scale, assume_square, head_mm, light_name, out_dir, as_json, as_json_full, units,
+            colour):
     """Analyze PHOTOS of a beam on a white wall: calibrated figures, report files.
 
     Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft.
@@ -358,7 +362,8 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
                  use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
                  camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
                  camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
-                 target_scale=target_scale, assume_square=assume_square, light_name=light_name, **kw)
+                 target_scale=target_scale, assume_square=assume_square, light_name=light_name,
+                 **({"colour": True} if colour else {}), **kw)
     written = write_report(report, out_dir) if out_dir else []
     where = (f"wrote {', '.join(written)}" if written else
              "no files written; give --out DIR for report.json, profile.csv and beam.png")
@@ -377,6 +382,11 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
     click.echo(f"{light_name}: {names} at {at}" if light_name else f"{names} at {at}")
     click.echo(f"  tone curve: {report.settings['response']}; {report.calibration.get('response_source', 'assumed')}")
     _print_figures(report, units=units)
+    if report.colour is not None:
+        from .colour.table import colour_lines
+
+        for line in colour_lines(report.colour):
+            click.echo(line)
     marks = {f.status for f in report.figures.values()}
     if "estimate" in marks:
         click.echo("  ≈ marks an estimate: most of its uncertainty comes from an assumption (see the warnings)")

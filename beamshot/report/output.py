@@ -52,7 +52,7 @@ if TYPE_CHECKING:  # imported lazily: the command line imports this module's Ter
 __all__ = ["REPORT_FILES", "STALE_AFTER_S", "LOCK_WAIT_S", "Terminated", "write_report", "write_json",
            "write_profile_csv", "read_report_json", "output_key"]
 
-REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png")
+REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png", "tint.png")
 #: Our temporary and set-aside folders of *other* outputs are removed once older than this (s).
 STALE_AFTER_S = 24 * 3600.0
 #: How long a run waits for another run writing the same --out before refusing (s).
@@ -350,6 +350,10 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
                 if picture:
                     beam_figure(report, os.path.join(tmp, "beam.png"))
+                if picture and getattr(report, "colour", None) is not None:  # only when colour was asked for
+                    from .colour_plots import tint_figure
+
+                    tint_figure(report, os.path.join(tmp, "tint.png"))
                 _fsync_files(tmp)
                 if os.path.isdir(out):  # the new set keeps the folder's permissions (a private folder stays private)
                     os.chmod(tmp, stat.S_IMODE(os.stat(out).st_mode))
