@@ -403,11 +403,11 @@ def _decimals(text: str) -> int:
     return len(m.group(1) or "") if m else 0
 
 
-@cli.command(short_help="Render, analyze and check an invented three-prototype comparison.")
+@cli.command(short_help="Render, analyze and check an invented comparison of optic prototypes.")
 @option("--out", "out_dir", type=click.Path(file_okay=False), default="beamshot-demo",
         help="Folder for the demo photos and reports.")
 def demo(out_dir):
-    """Render an invented three-prototype comparison, analyze it, compare with the truth."""
+    """Render an invented comparison of optic prototypes, analyze it, compare with the truth."""
     from .analysis import analyze as run
     from .demo import write_demo_photos
     from .report.output import write_report
@@ -433,7 +433,8 @@ def demo(out_dir):
     rows = []
     for light in lights:
         report = run(light["photo"], distance_m=light["distance_m"], ambient=light["ambient"],
-                     lux_at_peak=light["lux_at_peak"], light_name=light["label"])
+                     lux_at_peak=light["lux_at_peak"], light_name=light["label"],
+                     **({"colour": True} if "hotspot_cct_k" in light["truth"] else {}))
         write_report(report, os.path.join(out_dir, light["name"]))
         rows.append((light, report))
     truth_keys = (("peak_intensity", "peak_cd"), ("hotspot_angle", "hotspot_angle_deg"),
@@ -453,6 +454,13 @@ def demo(out_dir):
             truth_text = f"{truth:,.{_decimals(fig.text(3))}f}" + ("°" if unit == "deg" else f" {unit}" if unit else "")
             err = (fig.value - truth) / truth
             click.echo(f"  {label(key):26s} {fig.text(3):34s} {truth_text:>12s} {err:>+7.1%}")
+        if report.colour is not None and report.colour["measured"]:
+            for zone in ("hotspot", "spill"):
+                fig = report.colour["zones"][zone]["cct"]
+                truth = light["truth"].get(f"{zone}_cct_k")
+                if fig["value"] is not None and truth:
+                    got, want = f"≈ {fig['value']:,.0f} K", f"{truth:,.0f} K"
+                    click.echo(f"  {zone + ' CCT':26s} {got:34s} {want:>12s} {fig['value'] / truth - 1:>+7.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}{os.sep}")
     click.echo("\n≈ marks an estimate: most of its uncertainty comes from an assumption (here the assumed tone "
                "curve and lens shading of an uncalibrated camera); see each report's warnings")

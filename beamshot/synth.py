@@ -458,21 +458,25 @@ def render_two_tone_linear(beam: TwoToneBeam, scene: Scene, camera: SynthCamera,
     """Linear RGB ``(H, W, 3)`` float32 of a :class:`TwoToneBeam`, with shot and read noise, clipped to [0, 1].
 
     Each part is rendered as :func:`render_linear` does (all of its physics) and coloured by its
-    blackbody's sRGB (:func:`blackbody_rgb`); the channels add, then noise as :func:`render_rgb_linear`.
+    blackbody's sRGB (:func:`blackbody_rgb`), the room's ambient light by ``scene.light_rgb`` as in
+    :func:`render_rgb_linear`; the channels add, then noise as :func:`render_rgb_linear`.
     """
     rng = np.random.default_rng(seed)
     c_hot, c_spill = np.asarray(blackbody_rgb(beam.hotspot_k)), np.asarray(blackbody_rgb(beam.spill_k))
+    c_room = np.asarray(scene.light_rgb, float)
+    c_room = c_room / float(np.dot(c_room, LUMINANCE_WEIGHTS_BT709))  # as render_rgb_linear colours all light
     out = np.empty((camera.height_px, camera.width_px, 3), np.float32)
     step = 256
     for top in range(0, camera.height_px, step):
         sl = slice(top, min(top + step, camera.height_px))
         v_hot = render_linear(beam.hotspot, scene, camera, rows=sl)
         v_spill = render_linear(beam.spill, scene, camera, rows=sl)
-        if scene.ambient_lux:  # render_linear adds the ambient to each part: keep it once, with the spill's colour
+        v_amb = np.zeros_like(v_hot)
+        if scene.ambient_lux:  # render_linear adds the ambient to each part: keep it once, in the room's colour
             v_amb = render_linear(HotspotSpillBeam(peak_cd=0.0), scene, camera, rows=sl)
-            v_hot = v_hot - v_amb
+            v_hot, v_spill = v_hot - v_amb, v_spill - v_amb
         for c in range(3):
-            electrons = np.clip(v_hot * c_hot[c] + v_spill * c_spill[c], 0.0, None) * camera.full_well_e
+            electrons = np.clip(v_hot * c_hot[c] + v_spill * c_spill[c] + v_amb * c_room[c], 0.0, None) * camera.full_well_e
             noisy = electrons + rng.standard_normal(electrons.shape) * np.sqrt(electrons + camera.read_noise_e**2)
             out[sl, :, c] = np.clip(noisy / camera.full_well_e, 0.0, 1.0)
     return out

@@ -41,6 +41,18 @@ MAX_ABS_DUV = 0.05
 _STEP_UV = 1e-5
 
 
+def _temperature_module():
+    """colour-science's ``colour.temperature``, imported here (lazily); a one-line error if it is missing."""
+    try:
+        from colour import temperature
+    except ModuleNotFoundError:
+        from ..errors import BeamshotError
+
+        raise BeamshotError("colour across the beam needs the colour-science package; install it with "
+                            "'pip install colour-science', or leave out --colour") from None
+    return temperature
+
+
 def _uv1960(uv_prime) -> np.ndarray:
     up = np.asarray(uv_prime, float)
     return np.stack([up[..., 0], up[..., 1] / 1.5], axis=-1)
@@ -52,18 +64,15 @@ def cct_duv(uv_prime) -> np.ndarray:
     >>> [round(float(v), 1) for v in cct_duv([0.1978, 0.3122 * 1.5])][:1]  # colour's test value: 6507.47 K
     [6507.5]
     """
-    from colour.temperature import uv_to_CCT_Ohno2013
-
-    return np.asarray(uv_to_CCT_Ohno2013(_uv1960(uv_prime)), float)
+    return np.asarray(_temperature_module().uv_to_CCT_Ohno2013(_uv1960(uv_prime)), float)
 
 
 def cct_duv_robertson(uv_prime) -> np.ndarray:
     """(CCT in K, Duv) of (u', v') ``(..., 2)`` by Robertson (1968), colour-science's implementation."""
-    from colour.temperature import uv_to_CCT_Robertson1968
-
+    robertson = _temperature_module().uv_to_CCT_Robertson1968
     uv = _uv1960(uv_prime)
     flat = uv.reshape(-1, 2)
-    out = np.array([uv_to_CCT_Robertson1968(p) for p in flat], float)
+    out = np.array([robertson(p) for p in flat], float)
     return out.reshape(uv.shape)
 
 
@@ -104,17 +113,13 @@ def cct_duv_with_uncertainty(uv_prime, cov_uv_prime) -> CctResult:
 
 def _planck_uv_prime(temperatures_k) -> np.ndarray:
     """(u', v') of the Planckian locus at ``temperatures_k`` (Ohno 2013 inverse at Duv = 0, colour-science)."""
-    from colour.temperature import CCT_to_uv_Ohno2013
-
     t = np.asarray(temperatures_k, float)
-    uv = np.asarray(CCT_to_uv_Ohno2013(np.c_[t, np.zeros_like(t)]), float)
+    uv = np.asarray(_temperature_module().CCT_to_uv_Ohno2013(np.c_[t, np.zeros_like(t)]), float)
     return np.c_[uv[:, 0], 1.5 * uv[:, 1]]
 
 
 def iso_cct_line(temperature_k: float, duv_reach: float, n: int = 9) -> np.ndarray:
     """(u', v') points of constant CCT from Duv = -reach to +reach (Ohno 2013 inverse, colour-science)."""
-    from colour.temperature import CCT_to_uv_Ohno2013
-
     duv = np.linspace(-duv_reach, duv_reach, n)
-    uv = np.asarray(CCT_to_uv_Ohno2013(np.c_[np.full(n, float(temperature_k)), duv]), float)
+    uv = np.asarray(_temperature_module().CCT_to_uv_Ohno2013(np.c_[np.full(n, float(temperature_k)), duv]), float)
     return np.c_[uv[:, 0], 1.5 * uv[:, 1]]

@@ -217,8 +217,8 @@ def tint_figure(report, path) -> None:
         plot_tint_map(result, report.contours, ax=axes[1], half_width_deg=half)
         plot_uv_diagram(result, ax=axes[2])
     notes = list(result.notes) if result is not None else []
-    foot = ("A camera gives chromaticity, not a spectrum: colour rendering (CRI, TM-30) is not measured. "
-            + (notes[0] if notes else ""))
+    note = (notes[0][:1].upper() + notes[0][1:] + ".") if notes else ""
+    foot = "A camera gives chromaticity, not a spectrum: colour rendering (CRI, TM-30) is not measured. " + note
     import textwrap
 
     fig.text(0.01, 0.01, "\n".join(textwrap.wrap(foot, 190)), fontsize=FONT_PT - 0.5, color="#444444")
