@@ -123,7 +123,7 @@ def run(request: Request, *, colour: bool | None = None) -> BeamReport:
     colour_result = None
     if COLOUR_BY_DEFAULT if colour is None else colour:
         with clock("colour"):
-            colour_result = colour_of(req, loaded, linear, mapped, measured)
+            colour_result = colour_of(req, loaded, linear, mapped, measured, figures)
     with clock("report"):
         report = assemble(req, loaded, linear, mapped, measured, scaled, unc, figures)
     if colour_result is not None:
@@ -393,8 +393,10 @@ def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncerta
 
 # ---- stage 8: colour across the beam (beamshot.colour) -------------------------------------------
 
-def colour_of(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured"):
-    """Chromaticity, CCT and Duv per zone and over the map, tint uniformity (beamshot.colour.beam_colour)."""
+def colour_of(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured",
+              figures: dict | None = None):
+    """Chromaticity, CCT and Duv per zone and over the map, tint uniformity (beamshot.colour.beam_colour);
+    the zone boundaries move by the relative uncertainties of the hotspot, field and spill angles."""
     from .colour.beam_colour import beam_colour
     from .photo import RAW_EXTENSIONS
 
@@ -403,7 +405,13 @@ def colour_of(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, meas
     photos = linear.prep.beam_photos
     raw = any(os.path.splitext(p.name)[1].lower() in RAW_EXTENSIONS for p in photos)
     jpeg = any(p.max_code == 255 and not p.linear for p in photos)
-    return beam_colour(mapped.image, measured, photos=photos, profile=loaded.profile, raw=raw, jpeg=jpeg)
+    rel = []
+    for key in ("hotspot_angle", "field_angle", "spill_angle"):
+        f = (figures or {}).get(key)
+        rel.append(f.uncertainty / f.value if f is not None and f.value and f.uncertainty and f.status in
+                   ("measured", "estimate") else 0.0)
+    return beam_colour(mapped.image, measured, photos=photos, profile=loaded.profile, raw=raw, jpeg=jpeg,
+                       boundary_rel=tuple(rel))
 
 
 def colour_warnings(result) -> list[str]:

@@ -206,3 +206,23 @@ def test_without_colour_no_colour_science_is_imported(tmp_path):
             "assert 'colour' not in sys.modules, 'an analysis without colour imported colour-science'\n")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr[-2000:]
+
+
+def test_batch_summary_cells_and_printed_table(jpeg_report, linear_frame, tmp_path):
+    from click.testing import CliRunner
+
+    from beamshot.batch import COLOUR_COLUMNS, _colour_cells
+    from beamshot.cli import cli
+
+    cells = _colour_cells(jpeg_report.to_dict()["colour"])
+    assert set(cells) == set(COLOUR_COLUMNS)
+    assert cells["spill_cct_k"]["value"] == jpeg_report.colour["zones"]["spill"]["cct"]["value"]
+    assert cells["zones_max_delta_uv"]["status"] == "measured"
+    assert all(v["value"] is None for v in _colour_cells(None).values())  # an item analysed without colour
+    cam, lin = linear_frame
+    photo = tmp_path / "two-tone.jpg"
+    photo.write_bytes(_jpeg(lin, cam))
+    res = CliRunner().invoke(cli, ["analyze", str(photo), "--distance", "5", "--colour"])
+    assert res.exit_code == 0, res.output
+    assert "spill" in res.output and "CCT" in res.output and "Duv" in res.output
+    assert "Colour rendering (CRI Ra, TM-30 Rf/Rg) cannot be measured" in res.output

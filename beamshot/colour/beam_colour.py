@@ -18,7 +18,10 @@ is ``sigma^2 max(a_px / a_cell, 1)`` (cells smaller than a pixel share its error
 ``(r^2/cos)^2``, and the cells add in quadrature with their weights.  Errors correlated over
 larger areas (a JPEG codes colour in 8 x 8 blocks at half resolution, ITU-T T.81 with 4:2:0)
 are not in that model: the scatter between the azimuth sectors of each ring of the colour map
-against the model gives a variance factor (:func:`correlation_gain`, at least 1) applied to all.  Then ``cov_XYZ = M diag(var S) M^T`` and first-order
+against the model gives a variance factor (:func:`correlation_gain`, at least 1) applied to all.
+Zone boundaries: the light near a boundary is a mix of both zones' light, so a zone's colour moves
+with its boundaries; each boundary (hotspot, field, spill edge) is moved in turn by the relative
+1-sigma uncertainty of its angle figure and the change enters as the "zone boundaries" term.  Then ``cov_XYZ = M diag(var S) M^T`` and first-order
 propagation to (x, y), (u', v'), CCT and Duv (JCGM 100, 5.2).  With an assumed transform (sRGB,
 white balance) a further term, :data:`ASSUMED_TRANSFORM_SIGMA_UV`, enters the absolute values but
 cancels in differences across the beam.
@@ -148,23 +151,25 @@ def _channel_maps(image: LinearImage, mapping, foot_mm, distance_m, axis_dir, th
     return out
 
 
-def _zone_weights(beam, shape) -> tuple[dict, dict]:
-    """Fraction (0-1) of each cell in each zone, and the reason for zones that cannot be drawn."""
+def _zone_weights(beam, shape, scales=(1.0, 1.0, 1.0)) -> tuple[dict, dict]:
+    """Fraction (0-1) of each cell in each zone, and the reason for zones that cannot be drawn;
+    ``scales`` multiply the hotspot contour's, the field contour's and the spill edge's angles."""
     pk = shape.peak
     weights, reasons = {}, {}
     hot = fld = None
     if shape.hotspot.complete:
-        hot = inside_contour(beam, shape.hotspot, pk.vector)
+        hot = inside_contour(beam, shape.hotspot, pk.vector, scales[0])
         weights["hotspot"] = hot
     else:
         reasons["hotspot"] = "the 50 % contour is not complete in the photo"
     if shape.field.complete and hot is not None:
-        fld = np.maximum(inside_contour(beam, shape.field, pk.vector), hot)
+        fld = np.maximum(inside_contour(beam, shape.field, pk.vector, scales[1]), hot)
         weights["corona"] = np.clip(fld - hot, 0.0, 1.0)
     else:
         reasons["corona"] = "the 10 % contour is not complete in the photo"
     if shape.edge.complete and fld is not None:
-        inside = np.clip(0.5 - (beam.theta[:, None] - shape.edge.at(beam.phi)[None, :]) / beam.d_theta, 0.0, 1.0)
+        edge = shape.edge.at(beam.phi)[None, :] * scales[2]
+        inside = np.clip(0.5 - (beam.theta[:, None] - edge) / beam.d_theta, 0.0, 1.0)
         weights["spill"] = np.clip(inside - fld, 0.0, 1.0)
     else:
         reasons["spill"] = "the spill edge is not complete in the photo" if fld is not None else reasons["corona"]
@@ -223,12 +228,16 @@ def _chromaticity(sums: _Sums, m: np.ndarray):
     return xyz, out
 
 
-def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str) -> dict:
-    """The figures of one zone: x, y, u', v', CCT, Duv (each value, uncertainty, status), the checks."""
+def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str, shifts_xy=(), shifts_uv=()) -> dict:
+    """The figures of one zone: x, y, u', v', CCT, Duv (each value, uncertainty, status), the checks.
+    ``shifts_xy``/``shifts_uv``: the zone's (x, y) and (u', v') moves when each zone boundary moves by
+    its 1-sigma uncertainty (the "zone boundaries" term)."""
     from .cct import cct_duv_with_uncertainty
 
     _, ch = _chromaticity(sums, np.asarray(transform.matrix, float))
     (xy, cxy), (uv, cuv) = ch["xy"], ch["uv"]
+    bxy = sum((np.outer(d, d) for d in shifts_xy), np.zeros((2, 2)))
+    buv = sum((np.outer(d, d) for d in shifts_uv), np.zeros((2, 2)))
     absolute_status = "measured" if transform.absolute else "estimate"
     t_uv = 0.0 if transform.absolute else ASSUMED_TRANSFORM_SIGMA_UV
     method = f"channel sums over the {zone} zone -> XYZ ({transform.source}) -> CIE chromaticity"
@@ -239,10 +248,10 @@ def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str) -
     t_xy = np.sqrt(np.diag(jxy @ (np.eye(2) * t_uv**2) @ jxy.T))
     for i, key in enumerate(("x", "y")):
         figs[key] = _chroma_figure(float(xy[i]), float(np.sqrt(cxy[i, i])), float(t_xy[i]), absolute_status, wb,
-                                   method + " (CIE 1931 x, y)")
+                                   method + " (CIE 1931 x, y)", float(np.sqrt(bxy[i, i])))
     for i, key in enumerate(("u_prime", "v_prime")):
         figs[key] = _chroma_figure(float(uv[i]), float(np.sqrt(cuv[i, i])), t_uv, absolute_status, wb,
-                                   method + " (CIE 1976 u', v')")
+                                   method + " (CIE 1976 u', v')", float(np.sqrt(buv[i, i])))
     res = cct_duv_with_uncertainty(uv, cuv)
     cct_method = "Ohno (2013, LEUKOS 10(1):47-55) on CIE 1960 (u, v), colour-science; Robertson (1968) cross-check"
     if wb == "auto":
@@ -253,10 +262,11 @@ def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str) -
         figs["duv"] = not_measured("", cct_method, res.reason)
     else:
         ct = cct_duv_with_uncertainty(uv, np.eye(2) * t_uv**2) if t_uv else None
+        cb = cct_duv_with_uncertainty(uv, buv)
         figs["cct"] = _with_budget(res.cct_k, res.cct_sigma_k, ct.cct_sigma_k if ct else 0.0, "K", cct_method,
-                                   absolute_status)
+                                   absolute_status, cb.cct_sigma_k)
         figs["duv"] = _with_budget(res.duv, res.duv_sigma, ct.duv_sigma if ct else 0.0, "", cct_method,
-                                   absolute_status)
+                                   absolute_status, cb.duv_sigma)
     known = figs["cct"].value is not None
     return {**figs,
             "cct_robertson_k": res.robertson_cct_k if known else None,
@@ -267,13 +277,15 @@ def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str) -
             "uv_covariance": [[float(v) for v in row] for row in cuv]}
 
 
-def _with_budget(value, noise, transform_term, unit, method, status) -> Figure:
-    budget = (("channel noise", noise),) + ((("colour transform assumed", transform_term),) if transform_term else ())
-    return Figure(float(value), float(np.hypot(noise, transform_term)), unit, method, status, budget=budget)
+def _with_budget(value, noise, transform_term, unit, method, status, boundary_term=0.0) -> Figure:
+    budget = ((("channel noise", noise),) + ((("zone boundaries", boundary_term),) if boundary_term else ())
+              + ((("colour transform assumed", transform_term),) if transform_term else ()))
+    total = float(np.sqrt(noise**2 + transform_term**2 + boundary_term**2))
+    return Figure(float(value), total, unit, method, status, budget=budget)
 
 
-def _chroma_figure(value, noise, transform_term, status, wb, method) -> Figure:
-    fig = _with_budget(value, noise, transform_term, "", method, status)
+def _chroma_figure(value, noise, transform_term, status, wb, method, boundary_term=0.0) -> Figure:
+    fig = _with_budget(value, noise, transform_term, "", method, status, boundary_term)
     if wb == "auto":
         from dataclasses import replace
 
@@ -311,10 +323,12 @@ def _cell_variance(noise: ChannelNoise, c: int, v: np.ndarray, share: np.ndarray
     return np.maximum(noise.block_sigma(c, v) ** 2 * share, noise.sigma(c, v) ** 2)
 
 
-def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool, jpeg: bool) -> BeamColour:
+def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool, jpeg: bool,
+                boundary_rel=(0.0, 0.0, 0.0)) -> BeamColour:
     """The colour of the beam (see the module docstring).  ``measured`` is the analysis's measured
     beam (map, shape, mapping, foot point, axis); ``photos`` the beam photo(s); ``raw``/``jpeg``
-    say what kind of file they are."""
+    say what kind of file they are; ``boundary_rel`` the relative 1-sigma uncertainties of the
+    hotspot angle, field angle and spill angle (each zone boundary is moved by it in turn)."""
     wb = white_balance_of(photos)
     if _is_grey(image.rgb):
         return colour_not_measured("the photo is grey-scale (its three channels are equal); colour needs a colour "
@@ -335,13 +349,16 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool, jpe
     gain = correlation_gain(cells)
     cells = {**cells, "sigma_uv": cells["sigma_uv"] * np.sqrt(gain)}
     weights, reasons = _zone_weights(beam, shape)
+    # each boundary moved by its 1-sigma relative uncertainty, in turn (the "zone boundaries" term)
+    moved = [_zone_weights(beam, shape, tuple(1.0 + (r if k == i else 0.0) for k, r in enumerate(boundary_rel)))[0]
+             for i in range(3) if boundary_rel[i] > 0]
     notes = []
     if wb == "auto":
         notes.append(AUTO_WB_NOTE)
     elif wb == "unknown" and not transform.absolute:
         notes.append("the photo does not say how white was balanced (no EXIF WhiteBalance tag); it is assumed fixed "
                      "(daylight, D65) - with automatic white balance the absolute CCT would not be meaningful")
-    zones, zone_uv = {}, {}
+    zones, zone_uv, zone_moved = {}, {}, {}
     for z in ZONES:
         if z not in weights:
             zones[z] = _zone_not_measured(reasons[z])
@@ -355,10 +372,14 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool, jpe
         if not np.all(sums.s > 0):
             zones[z] = _zone_not_measured(f"the {z} has no light in at least one channel")
             continue
-        zones[z] = _zone_figures(sums, transform, wb, z)
+        xyz0 = m @ sums.s
+        shifted = [m @ _sums(w[z], maps[:3], factor, d_omega, noise, share, sat).s for w in moved if z in w]
+        zones[z] = _zone_figures(sums, transform, wb, z, [xy_of(x) - xy_of(xyz0) for x in shifted],
+                                 [uv_prime_of(x) - uv_prime_of(xyz0) for x in shifted])
         zone_uv[z] = (np.array([zones[z]["u_prime"].value, zones[z]["v_prime"].value]),
                       np.array(zones[z]["uv_covariance"]))
-    tint = _zone_tint(zone_uv)
+        zone_moved[z] = [uv_prime_of(x) for x in shifted]
+    tint = _zone_tint(zone_uv, zone_moved)
     tint.update(_map_tint(cells))
     tint["noise_correlation_gain"] = gain
     rings = _rings(beam, shape, maps[:3], factor, d_omega, noise, share, sat, m)
@@ -375,10 +396,11 @@ def _zone_not_measured(reason: str) -> dict:
             "clipped_fraction": None, "uv_covariance": None}
 
 
-def _zone_tint(zone_uv: dict) -> dict:
-    """Largest delta u'v' between two zones, with its uncertainty (noise of both; the transform cancels)."""
+def _zone_tint(zone_uv: dict, zone_moved: dict | None = None) -> dict:
+    """Largest delta u'v' between two zones, with its uncertainty: noise of both, and the change when
+    each zone boundary moves by its 1-sigma uncertainty (the transform's error cancels)."""
     method = ("largest Euclidean distance in CIE 1976 (u', v') between the zones' chromaticities; uncertainty from "
-              "channel noise (a shared transform error cancels to first order)")
+              "channel noise and the zone boundaries (a shared transform error cancels to first order)")
     names = [z for z in ZONES if z in zone_uv]
     best = None
     for i, a in enumerate(names):
@@ -392,8 +414,12 @@ def _zone_tint(zone_uv: dict) -> dict:
     if best is None:
         return {"zones_max_delta_uv": not_measured("", method, "fewer than two zones have a measured colour"),
                 "zones_pair": None}
-    return {"zones_max_delta_uv": Figure(best[0], best[1], "", method, budget=(("channel noise", best[1]),)),
-            "zones_pair": [best[2], best[3]]}
+    d, s, a, b = best
+    moved_a, moved_b = (zone_moved or {}).get(a, []), (zone_moved or {}).get(b, [])
+    bound = float(np.sqrt(sum((float(delta_uv_prime(pa, pb)) - d) ** 2 for pa, pb in zip(moved_a, moved_b))))
+    budget = (("channel noise", s),) + ((("zone boundaries", bound),) if bound else ())
+    return {"zones_max_delta_uv": Figure(d, float(np.hypot(s, bound)), "", method, budget=budget),
+            "zones_pair": [a, b]}
 
 
 def _grid_sums(w_cells, vals, factor, d_omega, noise, share, sat):
