@@ -27,7 +27,7 @@ _MAD_TO_SIGMA = 1.4826
 #: Signal groups (equal counts, by level) at most, and the fewest differences a group needs.
 _GROUPS, _MIN_COUNT = 24, 200
 #: Pixels sampled at most per channel (a regular subsample keeps it fast on large photos).
-_MAX_SAMPLES = 400_000
+_MAX_SAMPLES = 250_000
 #: Smallest variance allowed (16-bit quantisation, (1/65535)^2 / 12).
 _FLOOR_VAR = (1.0 / 65535.0) ** 2 / 12.0
 
@@ -61,15 +61,15 @@ def _fit(level: np.ndarray, diff: np.ndarray) -> tuple[float, float]:
         return float(np.var(diff)) if diff.size else _FLOOR_VAR, 0.0
     groups = int(np.clip(level.size // _MIN_COUNT, 1, _GROUPS))
     order = np.argsort(level, kind="stable")
-    idx = np.empty(level.size, int)
-    idx[order] = np.arange(level.size) * groups // level.size  # equal-count groups by level
+    level, diff = level[order], diff[order]  # equal-count groups by level: contiguous slices
+    bounds = np.linspace(0, level.size, groups + 1).astype(int)
     xs, ys, ws = [], [], []
-    for g in range(groups):
-        d = diff[idx == g]
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        d = diff[lo:hi]
         if d.size < _MIN_COUNT:
             continue
         mad = np.median(np.abs(d - np.median(d)))
-        xs.append(float(np.median(level[idx == g])))
+        xs.append(float(level[(lo + hi) // 2]))
         ys.append(float((_MAD_TO_SIGMA * mad) ** 2))
         ws.append(float(d.size))
     if len(xs) < 2:
