@@ -111,7 +111,8 @@ class Photo:
     #: What the decoder ignored or assumed, for the report's warnings (e.g. an absurd EXIF value).
     notes: tuple[str, ...] = ()
     #: Colour facts for beamshot.colour: ``white_balance`` ("auto", "manual" or None: EXIF tag
-    #: 0xA403), and for raw files ``camera_matrix`` (True if the file carries a camera-to-XYZ matrix).
+    #: 0xA403), and for raw files ``camera_matrix`` (True if LibRaw has a camera-to-XYZ matrix for the file:
+    #: its own, e.g. a DNG's ColorMatrix, or LibRaw's table for the camera; then its camera -> sRGB is not zero).
     colour_facts: dict = field(default_factory=dict, compare=False)
 
     @property
@@ -367,7 +368,7 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
             _check_size(name, w, h, limit)
             rgb = raw.postprocess(gamma=(1, 1), no_auto_bright=True, output_bps=16, use_camera_wb=True,
                                   output_color=rawpy.ColorSpace.sRGB)
-            has_matrix = bool(np.any(np.asarray(raw.rgb_xyz_matrix)[:3] != 0))
+            has_matrix = bool(np.any(np.asarray(raw.color_matrix)[:3, :3] != 0))  # LibRaw's camera -> sRGB
     except BeamshotError:
         raise
     except (rawpy.LibRawError, OSError, ValueError, MemoryError) as exc:

@@ -226,3 +226,20 @@ def test_batch_summary_cells_and_printed_table(jpeg_report, linear_frame, tmp_pa
     assert res.exit_code == 0, res.output
     assert "spill" in res.output and "CCT" in res.output and "Duv" in res.output
     assert "Colour rendering (CRI Ra, TM-30 Rf/Rg) cannot be measured" in res.output
+
+
+def test_raw_colour_matrix_is_detected(tmp_path):
+    # a DNG with ColorMatrix1 (DNG 1.4 tag 50721) has a camera-to-XYZ matrix; one without has none
+    import tifffile
+
+    from beamshot.photo import load_photo
+    from tests.test_photo import _linear_dng
+
+    img = np.stack([np.tile(np.linspace(400, 15000, 96), (64, 1)) * f for f in (1.0, 0.8, 0.5)], -1).astype(np.uint16)
+    _linear_dng(tmp_path / "with.dng", img)
+    tags = [(50706, "B", 4, (1, 4, 0, 0), True), (50707, "B", 4, (1, 1, 0, 0), True),
+            (50708, "s", 0, "beamshot synthetic", True), (50714, "H", 3, (256, 256, 256), True),
+            (50717, "H", 3, (16383, 16383, 16383), True)]
+    tifffile.imwrite(tmp_path / "without.dng", img, photometric=34892, planarconfig="contig", extratags=tags)
+    assert load_photo(tmp_path / "with.dng").colour_facts["camera_matrix"] is True
+    assert load_photo(tmp_path / "without.dng").colour_facts["camera_matrix"] is False
