@@ -708,6 +708,33 @@ def camera_scale(photo, lux, at, meter_accuracy, name, out):
         click.echo(f"  ! {notes['warning']}")
 
 
+@camera.command("colour-chart", short_help="Colour matrix from a photo of a reference chart.")
+@click.argument("photo", type=click.Path(dir_okay=False))
+@option("--patches", required=True, type=click.Path(dir_okay=False),
+        help="CSV with the columns x,y,size,X,Y,Z: each patch's centre and box side (px, photo as shown) and its "
+             "reference XYZ under the light.")
+@option("--name", required=True, help="Profile name (created or updated).")
+@option("--out", "out", type=click.Path(dir_okay=False), default=None, help=_PROFILE_OUT_HELP)
+def camera_colour_chart(photo, patches, name, out):
+    """Fit the camera RGB -> XYZ matrix from a chart photographed under the light (fixed white balance),
+    for absolute colour with analyze --colour (docs/colour.md)."""
+    from .camera.linearize import linearize
+    from .colour.chart import fit_chart_matrix, patch_rgb, read_chart_table
+    from .photo import load_photo
+
+    profile = _profile_for_update(name, out)
+    p = load_photo(photo)
+    img = linearize(p, profile.response)
+    if profile.flat is not None:
+        img = img.divided_by(profile.flat.evaluate(img.shape))
+    boxes, xyz = read_chart_table(patches)
+    fit = fit_chart_matrix(patch_rgb(img, boxes), xyz)
+    profile = profile.with_step("colour chart", _file_records([p]), details={"residual_rms_uv": fit["residual_rms_uv"]},
+                                colour_matrix=fit)
+    _save(profile, out)
+    click.echo(f"colour matrix from {fit['patches']} patches: residual {fit['residual_rms_uv']:.4f} in u'v' (RMS)")
+
+
 @camera.command("show", short_help="Print a camera profile.")
 @click.argument("name")
 def camera_show(name):

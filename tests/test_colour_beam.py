@@ -243,3 +243,19 @@ def test_raw_colour_matrix_is_detected(tmp_path):
     tifffile.imwrite(tmp_path / "without.dng", img, photometric=34892, planarconfig="contig", extratags=tags)
     assert load_photo(tmp_path / "with.dng").colour_facts["camera_matrix"] is True
     assert load_photo(tmp_path / "without.dng").colour_facts["camera_matrix"] is False
+
+
+def test_chart_matrix_in_the_profile_makes_colour_measured(linear_frame, truth):
+    # a profile whose chart-fitted matrix is the camera's true one (here the IEC 61966-2-1 matrix): CCT is measured
+    from beamshot.camera.profile import default_profile
+    from beamshot.colour.transform import SRGB_TO_XYZ
+
+    cam, lin = linear_frame
+    prof = replace(default_profile(), name="chart-profile", colour_matrix={
+        "matrix": SRGB_TO_XYZ.tolist(), "residual_rms_uv": 0.0, "patches": 24, "method": "test"})
+    rep = analyze(decode_photo(_jpeg(lin, cam), "two-tone.jpg"), distance_m=5.0, colour=True, camera=prof)
+    c = rep.colour
+    assert c["transform"]["absolute"] is True and "reference chart" in c["transform"]["source"]
+    spill = c["zones"]["spill"]["cct"]
+    assert spill["status"] == "measured" and "colour transform assumed" not in spill["budget"]
+    assert abs(spill["value"] / cct_duv(truth["spill"])[0] - 1) < 0.03

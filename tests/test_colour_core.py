@@ -183,3 +183,40 @@ def test_chart_matrix_kept_in_the_camera_profile():
 def test_delta_uv_is_euclidean():
     # common practice: the tint difference is the Euclidean distance in CIE 1976 (u', v')
     assert_allclose(delta_uv_prime([0.20, 0.46], [0.203, 0.464]), 0.005, atol=1e-12)
+
+
+def test_colour_chart_command_recovers_the_srgb_matrix(tmp_path):
+    # a chart of linear sRGB patches, written as a linear 16-bit PNG with reference XYZ = IEC 61966-2-1 matrix x RGB:
+    # the fitted matrix is that matrix (within the 16-bit quantisation), kept in the profile
+    import cv2
+    from click.testing import CliRunner
+
+    from beamshot.camera.profile import load_profile
+    from beamshot.cli import cli
+
+    rng = np.random.default_rng(3)
+    rgb = rng.uniform(0.05, 0.9, (12, 3))
+    img = np.zeros((300, 400, 3))
+    rows = ["x,y,size,X,Y,Z"]
+    for i, c in enumerate(rgb):
+        y0, x0 = 25 + (i // 4) * 90, 25 + (i % 4) * 95
+        img[y0:y0 + 60, x0:x0 + 60] = c
+        xyz = SRGB_TO_XYZ @ c
+        rows.append(f"{x0 + 29.5},{y0 + 29.5},40,{xyz[0]},{xyz[1]},{xyz[2]}")
+    cv2.imwrite(str(tmp_path / "chart.png"), cv2.cvtColor(np.round(img * 65535).astype(np.uint16), cv2.COLOR_RGB2BGR))
+    (tmp_path / "chart.csv").write_text("\n".join(rows) + "\n")
+    prof = tmp_path / "cam.json"
+    from beamshot.camera.profile import default_profile, save_profile
+    from beamshot.camera.response import Response
+    from dataclasses import replace
+
+    save_profile(replace(default_profile(), name="chart-test", response=Response("linear")), str(prof))
+    res = CliRunner().invoke(cli, ["camera", "colour-chart", str(tmp_path / "chart.png"), "--patches",
+                                   str(tmp_path / "chart.csv"), "--name", "chart-test", "--out", str(prof)])
+    assert res.exit_code == 0, res.output
+    got = load_profile(str(prof)).colour_matrix
+    assert_allclose(got["matrix"], SRGB_TO_XYZ, atol=2e-4)
+    assert got["residual_rms_uv"] < 1e-4
+    bad = CliRunner().invoke(cli, ["camera", "colour-chart", str(tmp_path / "chart.png"), "--patches",
+                                   str(tmp_path / "chart.png"), "--name", "chart-test", "--out", str(prof)])
+    assert bad.exit_code == 2 and "x,y,size,X,Y,Z" in bad.output

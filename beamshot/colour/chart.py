@@ -19,10 +19,60 @@ import numpy as np
 from ..errors import BeamshotError
 from .chromaticity import delta_uv_prime, uv_prime_of
 
-__all__ = ["MIN_PATCHES", "fit_chart_matrix", "profile_with_chart_matrix"]
+__all__ = ["MIN_PATCHES", "CHART_COLUMNS", "read_chart_table", "patch_rgb", "fit_chart_matrix",
+           "profile_with_chart_matrix"]
+
+#: Columns of the chart table (CSV): a patch's centre and box side in pixels of the photo as shown
+#: (x right, y down), and its reference CIE XYZ under the light (any common scale).
+CHART_COLUMNS = ("x", "y", "size", "X", "Y", "Z")
 
 #: Fewest patches for a fit: 3 determine the 3x3 matrix exactly; more give a residual to judge it.
 MIN_PATCHES = 4
+
+
+def read_chart_table(path) -> tuple[np.ndarray, np.ndarray]:
+    """Patch boxes ``(N, 3)`` (x, y, size in px) and reference XYZ ``(N, 3)`` from a CSV with the
+    header :data:`CHART_COLUMNS`; a one-line :class:`BeamshotError` for anything else."""
+    import csv
+    import io
+
+    from ..errors import read_user_file
+
+    text = read_user_file(path, "give the chart's CSV table").decode("utf-8", "replace")
+    try:
+        rows = list(csv.DictReader(io.StringIO(text)))
+    except csv.Error:  # e.g. a photo given instead of the table
+        rows = []
+    if not rows or any(c not in rows[0] for c in CHART_COLUMNS):
+        raise BeamshotError(f"{path}: the chart table needs the columns {','.join(CHART_COLUMNS)} (patch centre and "
+                            "box side in pixels, reference X, Y, Z); add that header line")
+    try:
+        vals = np.array([[float(r[c]) for c in CHART_COLUMNS] for r in rows])
+    except (TypeError, ValueError):
+        raise BeamshotError(f"{path}: every cell of the chart table must be a number") from None
+    if not np.all(np.isfinite(vals)) or np.any(vals[:, 2] < 1):
+        raise BeamshotError(f"{path}: the chart table has a non-finite number or a box side below 1 px")
+    return vals[:, :3], vals[:, 3:]
+
+
+def patch_rgb(image, boxes) -> np.ndarray:
+    """Mean linear RGB ``(N, 3)`` of each box (x, y, size in full-resolution pixels) of a
+    :class:`~beamshot.camera.linearize.LinearImage`; refuses a box off the photo or with clipping."""
+    b = image.bin_factor
+    h, w = image.shape
+    out = []
+    for i, (x, y, size) in enumerate(np.asarray(boxes, float)):
+        half = max(0.5, size / b / 2.0)
+        cx, cy = (x - (b - 1) / 2) / b, (y - (b - 1) / 2) / b
+        r0, r1 = int(np.floor(cy - half + 0.5)), int(np.floor(cy + half + 0.5))
+        c0, c1 = int(np.floor(cx - half + 0.5)), int(np.floor(cx + half + 0.5))
+        if r0 < 0 or c0 < 0 or r1 > h or c1 > w or r1 <= r0 or c1 <= c0:
+            raise BeamshotError(f"chart patch {i + 1} at ({x:g}, {y:g}) is not inside the photo; give the patch "
+                                "centres in pixels of the photo as shown (x right, y down)")
+        if np.any(image.saturated[r0:r1, c0:c1]):
+            raise BeamshotError(f"chart patch {i + 1} at ({x:g}, {y:g}) is clipped; lower the exposure")
+        out.append(image.rgb[r0:r1, c0:c1].reshape(-1, 3).astype(float).mean(axis=0))
+    return np.array(out)
 
 
 def fit_chart_matrix(rgb, xyz_reference) -> dict:
