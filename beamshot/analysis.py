@@ -404,13 +404,12 @@ def colour_of(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, meas
 
     photos = linear.prep.beam_photos
     raw = any(os.path.splitext(p.name)[1].lower() in RAW_EXTENSIONS for p in photos)
-    jpeg = any(p.max_code == 255 and not p.linear for p in photos)
     rel = []
     for key in ("hotspot_angle", "field_angle", "spill_angle"):
         f = (figures or {}).get(key)
         rel.append(f.uncertainty / f.value if f is not None and f.value and f.uncertainty and f.status in
                    ("measured", "estimate") else 0.0)
-    return beam_colour(mapped.image, measured, photos=photos, profile=loaded.profile, raw=raw, jpeg=jpeg,
+    return beam_colour(mapped.image, measured, photos=photos, profile=loaded.profile, raw=raw,
                        boundary_rel=tuple(rel))
 
 

@@ -63,8 +63,6 @@ MAP_SIGMA_UV_LIMIT = 0.001
 #: Polar-angle step (deg) of the rings of the colour map, and azimuth step (deg) of its sectors.
 RING_STEP_DEG = 1.0
 SECTOR_STEP_DEG = 30.0
-#: JPEG chroma is coded in 8 x 8 blocks at half resolution (4:2:0): errors correlate over 16 x 16 pixels.
-JPEG_CHROMA_BLOCK_PX = 16
 
 #: What a camera cannot tell about colour: printed in every colour section.
 COLOUR_LIMITS = (
@@ -294,40 +292,34 @@ def _chroma_figure(value, noise, transform_term, status, wb, method, boundary_te
     return fig
 
 
-def _share(beam, mapping, image: LinearImage, distance_m: float, jpeg: bool, foot_mm) -> np.ndarray:
-    """a_block / a_cell per cell: how many cells sample one correlated error area (the block is
-    :func:`_block_px` working pixels on a side; the pixel's wall size is taken at the beam's foot)."""
+def _share(beam, mapping, image: LinearImage, distance_m: float, foot_mm) -> np.ndarray:
+    """a_px / a_cell per cell: how many cells sample one working pixel (its wall size taken at the
+    beam's foot; the cell's for a light square to the wall)."""
     foot = np.asarray(foot_mm, float)
     px = mapping.wall_to_image(foot[None, :])[0]
     b = image.bin_factor
     mm = mapping.image_to_wall(np.array([px + (b, 0.0), px + (0.0, b)]))
     d = np.linalg.norm(mm - foot[None, :], axis=1)
     px_mm2 = float(d[0] * d[1]) if np.all(np.isfinite(d)) else np.nan
-    corr_px = float(_block_px(image, jpeg)) ** 2
     dist_mm = distance_m * 1000.0
     th = beam.theta[:, None]
     # wall area of a polar cell for a light square to the wall: rho d_rho d_phi, rho = D tan(theta)
     cell_mm2 = dist_mm * np.tan(th) * dist_mm / np.cos(th) ** 2 * beam.d_theta * beam.d_phi
     if not np.isfinite(px_mm2):
         return np.ones(beam.intensity.shape)
-    return np.broadcast_to(corr_px * px_mm2 / cell_mm2, beam.intensity.shape)
-
-
-def _block_px(image: LinearImage, jpeg: bool) -> int:
-    """Side (working pixels) of the area over which the photo's colour errors are correlated."""
-    return max(1, int(round(JPEG_CHROMA_BLOCK_PX / image.bin_factor))) if jpeg else 1
+    return np.broadcast_to(px_mm2 / cell_mm2, beam.intensity.shape)
 
 
 def _cell_variance(noise: ChannelNoise, c: int, v: np.ndarray, share: np.ndarray) -> np.ndarray:
-    """Noise variance of a cell's point sample of channel ``c`` at linear ``v`` (module docstring)."""
-    return np.maximum(noise.block_sigma(c, v) ** 2 * share, noise.sigma(c, v) ** 2)
+    """Noise variance of a cell's point sample of channel ``c`` at linear ``v``: sigma^2 max(a_px / a_cell, 1)."""
+    return noise.sigma(c, v) ** 2 * np.maximum(share, 1.0)
 
 
-def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool, jpeg: bool,
+def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool,
                 boundary_rel=(0.0, 0.0, 0.0)) -> BeamColour:
     """The colour of the beam (see the module docstring).  ``measured`` is the analysis's measured
-    beam (map, shape, mapping, foot point, axis); ``photos`` the beam photo(s); ``raw``/``jpeg``
-    say what kind of file they are; ``boundary_rel`` the relative 1-sigma uncertainties of the
+    beam (map, shape, mapping, foot point, axis); ``photos`` the beam photo(s); ``raw`` says they
+    are raw files; ``boundary_rel`` the relative 1-sigma uncertainties of the
     hotspot angle, field angle and spill angle (each zone boundary is moved by it in turn)."""
     wb = white_balance_of(photos)
     if _is_grey(image.rgb):
@@ -342,7 +334,7 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool, jpe
     factor = maps[3].intensity
     noise = channel_noise(image.rgb, image.saturated)
     d_omega = np.broadcast_to(beam.cell_solid_angles(), beam.intensity.shape)
-    share = _share(beam, measured.mapping, image, measured.distance_m, False, measured.foot_mm)
+    share = _share(beam, measured.mapping, image, measured.distance_m, measured.foot_mm)
     sat = maps[0].saturated
     m = np.asarray(transform.matrix, float)
     cells = _cells(beam, shape, maps[:3], factor, d_omega, noise, share, sat, m)

@@ -8,10 +8,8 @@ spread is the noise where the beam varies smoothly (a linear gradient cancels; c
 grouped by signal level, each group's robust variance is ``(1.4826 MAD)^2`` (MAD -> sigma for a
 normal distribution), and ``a``, ``b`` follow by least squares weighted by each group's count
 (both kept non-negative).
-
-The same fit on means of ``k x k`` blocks of working pixels gives the noise at the scale over
-which the photo's errors are correlated (a JPEG codes colour in blocks): ``block_a``, ``block_b``.
-For uncorrelated noise ``sigma_k^2 = sigma^2 / k^2``; correlated noise keeps more.
+Noise correlated over more than a pixel (a JPEG's colour blocks) is not in this model; see
+``beamshot.colour.beam_colour.correlation_gain``.
 """
 
 from __future__ import annotations
@@ -38,20 +36,10 @@ class ChannelNoise:
 
     a: tuple[float, float, float]
     b: tuple[float, float, float]
-    #: block size (working pixels) and the model for k x k block means
-    block: int = 1
-    block_a: tuple[float, float, float] | None = None
-    block_b: tuple[float, float, float] | None = None
 
     def sigma(self, channel: int, v) -> np.ndarray:
         """1-sigma noise of one working pixel of ``channel`` at linear value(s) ``v``."""
         return np.sqrt(self.a[channel] + self.b[channel] * np.clip(np.asarray(v, float), 0.0, None))
-
-    def block_sigma(self, channel: int, v) -> np.ndarray:
-        """1-sigma noise of the mean of a ``block`` x ``block`` patch at linear value(s) ``v``."""
-        if self.block_a is None:
-            return self.sigma(channel, v)
-        return np.sqrt(self.block_a[channel] + self.block_b[channel] * np.clip(np.asarray(v, float), 0.0, None))
 
 
 def _fit(level: np.ndarray, diff: np.ndarray) -> tuple[float, float]:
@@ -94,33 +82,15 @@ def _second_differences(img: np.ndarray, bad: np.ndarray | None) -> tuple[np.nda
     return level.ravel(), diff.ravel()
 
 
-def channel_noise(rgb: np.ndarray, saturated: np.ndarray | None = None, *, block: int = 1) -> ChannelNoise:
-    """Fit the noise model of each channel of a linear image ``(h, w, 3)`` (clipped pixels left out),
-    for single working pixels and, if ``block`` > 1, for means of ``block`` x ``block`` patches."""
-    import cv2
-
+def channel_noise(rgb: np.ndarray, saturated: np.ndarray | None = None) -> ChannelNoise:
+    """Fit the noise model of each channel of a linear image ``(h, w, 3)`` (clipped pixels left out)."""
     h, w = rgb.shape[:2]
     step = max(1, int(np.ceil(np.sqrt(h * w / _MAX_SAMPLES))))
     rows = slice(0, h, step)
-    a, b, ba, bb = [], [], [], []
-    k = max(1, int(block))
-    hb, wb = h // k, w // k
+    a, b = [], []
     for c in range(3):
         level, diff = _second_differences(rgb[rows, :, c], None if saturated is None else saturated[rows])
         ac, bc = _fit(level, diff)
         a.append(ac)
         b.append(bc)
-        if k > 1 and hb >= 3 and wb >= 3:
-            plane = np.ascontiguousarray(rgb[:hb * k, :wb * k, c], dtype=np.float32)
-            means = cv2.resize(plane, (wb, hb), interpolation=cv2.INTER_AREA)
-            bad = None
-            if saturated is not None:
-                sat = cv2.resize(saturated[:hb * k, :wb * k].astype(np.float32), (wb, hb), interpolation=cv2.INTER_AREA)
-                bad = sat > 0
-            level, diff = _second_differences(means, bad)
-            ac, bc = _fit(level, diff)
-            ba.append(ac)
-            bb.append(bc)
-    if len(ba) == 3:
-        return ChannelNoise(tuple(a), tuple(b), k, tuple(ba), tuple(bb))
     return ChannelNoise(tuple(a), tuple(b))
