@@ -459,7 +459,9 @@ def demo(out_dir):
                 fig = report.colour["zones"][zone]["cct"]
                 truth = light["truth"].get(f"{zone}_cct_k")
                 if fig["value"] is not None and truth:
-                    got, want = f"≈ {fig['value']:,.0f} K", f"{truth:,.0f} K"
+                    from .colour.table import figure_text
+
+                    got, want = figure_text(fig, 4), f"{truth:,.0f} K"
                     click.echo(f"  {zone + ' CCT':26s} {got:34s} {want:>12s} {fig['value'] / truth - 1:>+7.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}{os.sep}")
     click.echo("\n≈ marks an estimate: most of its uncertainty comes from an assumption (here the assumed tone "

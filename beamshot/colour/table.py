@@ -9,13 +9,18 @@ from __future__ import annotations
 from ..figure import Figure
 from ..vocabulary import COLOUR_TERMS
 
-__all__ = ["colour_lines"]
+__all__ = ["colour_lines", "figure_text"]
 
 
 def _fig(d: dict | None) -> Figure | None:
     if d is None:
         return None
     return Figure(d["value"], d["uncertainty"], d["unit"], d["method"], d["status"], d["reason"])
+
+
+def figure_text(d: dict | None, digits: int = 3) -> str:
+    """A figure of the report's colour section as printed (value ± uncertainty, or 'not measured')."""
+    return _text(d, digits)
 
 
 def _text(d: dict | None, digits: int = 3) -> str:
