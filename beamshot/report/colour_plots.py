@@ -66,8 +66,10 @@ def plot_tint_map(result, contours: dict | None = None, *, ax=None, half_width_d
     u, v, s = cells["u_prime"], cells["v_prime"], cells["sigma_uv"]
     ref = _reference_uv(result)
     ok = np.isfinite(u) & np.isfinite(v) & np.isfinite(s) & (s <= MAP_SIGMA_UV_LIMIT)
-    if ref is None and ok.any():
+    ref_words = "the hotspot's colour"
+    if ref is None and ok.any():  # no hotspot colour (clipped): the innermost measured cell
         ref = np.array([u[ok][0], v[ok][0]])
+        ref_words = "the innermost measured colour (hotspot not measured)"
     d = np.hypot(u - ref[0], v - ref[1]) if ref is not None else np.full(u.shape, np.nan)
     d = np.where(ok, d, np.nan)
     te = np.radians(np.asarray(cells["theta_edges_deg"]))
@@ -91,7 +93,7 @@ def plot_tint_map(result, contours: dict | None = None, *, ax=None, half_width_d
     ax.set_facecolor("#ececec")
     ax.set_xlabel("angle from the beam axis, right (deg)", fontsize=FONT_PT)
     ax.set_ylabel("angle from the beam axis, up (deg)", fontsize=FONT_PT)
-    ax.set_title("tint: Δu′v′ from the hotspot's colour", fontsize=FONT_PT + 1)
+    ax.set_title(f"tint: Δu′v′ from {ref_words}", fontsize=FONT_PT + 1)
     cb = ax.figure.colorbar(mesh, ax=ax, orientation="horizontal", fraction=0.05, pad=0.12)
     cb.set_label(f"Δu′v′ (hatched: colour noise above {MAP_SIGMA_UV_LIMIT:g}, or clipped)", fontsize=FONT_PT)
     cb.ax.tick_params(labelsize=FONT_PT - 1)
@@ -184,7 +186,10 @@ def plot_uv_diagram(result, *, ax=None):
     ax.set_aspect("equal")
     ax.set_xlabel("u′ (CIE 1976)", fontsize=FONT_PT)
     ax.set_ylabel("v′ (CIE 1976)", fontsize=FONT_PT)
-    ax.set_title("colour against angle (grey: lines of constant CCT)", fontsize=FONT_PT + 1)
+    title = "colour against angle (grey: lines of constant CCT)"
+    if result.white_balance == "auto":
+        title = "colour against angle (shifted by auto white balance:\nonly the differences hold)"
+    ax.set_title(title, fontsize=FONT_PT + 1)
     ax.legend(fontsize=FONT_PT - 1, loc="lower right", framealpha=0.9)
     ax.tick_params(labelsize=FONT_PT - 1)
     ax.grid(color="#e4e4e4", lw=0.5)
