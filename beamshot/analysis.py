@@ -52,7 +52,9 @@ TILT_MIN_SHARP_FRACTION = 0.9
 #: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
 _LOW_EXPOSURE_LEVEL = 0.15
 #: The stages of an analysis, in order; each one's time is recorded in the report (``stage_seconds``).
-STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "report")
+STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "colour", "report")
+#: Whether colour across the beam is measured by default (beamshot.colour; see docs/colour.md for its cost).
+COLOUR_BY_DEFAULT = False
 
 
 def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = None, ambient=None, flat=None,
@@ -62,7 +64,7 @@ def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = 
             response: str | Response | None = None, head_diameter_mm: float | None = None,
             camera: str | CameraProfile | None = None, dark=None, geometry=None, wall_points=None,
             target_scale: float = 1.0, assume_square: bool = False, light_name: str | None = None,
-            lux_point_px: tuple[float, float] | None = None) -> BeamReport:
+            lux_point_px: tuple[float, float] | None = None, colour: bool | None = None) -> BeamReport:
     """Analyse a beam photo (or a bracket of them); returns a :class:`BeamReport`.
 
     ``photo`` is a path or :class:`~beamshot.photo.Photo`, or a list of them (a bracket, merged
@@ -72,6 +74,7 @@ def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = 
     light unless ``camera_distance_m`` (camera-to-wall, m) says otherwise.  ``lux_at_peak`` is
     a lux-meter reading on the wall, taken at the peak or, with ``lux_point_px`` = (x, y), at
     that pixel of the (first) beam photo.  ``light_name`` names the light in titles and reports.
+    ``colour`` measures colour across the beam (default :data:`COLOUR_BY_DEFAULT`).
     The keywords build a :class:`~beamshot.request.Request` run by :func:`run`.
     """
     return run(Request.from_options(
@@ -80,7 +83,7 @@ def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = 
         use_exif_scale=use_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov_deg, camera_distance_m=camera_distance_m,
         response=response, head_diameter_mm=head_diameter_mm, camera=camera, dark=dark, geometry=geometry,
         wall_points=wall_points, target_scale=target_scale, assume_square=assume_square, light_name=light_name,
-        lux_point_px=lux_point_px))
+        lux_point_px=lux_point_px), colour=colour)
 
 
 class _StageClock:
@@ -98,8 +101,9 @@ class _StageClock:
             self.seconds[name] = round(time.perf_counter() - t0, 4)
 
 
-def run(request: Request) -> BeamReport:
-    """The analysis as a sequence of named stages (``STAGES``), each taking and returning plain data."""
+def run(request: Request, *, colour: bool | None = None) -> BeamReport:
+    """The analysis as a sequence of named stages (``STAGES``), each taking and returning plain data.
+    ``colour`` switches the colour stage (default :data:`COLOUR_BY_DEFAULT`)."""
     req = request.validated()
     clock = _StageClock()
     with clock("load"):
@@ -116,8 +120,15 @@ def run(request: Request) -> BeamReport:
         unc = uncertainty(req, loaded, linear, mapped, measured, scaled)
     with clock("figures"):
         figures = figures_of(req, measured, scaled, unc)
+    colour_result = None
+    if COLOUR_BY_DEFAULT if colour is None else colour:
+        with clock("colour"):
+            colour_result = colour_of(req, loaded, linear, mapped, measured, figures)
     with clock("report"):
         report = assemble(req, loaded, linear, mapped, measured, scaled, unc, figures)
+    if colour_result is not None:
+        report = replace(report, colour=colour_result.to_dict(), colour_result=colour_result,
+                         warnings=list(report.warnings) + colour_warnings(colour_result))
     return replace(report, stage_seconds=dict(clock.seconds))
 
 
@@ -380,7 +391,40 @@ def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncerta
     return figures
 
 
-# ---- stage 8: the report ------------------------------------------------------------------------
+# ---- stage 8: colour across the beam (beamshot.colour) -------------------------------------------
+
+def colour_of(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured",
+              figures: dict | None = None):
+    """Chromaticity, CCT and Duv per zone and over the map, tint uniformity (beamshot.colour.beam_colour);
+    the zone boundaries move by the relative uncertainties of the hotspot, field and spill angles."""
+    from .colour.beam_colour import beam_colour
+    from .photo import RAW_EXTENSIONS
+
+    import os
+
+    photos = linear.prep.beam_photos
+    raw = any(os.path.splitext(p.name)[1].lower() in RAW_EXTENSIONS for p in photos)
+    rel = []
+    for key in ("hotspot_angle", "field_angle", "spill_angle"):
+        f = (figures or {}).get(key)
+        rel.append(f.uncertainty / f.value if f is not None and f.value and f.uncertainty and f.status in
+                   ("measured", "estimate") else 0.0)
+    return beam_colour(mapped.image, measured, photos=photos, profile=loaded.profile, raw=raw,
+                       boundary_rel=tuple(rel))
+
+
+def colour_warnings(result) -> list[str]:
+    """The report's warning lines about colour: why it is not measured, or what limits it."""
+    if not result.measured:
+        return [f"colour not measured: {result.reason}"]
+    out = list(result.notes)
+    clipped = [z for z, d in result.zones.items() if d["cct"].reason and "clipped" in d["cct"].reason]
+    if clipped:
+        out.append(f"colour of the {' and '.join(clipped)} not measured: clipped in at least one channel")
+    return out
+
+
+# ---- stage 9: the report ------------------------------------------------------------------------
 
 def assemble(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured", scaled: Scaled,
              unc: Uncertain, figures: dict) -> BeamReport:

@@ -68,11 +68,12 @@ COLUMNS: dict[str, str] = {
     "head_diameter_mm": "diameter of the light's head, mm (far-field warning)",
     "reflectance": "wall reflectance for the exposure-metadata estimate",
     "no_exif_scale": "keep figures relative without a lux reading (true/false)",
+    "colour": "also measure colour across the beam (true/false; docs/colour.md)",
 }
 _PATH_COLUMNS = ("ambient", "dark", "flat", "geometry")
 _FLOAT_COLUMNS = ("distance_m", "lux", "distance_uncertainty_m", "camera_distance_m", "meter_accuracy_percent",
                   "focal_35mm", "hfov_deg", "scale_bar_mm", "head_diameter_mm", "reflectance")
-_BOOL_COLUMNS = ("square", "no_exif_scale")
+_BOOL_COLUMNS = ("square", "no_exif_scale", "colour")
 _TRUE = ("true", "yes", "1", "y")
 _FALSE = ("false", "no", "0", "n", "")
 
@@ -189,6 +190,8 @@ class Item:
     request: object = None
     error: str | None = None
     already_done: bool = False
+    #: measure colour across the beam (the manifest's ``colour`` column)
+    colour: bool = False
 
 
 def _is_listlike(v) -> bool:
@@ -341,6 +344,8 @@ def _normalise(row: Row, base: str, hashes: dict, profiles: dict) -> tuple[dict,
         kw["assume_square"] = opt["square"]
     if "no_exif_scale" in opt:
         kw["use_exif_scale"] = not opt["no_exif_scale"]
+    if opt.get("colour"):
+        kw["colour"] = True  # for analysis.run, not the request (plan() takes it out)
     if "lux_at" in opt:
         kw["lux_point_px"] = tuple(opt["lux_at"])
     kw.setdefault("distance_m", None)
@@ -376,6 +381,7 @@ def plan(manifest, out_dir, *, pictures: bool = True) -> list[Item]:
         try:
             kw, rec = _normalise(r, base, hashes, profiles)
             photo = kw.pop("photo")
+            colour = bool(kw.pop("colour", False))
             request = Request.from_options(photo, **kw).validated()
         except (_RowError, BeamshotError) as exc:
             items.append(Item(r.row, label or _default_name(r), "", "", "", error=_one_line(exc)))
@@ -389,7 +395,7 @@ def plan(manifest, out_dir, *, pictures: bool = True) -> list[Item]:
         seen[folder] = r.row
         marker = folder + ".done.json"
         done = _is_done(marker, folder, key)
-        items.append(Item(r.row, label or _default_name(r), key, folder, marker, request, None, done))
+        items.append(Item(r.row, label or _default_name(r), key, folder, marker, request, None, done, colour))
     return items
 
 
@@ -417,6 +423,7 @@ class Task:
     request: object
     pictures: bool = True
     journal: str | None = None
+    colour: bool = False
 
 
 @dataclass
@@ -527,7 +534,7 @@ def run_item(task: Task) -> Outcome:
         if _is_done(task.marker, task.folder, task.key):
             return skipped("finished by another run")
         _journal(task, "start")
-        report = run(task.request)
+        report = run(task.request, colour=True) if task.colour else run(task.request)
         if _is_done(task.marker, task.folder, task.key):
             return skipped("finished by another run")
         write_report(report, task.folder, picture=task.pictures)
@@ -706,7 +713,7 @@ def run_batch(manifest, out_dir, *, workers: int | None = None, scheduler: str |
             progress(outcome, by_row[outcome.row])
 
     journal = os.environ.get(JOURNAL_ENV) or None
-    tasks = [Task(it.row, it.name, it.key, it.folder, it.marker, it.request, pictures, journal)
+    tasks = [Task(it.row, it.name, it.key, it.folder, it.marker, it.request, pictures, journal, it.colour)
              for it in items if it.error is None and not it.already_done]
     with _batch_lock(out), contextlib.ExitStack() as stack:
         client = None
@@ -764,8 +771,31 @@ def summary_rows(out_dir: str, items: list[Item], outcomes: dict) -> list[dict]:
             for key in FIGURES:
                 f = figs.get(key) or {}
                 rec["figures"][key] = {p: f.get(p) for p in _FIGURE_PARTS}
+            rec["colour"] = _colour_cells((data.get("colour") if isinstance(data, dict) else None))
         records.append(rec)
     return records
+
+
+#: Colour columns of the summary (empty for items analysed without colour): each zone's CCT and Duv and
+#: the largest tint difference between zones, as ``<column>``, ``<column>_uncertainty``, ``..._status``.
+COLOUR_COLUMNS = ("hotspot_cct_k", "corona_cct_k", "spill_cct_k", "hotspot_duv", "corona_duv", "spill_duv",
+                  "zones_max_delta_uv")
+
+
+def _colour_cells(colour: dict | None) -> dict:
+    """The summary's colour cells from a report's ``colour`` section (all None without colour)."""
+    empty = {c: {"value": None, "uncertainty": None, "status": None} for c in COLOUR_COLUMNS}
+    if not isinstance(colour, dict) or not colour.get("measured"):
+        return empty
+    out = {}
+    for c in COLOUR_COLUMNS:
+        if c == "zones_max_delta_uv":
+            f = (colour.get("tint") or {}).get(c) or {}
+        else:
+            zone, what = c.split("_", 1)
+            f = ((colour.get("zones") or {}).get(zone) or {}).get("cct" if what == "cct_k" else "duv") or {}
+        out[c] = {p: f.get(p) for p in ("value", "uncertainty", "status")}
+    return out
 
 
 def _atomic_write(path: str, text: str) -> None:
@@ -793,6 +823,8 @@ def write_summary(out_dir: str, items: list[Item], outcomes: dict) -> tuple[str,
     head = ["name", "row", "status", "reason", "folder"]
     for key in FIGURES:
         head += [key, f"{key}_uncertainty", f"{key}_unit", f"{key}_status"]
+    for c in COLOUR_COLUMNS:
+        head += [c, f"{c}_uncertainty", f"{c}_status"]
     w.writerow(head)
 
     def cell(x):
@@ -803,6 +835,10 @@ def write_summary(out_dir: str, items: list[Item], outcomes: dict) -> tuple[str,
         for key in FIGURES:
             f = r["figures"].get(key) or {}
             line += [cell(f.get(p)) for p in _FIGURE_PARTS]
+        colour = r.get("colour") or {}
+        for c in COLOUR_COLUMNS:
+            f = colour.get(c) or {}
+            line += [cell(f.get(p)) for p in ("value", "uncertainty", "status")]
         w.writerow(line)
     counts = {s: sum(1 for r in records if r["status"] == s) for s in (STATUS_DONE, STATUS_SKIPPED, STATUS_FAILED)}
     doc = {"beamshot": __version__, "items_total": len(records), "counts": counts,

@@ -305,10 +305,14 @@ def cli():
         help="Print the whole report as JSON, profile arrays included (as report.json).")
 @option("--units", type=click.Choice(["metric", "imperial"]), default="metric",
         help="Units of printed distances: imperial adds feet and yards (the report keeps metres).")
+@option("--colour", "colour", is_flag=True,
+        help="Also measure colour across the beam: chromaticity, CCT and Duv of hotspot, corona and spill, "
+             "tint uniformity, and tint.png (see docs/colour.md).")
 @click.pass_context
 def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux_at_peak, meter_accuracy, reflectance,
             no_exif_scale, focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points,
-            scale_bar_mm, target_scale, assume_square, head_mm, light_name, out_dir, as_json, as_json_full, units):
+            scale_bar_mm, target_scale, assume_square, head_mm, light_name, out_dir, as_json, as_json_full, units,
+            colour):
     """Analyze PHOTOS of a beam on a white wall: calibrated figures, report files.
 
     Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft.
@@ -358,7 +362,8 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
                  use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
                  camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
                  camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
-                 target_scale=target_scale, assume_square=assume_square, light_name=light_name, **kw)
+                 target_scale=target_scale, assume_square=assume_square, light_name=light_name,
+                 **({"colour": True} if colour else {}), **kw)
     written = write_report(report, out_dir) if out_dir else []
     where = (f"wrote {', '.join(written)}" if written else
              "no files written; give --out DIR for report.json, profile.csv and beam.png")
@@ -377,6 +382,11 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
     click.echo(f"{light_name}: {names} at {at}" if light_name else f"{names} at {at}")
     click.echo(f"  tone curve: {report.settings['response']}; {report.calibration.get('response_source', 'assumed')}")
     _print_figures(report, units=units)
+    if report.colour is not None:
+        from .colour.table import colour_lines
+
+        for line in colour_lines(report.colour):
+            click.echo(line)
     marks = {f.status for f in report.figures.values()}
     if "estimate" in marks:
         click.echo("  ≈ marks an estimate: most of its uncertainty comes from an assumption (see the warnings)")
@@ -393,11 +403,11 @@ def _decimals(text: str) -> int:
     return len(m.group(1) or "") if m else 0
 
 
-@cli.command(short_help="Render, analyze and check an invented three-prototype comparison.")
+@cli.command(short_help="Render, analyze and check an invented comparison of optic prototypes.")
 @option("--out", "out_dir", type=click.Path(file_okay=False), default="beamshot-demo",
         help="Folder for the demo photos and reports.")
 def demo(out_dir):
-    """Render an invented three-prototype comparison, analyze it, compare with the truth."""
+    """Render an invented comparison of optic prototypes, analyze it, compare with the truth."""
     from .analysis import analyze as run
     from .demo import write_demo_photos
     from .report.output import write_report
@@ -423,7 +433,8 @@ def demo(out_dir):
     rows = []
     for light in lights:
         report = run(light["photo"], distance_m=light["distance_m"], ambient=light["ambient"],
-                     lux_at_peak=light["lux_at_peak"], light_name=light["label"])
+                     lux_at_peak=light["lux_at_peak"], light_name=light["label"],
+                     **({"colour": True} if "hotspot_cct_k" in light["truth"] else {}))
         write_report(report, os.path.join(out_dir, light["name"]))
         rows.append((light, report))
     truth_keys = (("peak_intensity", "peak_cd"), ("hotspot_angle", "hotspot_angle_deg"),
@@ -443,6 +454,15 @@ def demo(out_dir):
             truth_text = f"{truth:,.{_decimals(fig.text(3))}f}" + ("°" if unit == "deg" else f" {unit}" if unit else "")
             err = (fig.value - truth) / truth
             click.echo(f"  {label(key):26s} {fig.text(3):34s} {truth_text:>12s} {err:>+7.1%}")
+        if report.colour is not None and report.colour["measured"]:
+            for zone in ("hotspot", "spill"):
+                fig = report.colour["zones"][zone]["cct"]
+                truth = light["truth"].get(f"{zone}_cct_k")
+                if fig["value"] is not None and truth:
+                    from .colour.table import figure_text
+
+                    got, want = figure_text(fig, 4), f"{truth:,.0f} K"
+                    click.echo(f"  {zone + ' CCT':26s} {got:34s} {want:>12s} {fig['value'] / truth - 1:>+7.1%}")
         click.echo(f"  report: {os.path.join(out_dir, light['name'])}{os.sep}")
     click.echo("\n≈ marks an estimate: most of its uncertainty comes from an assumption (here the assumed tone "
                "curve and lens shading of an uncalibrated camera); see each report's warnings")
@@ -694,6 +714,33 @@ def camera_scale(photo, lux, at, meter_accuracy, name, out):
     click.echo(f"camera constant K = {k:.5g} lx (± {rel:.1%}); E = K v N^2 / (t S)")
     if "warning" in notes:
         click.echo(f"  ! {notes['warning']}")
+
+
+@camera.command("colour-chart", short_help="Colour matrix from a photo of a reference chart.")
+@click.argument("photo", type=click.Path(dir_okay=False))
+@option("--patches", required=True, type=click.Path(dir_okay=False),
+        help="CSV with the columns x,y,size,X,Y,Z: each patch's centre and box side (px, photo as shown) and its "
+             "reference XYZ under the light.")
+@option("--name", required=True, help="Profile name (created or updated).")
+@option("--out", "out", type=click.Path(dir_okay=False), default=None, help=_PROFILE_OUT_HELP)
+def camera_colour_chart(photo, patches, name, out):
+    """Fit the camera RGB -> XYZ matrix from a chart photographed under the light (fixed white balance),
+    for absolute colour with analyze --colour (docs/colour.md)."""
+    from .camera.linearize import linearize
+    from .colour.chart import fit_chart_matrix, patch_rgb, read_chart_table
+    from .photo import load_photo
+
+    profile = _profile_for_update(name, out)
+    p = load_photo(photo)
+    img = linearize(p, profile.response)
+    if profile.flat is not None:
+        img = img.divided_by(profile.flat.evaluate(img.shape))
+    boxes, xyz = read_chart_table(patches)
+    fit = fit_chart_matrix(patch_rgb(img, boxes), xyz)
+    profile = profile.with_step("colour chart", _file_records([p]), details={"residual_rms_uv": fit["residual_rms_uv"]},
+                                colour_matrix=fit)
+    _save(profile, out)
+    click.echo(f"colour matrix from {fit['patches']} patches: residual {fit['residual_rms_uv']:.4f} in u'v' (RMS)")
 
 
 @camera.command("show", short_help="Print a camera profile.")

@@ -1,8 +1,10 @@
-"""The demo: an invented workshop comparing three optic prototypes for a bike light's head.
+"""The demo: an invented workshop comparing optic prototypes for a bike light's head.
 
 Everything here is made up and rendered by :mod:`beamshot.synth`: the beam patterns, the room
 and the camera.  The prototypes are named only by number and optic (a smooth reflector, a
-textured reflector, a TIR optic).  The scenario: a small workshop shoots each prototype at
+textured reflector, a TIR optic, and a reflector whose spill ring is warmer than its hotspot:
+the blend of a white LED's blue die and phosphor changes with angle, rendered as a 5700 K
+hotspot and a 3500 K spill, for colour across the beam).  The scenario: a small workshop shoots each prototype at
 4 m on a white wall with a phone's ultra-wide camera in manual exposure, plus one light-off
 frame, and reads a lux meter at the hotspot.
 
@@ -20,7 +22,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .synth import HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, exposure_time_for_peak, render_photo, truth_figures
+from .synth import (HotspotSpillBeam, Scene, SynthCamera, TwoToneBeam, encode_jpeg, exposure_time_for_peak, render_photo,
+                    render_two_tone_photo, truth_figures)
 
 __all__ = ["DEMO_LIGHTS", "DEMO_DISTANCE_M", "DEMO_WIDTH_PX", "TRUTH_DIGITS", "write_demo_photos"]
 
@@ -35,7 +38,12 @@ TRUTH_DIGITS = 6
 class DemoLight:
     name: str
     label: str
-    pattern: HotspotSpillBeam
+    pattern: HotspotSpillBeam | TwoToneBeam
+
+    @property
+    def colour(self) -> bool:
+        """Whether the light's colour changes across the beam (analysed with colour)."""
+        return isinstance(self.pattern, TwoToneBeam)
 
 
 DEMO_LIGHTS = (
@@ -48,6 +56,10 @@ DEMO_LIGHTS = (
     DemoLight("proto-3-tir-optic", "prototype 3, TIR optic",
               HotspotSpillBeam(peak_cd=3800.0, hotspot_fwhm_deg=14.0, spill_fraction=0.01, spill_falloff=0.2,
                                cutoff_deg=21.0, edge_width_deg=1.0, ellipse_ratio=1.12)),
+    DemoLight("proto-4-warm-spill-ring", "prototype 4, reflector with a warm spill ring",
+              TwoToneBeam.split(HotspotSpillBeam(peak_cd=7000.0, hotspot_fwhm_deg=7.0, spill_fraction=0.03,
+                                                 spill_falloff=0.3, cutoff_deg=28.0, edge_width_deg=0.5,
+                                                 rings=((13.0, 2.5, 0.025),)), 5700.0, 3500.0)),
 )
 
 #: The room is not perfectly dark: a little light from a corridor.
@@ -81,7 +93,8 @@ def write_demo_photos(folder: str, *, seed: int = 7, width_px: int = DEMO_WIDTH_
         cam = _camera(exposure_time_s=t, **size)
         beam_path = os.path.join(folder, f"{light.name}.jpg")
         with open(beam_path, "wb") as fh:
-            fh.write(encode_jpeg(render_photo(light.pattern, scene, cam, seed=seed + i), cam, quality=90))
+            render = render_two_tone_photo if light.colour else render_photo
+            fh.write(encode_jpeg(render(light.pattern, scene, cam, seed=seed + i), cam, quality=90))
         dark = HotspotSpillBeam(peak_cd=0.0)
         off_path = os.path.join(folder, f"{light.name}-off.jpg")
         with open(off_path, "wb") as fh:
@@ -95,7 +108,7 @@ def write_demo_photos(folder: str, *, seed: int = 7, width_px: int = DEMO_WIDTH_
             "distance_m": float(scene.distance_m),
             "lux_at_peak": lux,
             # unit in every key name (peak_cd, hotspot_angle_deg, beam_flux_lm...; ra has none)
-            "truth": {k: _rounded(v) for k, v in sorted(truth.items())},
+            "truth": {k: _rounded(v) for k, v in sorted({**truth, **_colour_truth(light.pattern)}.items())},
         }
         out.append(record)
     document = {
@@ -115,6 +128,23 @@ def write_demo_photos(folder: str, *, seed: int = 7, width_px: int = DEMO_WIDTH_
 def _truth(pattern: HotspotSpillBeam, distance_m: float) -> dict:
     """The pattern's true figures (a dense integration, about 2 s; the same for every render)."""
     return truth_figures(pattern, distance_m)
+
+
+@functools.lru_cache(maxsize=8)
+def _colour_truth(pattern) -> dict:
+    """For a two-tone beam: each zone's true CCT (Ohno 2013 on the zone's integrated XYZ) and the
+    hotspot-to-spill delta u'v' (synth.two_tone_truth); nothing for a one-colour beam."""
+    if not isinstance(pattern, TwoToneBeam):
+        return {}
+    from .colour.cct import cct_duv
+    from .colour.chromaticity import delta_uv_prime, uv_prime_of
+    from .synth import two_tone_truth
+
+    uv = {z: uv_prime_of(np.asarray(xyz)) for z, xyz in two_tone_truth(pattern, d_theta_deg=0.02,
+                                                                          d_phi_deg=2.0).items()}
+    out = {f"{z}_cct_k": float(cct_duv(p)[0]) for z, p in uv.items()}
+    out["hotspot_spill_delta_uv"] = float(delta_uv_prime(uv["hotspot"], uv["spill"]))
+    return out
 
 
 def _rounded(x) -> float:

@@ -71,6 +71,7 @@ _TAG_F_NUMBER = 0x829D
 _TAG_ISO = 0x8827
 _TAG_FOCAL_LENGTH = 0x920A
 _TAG_FOCAL_35MM = 0xA405
+_TAG_WHITE_BALANCE = 0xA403  # Exif 2.3: 0 = auto, 1 = manual
 
 
 @dataclass(frozen=True)
@@ -109,6 +110,10 @@ class Photo:
     linear: bool = False
     #: What the decoder ignored or assumed, for the report's warnings (e.g. an absurd EXIF value).
     notes: tuple[str, ...] = ()
+    #: Colour facts for beamshot.colour: ``white_balance`` ("auto", "manual" or None: EXIF tag
+    #: 0xA403), and for raw files ``camera_matrix`` (True if LibRaw has a camera-to-XYZ matrix for the file:
+    #: its own, e.g. a DNG's ColorMatrix, or LibRaw's table for the camera; then its camera -> sRGB is not zero).
+    colour_facts: dict = field(default_factory=dict, compare=False)
 
     @property
     def pixels(self) -> np.ndarray:
@@ -238,7 +243,17 @@ def _stored_values(exif, sub) -> dict:
             "focal_length_mm": _TAG_FOCAL_LENGTH, "focal_35mm_mm": _TAG_FOCAL_35MM}
     out = {k: sub.get(t, exif.get(t)) for k, t in tags.items()}
     out["orientation"] = exif.get(_TAG_ORIENTATION)
+    out["white_balance"] = sub.get(_TAG_WHITE_BALANCE, exif.get(_TAG_WHITE_BALANCE))
     return out
+
+
+def _white_balance_word(stored: dict) -> str | None:
+    """EXIF WhiteBalance (Exif 2.3 tag 0xA403) as a word: 0 -> "auto", 1 -> "manual", else None."""
+    value = stored.get("white_balance")
+    try:
+        return {0: "auto", 1: "manual"}.get(int(value))
+    except (TypeError, ValueError, OverflowError):
+        return None
 
 
 def _raw_exif(image: Image.Image) -> dict:
@@ -353,6 +368,7 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
             _check_size(name, w, h, limit)
             rgb = raw.postprocess(gamma=(1, 1), no_auto_bright=True, output_bps=16, use_camera_wb=True,
                                   output_color=rawpy.ColorSpace.sRGB)
+            has_matrix = bool(np.any(np.asarray(raw.color_matrix)[:3, :3] != 0))  # LibRaw's camera -> sRGB
     except BeamshotError:
         raise
     except (rawpy.LibRawError, OSError, ValueError, MemoryError) as exc:
@@ -368,7 +384,8 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
     stored.pop("orientation", None)
     exif, notes = _plausible(exif, stored)
     return Photo(bgr=np.ascontiguousarray(rgb[..., ::-1]), exif=exif, name=name,
-                 sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True, notes=notes)
+                 sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True, notes=notes,
+                 colour_facts={"white_balance": _white_balance_word(stored), "camera_matrix": has_matrix})
 
 
 def _jpeg_has_end(data: bytes) -> bool:
@@ -481,6 +498,7 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         sha256=digest.result(),
         max_code=max_code,
         notes=notes,
+        colour_facts={"white_balance": _white_balance_word(raw)},
     )
 
 

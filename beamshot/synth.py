@@ -42,6 +42,11 @@ __all__ = [
     "exposure_time_for_peak",
     "truth_figures",
     "render_bracket",
+    "blackbody_rgb",
+    "TwoToneBeam",
+    "render_two_tone_linear",
+    "render_two_tone_photo",
+    "two_tone_truth",
 ]
 
 #: Lens transmission T and vignetting factor f_v of the simulated camera (ISO 12232 typical).
@@ -394,3 +399,121 @@ def render_bracket(pattern, scene: Scene, camera: SynthCamera, stops, *, seed: i
         pixels = np.round(cam.response.encode(rgb) * 255.0).astype(np.uint8)
         frames.append(encode_jpeg(pixels, cam, quality=quality))
     return frames
+
+
+# --------------------------------------------------------------------------- colour: a two-tone beam
+def blackbody_rgb(temperature_k: float) -> tuple[float, float, float]:
+    """Linear sRGB of a blackbody, normalised to relative luminance 1 (a camera with fixed D65 white balance).
+
+    XYZ = integral of Planck's law (c2 = 1.4388e-2 m K) times the CIE 1931 2-degree colour-matching
+    functions (both shipped by colour-science: ``sd_blackbody``, ``MSDS_CMFS``); then linear sRGB
+    = the inverse of the IEC 61966-2-1 sRGB -> XYZ matrix (beamshot.colour.transform).
+    """
+    import colour
+
+    from .colour.transform import SRGB_TO_XYZ
+
+    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
+    xyz = colour.sd_to_XYZ(colour.sd_blackbody(float(temperature_k), cmfs.shape), cmfs) / 100.0
+    rgb = np.linalg.solve(SRGB_TO_XYZ, xyz / xyz[1])
+    return tuple(float(v) for v in rgb / float(np.dot(rgb, LUMINANCE_WEIGHTS_BT709)))
+
+
+@dataclass(frozen=True)
+class TwoToneBeam:
+    """A beam whose hotspot light has one colour and whose spill light another.
+
+    ``hotspot`` and ``spill`` are patterns (cd) whose sum is the beam; ``hotspot_k`` and
+    ``spill_k`` are blackbody temperatures (K) of their light.  Called as a pattern, it gives
+    the total intensity, so every other tool here (exposure, truth) works on it unchanged.
+    """
+
+    hotspot: object
+    spill: object
+    hotspot_k: float
+    spill_k: float
+
+    @classmethod
+    def split(cls, beam: HotspotSpillBeam, hotspot_k: float, spill_k: float) -> "TwoToneBeam":
+        """The hotspot (Gaussian) and spill (falling plateau) parts of a :class:`HotspotSpillBeam`,
+        each with the bezel cut-off: ``I = P (1-s) G C + P s S C`` (rings and stray go with the spill)."""
+        from dataclasses import replace
+
+        hot = replace(beam, peak_cd=beam.peak_cd * (1.0 - beam.spill_fraction), spill_fraction=0.0, rings=(),
+                      stray_fraction=0.0)
+        spill = replace(beam, peak_cd=beam.peak_cd * beam.spill_fraction, spill_fraction=1.0,
+                        rings=tuple((a, w, h / beam.spill_fraction) for a, w, h in beam.rings),
+                        stray_fraction=beam.stray_fraction / beam.spill_fraction)
+        return cls(hot, spill, hotspot_k, spill_k)
+
+    def __call__(self, theta, phi):
+        return self.hotspot(theta, phi) + self.spill(theta, phi)
+
+    @property
+    def spill_edge_deg(self) -> float | None:
+        return self.spill.spill_edge_deg
+
+
+def render_two_tone_linear(beam: TwoToneBeam, scene: Scene, camera: SynthCamera, *, seed: int = 0) -> np.ndarray:
+    """Linear RGB ``(H, W, 3)`` float32 of a :class:`TwoToneBeam`, with shot and read noise, clipped to [0, 1].
+
+    Each part is rendered as :func:`render_linear` does (all of its physics) and coloured by its
+    blackbody's sRGB (:func:`blackbody_rgb`), the room's ambient light by ``scene.light_rgb`` as in
+    :func:`render_rgb_linear`; the channels add, then noise as :func:`render_rgb_linear`.
+    """
+    rng = np.random.default_rng(seed)
+    c_hot, c_spill = np.asarray(blackbody_rgb(beam.hotspot_k)), np.asarray(blackbody_rgb(beam.spill_k))
+    c_room = np.asarray(scene.light_rgb, float)
+    c_room = c_room / float(np.dot(c_room, LUMINANCE_WEIGHTS_BT709))  # as render_rgb_linear colours all light
+    out = np.empty((camera.height_px, camera.width_px, 3), np.float32)
+    step = 256
+    for top in range(0, camera.height_px, step):
+        sl = slice(top, min(top + step, camera.height_px))
+        v_hot = render_linear(beam.hotspot, scene, camera, rows=sl)
+        v_spill = render_linear(beam.spill, scene, camera, rows=sl)
+        v_amb = np.zeros_like(v_hot)
+        if scene.ambient_lux:  # render_linear adds the ambient to each part: keep it once, in the room's colour
+            v_amb = render_linear(HotspotSpillBeam(peak_cd=0.0), scene, camera, rows=sl)
+            v_hot, v_spill = v_hot - v_amb, v_spill - v_amb
+        for c in range(3):
+            electrons = np.clip(v_hot * c_hot[c] + v_spill * c_spill[c] + v_amb * c_room[c], 0.0, None) * camera.full_well_e
+            noisy = electrons + rng.standard_normal(electrons.shape) * np.sqrt(electrons + camera.read_noise_e**2)
+            out[sl, :, c] = np.clip(noisy / camera.full_well_e, 0.0, 1.0)
+    return out
+
+
+def render_two_tone_photo(beam: TwoToneBeam, scene: Scene, camera: SynthCamera, *, seed: int = 0) -> np.ndarray:
+    """The 8-bit RGB photo of a :class:`TwoToneBeam` through the camera's tone curve (fixed white balance)."""
+    rgb = render_two_tone_linear(beam, scene, camera, seed=seed)
+    return np.round(camera.response.encode(rgb) * 255.0).astype(np.uint8)
+
+
+def two_tone_truth(beam: TwoToneBeam, *, theta_max_deg: float = 80.0, d_theta_deg: float = 0.01,
+                   d_phi_deg: float = 1.0) -> dict:
+    """True CIE XYZ of the light in each zone, by dense integration of the two parts (independent of
+    the analyser): hotspot = at or above 50 % of the peak, corona = 10-50 %, spill = below 10 % and
+    inside the spill edge (the cut-off angle).  ``XYZ = sum (I_hot XYZ_hot + I_spill XYZ_spill) dOmega``
+    with each blackbody's XYZ at Y = 1 (Planck's law and the CIE 1931 functions, colour-science)."""
+    import colour
+
+    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
+
+    def xyz1(t):
+        xyz = colour.sd_to_XYZ(colour.sd_blackbody(float(t), cmfs.shape), cmfs)
+        return xyz / xyz[1]
+
+    x_hot, x_spill = xyz1(beam.hotspot_k), xyz1(beam.spill_k)
+    th = np.radians(np.arange(d_theta_deg / 2, theta_max_deg, d_theta_deg))
+    ph = np.radians(np.arange(d_phi_deg / 2, 360.0, d_phi_deg))
+    tt, pp = np.meshgrid(th, ph, indexing="ij")
+    i_hot, i_spill = beam.hotspot(tt, pp), beam.spill(tt, pp)
+    total = i_hot + i_spill
+    peak = float(total.max())
+    d_omega = np.sin(tt) * np.radians(d_theta_deg) * np.radians(d_phi_deg)
+    edge = beam.spill_edge_deg
+    zones = {"hotspot": total >= 0.5 * peak, "corona": (total >= 0.1 * peak) & (total < 0.5 * peak),
+             "spill": (total < 0.1 * peak) & (np.degrees(tt) <= (edge if edge is not None else theta_max_deg))}
+    out = {}
+    for name, z in zones.items():
+        out[name] = (np.sum(i_hot * d_omega * z) * x_hot + np.sum(i_spill * d_omega * z) * x_spill).tolist()
+    return out

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Term", "FIGURES", "term", "label", "unit_text", "STATUS_WORDS", "STATUS_MARKS"]
+__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "term", "label", "unit_text", "STATUS_WORDS", "STATUS_MARKS"]
 
 
 @dataclass(frozen=True)
@@ -52,6 +52,22 @@ FIGURES: dict[str, Term] = {t.key: t for t in (
          "angle between the peak's direction and the beam axis (the spill's centre)"),
     Term("light_tilt", "light tilt (to the wall)", "deg",
          "angle between the light's beam axis and the wall's normal"),
+)}
+
+#: Words for colour across the beam (the report's ``colour`` section; beamshot.colour).  Kept apart
+#: from FIGURES: colour is measured only when asked for (--colour), per zone.
+COLOUR_TERMS: dict[str, Term] = {t.key: t for t in (
+    Term("transform", "colour transform", "", "the stated conversion from linear camera RGB to CIE 1931 XYZ"),
+    Term("cct", "CCT", "K", "correlated colour temperature by Ohno (2013) on CIE 1960 (u, v) (CIE 15; ANSI C78.377)"),
+    Term("duv", "Duv", "", "signed distance from the Planckian locus on CIE 1960 (u, v), positive above "
+                           "(greenish), negative below (pinkish) (ANSI C78.377)"),
+    Term("uv", "u', v' (CIE 1976)", "", "CIE 1976 UCS chromaticity coordinates of the zone's light"),
+    Term("xy", "x, y (CIE 1931)", "", "CIE 1931 chromaticity coordinates of the zone's light"),
+    Term("ansi_class", "ANSI C78.377 class", "K", "the nominal CCT whose quadrangle holds (CCT, Duv), as a guide"),
+    Term("zones_max_delta_uv", "largest tint difference between zones (Δu'v')", "",
+         "largest distance in CIE 1976 (u', v') between hotspot, corona and spill"),
+    Term("map_max_delta_uv", "largest tint difference across the map (Δu'v')", "",
+         "largest distance in CIE 1976 (u', v') between two cells of the colour map"),
 )}
 
 #: Status words as printed for people (report.json keeps the keys).

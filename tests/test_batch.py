@@ -181,8 +181,8 @@ def test_broken_rows_fail_alone(shots, tmp_path):
 def test_unknown_column_is_refused_in_one_line(shots, tmp_path):
     folder, _ = shots
     manifest = tmp_path / "m.csv"
-    manifest.write_text(f"photos,distance_m,colour\n{folder / 'narrow.jpg'},5,red\n")
-    with pytest.raises(BeamshotError, match="unknown column 'colour'; the known columns are photos, distance_m") as e:
+    manifest.write_text(f"photos,distance_m,paint\n{folder / 'narrow.jpg'},5,red\n")  # (colour is a column now)
+    with pytest.raises(BeamshotError, match="unknown column 'paint'; the known columns are photos, distance_m") as e:
         read_manifest(manifest)
     assert "\n" not in str(e.value) and all(c in str(e.value) for c in COLUMNS)
     (tmp_path / "m.toml").write_text('[[item]]\nphotos = "a.jpg"\ndistance_m = 5\nfocal = 26\n')

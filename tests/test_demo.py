@@ -19,11 +19,12 @@ def demo_lights(tmp_path_factory):
     return write_demo_photos(str(tmp_path_factory.mktemp("demo")))
 
 
-@pytest.mark.parametrize("index", [0, 1, 2])
+@pytest.mark.parametrize("index", [0, 1, 2, 3])
 def test_demo_matches_truth(demo_lights, index):
     light = demo_lights[index]
+    colour = DEMO_LIGHTS[index].colour
     rep = analyze(light["photo"], distance_m=light["distance_m"], ambient=light["ambient"],
-                  lux_at_peak=light["lux_at_peak"])
+                  lux_at_peak=light["lux_at_peak"], colour=colour)
     t = light["truth"]
     # tolerances of the beam-analysis acceptance criteria (hotspot 2 %, field and spill 3 %, Ra 5 %, peak 3 %)
     for key, tkey, tol in (("hotspot_angle", "hotspot_angle_deg", 0.02), ("field_angle", "field_angle_deg", 0.03),
@@ -31,12 +32,17 @@ def test_demo_matches_truth(demo_lights, index):
                            ("beam_flux", "beam_flux_lm", 0.03)):
         assert abs(rep[key].value / t[tkey] - 1) <= tol, key
     assert not any("tilted" in w for w in rep.warnings)
+    if colour:  # issue 14 acceptance: CCTs within 3 %, delta u'v' within 0.003 (truth: synth.two_tone_truth)
+        zones = rep.colour["zones"]
+        for zone in ("hotspot", "spill"):
+            assert abs(zones[zone]["cct"]["value"] / t[f"{zone}_cct_k"] - 1) <= 0.03, zone
+        assert abs(rep.colour["tint"]["zones_max_delta_uv"]["value"] - t["hotspot_spill_delta_uv"]) <= 0.003
 
 
 def test_demo_command_runs(tmp_path):
     res = CliRunner().invoke(cli, ["demo", "--out", str(tmp_path / "d")])
     assert res.exit_code == 0, res.output
-    assert res.output.count("report:") == 3
+    assert res.output.count("report:") == len(DEMO_LIGHTS)
     assert (tmp_path / "d" / "proto-3-tir-optic" / "beam.png").exists()
 
 
@@ -79,7 +85,8 @@ def test_ground_truth_is_sorted_rounded_and_unit_named(small_renders):
     for light in data["lights"]:
         for key, value in light["truth"].items():
             # every truth key names its unit, except Ra (spill flux over hotspot flux, no unit)
-            assert key == "ra" or re.search(r"_(cd|deg|lm|lux_on_wall)$", key), key
+            # (and prototype 4's colour truth: CCTs in K, the delta u'v' without a unit)
+            assert key in ("ra", "hotspot_spill_delta_uv") or re.search(r"_(cd|deg|lm|lux_on_wall|k)$", key), key
             assert value == float(f"{value:.6g}"), (key, value)
     assert data["seed"] == 7 and data["photo_size_px"] == [400, 300]
 

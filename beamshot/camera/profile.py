@@ -52,6 +52,9 @@ class CameraProfile:
     created_utc: str = ""
     provenance: tuple = ()
     distortion: Distortion | None = None
+    #: Camera RGB -> CIE XYZ fitted from a reference-chart photo (beamshot.colour.chart): ``{"matrix":
+    #: 3x3 rows, "residual_rms_uv": fit residual in u'v', "patches": count, "method": text}``; None if not fitted.
+    colour_matrix: dict | None = None
 
     def with_step(self, step: str, files: list[dict], *, details: dict | None = None, **changes) -> "CameraProfile":
         """A copy with ``changes`` applied and a provenance entry for ``step`` (plus ``details``, if any)."""
@@ -92,6 +95,7 @@ class CameraProfile:
                 **(self.scale_notes or {}),
             },
             "provenance": list(self.provenance),
+            **({} if self.colour_matrix is None else {"colour_matrix": self.colour_matrix}),
         }
 
     @classmethod
@@ -159,7 +163,22 @@ class CameraProfile:
             calibrated=calibrated,
             created_utc=check.text("created_utc", data.get("created_utc", "")) or "",
             provenance=tuple(provenance),
+            colour_matrix=_colour_matrix_from(check, data.get("colour_matrix")),
         )
+
+
+def _colour_matrix_from(check: "_FieldCheck", cm) -> dict | None:
+    """The chart-fitted colour matrix: a finite, invertible 3x3 ``matrix`` plus its fit notes."""
+    if cm is None:
+        return None
+    check.mapping("colour_matrix", cm)
+    rows = cm.get("matrix")
+    if not isinstance(rows, list) or len(rows) != 3:
+        check.fail("colour_matrix.matrix", rows, "3 rows of 3 numbers (camera RGB -> XYZ)")
+    m = [check.numbers(f"colour_matrix.matrix[{i}]", row, 3) for i, row in enumerate(rows)]
+    if abs(float(np.linalg.det(np.asarray(m, float)))) < 1e-9:
+        check.fail("colour_matrix.matrix", rows, "an invertible matrix (fit it again from a chart photo)")
+    return {**cm, "matrix": m}
 
 
 #: Accepted range of each numeric profile field: ``(low, high)``; the low end is excluded for

@@ -20,7 +20,7 @@ __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "CAUTIONS", "ROUND_DIGITS", "BeamRep
 
 SCHEMA_NAME = "beamshot.report"
 #: Major.minor; a reader accepts the same major version and refuses a newer major.
-SCHEMA_VERSION = "1.1"
+SCHEMA_VERSION = "1.2"
 #: Significant digits of every float written to report.json (the figures' precision; more than
 #: any figure's uncertainty justifies, and enough to re-read a value without visible change).
 ROUND_DIGITS = 6
@@ -51,6 +51,10 @@ class BeamReport:
     tool_version: str = ""
     #: Wall-clock seconds of each analysis stage (``beamshot.analysis.STAGES``), for benchmarks and the curious.
     stage_seconds: dict = field(repr=False, default_factory=dict)
+    #: Colour across the beam (``beamshot.colour.BeamColour.to_dict()``), or None when colour was not asked for.
+    colour: dict | None = field(repr=False, default=None)
+    #: The BeamColour itself (with its map cells), for pictures; not written.
+    colour_result: object = field(repr=False, default=None, compare=False)
 
     def __getitem__(self, name: str) -> Figure:
         return self.figures[name]
@@ -74,6 +78,7 @@ class BeamReport:
             "figures": {k: f.to_dict() for k, f in self.figures.items()},
             "warnings": list(self.warnings),
             "cautions": list(CAUTIONS),
+            **({} if self.colour is None else {"colour": self.colour}),
             "profile": {
                 "unit": self.beam.unit,
                 "theta_deg": arr(p.theta_deg),

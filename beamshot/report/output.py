@@ -1,4 +1,5 @@
-"""Write a BeamReport to a folder as one set: report.json, profile.csv, intensity-map.npz, beam.png, report.html.
+"""Write a BeamReport to a folder as one set: report.json, profile.csv, intensity-map.npz, beam.png,
+tint.png (with colour), report.html.
 
 A reader of ``--out`` sees the old set or the new set, never a mix, and nothing of ours is
 left beside it:
@@ -52,7 +53,7 @@ if TYPE_CHECKING:  # imported lazily: the command line imports this module's Ter
 __all__ = ["REPORT_FILES", "STALE_AFTER_S", "LOCK_WAIT_S", "Terminated", "write_report", "write_json",
            "write_profile_csv", "read_report_json", "output_key", "write_set"]
 
-REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png", "report.html")
+REPORT_FILES = ("report.json", "profile.csv", "intensity-map.npz", "beam.png", "tint.png", "report.html")
 #: Our temporary and set-aside folders of *other* outputs are removed once older than this (s).
 STALE_AFTER_S = 24 * 3600.0
 #: How long a run waits for another run writing the same --out before refusing (s).
@@ -315,6 +316,10 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
             png, map_png = plots.beam_pictures(report)
             with open(os.path.join(tmp, "beam.png"), "wb") as fh:
                 fh.write(png)
+        if picture and getattr(report, "colour", None) is not None:  # only when colour was asked for
+            from .colour_plots import tint_figure
+
+            tint_figure(report, os.path.join(tmp, "tint.png"))
         # the page is always written (without pictures it holds the tables and says so)
         write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png)
 
