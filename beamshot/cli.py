@@ -1,7 +1,8 @@
 """Command line: parse options, call the library, print, exit codes.
 
-Exit codes (also in the README): 0 done; 1 a comparison found a real difference (``far-field``
-only); 2 an input problem: one line on stderr naming the problem and the fix, no traceback (click's
+Exit codes (also in the README): 0 done; 1 a comparison found a real difference (``far-field``),
+or a figure failed its specification (``qa``); 4 ``qa`` could not decide every figure (undecided or
+not measured; docs/spec.md); 2 an input problem: one line on stderr naming the problem and the fix, no traceback (click's
 own usage errors too, in at most three lines); 3 an internal error: a one-line apology on stderr
 naming the log file that holds the traceback; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM)
 while the output set was being written.
@@ -714,6 +715,11 @@ from .batch_cli import batch as _batch  # noqa: E402 - imports only click; the e
 
 _batch.short_help = "Analyze every row of a manifest on all cores, resumably."
 cli.add_command(_batch)
+
+from .qa_cli import qa as _qa  # noqa: E402 - imports only click; the checks load inside the command
+
+_qa.short_help = "Check reports against a beam specification: pass, fail, undecided."
+cli.add_command(_qa)
 
 
 def main(argv=None):
