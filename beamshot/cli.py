@@ -721,6 +721,11 @@ from .qa_cli import qa as _qa  # noqa: E402 - imports only click; the checks loa
 _qa.short_help = "Check reports against a beam specification: pass, fail, undecided."
 cli.add_command(_qa)
 
+from .lm63_cli import lm63 as _lm63  # noqa: E402 - imports only click; numpy loads inside the commands
+
+_lm63.short_help = "Write the measured beam as an IES LM-63 file, or read one."
+cli.add_command(_lm63)
+
 
 def main(argv=None):
     """The ``beamshot`` console script: runs the command line and exits with its code."""

@@ -1,0 +1,113 @@
+"""``beamshot lm63 write|read``: the measured beam as an IES LM-63 file, and a file summarised.
+
+Registered in ``beamshot.cli`` like ``batch``; imports only click at start-up.  Exit codes: 0
+done, 2 an input problem (one line), 3 an internal error.  ``lm63 read`` prints where a file
+departs from the LM-63-2002 type C layout but still exits 0 (it read the file).
+"""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+__all__ = ["lm63", "main"]
+
+
+@click.group("lm63")
+def lm63():
+    """Write the measured beam as an IES LM-63 photometric file, or read one (docs/lm63.md)."""
+
+
+@lm63.command("write", short_help="Write an analysis folder's I(theta, phi) as an LM-63-2002 file.")
+@click.argument("folder", type=click.Path())
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), metavar="FILE",
+              help="The .ies file to write (replaced whole).")
+@click.option("--vertical-step", type=click.FloatRange(min=0.01, max=10.0), default=None, metavar="DEG",
+              help="Vertical angle step, degrees (default: the finest the photo resolves, docs/lm63.md).")
+@click.option("--testlab", default=None, metavar="TEXT", help="Who measured ([TESTLAB]; default 'not stated').")
+@click.option("--manufacturer", default=None, metavar="TEXT", help="The light's maker ([MANUFAC]; default 'not stated').")
+@click.option("--lumcat", default=None, metavar="TEXT", help="Catalogue number of the light ([LUMCAT]).")
+@click.option("--luminaire", default=None, metavar="TEXT", help="The light ([LUMINAIRE]; default: its name in the report).")
+@click.option("--lamp", default=None, metavar="TEXT", help="The emitter ([LAMP]).")
+def lm63_write(folder, out_path, vertical_step, testlab, manufacturer, lumcat, luminaire, lamp):
+    """Write the intensity map of FOLDER (written by 'beamshot analyze --out') as a type C
+    LM-63-2002 file: vertical angle 0 on the beam axis, horizontal angle 0 to the right and 90 up
+    as seen from behind the light; directions beyond the photo are written as 0 and the file says
+    where.  A relative map (no absolute scale) is refused."""
+    from .lm63 import export_folder
+
+    facts = dict(testlab=testlab, manufacturer=manufacturer, lumcat=lumcat, luminaire=luminaire, lamp=lamp)
+    p, notes = export_folder(folder, out_path, vertical_step_deg=vertical_step, facts=facts)
+    step = p.vertical_deg[1] - p.vertical_deg[0]
+    cover = p.keyword("_COVERAGE")
+    click.echo(f"wrote {out_path}: {len(p.vertical_deg)} vertical angles (step {step:g} deg), "
+               f"{len(p.horizontal_deg)} horizontal angles (0-360 deg); {cover[0] if cover else ''}")
+    click.echo(f"  flux in the file {p.flux_lm():.4g} lm; peak {p.peak()[0]:.5g} cd")
+    for n in notes:
+        click.echo(f"  ! {n}")
+
+
+@lm63.command("read", short_help="Summarise an LM-63 file and check its layout.")
+@click.argument("file", type=click.Path(dir_okay=False))
+@click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
+def lm63_read(file, as_json):
+    """Read the LM-63 file FILE and print its keywords, angles, peak, flux and the 50 % / 10 %
+    cone angles, and where it departs from the LM-63-2002 type C layout."""
+    from .lm63 import read_lm63, structure_problems
+
+    p = read_lm63(file)
+    peak, pv, ph = p.peak()
+    try:
+        flux = p.flux_lm()
+        a50, a10 = p.cone_angle_deg(0.5), p.cone_angle_deg(0.1)
+    except Exception as exc:  # noqa: BLE001 - a layout the integrals do not cover (e.g. type B): say why
+        from .errors import BeamshotError
+
+        if not isinstance(exc, BeamshotError):
+            raise
+        flux = a50 = a10 = None
+    problems = structure_problems(p)
+    doc = {"file": file, "format": p.format_line or None, "keywords": [list(k) for k in p.keywords],
+           "photometric_type": {1: "C", 2: "B", 3: "A"}[p.photometric_type], "lumens_per_lamp": p.lumens_per_lamp,
+           "candela_multiplier": p.multiplier, "vertical_deg": [float(p.vertical_deg[0]), float(p.vertical_deg[-1]),
+                                                                 len(p.vertical_deg)],
+           "horizontal_deg": [float(p.horizontal_deg[0]), float(p.horizontal_deg[-1]), len(p.horizontal_deg)],
+           "peak_cd": peak, "peak_at_deg": {"vertical": pv, "horizontal": ph}, "flux_lm": flux,
+           "cone_angle_50_deg": a50, "cone_angle_10_deg": a10, "layout_problems": problems}
+    if as_json:
+        import json
+
+        click.echo(json.dumps(doc, indent=1))
+        return
+    click.echo(f"{file}: {p.format_line or 'no format line (LM-63-1986)'}, type "
+               f"{doc['photometric_type']}, TILT={p.tilt}")
+    for k, t in p.keywords:
+        click.echo(f"  [{k}] {t}" if k else f"  {t}")
+    click.echo(f"  vertical angles {p.vertical_deg[0]:g}-{p.vertical_deg[-1]:g} deg ({len(p.vertical_deg)}), "
+               f"horizontal {p.horizontal_deg[0]:g}-{p.horizontal_deg[-1]:g} deg ({len(p.horizontal_deg)})")
+    click.echo(f"  lumens per lamp {p.lumens_per_lamp:g}" + (" (absolute photometry)" if p.lumens_per_lamp == -1 else "")
+               + f", candela multiplier {p.multiplier:g}")
+    click.echo(f"  peak {peak:.5g} cd at vertical {pv:g} deg, horizontal {ph:g} deg")
+    if flux is not None:
+        click.echo(f"  flux {flux:.5g} lm (whole file)")
+    for frac, a in ((50, a50), (10, a10)):
+        if a is not None:
+            click.echo(f"  cone of equal solid angle at {frac} % of the peak: {a:.4g} deg full angle")
+    if problems:
+        click.echo("  departs from the LM-63-2002 type C layout: " + "; ".join(problems))
+    else:
+        click.echo("  follows the LM-63-2002 type C layout")
+
+
+def main(argv=None) -> int:
+    """Run the command alone (``python -m beamshot.lm63_cli``) with the exit codes of ``beamshot``."""
+    from .cli import _Group
+
+    group = _Group("beamshot")
+    group.add_command(lm63)
+    return group.main(["lm63", *(sys.argv[1:] if argv is None else argv)], standalone_mode=False)
+
+
+if __name__ == "__main__":
+    sys.exit(main())
