@@ -213,12 +213,15 @@ class _Source:
     missing: str = "the report"
 
 
-def _clean_figures(figs, where: str) -> dict:
-    """A report's ``figures`` object checked for the fields the judgement reads."""
+def _clean_figures(figs, where: str, wanted=None) -> dict:
+    """A report's ``figures`` object checked for the fields the judgement reads (only the figures
+    in ``wanted`` when given, so figures a spec does not name are never in the way)."""
     if not isinstance(figs, dict):
         raise BeamshotError(f"{where}: has no 'figures' object; give a report.json written by beamshot analyze")
     out = {}
     for key, f in figs.items():
+        if wanted is not None and key not in wanted:
+            continue
         if not isinstance(f, dict):
             raise BeamshotError(f"{where}: figure {key!r} is not an object; write the report again")
         rec = {}
@@ -236,16 +239,16 @@ def _clean_figures(figs, where: str) -> dict:
     return out
 
 
-def _from_report(path: str) -> _Source:
+def _from_report(path: str, wanted=None) -> _Source:
     from .report.output import read_report_json
 
     data = read_report_json(path)
     name = ((data.get("settings") or {}).get("light_name") if isinstance(data.get("settings"), dict) else None) \
         or os.path.basename(os.path.dirname(os.path.abspath(path))) or path
-    return _Source(str(name), path, _clean_figures(data.get("figures"), path))
+    return _Source(str(name), path, _clean_figures(data.get("figures"), path, wanted))
 
 
-def _from_summary_json(path: str, data: dict) -> list[_Source]:
+def _from_summary_json(path: str, data: dict, wanted=None) -> list[_Source]:
     items = data.get("items")
     if not isinstance(items, list):
         raise BeamshotError(f"{path}: a batch summary without 'items'; give the summary.json written by beamshot batch")
@@ -261,11 +264,11 @@ def _from_summary_json(path: str, data: dict) -> list[_Source]:
             note = f"the analysis failed: {it.get('reason') or 'no reason given'}"
             figs = {}
         src = f"{path} (row {it.get('row', i)})"
-        out.append(_Source(name, src, _clean_figures(figs, where), note, "the batch summary"))
+        out.append(_Source(name, src, _clean_figures(figs, where, wanted), note, "the batch summary"))
     return out
 
 
-def _from_summary_csv(path: str, text: str) -> list[_Source]:
+def _from_summary_csv(path: str, text: str, wanted=None) -> list[_Source]:
     try:
         rows = list(csv.DictReader(io.StringIO(text)))
     except csv.Error as exc:
@@ -277,7 +280,7 @@ def _from_summary_csv(path: str, text: str) -> list[_Source]:
     if not {"name", "status"} <= head:
         raise BeamshotError(f"{path}: not a batch summary (no 'name' and 'status' columns); give the summary.csv "
                             "written by beamshot batch")
-    keys = [c for c in head if f"{c}_status" in head]
+    keys = [c for c in head if f"{c}_status" in head and (wanted is None or c in wanted)]
     out = []
     for i, r in enumerate(rows, 1):
         where = f"{path}, line {i + 1}"
@@ -303,7 +306,7 @@ def _from_summary_csv(path: str, text: str) -> list[_Source]:
     return out
 
 
-def load_units(path) -> list[_Source]:
+def load_units(path, wanted=None) -> list[_Source]:
     """The units in ``path``: a report.json, a batch summary (summary.json / summary.csv, or a batch
     folder holding them), an analysis output folder, or a folder of output folders (searched
     below for report.json files, in name order)."""
@@ -312,7 +315,7 @@ def load_units(path) -> list[_Source]:
         for name in ("summary.json", "summary.csv", "report.json"):
             p = os.path.join(path, name)
             if os.path.isfile(p):
-                return load_units(p)
+                return load_units(p, wanted)
         found = []
         for root, dirs, files in os.walk(path):
             dirs.sort()
@@ -321,10 +324,10 @@ def load_units(path) -> list[_Source]:
         if not found:
             raise BeamshotError(f"{path}: no report.json, summary.json or summary.csv in it or below; give the folder "
                                 "written by 'beamshot analyze --out' or 'beamshot batch --out'")
-        return [_from_report(p) for p in found]
+        return [_from_report(p, wanted) for p in found]
     if path.lower().endswith(".csv"):
         raw = read_user_file(path, "give a summary.csv, a report.json or a folder")
-        return _from_summary_csv(path, raw.decode("utf-8", errors="replace"))
+        return _from_summary_csv(path, raw.decode("utf-8", errors="replace"), wanted)
     raw = read_user_file(path, "give a report.json, a summary or a folder")
     try:
         data = json.loads(raw.decode("utf-8"))
@@ -332,9 +335,9 @@ def load_units(path) -> list[_Source]:
         raise BeamshotError(f"{path}: not JSON; give a report.json, a batch summary.json or summary.csv, or a "
                             "folder of them") from None
     if isinstance(data, dict) and data.get("schema") == "beamshot.report":
-        return [_from_report(path)]
+        return [_from_report(path, wanted)]
     if isinstance(data, dict) and "items" in data and "counts" in data:
-        return _from_summary_json(path, data)
+        return _from_summary_json(path, data, wanted)
     raise BeamshotError(f"{path}: neither a beamshot report nor a batch summary; give a report.json, a summary.json "
                         "or a folder of them")
 
@@ -343,7 +346,7 @@ def check_sources(spec: Spec, paths, *, k: float | None = None) -> QAResult:
     """Check every unit found in ``paths`` (see :func:`load_units`) against ``spec``."""
     units = []
     for p in paths:
-        for s in load_units(p):
+        for s in load_units(p, {lim.figure for lim in spec.limits}):
             units.append(check_figures(spec, s.figures, name=s.name, source=s.source, note=s.note, k=k,
                                        missing=s.missing))
     if not units:
