@@ -258,9 +258,11 @@ def parse_lm63(text: str, *, source: str = "file") -> Photometry:
     for name, a in (("vertical", vert), ("horizontal", hor)):
         if np.any(np.diff(a) <= 0):
             raise BeamshotError(f"{source}: the {name} angles do not rise steadily; the file is damaged")
-    if vert[0] < 0 or vert[-1] > 180 or hor[0] < 0 or hor[-1] > 360:
-        raise BeamshotError(f"{source}: angles outside 0-180 deg (vertical) or 0-360 deg (horizontal); "
+    if ptype == 1 and (vert[0] < 0 or vert[-1] > 180 or hor[0] < 0 or hor[-1] > 360):
+        raise BeamshotError(f"{source}: type C angles outside 0-180 deg (vertical) or 0-360 deg (horizontal); "
                             "the file is damaged")
+    if ptype != 1 and (min(vert[0], hor[0]) < -180 or max(vert[-1], hor[-1]) > 360):
+        raise BeamshotError(f"{source}: angles outside -180 to 360 deg; the file is damaged")
     return Photometry(vertical_deg=vert, horizontal_deg=hor, candela=cand * mult * ballast,
                       keywords=tuple((k, t) for k, t in keywords), format_line=fmt, lamps=lamps, lumens_per_lamp=lumens,
                       multiplier=mult, photometric_type=ptype, units_type=units, width=width, length=length,
@@ -407,7 +409,7 @@ def supported_step_deg(beam, settings: dict | None) -> tuple[float, str]:
     step = next((x for x in NICE_STEPS_DEG if x >= need - 1e-9), NICE_STEPS_DEG[-1])
     why = (f"{step:g} deg: the smallest of {', '.join(f'{x:g}' for x in NICE_STEPS_DEG)} deg at or above the map's "
            f"{map_step:g} deg" + (f" and a working pixel's {pixel:.3g} deg at the axis" if pixel else
-                                  " (pixel angle unknown: wall mapped by a homography)"))
+                                  " (the pixel's angle is unknown: no focal length in the report)"))
     return step, why
 
 

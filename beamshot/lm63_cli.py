@@ -54,19 +54,18 @@ def lm63_write(folder, out_path, vertical_step, testlab, manufacturer, lumcat, l
 def lm63_read(file, as_json):
     """Read the LM-63 file FILE and print its keywords, angles, peak, flux and the 50 % / 10 %
     cone angles, and where it departs from the LM-63-2002 type C layout."""
+    from .errors import BeamshotError
     from .lm63 import read_lm63, structure_problems
 
     p = read_lm63(file)
     peak, pv, ph = p.peak()
+    why_not = None
     try:
         flux = p.flux_lm()
         a50, a10 = p.cone_angle_deg(0.5), p.cone_angle_deg(0.1)
-    except Exception as exc:  # noqa: BLE001 - a layout the integrals do not cover (e.g. type B): say why
-        from .errors import BeamshotError
-
-        if not isinstance(exc, BeamshotError):
-            raise
+    except BeamshotError as exc:  # horizontal angles the integrals do not cover: say why, still summarise
         flux = a50 = a10 = None
+        why_not = str(exc)
     problems = structure_problems(p)
     doc = {"file": file, "format": p.format_line or None, "keywords": [list(k) for k in p.keywords],
            "photometric_type": {1: "C", 2: "B", 3: "A"}[p.photometric_type], "lumens_per_lamp": p.lumens_per_lamp,
@@ -74,7 +73,8 @@ def lm63_read(file, as_json):
                                                                  len(p.vertical_deg)],
            "horizontal_deg": [float(p.horizontal_deg[0]), float(p.horizontal_deg[-1]), len(p.horizontal_deg)],
            "peak_cd": peak, "peak_at_deg": {"vertical": pv, "horizontal": ph}, "flux_lm": flux,
-           "cone_angle_50_deg": a50, "cone_angle_10_deg": a10, "layout_problems": problems}
+           "cone_angle_50_deg": a50, "cone_angle_10_deg": a10, "layout_problems": problems,
+           "not_integrated": why_not}
     if as_json:
         import json
 
@@ -91,6 +91,8 @@ def lm63_read(file, as_json):
     click.echo(f"  peak {peak:.5g} cd at vertical {pv:g} deg, horizontal {ph:g} deg")
     if flux is not None:
         click.echo(f"  flux {flux:.5g} lm (whole file)")
+    else:
+        click.echo(f"  flux not integrated: {why_not}")
     for frac, a in ((50, a50), (10, a10)):
         if a is not None:
             click.echo(f"  cone of equal solid angle at {frac} % of the peak: {a:.4g} deg full angle")
