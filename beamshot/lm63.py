@@ -181,7 +181,7 @@ def parse_lm63(text: str, *, source: str = "file") -> Photometry:
     tilt_at = None
     for n in range(1 if fmt else 0, len(lines)):
         s = lines[n].strip()
-        if s.upper().startswith("TILT"):
+        if re.match(r"^TILT\s*=", s, re.IGNORECASE):
             tilt_at = n
             break
         m = _KEYWORD.match(s)
@@ -194,11 +194,9 @@ def parse_lm63(text: str, *, source: str = "file") -> Photometry:
         elif s:
             keywords.append(["", s])  # 1986/1991 free-text header lines
     if tilt_at is None:
-        raise BeamshotError(f"{source}: no TILT= line; not an LM-63 photometric file (or its header is cut)")
+        raise BeamshotError(f"{source}: no TILT= line (TILT=NONE, TILT=INCLUDE or TILT=<file>); not an LM-63 "
+                            "photometric file, or its header is cut")
     tilt_line = lines[tilt_at].strip()
-    if not re.match(r"^TILT\s*=", tilt_line, re.I):
-        raise BeamshotError(f"{source}, line {tilt_at + 1}: {tilt_line[:40]!r} is not TILT=NONE, TILT=INCLUDE or "
-                            "TILT=<file>")
     tilt = tilt_line.split("=", 1)[1].strip()
     toks = _tokens(lines, tilt_at + 1)
     last_line = [tilt_at + 1]
@@ -228,7 +226,7 @@ def parse_lm63(text: str, *, source: str = "file") -> Photometry:
     if tilt.upper() == "INCLUDE":
         count("lamp-to-luminaire geometry of TILT=INCLUDE")
         n_tilt = count("number of tilt angles")
-        for i in range(2 * n_tilt):
+        for _ in range(2 * n_tilt):
             number("tilt angles and multiplying factors")
     elif tilt.upper() != "NONE":
         raise BeamshotError(f"{source}, line {tilt_at + 1}: TILT={tilt} names another file, which is not read here; "

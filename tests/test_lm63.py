@@ -103,8 +103,8 @@ def test_the_layout_follows_lm63_2002_line_by_line():
     assert len(numbers) == n_v + n_h + n_v * n_h  # vertical angles, horizontal angles, candela
     v = [float(x) for x in numbers[:int(n_v)]]
     hz = [float(x) for x in numbers[int(n_v):int(n_v + n_h)]]
-    assert v[0] == 0 and v[-1] == 90 and all(b > a for a, b in zip(v, v[1:]))  # type C: 0 ... 90 (from memory)
-    assert hz[0] == 0 and hz[-1] == 360 and all(b > a for a, b in zip(hz, hz[1:]))  # type C 0-360: no symmetry
+    assert v[0] == 0 and v[-1] == 90 and np.all(np.diff(v) > 0)  # type C: 0 ... 90 (from memory)
+    assert hz[0] == 0 and hz[-1] == 360 and np.all(np.diff(hz) > 0)  # type C 0-360: no symmetry
     # the two angle lists and each horizontal angle's block of #V values start on their own line
     # (common practice)
     starts = set(np.cumsum([0] + [len(s) for s in rest])[:-1].tolist())
@@ -121,7 +121,7 @@ def test_azimuth_convention_c0_right_c90_up():
 
     beam = replace(analytic_map(lobes, theta_max_deg=20.0, d_theta_deg=0.1, d_phi_deg=2.0), unit="cd")
     p, _ = photometry_from_map(beam, None)
-    peak, v, h = p.peak()
+    _, v, h = p.peak()
     assert (v, h) == pytest.approx((5.0, 90.0), abs=0.11)
     j0 = int(np.argmin(abs(p.horizontal_deg - 0.0)))
     i5 = int(np.argmin(abs(p.vertical_deg - 5.0)))
@@ -198,6 +198,9 @@ def test_read_accepts_tilt_include_and_more_lines():
     text = _cosine_file(extra=extra).replace("TILT=NONE", "TILT=INCLUDE\n1\n3\n0 45 90\n1 0.9 0.8")
     p = parse_lm63(text)
     assert p.tilt == "INCLUDE" and p.keyword("MANUFAC") == ["none second line of the test"]
+    # an untagged header line (LM-63-1986/1991 style) is kept as text, even one starting with "Tilt"
+    old_style = parse_lm63(_cosine_file(fmt="IESNA91").replace("[MANUFAC] none", "Tilted optic, see notes"))
+    assert ("", "Tilted optic, see notes") in old_style.keywords and old_style.tilt == "NONE"
     assert p.flux_lm() == pytest.approx(parse_lm63(_cosine_file()).flux_lm(), rel=1e-12)
 
 
