@@ -249,3 +249,23 @@ def test_export_of_a_real_analysis(analysed, tmp_path):
     assert doc["peak_cd"] == pytest.approx(figs["peak_intensity"]["value"], rel=0.02)
     assert abs(doc["cone_angle_50_deg"] - figs["hotspot_angle"]["value"]) < 2 * figs["hotspot_angle"]["uncertainty"]
     assert abs(doc["cone_angle_50_deg"] - truth["hotspot_angle_deg"]) < 0.3  # synth.truth_figures
+
+
+def test_cli_refuses_a_relative_map_and_a_malformed_file_in_one_line(analysed, tmp_path):
+    import shutil
+
+    from beamshot.report.intensity_map import write_intensity_map
+
+    out, _ = analysed
+    rel = tmp_path / "relative-set"
+    rel.mkdir()
+    shutil.copy(out / "report.json", rel / "report.json")
+    write_intensity_map(replace(read_intensity_map(out), unit="relative"), rel / "intensity-map.npz")
+    res = CliRunner().invoke(cli, ["lm63", "write", str(rel), "--out", str(tmp_path / "x.ies")])
+    assert res.exit_code == 2 and len(res.output.strip().splitlines()) == 1 and "--lux" in res.output
+    assert not (tmp_path / "x.ies").exists()
+    bad = tmp_path / "bad.ies"
+    bad.write_text(_cosine_file().replace("1 -1 1 19", "1 -1 1 abc"))
+    res = CliRunner().invoke(cli, ["lm63", "read", str(bad)])
+    assert res.exit_code == 2 and len(res.output.strip().splitlines()) == 1
+    assert "line 5: 'abc' is not a number; expected the number of vertical angles" in res.output
