@@ -52,7 +52,7 @@ TILT_MIN_SHARP_FRACTION = 0.9
 #: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
 _LOW_EXPOSURE_LEVEL = 0.15
 #: The stages of an analysis, in order; each one's time is recorded in the report (``stage_seconds``).
-STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "report")
+STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "shape", "report")
 
 
 def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = None, ambient=None, flat=None,
@@ -116,9 +116,11 @@ def run(request: Request) -> BeamReport:
         unc = uncertainty(req, loaded, linear, mapped, measured, scaled)
     with clock("figures"):
         figures = figures_of(req, measured, scaled, unc)
+    with clock("shape"):
+        shape = shape_of(req, linear, mapped, measured, unc)
     with clock("report"):
         report = assemble(req, loaded, linear, mapped, measured, scaled, unc, figures)
-    return replace(report, stage_seconds=dict(clock.seconds))
+    return replace(report, shape_figures=shape, stage_seconds=dict(clock.seconds))
 
 
 # ---- stage 1: load the beam photo(s) and the camera profile ------------------------------------
@@ -380,7 +382,19 @@ def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncerta
     return figures
 
 
-# ---- stage 8: the report ------------------------------------------------------------------------
+# ---- stage 8: beam shape and artefacts (artefacts.py, rings.py, shape_iso.py) -------------------
+
+def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured", unc: Uncertain) -> dict:
+    """Rings, centre hole, sectors, principal axes, ISO 11146 and ISO 13694 measures of the relative
+    map (scale-free: the absolute scale does not enter); see docs/artefacts.md."""
+    from .artefacts import shape_figures
+
+    block = _block_deg(unc.pixel_deg, mapped.image, linear.prep.beam_photos)
+    return shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
+                         correlation_deg=block).figures
+
+
+# ---- stage 9: the report ------------------------------------------------------------------------
 
 def assemble(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured", scaled: Scaled,
              unc: Uncertain, figures: dict) -> BeamReport:

@@ -51,6 +51,8 @@ class BeamReport:
     tool_version: str = ""
     #: Wall-clock seconds of each analysis stage (``beamshot.analysis.STAGES``), for benchmarks and the curious.
     stage_seconds: dict = field(repr=False, default_factory=dict)
+    #: Beam shape and artefact figures (``beamshot.artefacts.SHAPE_ORDER``), written as ``shape``.
+    shape_figures: dict = field(repr=False, default_factory=dict)
 
     def __getitem__(self, name: str) -> Figure:
         return self.figures[name]
@@ -72,6 +74,7 @@ class BeamReport:
             "calibration": self.calibration,
             "beam_axis": self.beam_axis,
             "figures": {k: f.to_dict() for k, f in self.figures.items()},
+            **({"shape": {k: f.to_dict() for k, f in self.shape_figures.items()}} if self.shape_figures else {}),
             "warnings": list(self.warnings),
             "cautions": list(CAUTIONS),
             "profile": {
