@@ -245,7 +245,32 @@ def _from_report(path: str, wanted=None) -> _Source:
     data = read_report_json(path)
     name = ((data.get("settings") or {}).get("light_name") if isinstance(data.get("settings"), dict) else None) \
         or os.path.basename(os.path.dirname(os.path.abspath(path))) or path
-    return _Source(str(name), path, _clean_figures(data.get("figures"), path, wanted))
+    return _Source(str(name), path, _clean_figures(_report_figures(data, path), path, wanted))
+
+
+def _report_figures(data: dict, where: str) -> dict:
+    """A report's figure records: ``figures`` and, when present, the shape and artefact figures
+    (``shape``), which have the same parts."""
+    figs = data.get("figures")
+    shape = data.get("shape")
+    if isinstance(figs, dict) and isinstance(shape, dict):
+        return {**shape, **figs}
+    return figs
+
+
+def _add_from_item_report(source: "_Source", summary_path: str, folder, wanted) -> "_Source":
+    """Figures a batch summary lacks (its columns hold the main figures only) read from the item's
+    own report.json, when the item's folder is still there."""
+    if not wanted or not folder or not isinstance(folder, str):
+        return source
+    missing = [k for k in wanted if k not in source.figures]
+    report = os.path.join(os.path.dirname(os.path.abspath(summary_path)), folder, "report.json")
+    if not missing or not os.path.isfile(report):
+        return source
+    extra = _from_report(report, set(missing)).figures
+    from dataclasses import replace
+
+    return replace(source, figures={**source.figures, **extra})
 
 
 def _from_summary_json(path: str, data: dict, wanted=None) -> list[_Source]:
@@ -264,7 +289,8 @@ def _from_summary_json(path: str, data: dict, wanted=None) -> list[_Source]:
             note = f"the analysis failed: {it.get('reason') or 'no reason given'}"
             figs = {}
         src = f"{path} (row {it.get('row', i)})"
-        out.append(_Source(name, src, _clean_figures(figs, where, wanted), note, "the batch summary"))
+        one = _Source(name, src, _clean_figures(figs, where, wanted), note, "the batch summary")
+        out.append(one if note else _add_from_item_report(one, path, it.get("folder"), wanted))
     return out
 
 
@@ -301,8 +327,9 @@ def _from_summary_csv(path: str, text: str, wanted=None) -> list[_Source]:
         if (r.get("status") or "").strip() == "failed":
             note, figs = f"the analysis failed: {r.get('reason') or 'no reason given'}", {}
         name = (r.get("name") or "").strip() or f"row {r.get('row') or i}"
-        out.append(_Source(name, f"{path} (row {r.get('row') or i})", _clean_figures(figs, where), note,
-                           "the batch summary's columns"))
+        one = _Source(name, f"{path} (row {r.get('row') or i})", _clean_figures(figs, where), note,
+                      "the batch summary's columns")
+        out.append(one if note else _add_from_item_report(one, path, (r.get("folder") or "").strip(), wanted))
     return out
 
 

@@ -52,7 +52,12 @@ def _interval_text(check) -> str:
 
 def print_result(result, *, detail: bool) -> None:
     """The printed table: per unit its verdict, and with ``detail`` one row per figure."""
-    from .vocabulary import label
+    from .spec import known_figures
+
+    terms = known_figures()
+
+    def label(key):
+        return terms[key].label if key in terms else key
 
     spec = result.spec
     k = spec.coverage_factor
@@ -128,10 +133,11 @@ def qa(ctx, spec_file, sources, result_path, coverage, detail):
     if not sources:
         click.echo(f"spec {spec.name or spec_file}: {len(spec.limits)} limit(s), judged on value ± "
                    f"{spec.coverage_factor:g}·u")
-        from .vocabulary import label
+        from .spec import known_figures
 
+        terms = known_figures()
         for lim in spec.limits:
-            click.echo(f"  {label(lim.figure):26s} {lim.text}")
+            click.echo(f"  {terms[lim.figure].label:26s} {lim.text}")
         return
     result = check_sources(spec, sources, k=coverage)
     print_result(result, detail=len(result.units) <= _DETAIL_UP_TO if detail is None else detail)

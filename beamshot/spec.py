@@ -1,7 +1,7 @@
 """A beam specification: target figures with tolerances, read from a small TOML file.
 
-A maker states, per figure of the report (keys of :data:`beamshot.vocabulary.FIGURES`), the
-range a sample must lie in, in one of three forms (docs/spec.md)::
+A maker states, per figure of the report (keys of :data:`beamshot.vocabulary.FIGURES`, and of
+the shape and artefact figures when the vocabulary has them), the range a sample must lie in, in one of three forms (docs/spec.md)::
 
     [spec]
     name = "prototype 4, 30 mm reflector"   # optional, printed with the result
@@ -55,10 +55,12 @@ _UNIT_ALIASES = {"°": "deg", "degree": "deg", "degrees": "deg", "none": "", "1"
 
 
 def known_figures() -> dict:
-    """The figure vocabulary (read when a spec is checked, so figures added later are known)."""
-    from .vocabulary import FIGURES
+    """The figure vocabulary, key -> Term: the report's ``figures`` and, where the vocabulary has
+    them, its beam shape and artefact figures (report.json ``shape``); read when a spec is checked,
+    so figures added later are known."""
+    from . import vocabulary
 
-    return FIGURES
+    return {**vocabulary.FIGURES, **getattr(vocabulary, "SHAPE_FIGURES", {})}
 
 
 @dataclass(frozen=True)

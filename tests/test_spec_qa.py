@@ -290,3 +290,34 @@ unit = "deg"
     assert res.exit_code == 1
     c = {c["figure"]: c for c in doc["units"][0]["checks"]}["field_angle"]
     assert c["interval"][0] < truth["field_angle_deg"] < c["interval"][1]
+
+
+def test_shape_figures_are_read_from_the_report_and_from_a_batch_items_report(tmp_path, monkeypatch):
+    # the shape and artefact figures live in report.json "shape" and in vocabulary.SHAPE_FIGURES;
+    # a ring score is a fraction with no unit (docs/artefacts.md)
+    from beamshot import vocabulary
+    from beamshot.vocabulary import Term
+
+    shape_terms = dict(getattr(vocabulary, "SHAPE_FIGURES", {}))
+    shape_terms.setdefault("ring_score", Term("ring_score", "ring score", "", "largest ring amplitude"))
+    monkeypatch.setattr(vocabulary, "SHAPE_FIGURES", shape_terms, raising=False)
+    spec = tmp_path / "spec.toml"
+    spec.write_text('[figures.ring_score]\nmax = 0.05\n[figures.hotspot_angle]\ntarget = 8\ntolerance = 1\n'
+                    'unit = "deg"\n')
+    smooth = _report({"hotspot_angle": fig(8.0, 0.2)}, "smooth")
+    smooth["shape"] = {"ring_score": fig(0.012, None, status="upper_bound", unit="")}
+    ringed = _report({"hotspot_angle": fig(8.0, 0.2)}, "ringed")
+    ringed["shape"] = {"ring_score": fig(0.09, 0.01, unit="")}
+    _write(str(tmp_path / "batch" / "items" / "a" / "report.json"), smooth)
+    _write(str(tmp_path / "batch" / "items" / "b" / "report.json"), ringed)
+    items = [{"name": r["settings"]["light_name"], "row": i, "status": "done", "reason": "", "folder": f"items/{f}",
+              "figures": {"hotspot_angle": {p: r["figures"]["hotspot_angle"][p] for p in
+                                            ("value", "uncertainty", "unit", "status")}}}
+             for i, (r, f) in enumerate([(smooth, "a"), (ringed, "b")], 1)]
+    _write(str(tmp_path / "batch" / "summary.json"), {"items_total": 2, "counts": {}, "figures": {}, "items": items})
+    for source in (tmp_path / "batch" / "items", tmp_path / "batch"):
+        out = tmp_path / "r.json"
+        res = CliRunner().invoke(cli, ["qa", str(spec), str(source), "--result", str(out)])
+        doc = json.loads(out.read_text())
+        assert [u["verdict"] for u in doc["units"]] == ["pass", "fail"], res.output
+        assert res.exit_code == 1
