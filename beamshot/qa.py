@@ -1,9 +1,9 @@
 """Checking measured figures against a beam specification (:mod:`beamshot.spec`).
 
 Each figure is judged by its coverage interval ``[y - k u, y + k u]`` (JCGM 100:2008, 6.2.1:
-``U = k u``; k = 2 gives about 95 % for a normal distribution, 6.3.3), not by its value alone,
-the guarded-acceptance reading of conformity assessment (JCGM 106:2012, 8.3.2: the acceptance
-interval is the tolerance interval shrunk by the expanded uncertainty):
+``U = k u``; k = 2 gives about 95 % for a normal distribution, 6.3.3), not by its value alone:
+the guarded acceptance of conformity assessment (JCGM 106:2012, clause 8; the clause number from
+memory), whose acceptance interval is the tolerance interval shrunk by the expanded uncertainty:
 
 - **pass**: the whole interval lies inside the limit ``[low, high]`` (limits are closed);
 - **fail**: the whole interval lies outside it (strictly beyond one side);

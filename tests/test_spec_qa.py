@@ -1,8 +1,8 @@
 """Beam specifications and the QA check (beamshot.spec, beamshot.qa, ``beamshot qa``).
 
 The judgement follows the coverage interval y ± k·u of JCGM 100:2008 (6.2.1, U = k·u; k = 2 for
-about 95 %, 6.3.3) and the guarded acceptance of JCGM 106:2012 (8.3.2): pass only when the whole
-interval is inside the tolerance, fail only when it is wholly outside.
+about 95 %, 6.3.3) and the guarded acceptance of JCGM 106:2012 (clause 8, the number from memory):
+pass only when the whole interval is inside the tolerance, fail only when it is wholly outside.
 """
 
 import json
