@@ -119,7 +119,7 @@ class Photometry:
         h, c = self.full_circle()
         v = np.radians(self.vertical_deg)
         if v_max_deg is not None:
-            vm = math.radians(v_max_deg)
+            vm = min(max(math.radians(v_max_deg), v[0]), v[-1])
             keep = v < vm
             c = np.hstack([c[:, keep], np.array([np.interp(vm, v, row) for row in c])[:, None]])
             v = np.r_[v[keep], vm]

@@ -55,6 +55,7 @@ def test_uniform_cone_round_trips_and_its_flux_matches_the_analytic_value(tmp_pa
     h = math.radians(0.1)
     predicted = 2 * math.pi * I_CONE * math.cos(math.radians(A_CONE)) * h**2 / 6
     assert back.flux_lm() - exact == pytest.approx(predicted, abs=2 * math.pi * I_CONE * h**3)
+    assert back.flux_lm(90.0) == back.flux_lm(120.0) == pytest.approx(back.flux_lm(), rel=1e-12)
 
 
 def test_cone_edge_between_vertical_angles_errs_as_derived():
