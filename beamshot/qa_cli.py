@@ -74,11 +74,11 @@ def print_result(result, *, detail: bool) -> None:
             for c in unit.checks:
                 click.echo(f"  {label(c.limit.figure)[:26]:26s} {c.limit.text:16s} {_value_text(c):20s} "
                            f"{_interval_text(c):24s} {c.verdict}")
-                if c.verdict != "pass":
+                if c.verdict != "pass" and c.why != unit.note:
                     click.echo(f"  {'':26s} {c.why}")
         else:
             bad = [f"{c.limit.figure} {c.verdict}" for c in unit.checks if c.verdict != "pass"]
-            click.echo(f"{head}" + (f": {', '.join(bad)}" if bad else ""))
+            click.echo(f"{head}: {unit.note}" if unit.note else f"{head}" + (f": {', '.join(bad)}" if bad else ""))
     counts = result.counts()
     click.echo("")
     click.echo(f"{len(result.units)} unit(s): {counts['pass']} pass, {counts['fail']} fail, {counts['undecided']} "
