@@ -237,8 +237,12 @@ def test_export_of_a_real_analysis(analysed, tmp_path):
     # the flux within the spill edge's cone equals the report's beam flux (the same zone) within 1 %
     half_spill = figs["spill_angle"]["value"] / 2
     assert p.flux_lm(half_spill) == pytest.approx(figs["beam_flux"]["value"], rel=0.01)
-    # the file's values are the map's, sampled on the file's grid (type C V = theta, C = phi)
+    # write -> read gives the same grid and values within the written precision (6 significant digits)
     beam = read_intensity_map(out)
+    written, _ = photometry_from_map(beam, rep)
+    np.testing.assert_allclose(p.vertical_deg, written.vertical_deg, atol=1e-9)
+    np.testing.assert_allclose(p.candela, written.candela, rtol=5e-6, atol=1e-6)
+    # the file's values are the map's, sampled on the file's grid (type C V = theta, C = phi)
     th, ph = np.degrees(beam.theta), np.degrees(beam.phi)
     i, j = 40, 10  # theta 4.05 deg, phi 21 deg
     v_file = np.interp(th[i], p.vertical_deg, p.candela[int(np.argmin(abs(p.horizontal_deg - ph[j])))])
