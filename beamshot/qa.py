@@ -230,11 +230,15 @@ def _clean_figures(figs, where: str, wanted=None) -> dict:
             if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x)):
                 raise BeamshotError(f"{where}: figure {key!r} has {part} {x!r}, not a number; write the report again")
             rec[part] = None if x is None else float(x)
-        rec["unit"] = f.get("unit") or ""
-        rec["status"] = f.get("status") if f.get("status") in _STATUSES else None
+        unit = f.get("unit") or ""
+        if not isinstance(unit, str):
+            raise BeamshotError(f"{where}: figure {key!r} has unit {unit!r}, not text; write the report again")
+        rec["unit"] = unit
+        status = f.get("status")
+        rec["status"] = status if isinstance(status, str) and status in _STATUSES else None
         if rec["status"] is None:
-            raise BeamshotError(f"{where}: figure {key!r} has status {f.get('status')!r}; write the report again")
-        rec["reason"] = f.get("reason")
+            raise BeamshotError(f"{where}: figure {key!r} has status {status!r}; write the report again")
+        rec["reason"] = None if f.get("reason") is None else " ".join(str(f.get("reason")).split())
         out[key] = rec
     return out
 

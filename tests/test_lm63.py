@@ -274,3 +274,33 @@ def test_cli_refuses_a_relative_map_and_a_malformed_file_in_one_line(analysed, t
     res = CliRunner().invoke(cli, ["lm63", "read", str(bad)])
     assert res.exit_code == 2 and len(res.output.strip().splitlines()) == 1
     assert "line 5: 'abc' is not a number; expected the number of vertical angles" in res.output
+
+
+def test_damaged_files_are_read_or_refused_in_one_line():
+    # cut, spliced and overwritten copies of a valid file: a Photometry or a one-line BeamshotError
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    base = _cosine_file("IESNA:LM-63-2002", (0, 90, 180))
+    edit = st.tuples(st.integers(0, len(base)), st.integers(0, 12), st.text(alphabet="0123456789-.,e []TILT=\n\x00x",
+                                                                           max_size=6))
+
+    @settings(max_examples=300, deadline=None, derandomize=True)
+    @given(st.lists(edit, max_size=3))
+    def run(edits):
+        text = base
+        for at, cut, insert in edits:
+            text = text[:at] + insert + text[at + cut:]
+        try:
+            p = parse_lm63(text, source="f.ies")
+        except BeamshotError as exc:
+            assert "\n" not in str(exc) and str(exc).startswith("f.ies")
+            return
+        assert p.candela.shape == (len(p.horizontal_deg), len(p.vertical_deg))
+        try:
+            flux = p.flux_lm()
+        except BeamshotError:
+            return
+        assert np.isfinite(flux) or not np.all(np.isfinite(p.candela))
+
+    run()

@@ -321,3 +321,47 @@ def test_shape_figures_are_read_from_the_report_and_from_a_batch_items_report(tm
         doc = json.loads(out.read_text())
         assert [u["verdict"] for u in doc["units"]] == ["pass", "fail"], res.output
         assert res.exit_code == 1
+
+
+# --------------------------------------------------------------- damaged reports: a verdict or one line, never a crash
+
+def _damaged_reports():
+    from hypothesis import strategies as st
+
+    junk = st.one_of(st.none(), st.booleans(), st.integers(-10**30, 10**30), st.floats(allow_nan=False),
+                     st.text(max_size=8), st.lists(st.integers(), max_size=3), st.dictionaries(st.text(max_size=4),
+                                                                                              st.integers(), max_size=2))
+    part = st.sampled_from(["value", "uncertainty", "unit", "status", "reason"])
+    figure = st.sampled_from(["hotspot_angle", "peak_intensity", "ra"])
+    return st.lists(st.tuples(figure, part, junk), max_size=4), st.sampled_from(["figures", "settings", "shape", None])
+
+
+def test_damaged_reports_give_a_verdict_or_one_line(tmp_path):
+    from hypothesis import given, settings
+
+    from beamshot.qa import check_sources
+
+    spec = parse_spec(SPEC + "[figures.ra]\nmax = 4.0\n")
+    edits, top = _damaged_reports()
+    base = _report({"hotspot_angle": fig(8.0, 0.2), "peak_intensity": fig(12000, 500, unit="cd"),
+                    "ra": fig(2.0, 0.1, unit="")})
+
+    @settings(max_examples=150, deadline=None, derandomize=True)
+    @given(edits, top)
+    def run(changes, drop):
+        rep = json.loads(json.dumps(base))
+        for key, part, value in changes:
+            rep["figures"][key][part] = value
+        if drop:
+            rep[drop] = [1]
+        path = tmp_path / "report.json"
+        path.write_text(json.dumps(rep))
+        try:
+            result = check_sources(spec, [path])
+        except BeamshotError as exc:
+            assert "\n" not in str(exc) and str(exc).startswith(str(path))
+            return
+        assert result.verdict in ("pass", "fail", "undecided", "not measured")
+        json.dumps(result.to_dict(), allow_nan=False)
+
+    run()
