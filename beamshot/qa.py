@@ -121,12 +121,14 @@ class QAResult:
         from datetime import datetime, timezone
 
         from . import __version__
+        from .report.model import CAUTIONS
 
         return {"schema": QA_SCHEMA, "schema_version": QA_SCHEMA_VERSION,
                 "tool": {"name": "beamshot", "version": __version__},
                 "created_utc": datetime.now(timezone.utc).replace(microsecond=0).isoformat(),
                 "spec": self.spec.to_dict(), "sources": list(self.sources), "verdict": self.verdict,
-                "exit_code": self.exit_code, "counts": self.counts(), "units": [u.to_dict() for u in self.units]}
+                "exit_code": self.exit_code, "counts": self.counts(), "units": [u.to_dict() for u in self.units],
+                "cautions": list(CAUTIONS)}
 
 
 def worst(verdicts) -> str:

@@ -193,6 +193,7 @@ def test_command_exit_codes_and_result_file(tmp_path, hot, peak, code, verdict):
     assert res.exit_code == code, res.output
     doc = json.loads(out.read_text())
     assert doc["verdict"] == verdict and doc["exit_code"] == code and doc["schema"] == "beamshot.qa"
+    assert "IEC 62471" in " ".join(doc["cautions"])
     assert f"[{verdict.upper()}] unit" in res.output
 
 
