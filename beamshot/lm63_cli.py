@@ -51,9 +51,12 @@ def lm63_write(folder, out_path, vertical_step, testlab, manufacturer, lumcat, l
 @lm63.command("read", short_help="Summarise an LM-63 file and check its layout.")
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
-def lm63_read(file, as_json):
+@click.option("--report", "report_path", default=None, type=click.Path(), metavar="PATH",
+              help="Compare with the report.json (or analysis folder) the file was written from.")
+def lm63_read(file, as_json, report_path):
     """Read the LM-63 file FILE and print its keywords, angles, peak, flux and the 50 % / 10 %
-    cone angles, and where it departs from the LM-63-2002 type C layout."""
+    cone angles, and where it departs from the LM-63-2002 type C layout; with --report, the same
+    figures beside the report's."""
     from .errors import BeamshotError
     from .lm63 import read_lm63, structure_problems
 
@@ -75,6 +78,8 @@ def lm63_read(file, as_json):
            "peak_cd": peak, "peak_at_deg": {"vertical": pv, "horizontal": ph}, "flux_lm": flux,
            "cone_angle_50_deg": a50, "cone_angle_10_deg": a10, "layout_problems": problems,
            "not_integrated": why_not}
+    if report_path:
+        doc["against_report"] = _against_report(p, report_path, a50, a10) if flux is not None else None
     if as_json:
         import json
 
@@ -100,6 +105,45 @@ def lm63_read(file, as_json):
         click.echo("  departs from the LM-63-2002 type C layout: " + "; ".join(problems))
     else:
         click.echo("  follows the LM-63-2002 type C layout")
+    rows = doc.get("against_report")
+    if rows:
+        from .figure import value_with_uncertainty
+
+        click.echo(f"  beside {report_path}:")
+        click.echo(f"    {'figure':26s} {'report':>22s} {'file':>10s}  difference / u")
+        for r in rows:
+            rep = " ± ".join(value_with_uncertainty(r["report"], r["uncertainty"])) if r["uncertainty"] else \
+                f"{r['report']:.5g}"
+            z = "" if r["z"] is None else f"{r['z']:+.2f}"
+            click.echo(f"    {r['label']:26s} {rep:>22s} {r['file']:>10.5g}  {z}")
+
+
+def _against_report(p, report_path, a50, a10) -> list[dict]:
+    """The file's peak, flux within the spill edge's cone and 50 % / 10 % cone angles beside the
+    report's peak intensity, beam flux, hotspot and field angles (z: difference over the report's u)."""
+    import os
+
+    from .report.output import read_report_json
+
+    path = os.path.join(report_path, "report.json") if os.path.isdir(report_path) else report_path
+    figs = read_report_json(path).get("figures") or {}
+
+    def val(key):
+        f = figs.get(key) if isinstance(figs.get(key), dict) else {}
+        return f.get("value"), f.get("uncertainty")
+
+    spill, _ = val("spill_angle")
+    pairs = [("peak_intensity", "peak intensity (cd)", p.peak()[0]),
+             ("beam_flux", "beam flux in the edge (lm)", None if spill is None else p.flux_lm(spill / 2)),
+             ("hotspot_angle", "hotspot angle / 50 % cone", a50), ("field_angle", "field angle / 10 % cone", a10)]
+    rows = []
+    for key, lab, mine in pairs:
+        v, u = val(key)
+        if v is None or mine is None:
+            continue
+        rows.append({"figure": key, "label": lab, "report": v, "uncertainty": u, "file": mine,
+                     "z": (mine - v) / u if u else None})
+    return rows
 
 
 def main(argv=None) -> int:

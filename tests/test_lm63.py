@@ -225,10 +225,14 @@ def test_export_of_a_real_analysis(analysed, tmp_path):
     ies = tmp_path / "beam.ies"
     res = CliRunner().invoke(cli, ["lm63", "write", str(out), "--out", str(ies), "--manufacturer", "workshop test"])
     assert res.exit_code == 0, res.output
-    res = CliRunner().invoke(cli, ["lm63", "read", str(ies), "--json"])
+    res = CliRunner().invoke(cli, ["lm63", "read", str(ies), "--json", "--report", str(out)])
     assert res.exit_code == 0, res.output
     doc = json.loads(res.output)
     assert doc["layout_problems"] == []
+    # beside its report: every figure the file gives agrees within 2 of the report's u
+    assert {r["figure"] for r in doc["against_report"]} == {"peak_intensity", "beam_flux", "hotspot_angle",
+                                                           "field_angle"}
+    assert all(abs(r["z"]) < 2 for r in doc["against_report"]), doc["against_report"]
     rep = read_report_json(out / "report.json")
     figs = rep["figures"]
     p = read_lm63(ies)
