@@ -54,7 +54,14 @@ QA_SCHEMA_VERSION = "1.0"
 _NON_NEGATIVE = {"peak_intensity", "beam_distance", "hotspot_angle", "hotspot_angle_horizontal",
                  "hotspot_angle_vertical", "field_angle", "spill_angle", "spill_angle_horizontal",
                  "spill_angle_vertical", "hotspot_flux", "spill_flux", "beam_flux", "ra", "hotspot_offset",
-                 "light_tilt"}
+                 "light_tilt",
+                 # shape and artefact figures (docs/artefacts.md); ring_amplitude is signed (+ bright, - dark)
+                 "ring_score", "ring_count", "ring_angle", "ring_width", "centre_hole_depth", "centre_hole_width",
+                 "sector_nonuniformity_hotspot", "sector_nonuniformity_spill", "hotspot_major_angle",
+                 "hotspot_minor_angle", "hotspot_ellipticity", "hotspot_orientation", "spill_major_angle",
+                 "spill_minor_angle", "spill_ellipticity", "spill_orientation", "d4sigma_major", "d4sigma_minor",
+                 "d4sigma_ellipticity", "d4sigma_azimuth", "hotspot_flatness", "hotspot_uniformity",
+                 "hotspot_edge_steepness", "hotspot_transition_width"}
 _NON_NEGATIVE_UNITS = {"cd", "lm", "m"}
 _STATUSES = ("measured", "estimate", "lower_bound", "upper_bound", "not_measured")
 
@@ -172,7 +179,8 @@ def judge(limit: Limit, figure: dict | None, k: float) -> Check:
         a, b = -math.inf, value + k * (u or 0.0)
     else:
         return Check(limit, NOT_MEASURED, f"unknown status {status!r}", value=value, uncertainty=u, status=status)
-    a = max(a, floor)
+    if b >= floor:
+        a = max(a, floor)
     span = f"{_fmt(a, limit.unit)} … {_fmt(b, limit.unit)}"
     kind = {"lower_bound": "lower bound: ", "upper_bound": "upper bound: ", "estimate": "estimate: "}.get(status, "")
     if limit.low <= a and b <= limit.high:
