@@ -573,8 +573,11 @@ def export_folder(folder, out_path, *, vertical_step_deg: float | None = None, f
         raise BeamshotError(f"{folder}: not a folder; give the folder written by 'beamshot analyze ... --out DIR'")
     report = read_report_json(os.path.join(folder, "report.json"))
     beam = read_intensity_map(folder)
-    p, notes = photometry_from_map(beam, report, vertical_step_deg=vertical_step_deg, facts=facts,
-                                   issue_date=issue_date)
+    try:
+        p, notes = photometry_from_map(beam, report, vertical_step_deg=vertical_step_deg, facts=facts,
+                                       issue_date=issue_date)
+    except BeamshotError as exc:
+        raise BeamshotError(f"{folder}: {exc}") from None
     write_lm63(p, out_path)
     return p, notes
 
