@@ -3,9 +3,9 @@
 Exit codes (also in the README): 0 done; 1 a comparison found a real difference (``far-field``),
 or a figure failed its specification (``qa``); 4 ``qa`` could not decide every figure (undecided or
 not measured; docs/spec.md); 2 an input problem: one line on stderr naming the problem and the fix,
-no traceback (click's own usage errors too, in at most three lines); 3 an internal error: a one-line apology on stderr
-naming the log file that holds the traceback; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM)
-while the output set was being written.
+no traceback (click's own usage errors too, in at most three lines); 3 an internal error: a
+one-line apology on stderr naming the log file that holds the traceback; 130 interrupted (Ctrl-C);
+143 terminated (SIGTERM) while the output set was being written.
 
 Only click and small modules of our own are imported at start-up: numpy, OpenCV, matplotlib and
 the analysis are imported inside the commands, so ``beamshot --help`` is quick.
