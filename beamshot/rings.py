@@ -18,8 +18,10 @@ Method (this project's, built from textbook pieces):
    (scaled by the reduced chi-square when it exceeds 1).  The profile is used out to where it
    falls to 5 times its noise.
 4. A ring is reported when the fit is good (reduced chi-square <= 4), a richer smooth profile (a
-   polynomial of degree 7) leaves its amplitude within 3 sigma or 25 %, ``|a| / sigma_a >= RING_SIGNIFICANCE`` (5 sigma: over the ~300 profile
-   rows of a beam, a false alarm from noise alone has odds of about 1e-4 per beam) and its width lies
+   polynomial of degree 7) leaves its amplitude within 3 sigma or 25 %, ``|a| / sigma_a >= RING_SIGNIFICANCE`` (6 sigma: noise alone over the
+   ~300 profile rows of a beam would give a false ring at 5 sigma about once in 10^4 beams, but
+   small JPEG photos showed dips of 5 to 5.5 sigma where a hotspot's flank meets the spill, once
+   in 20 to 50 photos; the sixth sigma is for such effects the noise model does not hold) and its width lies
    between ``MIN_FWHM_DEG`` and ``MAX_FWHM_DEG`` (wider is the beam's shape, not a ring).
    No ring is searched within 1.5 deg of where the profile falls faster than a factor e^1.5 per
    degree (a flat top's edge and its knee into the spill: shape, not a ring).
@@ -64,8 +66,8 @@ MAX_LOG_SLOPE = 1.5
 ROBUST_FRACTION = 0.25
 #: Candidate threshold on the smoothed normalised residual.
 CANDIDATE_Z = 4.0
-#: Significance a ring needs to be reported (amplitude over its 1-sigma).
-RING_SIGNIFICANCE = 5.0
+#: Significance a ring needs to be reported (amplitude over its 1-sigma; see the module docstring).
+RING_SIGNIFICANCE = 6.0
 #: Rings closer to the axis than this are not searched (a centre feature; project choice), degrees.
 MIN_RING_DEG = 0.5
 #: Azimuth sectors whose mean profiles give the profile's noise.
@@ -170,8 +172,11 @@ def profile_noise(inten: np.ndarray, step_deg: float, pixel_deg: float = 0.0) ->
     the map itself: the mean profiles of ``NOISE_SECTORS`` azimuth sectors scatter about the full
     mean by their noise (rings are concentric and cancel; a smooth asymmetry is removed by the same
     Savitzky-Golay filter), ``var(mean) = sum_k (p_k - p)^2 / (K (K - 1))``, smoothed over 1 deg
-    of rows.  Rows closer than a working pixel share pixels: the noise is scaled by
-    ``sqrt(pixel / step)`` for the fits, which treat rows as independent."""
+    of rows.  Neighbouring rows share pixels (and JPEG blocks), so the fits, which treat rows as
+    independent, get the noise times ``sqrt(tau)``, tau the integrated autocorrelation of the
+    sector residuals along theta, ``1 + 2 sum rho(lag)`` summed until rho first falls below 0
+    (the integrated autocorrelation time of Markov-chain practice, Sokal 1997 - from memory).  ``pixel_deg`` is kept as a lower bound
+    of the correlation length."""
     n_rows, n_az = inten.shape
     k = NOISE_SECTORS
     with quiet_nan():
@@ -183,7 +188,19 @@ def profile_noise(inten: np.ndarray, step_deg: float, pixel_deg: float = 0.0) ->
         d = d - savgol(np.nan_to_num(d), window, 3, axis=1)
     var = np.nansum(d ** 2, axis=0) / (k * (k - 1))
     var = gaussian_filter1d(var, max(1.0, 0.5 / step_deg), mode="nearest")
-    return np.sqrt(var) * np.sqrt(max(1.0, pixel_deg / step_deg))
+    # integrated autocorrelation along theta of the residuals, each row scaled to unit variance
+    z = np.nan_to_num(d / np.sqrt(np.maximum(var * k, 1e-300))[None, :])
+    z = z[:, int(0.1 * n_rows):]  # the rows nearest the axis share most pixels; leave them out
+    tau = 1.0
+    if z.shape[1] > 40:
+        z0 = float(np.mean(z * z))
+        for lag in range(1, min(40, z.shape[1] // 4)):
+            rho = float(np.mean(z[:, :-lag] * z[:, lag:])) / z0
+            if rho <= 0:
+                break
+            tau += 2.0 * rho
+    tau = max(tau, pixel_deg / step_deg, 1.0)
+    return np.sqrt(var * tau)
 
 
 def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: float | None, pixel_deg: float = 0.0,

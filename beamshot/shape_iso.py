@@ -148,7 +148,11 @@ def _spill_fit(tdeg, mean, lo: float, hi: float, order: int):
 
 
 def _moments_once(x, y, area, e, keep, centre, radius):
-    sel = keep & (np.hypot(x - centre[0], y - centre[1]) <= radius)
+    """Moments of ``e`` over the kept cells within ``radius`` of ``centre`` (only the map rows that
+    can reach it are looked at: rows are polar angles, and x = theta cos phi)."""
+    rows = int(np.searchsorted(np.hypot(x[:, 0], y[:, 0]), float(np.hypot(*centre)) + radius, side="right")) + 1
+    x, y, area, e, keep = x[:rows], y[:rows], area[:rows], e[:rows], keep[:rows]
+    sel = keep & ((x - centre[0]) ** 2 + (y - centre[1]) ** 2 <= radius * radius)
     return second_moments(x[sel], y[sel], e[sel], area[sel])
 
 
