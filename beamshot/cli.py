@@ -195,8 +195,23 @@ def _print_figures(report, *, units: str = "metric") -> None:
         if units == "imperial" and key == "beam_distance" and fig.value is not None:
             extra = "  (" + _imperial(fig.value, fig.uncertainty) + ")"
         click.echo(f"  {label(key, indent=True):26s} {fig.text(3)}{extra}")
+    _print_shape(report)
     for w in report.warnings:
         click.echo(f"  ! {w}")
+
+
+def _print_shape(report) -> None:
+    """The beam shape and artefact figures that have a value (docs/artefacts.md); rings listed."""
+    shape = getattr(report, "shape_figures", None) or {}
+    shown = {k: f for k, f in shape.items() if f.value is not None}
+    if not shown:
+        return
+    click.echo(f"  {'beam shape and artefacts':26s} (bounds: not distinguishable from noise)")
+    for key, fig in shown.items():
+        click.echo(f"  {'  ' + label(key):36s} {fig.text(3)}")
+    rings = shape.get("ring_score")
+    if rings is not None and "rings found: " in rings.method:
+        click.echo("      rings: " + rings.method.split("rings found: ", 1)[1].split("; ring score")[0])
 
 
 def _imperial(value_m: float, u_m: float | None = None) -> str:
