@@ -198,7 +198,7 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     # ---- rings
     hole_exclude = 0.0
     search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg, correlation_deg=correlation_deg)
-    _ring_figures(figs, search, clipped_reason)
+    _ring_figures(figs, search, clipped_reason, scale_u)
 
     # ---- centre hole, hotspot sectors and the transition, from rays about the hotspot's centroid
     cvec = directions(np.radians(np.hypot(*centroid)), np.arctan2(centroid[1], centroid[0]))
@@ -213,7 +213,7 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     if hole_exclude:
         search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg, exclude_below_deg=hole_exclude,
                             correlation_deg=correlation_deg)
-        _ring_figures(figs, search, clipped_reason)
+        _ring_figures(figs, search, clipped_reason, scale_u)
     spill_from = (float(np.hypot(*mom.centroid)) + mom.radius if mom is not None and not mom.reason else
                   float(np.degrees(shape.field.full_angle())) if shape.field.complete else float("nan"))
     _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reason, pixel_deg, spill_from)
@@ -277,9 +277,9 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     return ShapeResult(ordered, search.rings, tuple(centroid))
 
 
-def _ring_figures(figs: dict, search, clipped_reason) -> None:
+def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:
     method = ("rings: ripple of the azimuthal-mean profile about the beam axis beyond a smooth profile "
-              f"(cubic Savitzky-Golay, 3 deg) and the noise; cubic + Gaussian ring fitted, reported at "
+              f"(Savitzky-Golay, 3 deg) and the noise; log profile fitted with a quintic and a Gaussian ring, reported at "
               f"{RING_SIGNIFICANCE:g} sigma")
     listed = "; ".join(f"{r.kind} {r.amplitude:+.1%} at {r.angle_deg:.1f} deg, {r.width_deg:.1f} deg wide"
                        for r in search.rings)
@@ -305,12 +305,15 @@ def _ring_figures(figs: dict, search, clipped_reason) -> None:
     figs["ring_score"] = Figure(abs(best.amplitude), best.amplitude_sigma, "",
                                 method + "; ring score: the largest |amplitude| of a ring relative to the smooth profile")
     figs["ring_count"] = Figure(float(len(search.rings)), 0.0, "", method + f"; {searched}")
-    figs["ring_angle"] = Figure(best.angle_deg, best.angle_sigma, "deg", method + "; the strongest ring's angle from "
-                                "the beam axis")
+    su_a, su_w = scale_u * best.angle_deg, scale_u * best.width_deg
+    figs["ring_angle"] = Figure(best.angle_deg, float(np.hypot(best.angle_sigma, su_a)), "deg",
+                                method + "; the strongest ring's angle from the beam axis",
+                                budget=(("pixel noise", best.angle_sigma), ("wall scale", su_a)))
     figs["ring_amplitude"] = Figure(best.amplitude, best.amplitude_sigma, "", method + "; the strongest ring's amplitude "
                                     "relative to the smooth profile (+ bright, - dark)")
-    figs["ring_width"] = Figure(best.width_deg, best.width_sigma, "deg", method + "; the strongest ring's full width "
-                                "at half maximum")
+    figs["ring_width"] = Figure(best.width_deg, float(np.hypot(best.width_sigma, su_w)), "deg",
+                                method + "; the strongest ring's full width at half maximum",
+                                budget=(("pixel noise", best.width_sigma), ("wall scale", su_w)))
 
 
 def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u) -> None:

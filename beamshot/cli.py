@@ -208,7 +208,8 @@ def _print_shape(report) -> None:
         return
     click.echo(f"  {'beam shape and artefacts':26s} (bounds: not distinguishable from noise)")
     for key, fig in shown.items():
-        click.echo(f"  {'  ' + label(key):36s} {fig.text(3)}")
+        text = f"{fig.value:.0f}" if key == "ring_count" else fig.text(3)
+        click.echo(f"  {'  ' + label(key):36s} {text}")
     rings = shape.get("ring_score")
     if rings is not None and "rings found: " in rings.method:
         click.echo("      rings: " + rings.method.split("rings found: ", 1)[1].split("; ring score")[0])
