@@ -390,8 +390,10 @@ def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured"
     from .artefacts import shape_figures
 
     block = _block_deg(unc.pixel_deg, mapped.image, linear.prep.beam_photos)
+    ratio_delta = getattr(unc, "ratio_delta", 0.0)
     return shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
-                         correlation_deg=block).figures
+                         correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
+                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed").figures
 
 
 # ---- stage 9: the report ------------------------------------------------------------------------

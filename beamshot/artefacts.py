@@ -138,13 +138,44 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
 
 
 def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: float = 0.0,
-                  correlation_deg: float = 0.0, seed: int = 0) -> ShapeResult:
+                  correlation_deg: float = 0.0, tone_eps: float = 0.0, tone_assumed: bool = False,
+                  seed: int = 0) -> ShapeResult:
     """Every shape figure of a measured beam (``shape``: :class:`beamshot.measure.BeamShape`).
 
     ``pixel_deg`` is the angular size of a working pixel (for the noise of means), ``scale_u`` the
     relative 1-sigma of the wall scale (it scales every angle alike; not the ratios),
     ``correlation_deg`` the angle over which the photo's errors are correlated (a JPEG block).
+    ``tone_eps`` is the 1-sigma tone-curve (gamma) error of the linearisation, as in
+    :func:`beamshot.uncertainty.tone_bent`: the figures are measured again on the map bent by it,
+    and the change is each figure's "tone curve" term; with ``tone_assumed`` (an assumed curve) a
+    figure whose variance is mostly that term is an ``estimate``.
     """
+    result = _shape_once(beam, shape, pixel_deg, scale_u, correlation_deg, seed)
+    if not tone_eps:
+        return result
+    from .measure import measure_shape
+    from .uncertainty import tone_bent
+
+    bent_map = tone_bent(beam, shape.peak.value, tone_eps)
+    bent = _shape_once(bent_map, measure_shape(bent_map, boundary_noise=False), pixel_deg, scale_u,
+                       correlation_deg, seed).figures
+    figs = {}
+    for key, f in result.figures.items():
+        g = bent.get(key)
+        if f.status in ("measured", "estimate") and g is not None and g.value is not None and f.uncertainty is not None:
+            term = abs(g.value - f.value)
+            u = float(np.hypot(f.uncertainty, term))
+            budget = (f.budget or (("pixel noise", f.uncertainty),)) + (("tone curve", term),)
+            status = "estimate" if tone_assumed and term ** 2 > 0.5 * u ** 2 else f.status
+            f = Figure(f.value, u, f.unit, f.method, status, f.reason if status == f.status else
+                       "the tone curve is assumed, and its possible error makes most of the uncertainty", budget)
+        figs[key] = f
+    return ShapeResult(figs, result.rings, result.centroid_deg)
+
+
+def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlation_deg: float,
+                seed: int) -> ShapeResult:
+    """:func:`shape_figures` without the tone-curve term."""
     rng = np.random.default_rng(seed)
     figs: dict[str, Figure] = {}
     noise = noise_model(beam, pixel_deg)

@@ -25,6 +25,8 @@ __all__ = ["NoiseModel", "noise_model", "row_mean_sigma"]
 
 #: Cells of a row used for the noise fit must be this many working pixels apart (project choice).
 INDEPENDENT_PIXELS = 1.5
+#: Every this many rows are used for the fit (the model has two parameters; the rows are many).
+ROW_STRIDE = 3
 #: 1.4826 MAD is the standard deviation of a normal distribution (Huber 1981).
 MAD_TO_SIGMA = 1.4826
 
@@ -47,6 +49,7 @@ def noise_model(beam: BeamMap, pixel_deg: float = 0.0) -> NoiseModel:
     rows = np.flatnonzero(arc_deg >= INDEPENDENT_PIXELS * pixel_deg)
     if rows.size < 5:
         rows = np.arange(len(beam.theta))
+    rows = rows[::ROW_STRIDE] if rows.size >= 15 * ROW_STRIDE else rows
     inten = beam.intensity[rows]
     resid = inten - 0.5 * (np.roll(inten, 1, axis=1) + np.roll(inten, -1, axis=1))
     with quiet_nan():
