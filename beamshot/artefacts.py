@@ -14,7 +14,7 @@ of a major axis, 0-180 deg counter-clockwise from the right.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -158,7 +158,15 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
 
     bent_map = tone_bent(beam, shape.peak.value, tone_eps)
     bent = _shape_once(bent_map, measure_shape(bent_map, boundary_noise=False), pixel_deg, scale_u,
-                       correlation_deg, seed).figures
+                       correlation_deg, seed, with_rings=False).figures
+    # rings, without fitting them again: a ring multiplies the profile, (1 + a g), and the bend raises
+    # that factor to the power 1 + eps: the amplitude becomes (1 + a)^(1 + eps) - 1, the location and
+    # (for small a) the width stay
+    for key in ("ring_score", "ring_amplitude"):
+        f = result.figures[key]
+        if f.value is not None and f.status in ("measured", "estimate"):
+            a = f.value if key == "ring_amplitude" else result.figures["ring_amplitude"].value
+            bent[key] = replace(f, value=f.value + abs((1.0 + a) ** (1.0 + tone_eps) - 1.0 - a))
     figs = {}
     for key, f in result.figures.items():
         g = bent.get(key)
@@ -174,8 +182,8 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
 
 
 def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlation_deg: float,
-                seed: int) -> ShapeResult:
-    """:func:`shape_figures` without the tone-curve term."""
+                seed: int, with_rings: bool = True) -> ShapeResult:
+    """:func:`shape_figures` without the tone-curve term (and without the rings if not ``with_rings``)."""
     rng = np.random.default_rng(seed)
     figs: dict[str, Figure] = {}
     noise = noise_model(beam, pixel_deg)
@@ -226,11 +234,6 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
         else:
             figs["d4sigma_azimuth"] = Figure(mom.azimuth, max(mom.azimuth_sigma, 1e-3), "deg", az_method)
 
-    # ---- rings
-    hole_exclude = 0.0
-    search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg, correlation_deg=correlation_deg)
-    _ring_figures(figs, search, clipped_reason, scale_u)
-
     # ---- centre hole, hotspot sectors and the transition, from rays about the hotspot's centroid
     cvec = directions(np.radians(np.hypot(*centroid)), np.arctan2(centroid[1], centroid[0]))
     reach = 1.5 * hot_full if np.isfinite(hot_full) else 10.0
@@ -240,11 +243,13 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     bear = np.arange(n_az) * 2 * np.pi / n_az
     vals = beam.sample(_rays(cvec, bear, np.radians(r)))  # (n_az, n_r)
     _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u)
-    hole_exclude = figs["centre_hole_width"].value or 0.0
-    if hole_exclude:
-        search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg, exclude_below_deg=hole_exclude,
-                            correlation_deg=correlation_deg)
+    # ---- rings (beyond a centre hole, which is not a ring)
+    rings: tuple = ()
+    if with_rings:
+        search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg,
+                            exclude_below_deg=figs["centre_hole_width"].value or 0.0, correlation_deg=correlation_deg)
         _ring_figures(figs, search, clipped_reason, scale_u)
+        rings = search.rings
     spill_from = (float(np.hypot(*mom.centroid)) + mom.radius if mom is not None and not mom.reason else
                   float(np.degrees(shape.field.full_angle())) if shape.field.complete else float("nan"))
     _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reason, pixel_deg, spill_from)
@@ -304,8 +309,8 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
             figs["hotspot_edge_steepness"] = Figure(res.edge_steepness, res.edge_steepness_sigma, "",
                                                     iso_m + ": edge steepness s = (A_0.1 - A_0.9) / A_0.1 "
                                                     "(0: vertical edge)")
-    ordered = {k: figs[k] for k in SHAPE_ORDER}
-    return ShapeResult(ordered, search.rings, tuple(centroid))
+    ordered = {k: figs[k] for k in SHAPE_ORDER if k in figs}
+    return ShapeResult(ordered, rings, tuple(centroid))
 
 
 def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:
