@@ -221,10 +221,9 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
                                iso_method + (": major axis" if key.endswith("major") else ": minor axis"),
                                budget=budget)
         ell = mom.ellipticity
-        rel = np.hypot(figs["d4sigma_major"].uncertainty / mom.d_major, figs["d4sigma_minor"].uncertainty
-                       / max(mom.d_minor, 1e-12)) if scale_u == 0 else np.hypot(
-            np.hypot(mom.d_major_sigma, mom.d_major_model) / mom.d_major,
-            np.hypot(mom.d_minor_sigma, mom.d_minor_model) / max(mom.d_minor, 1e-12))
+        # relative 1-sigma of the ratio: noise and spill model of both diameters (the wall scale cancels)
+        rel = np.hypot(np.hypot(mom.d_major_sigma, mom.d_major_model) / mom.d_major,
+                       np.hypot(mom.d_minor_sigma, mom.d_minor_model) / max(mom.d_minor, 1e-12))
         figs["d4sigma_ellipticity"] = Figure(ell, float(ell * rel), "", iso_method + ": d_minor / d_major "
                                              "(ISO 11146: above 0.87 the beam counts as round)")
         az_method = iso_method + ": azimuth of the major axis (0-180 deg, counter-clockwise from the right)"
@@ -382,7 +381,7 @@ def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, sca
     k = int(np.argmax(np.where(out, sm, -np.inf)))
     m = float(sm[k])
     circ = 2 * np.pi * max(r[k], step)
-    n_m = (min(n_az := vals.shape[0], circ / pixel_deg) if pixel_deg > 0 else vals.shape[0]) * win
+    n_m = (min(vals.shape[0], circ / pixel_deg) if pixel_deg > 0 else vals.shape[0]) * win
     s_m = float(noise.sigma(m) / np.sqrt(max(n_m, 1.0)))
     depth = 1.0 - c / m if m > 0 else float("nan")
     s_depth = float(np.hypot(s_c / m, c * s_m / m ** 2)) if m > 0 else float("nan")

@@ -197,3 +197,17 @@ def test_a_dark_sector_in_the_spill_is_found():
     # the 10 deg running mean softens the sector's sides: about 10 % lower than the sharp profile
     assert fig.value == pytest.approx(expected, rel=0.2)
     assert re.search(r"darkest toward (9\d|10\d|11\d) deg", fig.method)
+
+
+def test_a_clipped_hotspot_leaves_the_shape_not_measured():
+    # overexposed 2.5 times: the top of the beam, which every shape figure is measured against, is not
+    # in the photo, so none is given (rather than a ring or a flat top that clipping made)
+    pattern = RingedBeam(BASE, ((6.0, 1.0, 0.05),))
+    cam = SynthCamera(width_px=480, height_px=360, focal_35mm_mm=16, supersample=1)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(pattern, SCENE, cam, target=2.5,
+                                                              peak_lux=_peak_lux(pattern)))
+    photo = decode_photo(encode_jpeg(render_photo(pattern, SCENE, cam, seed=2), cam), "clipped.jpg")
+    s = analyze(photo, distance_m=SCENE.distance_m, use_exif_scale=False).shape_figures
+    for key in ("ring_score", "centre_hole_depth", "d4sigma_major", "hotspot_flatness", "hotspot_major_angle"):
+        assert s[key].status == "not_measured", key
+        assert "clipped" in s[key].reason
