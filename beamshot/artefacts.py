@@ -23,6 +23,7 @@ from .figure import Figure, not_measured
 from .frames import local_basis
 from .hotspot import _rays
 from .map_noise import noise_model
+from .measure import _clipped_edge_reason
 from .rings import RING_SIGNIFICANCE, find_rings
 from .savgol import savgol
 from .shape_iso import N_T, hotspot_moments, iso13694
@@ -264,9 +265,10 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
         s = np.degrees(hot.sigma)
         figs.update(_ellipse_figures("hotspot", x, y, s * np.abs(np.cos(hot.bearings)), s * np.abs(np.sin(hot.bearings)),
                                      scale_u, "50 % contour (72 rays from the peak)", rng))
-    if not edge.complete:
+    edge_reason = _clipped_edge_reason(shape, beam) if pk.clipped else None
+    if edge_reason or not edge.complete:
         for k, u in (("major_angle", "deg"), ("minor_angle", "deg"), ("ellipticity", ""), ("orientation", "deg")):
-            figs[f"spill_{k}"] = not_measured(u, "ellipse fitted to the spill edge",
+            figs[f"spill_{k}"] = not_measured(u, "ellipse fitted to the spill edge", edge_reason or
                                               "the spill edge is not complete in the photo; step back or use a wider lens")
     else:
         th = np.degrees(edge.theta)
