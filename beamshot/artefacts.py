@@ -354,11 +354,11 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
 
 
 def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u) -> None:
-    """Centre hole: depth ``1 - c / m`` of the mean ``c`` near the hotspot's centroid below the
-    surrounding maximum ``m`` of the (lightly smoothed) azimuthal-mean profile about it; width: full
+    """Centre hole: depth ``1 - c / m`` of the level ``c`` at the hotspot's centre (a parabola in r
+    fitted within ``3 r0``) below the surrounding maximum ``m`` of the (lightly smoothed) azimuthal-mean profile about it; width: full
     angle where the profile has risen half-way from ``c`` to ``m``."""
-    method = ("centre hole: the mean intensity within r0 of the hotspot's centroid against the maximum of the "
-              "azimuthal-mean profile about it (Savitzky-Golay, 1 deg); depth 1 - centre / maximum, width the full "
+    method = ("centre hole: the level at the hotspot's centre (c + k r^2 fitted within 3 r0) against the maximum of "
+              "the azimuthal-mean profile about it (Savitzky-Golay, 1 deg); depth 1 - centre / maximum, width the full "
               f"angle at half depth; reported at {HOLE_SIGNIFICANCE:g} sigma and {HOLE_MIN_DEPTH:.0%}")
     if clipped_reason or not np.isfinite(hot_full):
         why = clipped_reason or "the 50 % contour runs off the photo; step back or use a wider lens"
@@ -371,12 +371,16 @@ def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, sca
     with np.errstate(invalid="ignore"):
         prof = np.nanmean(vals, axis=0)
     r0 = max(0.3, 2.0 * pixel_deg)
-    inner = r <= r0
-    c = float(np.nanmean(vals[:, inner]))
-    n_eff = max(np.pi * r0 ** 2 / max(pixel_deg, step) ** 2, 1.0) if pixel_deg > 0 else float(np.isfinite(
-        vals[:, inner]).sum())
-    n_eff = min(n_eff, float(np.isfinite(vals[:, inner]).sum()))
-    s_c = float(noise.sigma(c) / np.sqrt(max(n_eff, 1.0)))
+    # the level at the centre: p(r) = c + k r^2 fitted to the azimuthal-mean profile within 3 r0 (a
+    # dip's bottom is a parabola), each ring of samples weighted by its independent pixels, so that
+    # the curvature of a narrow hole does not lift the centre as a plain mean over a disc would
+    near = (r <= 3.0 * r0) & np.isfinite(prof)
+    n_ring = np.minimum(vals.shape[0], 2 * np.pi * np.maximum(r[near], step) / max(pixel_deg, step))
+    sig = noise.sigma(prof[near]) / np.sqrt(np.maximum(n_ring, 1.0))
+    a = np.c_[np.ones(near.sum()), r[near] ** 2] / sig[:, None]
+    coef, *_ = np.linalg.lstsq(a, prof[near] / sig, rcond=None)
+    c = float(coef[0])
+    s_c = float(np.sqrt(np.linalg.inv(a.T @ a)[0, 0]))
     win = int(round(1.0 / step)) | 1
     sm = savgol(np.nan_to_num(prof, nan=0.0), win, 2) if len(prof) > win else prof
     out = r > r0
