@@ -263,13 +263,15 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     else:
         x, y = (v.ravel() for v in _contour_points(pk, hot))
         s = np.degrees(hot.sigma)
-        figs.update(_ellipse_figures("hotspot", x, y, s * np.abs(np.cos(hot.bearings)), s * np.abs(np.sin(hot.bearings)),
+        sx, sy = s * np.abs(np.cos(hot.bearings)), s * np.abs(np.sin(hot.bearings))
+        figs.update(_ellipse_figures("hotspot", x, y, sx, sy,
                                      scale_u, "50 % contour (72 rays from the peak)", rng))
     edge_reason = _clipped_edge_reason(shape, beam) if pk.clipped else None
     if edge_reason or not edge.complete:
         for k, u in (("major_angle", "deg"), ("minor_angle", "deg"), ("ellipticity", ""), ("orientation", "deg")):
-            figs[f"spill_{k}"] = not_measured(u, "ellipse fitted to the spill edge", edge_reason or
-                                              "the spill edge is not complete in the photo; step back or use a wider lens")
+            figs[f"spill_{k}"] = not_measured(
+                u, "ellipse fitted to the spill edge",
+                edge_reason or "the spill edge is not complete in the photo; step back or use a wider lens")
     else:
         th = np.degrees(edge.theta)
         x, y = th * np.cos(edge.phi), th * np.sin(edge.phi)
@@ -316,7 +318,8 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
 
 def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:
     method = ("rings: ripple of the azimuthal-mean profile about the beam axis beyond a smooth profile "
-              f"(Savitzky-Golay, 3 deg) and the noise; log profile fitted with a quintic and a Gaussian ring, reported at "
+              "(Savitzky-Golay, 3 deg) and the noise; log profile fitted with a quintic and a Gaussian ring, "
+              "reported at "
               f"{RING_SIGNIFICANCE:g} sigma")
     listed = "; ".join(f"{r.kind} {r.amplitude:+.1%} at {r.angle_deg:.1f} deg, {r.width_deg:.1f} deg wide"
                        for r in search.rings)
@@ -340,13 +343,15 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
             figs[key] = not_measured(unit, method, why)
         return
     figs["ring_score"] = Figure(abs(best.amplitude), best.amplitude_sigma, "",
-                                method + "; ring score: the largest |amplitude| of a ring relative to the smooth profile")
+                                method + "; ring score: the largest |amplitude| of a ring relative to the smooth "
+                                "profile")
     figs["ring_count"] = Figure(float(len(search.rings)), 0.0, "", method + f"; {searched}")
     su_a, su_w = scale_u * best.angle_deg, scale_u * best.width_deg
     figs["ring_angle"] = Figure(best.angle_deg, float(np.hypot(best.angle_sigma, su_a)), "deg",
                                 method + "; the strongest ring's angle from the beam axis",
                                 budget=(("pixel noise", best.angle_sigma), ("wall scale", su_a)))
-    figs["ring_amplitude"] = Figure(best.amplitude, best.amplitude_sigma, "", method + "; the strongest ring's amplitude "
+    figs["ring_amplitude"] = Figure(best.amplitude, best.amplitude_sigma, "",
+                                    method + "; the strongest ring's amplitude "
                                     "relative to the smooth profile (+ bright, - dark)")
     figs["ring_width"] = Figure(best.width_deg, float(np.hypot(best.width_sigma, su_w)), "deg",
                                 method + "; the strongest ring's full width at half maximum",
@@ -355,7 +360,8 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
 
 def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u) -> None:
     """Centre hole: depth ``1 - c / m`` of the level ``c`` at the hotspot's centre (a parabola in r
-    fitted within ``3 r0``) below the surrounding maximum ``m`` of the (lightly smoothed) azimuthal-mean profile about it; width: full
+    fitted within ``3 r0``) below the surrounding maximum ``m`` of the (lightly smoothed) azimuthal-mean
+    profile about it; width: full
     angle where the profile has risen half-way from ``c`` to ``m``."""
     method = ("centre hole: the level at the hotspot's centre (c + k r^2 fitted within 3 r0) against the maximum of "
               "the azimuthal-mean profile about it (Savitzky-Golay, 1 deg); depth 1 - centre / maximum, width the full "
@@ -455,7 +461,8 @@ def _sector_figure(zone, rows, az_step_deg, band_rows, method, clipped_reason):
     value = float(np.sqrt(rms ** 2 - noise ** 2))
     # spread of an RMS over n independent sectors: about RMS / sqrt(2 n) (chi distribution), noise-dominated part
     u = float(np.hypot(noise * np.sqrt(2.0 / n_ind), noise ** 2 / value))
-    where = f"; darkest toward {darkest:.0f} deg, brightest toward {brightest:.0f} deg (counter-clockwise from the right)"
+    where = (f"; darkest toward {darkest:.0f} deg, brightest toward {brightest:.0f} deg (counter-clockwise from "
+             "the right)")
     return Figure(value, u, "", method + where)
 
 

@@ -4,25 +4,26 @@ Method (this project's, built from textbook pieces):
 
 1. ``p(theta)``: the azimuthal mean of the map at each polar angle about the beam axis (rings of a
    reflector or a lens are concentric with the beam), with its noise ``sigma_p`` measured from the
-   scatter of the mean profiles of 8 azimuth sectors (:func:`profile_noise`).  Rows from the axis to ``EDGE_MARGIN_DEG`` inside the spill
-   edge (the cut-off itself is not a ring) are used.
+   scatter of the mean profiles of 8 azimuth sectors (:func:`profile_noise`).  Rows from the axis
+   to ``EDGE_MARGIN_DEG`` inside the spill edge (the cut-off itself is not a ring) are used.
 2. A smooth profile ``s(theta)``: a Savitzky-Golay filter (cubic, ``SMOOTH_WINDOW_DEG`` wide;
-   Savitzky & Golay 1964) of the profile mirrored about the axis (it is even in theta).
-   Candidates are the extremes of the smoothed, normalised residual ``(p - s) / sigma_p`` beyond
-   ``CANDIDATE_Z``, strongest first; each ring found is subtracted before the next search.
-3. Each candidate is fitted by weighted least squares on ``+-FIT_HALF_WINDOW_DEG`` (3 deg), in the log of
-   the profile (a ring multiplies the profile; a Gaussian hotspot is a parabola there):
+   Savitzky & Golay 1964) of the log profile mirrored about the axis (it is even in theta).
+   Candidates are the extremes of the smoothed, normalised residual ``(ln p - s) / sigma`` beyond
+   ``CANDIDATE_Z``, strongest first; each ring found is divided out before the next search.
+3. Each candidate is fitted by weighted least squares on ``+-FIT_HALF_WINDOW_DEG`` (3 deg), in the
+   log of the profile (a ring multiplies the profile; a Gaussian hotspot is a parabola there):
    ``ln p = poly5(theta) + ln(1 + a exp(-(theta - mu)^2 / (2 w^2)))``.  The ring's **amplitude**
    ``a`` is relative to the smooth profile ``exp(poly5)``; its **location** is ``mu``; its **width**
    the full width at half maximum ``2.3548 w``.  Uncertainties come from the fit's covariance
    (scaled by the reduced chi-square when it exceeds 1).  The profile is used out to where it
    falls to 5 times its noise.
 4. A ring is reported when the fit is good (reduced chi-square <= 4), a richer smooth profile (a
-   polynomial of degree 7) leaves its amplitude within 3 sigma or 25 %, ``|a| / sigma_a >= RING_SIGNIFICANCE`` (6 sigma: noise alone over the
-   ~300 profile rows of a beam would give a false ring at 5 sigma about once in 10^4 beams, but
-   small JPEG photos showed dips of 5 to 5.5 sigma where a hotspot's flank meets the spill, once
-   in 20 to 50 photos; the sixth sigma is for such effects the noise model does not hold) and its width lies
-   between ``MIN_FWHM_DEG`` and ``MAX_FWHM_DEG`` (wider is the beam's shape, not a ring).
+   polynomial of degree 7) leaves its amplitude within 3 sigma or 25 %,
+   ``|a| / sigma_a >= RING_SIGNIFICANCE`` and its width lies between ``MIN_FWHM_DEG`` and
+   ``MAX_FWHM_DEG`` (wider is the beam's shape, not a ring).  6 sigma: noise alone over the ~300
+   profile rows of a beam would give a false ring at 5 sigma about once in 10^4 beams, but small
+   JPEG photos showed dips of 5 to 5.5 sigma where a hotspot's flank meets the spill, once in 20
+   to 50 photos; the sixth sigma is for such effects, which the noise model does not hold.
    No ring is searched within 1.5 deg of where the profile falls faster than a factor e^1.5 per
    degree (a flat top's edge and its knee into the spill: shape, not a ring).
 
@@ -175,8 +176,8 @@ def profile_noise(inten: np.ndarray, step_deg: float, pixel_deg: float = 0.0) ->
     of rows.  Neighbouring rows share pixels (and JPEG blocks), so the fits, which treat rows as
     independent, get the noise times ``sqrt(tau)``, tau the integrated autocorrelation of the
     sector residuals along theta, ``1 + 2 sum rho(lag)`` summed until rho first falls below 0
-    (the integrated autocorrelation time of Markov-chain practice, Sokal 1997 - from memory).  ``pixel_deg`` is kept as a lower bound
-    of the correlation length."""
+    (the integrated autocorrelation time of Markov-chain practice, Sokal 1997 - from memory).
+    ``pixel_deg`` is kept as a lower bound of the correlation length."""
     n_rows, n_az = inten.shape
     k = NOISE_SECTORS
     with quiet_nan():

@@ -51,7 +51,8 @@ def main(path=os.path.join(HERE, "rings-diagram.png")):
                                   gridspec_kw={"height_ratios": [2, 1.2]})
     keep = t <= 26
     ax.semilogy(t[keep], p[keep], color="#1b4965", lw=1.6, label="azimuthal-mean profile (photo)")
-    ax.semilogy(t[keep], (p / factor)[keep], color="#c9a227", lw=1.2, ls="--", label="smooth profile (rings divided out)")
+    ax.semilogy(t[keep], (p / factor)[keep], color="#c9a227", lw=1.2, ls="--",
+                label="smooth profile (rings divided out)")
     ax.set_ylabel("relative intensity")
     ax.set_ylim(0.01, 1.6)
     ax.legend(loc="lower left", fontsize=9, frameon=False)
