@@ -52,7 +52,7 @@ TILT_MIN_SHARP_FRACTION = 0.9
 #: A peak below this linear level (of clipping) is noisy; suggest a longer exposure.
 _LOW_EXPOSURE_LEVEL = 0.15
 #: The stages of an analysis, in order; each one's time is recorded in the report (``stage_seconds``).
-STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "colour", "report")
+STAGES = ("load", "linear image", "wall mapping", "beam map", "scale", "uncertainty", "figures", "shape", "colour", "report")
 #: Whether colour across the beam is measured by default (beamshot.colour; see docs/colour.md for its cost).
 COLOUR_BY_DEFAULT = False
 
@@ -120,6 +120,8 @@ def run(request: Request, *, colour: bool | None = None) -> BeamReport:
         unc = uncertainty(req, loaded, linear, mapped, measured, scaled)
     with clock("figures"):
         figures = figures_of(req, measured, scaled, unc)
+    with clock("shape"):
+        shape = shape_of(req, linear, mapped, measured, unc)
     colour_result = None
     if COLOUR_BY_DEFAULT if colour is None else colour:
         with clock("colour"):
@@ -129,7 +131,7 @@ def run(request: Request, *, colour: bool | None = None) -> BeamReport:
     if colour_result is not None:
         report = replace(report, colour=colour_result.to_dict(), colour_result=colour_result,
                          warnings=list(report.warnings) + colour_warnings(colour_result))
-    return replace(report, stage_seconds=dict(clock.seconds))
+    return replace(report, shape_figures=shape, stage_seconds=dict(clock.seconds))
 
 
 # ---- stage 1: load the beam photo(s) and the camera profile ------------------------------------
@@ -391,7 +393,21 @@ def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncerta
     return figures
 
 
-# ---- stage 8: colour across the beam (beamshot.colour) -------------------------------------------
+# ---- stage 8: beam shape and artefacts (artefacts.py, rings.py, shape_iso.py) -------------------
+
+def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured", unc: Uncertain) -> dict:
+    """Rings, centre hole, sectors, principal axes, ISO 11146 and ISO 13694 measures of the relative
+    map (scale-free: the absolute scale does not enter); see docs/artefacts.md."""
+    from .artefacts import shape_figures
+
+    block = _block_deg(unc.pixel_deg, mapped.image, linear.prep.beam_photos)
+    ratio_delta = getattr(unc, "ratio_delta", 0.0)
+    return shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
+                         correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
+                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed").figures
+
+
+# ---- stage 9: colour across the beam (beamshot.colour) -------------------------------------------
 
 def colour_of(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured",
               figures: dict | None = None):
@@ -424,7 +440,7 @@ def colour_warnings(result) -> list[str]:
     return out
 
 
-# ---- stage 9: the report ------------------------------------------------------------------------
+# ---- stage 10: the report ------------------------------------------------------------------------
 
 def assemble(req: Request, loaded: Loaded, linear: Linear, mapped: Mapped, measured: "_Measured", scaled: Scaled,
              unc: Uncertain, figures: dict) -> BeamReport:

@@ -1,10 +1,11 @@
 """Command line: parse options, call the library, print, exit codes.
 
-Exit codes (also in the README): 0 done; 1 a comparison found a real difference (``far-field``
-only); 2 an input problem: one line on stderr naming the problem and the fix, no traceback (click's
-own usage errors too, in at most three lines); 3 an internal error: a one-line apology on stderr
-naming the log file that holds the traceback; 130 interrupted (Ctrl-C); 143 terminated (SIGTERM)
-while the output set was being written.
+Exit codes (also in the README): 0 done; 1 a comparison found a real difference (``far-field``),
+or a figure failed its specification (``qa``); 4 ``qa`` could not decide every figure (undecided or
+not measured; docs/spec.md); 2 an input problem: one line on stderr naming the problem and the fix,
+no traceback (click's own usage errors too, in at most three lines); 3 an internal error: a
+one-line apology on stderr naming the log file that holds the traceback; 130 interrupted (Ctrl-C);
+143 terminated (SIGTERM) while the output set was being written.
 
 Only click and small modules of our own are imported at start-up: numpy, OpenCV, matplotlib and
 the analysis are imported inside the commands, so ``beamshot --help`` is quick.
@@ -194,8 +195,24 @@ def _print_figures(report, *, units: str = "metric") -> None:
         if units == "imperial" and key == "beam_distance" and fig.value is not None:
             extra = "  (" + _imperial(fig.value, fig.uncertainty) + ")"
         click.echo(f"  {label(key, indent=True):26s} {fig.text(3)}{extra}")
+    _print_shape(report)
     for w in report.warnings:
         click.echo(f"  ! {w}")
+
+
+def _print_shape(report) -> None:
+    """The beam shape and artefact figures that have a value (docs/artefacts.md); rings listed."""
+    shape = getattr(report, "shape_figures", None) or {}
+    shown = {k: f for k, f in shape.items() if f.value is not None}
+    if not shown:
+        return
+    click.echo(f"  {'beam shape and artefacts':26s} (bounds: not distinguishable from noise)")
+    for key, fig in shown.items():
+        text = f"{fig.value:.0f}" if key == "ring_count" else fig.text(3)
+        click.echo(f"  {'  ' + label(key):36s} {text}")
+    rings = shape.get("ring_score")
+    if rings is not None and "rings found: " in rings.method:
+        click.echo("      rings: " + rings.method.split("rings found: ", 1)[1].split("; ring score")[0])
 
 
 def _imperial(value_m: float, u_m: float | None = None) -> str:
@@ -774,6 +791,16 @@ _compare.short_help = "Compare 2-12 lights at one common exposure."
 _reach.short_help = "How far and wide a light reaches: axis and ground illuminance."
 cli.add_command(_compare)
 cli.add_command(_reach)
+
+from .qa_cli import qa as _qa  # noqa: E402 - imports only click; the checks load inside the command
+
+_qa.short_help = "Check reports against a beam specification: pass, fail, undecided."
+cli.add_command(_qa)
+
+from .lm63_cli import lm63 as _lm63  # noqa: E402 - imports only click; numpy loads inside the commands
+
+_lm63.short_help = "Write the measured beam as an IES LM-63 file, or read one."
+cli.add_command(_lm63)
 
 
 def main(argv=None):

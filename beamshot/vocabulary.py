@@ -11,7 +11,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "term", "label", "unit_text", "STATUS_WORDS", "STATUS_MARKS"]
+__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "SHAPE_FIGURES", "term", "label", "unit_text", "STATUS_WORDS",
+           "STATUS_MARKS"]
 
 
 @dataclass(frozen=True)
@@ -70,6 +71,55 @@ COLOUR_TERMS: dict[str, Term] = {t.key: t for t in (
          "largest distance in CIE 1976 (u', v') between two cells of the colour map"),
 )}
 
+#: Beam shape and artefact figures (report.json ``shape``; beamshot.artefacts; docs/artefacts.md).
+#: Fractions have no unit ("" ): 0.05 is 5 %.
+SHAPE_FIGURES: dict[str, Term] = {t.key: t for t in (
+    Term("ring_score", "ring score", "",
+         "largest |amplitude| of a ring relative to the smooth profile; an upper bound when no ring is found"),
+    Term("ring_count", "rings found", "", "number of rings distinguishable from noise (6 sigma)"),
+    Term("ring_angle", "strongest ring at", "deg", "polar angle of the strongest ring from the beam axis"),
+    Term("ring_amplitude", "strongest ring amplitude", "",
+         "the strongest ring's deviation from the smooth profile, + bright, - dark"),
+    Term("ring_width", "strongest ring width", "deg", "full width at half maximum of the strongest ring"),
+    Term("centre_hole_depth", "centre hole depth", "",
+         "1 - intensity at the hotspot's centre / the surrounding maximum; an upper bound when no hole is found"),
+    Term("centre_hole_width", "centre hole width", "deg", "full angle of the centre hole at half its depth"),
+    Term("sector_nonuniformity_hotspot", "sectors in the hotspot", "",
+         "RMS relative azimuthal variation of the hotspot at 10 deg resolution, noise removed"),
+    Term("sector_nonuniformity_spill", "sectors in the spill", "",
+         "RMS relative azimuthal variation of the spill at 10 deg resolution, noise removed"),
+    Term("hotspot_major_angle", "hotspot major axis (50 %)", "deg",
+         "full angle of the 50 % contour along its major principal axis (fitted ellipse)"),
+    Term("hotspot_minor_angle", "hotspot minor axis (50 %)", "deg",
+         "full angle of the 50 % contour along its minor principal axis (fitted ellipse)"),
+    Term("hotspot_ellipticity", "hotspot ellipticity", "", "minor over major axis of the 50 % contour (1: round)"),
+    Term("hotspot_orientation", "hotspot orientation", "deg",
+         "azimuth of the 50 % contour's major axis, 0-180 deg counter-clockwise from the right"),
+    Term("spill_major_angle", "spill major axis (edge)", "deg",
+         "full angle of the spill edge along its major principal axis (fitted ellipse)"),
+    Term("spill_minor_angle", "spill minor axis (edge)", "deg",
+         "full angle of the spill edge along its minor principal axis (fitted ellipse)"),
+    Term("spill_ellipticity", "spill ellipticity", "", "minor over major axis of the spill edge (1: round)"),
+    Term("spill_orientation", "spill orientation", "deg",
+         "azimuth of the spill edge's major axis, 0-180 deg counter-clockwise from the right"),
+    Term("d4sigma_major", "D4σ major (ISO 11146)", "deg",
+         "ISO 11146-1 second-moment diameter of the hotspot along its major axis, spill and noise excluded"),
+    Term("d4sigma_minor", "D4σ minor (ISO 11146)", "deg",
+         "ISO 11146-1 second-moment diameter of the hotspot along its minor axis, spill and noise excluded"),
+    Term("d4sigma_ellipticity", "D4σ ellipticity (ISO 11146)", "",
+         "ISO 11146-1 ellipticity, minor over major diameter"),
+    Term("d4sigma_azimuth", "D4σ azimuth (ISO 11146)", "deg",
+         "ISO 11146-1 azimuth of the major principal axis, 0-180 deg counter-clockwise from the right"),
+    Term("hotspot_flatness", "hotspot flatness (ISO 13694)", "",
+         "ISO 13694 flatness factor at the 50 % clip level: mean over the hotspot / peak (1: flat top)"),
+    Term("hotspot_uniformity", "hotspot uniformity (ISO 13694)", "",
+         "ISO 13694 beam uniformity at the 50 % clip level: RMS deviation / mean, noise removed (0: uniform)"),
+    Term("hotspot_edge_steepness", "hotspot edge steepness (ISO 13694)", "",
+         "ISO 13694 edge steepness (A_10% - A_90%) / A_10% (0: vertical edge)"),
+    Term("hotspot_transition_width", "hotspot-to-spill transition", "deg",
+         "angle over which the hotspot's own light (spill removed) falls from 90 % to 10 % of its maximum"),
+)}
+
 #: Status words as printed for people (report.json keeps the keys).
 STATUS_WORDS = {
     "measured": "measured",
@@ -84,8 +134,8 @@ STATUS_MARKS = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "
 
 
 def term(key: str) -> Term:
-    """The :class:`Term` of a figure key; unknown keys get their key as label."""
-    return FIGURES.get(key) or Term(key, key.replace("_", " "), "", "")
+    """The :class:`Term` of a figure key (a main or a shape figure); unknown keys get their key as label."""
+    return FIGURES.get(key) or SHAPE_FIGURES.get(key) or Term(key, key.replace("_", " "), "", "")
 
 
 def label(key: str, *, indent: bool = False) -> str:

@@ -55,6 +55,8 @@ class BeamReport:
     colour: dict | None = field(repr=False, default=None)
     #: The BeamColour itself (with its map cells), for pictures; not written.
     colour_result: object = field(repr=False, default=None, compare=False)
+    #: Beam shape and artefact figures (``beamshot.artefacts.SHAPE_ORDER``), written as ``shape``.
+    shape_figures: dict = field(repr=False, default_factory=dict)
 
     def __getitem__(self, name: str) -> Figure:
         return self.figures[name]
@@ -76,6 +78,7 @@ class BeamReport:
             "calibration": self.calibration,
             "beam_axis": self.beam_axis,
             "figures": {k: f.to_dict() for k, f in self.figures.items()},
+            **({"shape": {k: f.to_dict() for k, f in self.shape_figures.items()}} if self.shape_figures else {}),
             "warnings": list(self.warnings),
             "cautions": list(CAUTIONS),
             **({} if self.colour is None else {"colour": self.colour}),

@@ -1,0 +1,543 @@
+"""Beam artefacts and shape figures: rings, a centre hole, dark or bright sectors, the principal
+axes of the hotspot and the spill, the ISO 11146 / ISO 13694 measures, and the hotspot-to-spill
+transition; each as a :class:`~beamshot.figure.Figure` with its uncertainty and status.
+
+Definitions, formulas and sources: docs/artefacts.md (and the docstrings of beamshot.rings,
+beamshot.shape_iso).  An artefact that is not distinguishable from noise is reported as an
+``upper_bound`` (the largest value the noise could hide) with the reason, its location and width
+as ``not_measured``.
+
+All angles are degrees on the azimuthal-equidistant plane about the beam axis (``x = theta cos
+phi`` right, ``y = theta sin phi`` up, as seen from behind the light); orientations are azimuths
+of a major axis, 0-180 deg counter-clockwise from the right.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from .beammap import BeamMap, directions
+from .figure import Figure, not_measured
+from .frames import local_basis
+from .hotspot import _rays
+from .map_noise import noise_model
+from .measure import _clipped_edge_reason
+from .rings import RING_SIGNIFICANCE, find_rings
+from .savgol import savgol
+from .shape_iso import N_T, hotspot_moments, iso13694
+
+__all__ = ["SHAPE_ORDER", "shape_figures", "ShapeResult", "HOLE_SIGNIFICANCE", "SECTOR_SIGNIFICANCE",
+           "ellipse_of_points"]
+
+#: A centre hole is reported when its depth exceeds this many times its 1-sigma noise, and
+#: ``HOLE_MIN_DEPTH`` (the smallest dip a maker would act on; project choice).
+HOLE_SIGNIFICANCE = 5.0
+HOLE_MIN_DEPTH = 0.01
+#: Sector non-uniformity is reported as measured when it exceeds this many times its noise.
+SECTOR_SIGNIFICANCE = 3.0
+#: Azimuth resolution of the sector profile, degrees (a reflector seam or an LED's corner spans more).
+SECTOR_SMOOTH_DEG = 10.0
+#: An outline is round (no orientation) when its ellipticity is within this many sigma of 1, or
+#: within ``ROUND_MIN`` of it (2 % out of round: the least a maker would call oval; project choice).
+ROUND_SIGMAS = 3.0
+ROUND_MIN = 0.02
+#: Draws of the ellipse fit with the contour points moved by their noise (uncertainty).
+ELLIPSE_DRAWS = 25
+
+#: Order of the shape figures in reports.
+SHAPE_ORDER = (
+    "ring_score", "ring_count", "ring_angle", "ring_amplitude", "ring_width",
+    "centre_hole_depth", "centre_hole_width",
+    "sector_nonuniformity_hotspot", "sector_nonuniformity_spill",
+    "hotspot_major_angle", "hotspot_minor_angle", "hotspot_ellipticity", "hotspot_orientation",
+    "spill_major_angle", "spill_minor_angle", "spill_ellipticity", "spill_orientation",
+    "d4sigma_major", "d4sigma_minor", "d4sigma_ellipticity", "d4sigma_azimuth",
+    "hotspot_flatness", "hotspot_uniformity", "hotspot_edge_steepness", "hotspot_transition_width",
+)
+
+
+@dataclass(frozen=True)
+class ShapeResult:
+    """The shape figures (``SHAPE_ORDER``) and the rings found (for the method text and tests)."""
+
+    figures: dict
+    rings: tuple
+    centroid_deg: tuple
+
+
+def ellipse_of_points(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
+    """Full major and minor axes (same unit as x, y) and major-axis azimuth (deg, 0-180) of the
+    ellipse fitted to the points (OpenCV fitEllipse: least-squares conic, Fitzgibbon et al. 1999)."""
+    import cv2
+
+    pts = np.c_[x, y].astype(np.float32)
+    (_, _), (w, h), ang = cv2.fitEllipse(pts)
+    if w >= h:
+        return float(w), float(h), float(ang % 180.0)
+    return float(h), float(w), float((ang + 90.0) % 180.0)
+
+
+def _contour_points(pk, hot) -> tuple[np.ndarray, np.ndarray]:
+    """The 50 % contour's points on the azimuthal-equidistant plane (deg)."""
+    e1, e2 = local_basis(pk.vector)
+    c = np.asarray(pk.vector, float) / np.linalg.norm(pk.vector)
+    b, a = hot.bearings[:, None], hot.alpha[:, None]
+    return _ae(np.cos(a) * c + np.sin(a) * (np.cos(b) * e1 + np.sin(b) * e2))
+
+
+def _contour_centre(pk, hot) -> tuple[float, float]:
+    """Centre (deg) of the ellipse fitted to the 50 % contour (the hotspot's middle when the peak
+    is on the rim of a hole)."""
+    import cv2
+
+    x, y = _contour_points(pk, hot)
+    (cx, cy), _, _ = cv2.fitEllipse(np.c_[x.ravel(), y.ravel()].astype(np.float32))
+    return float(cx), float(cy)
+
+
+def _ae(vectors: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    th = np.degrees(np.arccos(np.clip(vectors[..., 2], -1.0, 1.0)))
+    ph = np.arctan2(vectors[..., 1], vectors[..., 0])
+    return th * np.cos(ph), th * np.sin(ph)
+
+
+def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) -> dict:
+    """Major/minor full angles, ellipticity and orientation of an outline, with uncertainties from
+    ``ELLIPSE_DRAWS`` refits with the points moved by their 1-sigma (``sx``, ``sy``)."""
+    major, minor, orient = ellipse_of_points(x, y)
+    draws = []
+    for _ in range(ELLIPSE_DRAWS):
+        draws.append(ellipse_of_points(x + sx * rng.standard_normal(len(x)), y + sy * rng.standard_normal(len(y))))
+    draws = np.array(draws)
+    s_major, s_minor = np.std(draws[:, 0], ddof=1), np.std(draws[:, 1], ddof=1)
+    s_orient = float(np.degrees(np.std(np.angle(np.exp(2j * np.radians(draws[:, 2] - orient))), ddof=1) / 2.0))
+    ell = minor / major
+    s_ell = float(np.std(draws[:, 1] / draws[:, 0], ddof=1))
+    method = (f"ellipse fitted (least-squares conic) to the {what}, on the azimuthal-equidistant plane about "
+              "the beam axis; full axes")
+    budget_major = (("pixel noise", s_major), ("wall scale", scale_u * major))
+    budget_minor = (("pixel noise", s_minor), ("wall scale", scale_u * minor))
+    out = {
+        f"{prefix}_major_angle": Figure(major, float(np.hypot(s_major, scale_u * major)), "deg",
+                                        method + ": the major axis", budget=budget_major),
+        f"{prefix}_minor_angle": Figure(minor, float(np.hypot(s_minor, scale_u * minor)), "deg",
+                                        method + ": the minor axis", budget=budget_minor),
+        f"{prefix}_ellipticity": Figure(ell, s_ell, "", method + ": minor over major axis (ISO 11146 ratio; "
+                                        "1 is round)"),
+    }
+    if s_orient >= 30.0 or 1.0 - ell < max(ROUND_SIGMAS * s_ell, ROUND_MIN):
+        out[f"{prefix}_orientation"] = not_measured(
+            "deg", method + ": azimuth of the major axis",
+            "the outline is round within its noise, so it has no orientation")
+    else:
+        out[f"{prefix}_orientation"] = Figure(orient, s_orient, "deg",
+                                              method + ": azimuth of the major axis (0-180 deg, counter-clockwise "
+                                              "from the right as seen from behind the light)")
+    return out
+
+
+def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: float = 0.0,
+                  correlation_deg: float = 0.0, tone_eps: float = 0.0, tone_assumed: bool = False,
+                  seed: int = 0) -> ShapeResult:
+    """Every shape figure of a measured beam (``shape``: :class:`beamshot.measure.BeamShape`).
+
+    ``pixel_deg`` is the angular size of a working pixel (for the noise of means), ``scale_u`` the
+    relative 1-sigma of the wall scale (it scales every angle alike; not the ratios),
+    ``correlation_deg`` the angle over which the photo's errors are correlated (a JPEG block).
+    ``tone_eps`` is the 1-sigma tone-curve (gamma) error of the linearisation, as in
+    :func:`beamshot.uncertainty.tone_bent`: the figures are measured again on the map bent by it,
+    and the change is each figure's "tone curve" term; with ``tone_assumed`` (an assumed curve) a
+    figure whose variance is mostly that term is an ``estimate``.
+    """
+    result = _shape_once(beam, shape, pixel_deg, scale_u, correlation_deg, seed)
+    if not tone_eps:
+        return result
+    from .measure import measure_shape
+    from .uncertainty import tone_bent
+
+    bent_map = tone_bent(beam, shape.peak.value, tone_eps)
+    bent = _shape_once(bent_map, measure_shape(bent_map, boundary_noise=False), pixel_deg, scale_u,
+                       correlation_deg, seed, with_rings=False).figures
+    # rings, without fitting them again: a ring multiplies the profile, (1 + a g), and the bend raises
+    # that factor to the power 1 + eps: the amplitude becomes (1 + a)^(1 + eps) - 1, the location and
+    # (for small a) the width stay
+    for key in ("ring_score", "ring_amplitude"):
+        f = result.figures[key]
+        if f.value is not None and f.status in ("measured", "estimate"):
+            a = f.value if key == "ring_amplitude" else result.figures["ring_amplitude"].value
+            bent[key] = replace(f, value=f.value + abs((1.0 + a) ** (1.0 + tone_eps) - 1.0 - a))
+    figs = {}
+    for key, f in result.figures.items():
+        g = bent.get(key)
+        if f.status in ("measured", "estimate") and g is not None and g.value is not None and f.uncertainty is not None:
+            term = abs(g.value - f.value)
+            u = float(np.hypot(f.uncertainty, term))
+            budget = (f.budget or (("pixel noise", f.uncertainty),)) + (("tone curve", term),)
+            status = "estimate" if tone_assumed and term ** 2 > 0.5 * u ** 2 else f.status
+            f = Figure(f.value, u, f.unit, f.method, status, f.reason if status == f.status else
+                       "the tone curve is assumed, and its possible error makes most of the uncertainty", budget)
+        figs[key] = f
+    return ShapeResult(figs, result.rings, result.centroid_deg)
+
+
+def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlation_deg: float,
+                seed: int, with_rings: bool = True) -> ShapeResult:
+    """:func:`shape_figures` without the tone-curve term (and without the rings if not ``with_rings``)."""
+    rng = np.random.default_rng(seed)
+    figs: dict[str, Figure] = {}
+    noise = noise_model(beam, pixel_deg)
+    pk, hot, edge = shape.peak, shape.hotspot, shape.edge
+    edge_deg = float(np.degrees(np.nanmin(edge.theta))) if edge.complete else None
+    clipped_reason = ("the hotspot is clipped (overexposed) in the photo; lower the exposure (shorter time or "
+                      "lower ISO) or give a bracket") if pk.clipped else None
+    hot_full = float(np.degrees(hot.full_angle())) if hot.complete else float("nan")
+
+    # ---- ISO 11146 second moments of the hotspot (spill and noise excluded)
+    px, py = _ae(pk.vector)
+    iso_method = ("ISO 11146-1 second-moment (D4sigma) diameter of the hotspot on the azimuthal-equidistant plane; "
+                  f"spill model a + b theta^2 subtracted, cells below {N_T:g} sigma of noise dropped (ISO 11146-3), "
+                  "integrated within d of the centroid (docs/artefacts.md)")
+    if clipped_reason:
+        mom = None
+        reason = clipped_reason
+    elif not np.isfinite(hot_full):
+        mom, reason = None, "the 50 % contour runs off the photo; step back or use a wider lens"
+    else:
+        mom = hotspot_moments(beam, (float(px), float(py)), 1.2 * hot_full, noise,
+                              0.9 * edge_deg if edge_deg is not None else None)
+        reason = mom.reason
+    if mom is None or mom.reason:
+        for key, unit in (("d4sigma_major", "deg"), ("d4sigma_minor", "deg"), ("d4sigma_ellipticity", ""),
+                          ("d4sigma_azimuth", "deg")):
+            figs[key] = not_measured(unit, iso_method, reason)
+        centroid = _contour_centre(pk, hot) if hot.complete else (float(px), float(py))
+    else:
+        centroid = mom.centroid
+        for key, v, s_n, s_m in (("d4sigma_major", mom.d_major, mom.d_major_sigma, mom.d_major_model),
+                                 ("d4sigma_minor", mom.d_minor, mom.d_minor_sigma, mom.d_minor_model)):
+            budget = (("pixel noise", s_n), ("spill model", s_m), ("wall scale", scale_u * v))
+            figs[key] = Figure(v, float(np.sqrt(s_n ** 2 + s_m ** 2 + (scale_u * v) ** 2)), "deg",
+                               iso_method + (": major axis" if key.endswith("major") else ": minor axis"),
+                               budget=budget)
+        ell = mom.ellipticity
+        # relative 1-sigma of the ratio: noise and spill model of both diameters (the wall scale cancels)
+        rel = np.hypot(np.hypot(mom.d_major_sigma, mom.d_major_model) / mom.d_major,
+                       np.hypot(mom.d_minor_sigma, mom.d_minor_model) / max(mom.d_minor, 1e-12))
+        figs["d4sigma_ellipticity"] = Figure(ell, float(ell * rel), "", iso_method + ": d_minor / d_major "
+                                             "(ISO 11146: above 0.87 the beam counts as round)")
+        az_method = iso_method + ": azimuth of the major axis (0-180 deg, counter-clockwise from the right)"
+        if 1.0 - ell < max(ROUND_SIGMAS * ell * rel, ROUND_MIN) or mom.azimuth_sigma > 30.0:
+            figs["d4sigma_azimuth"] = not_measured("deg", az_method, "the hotspot is round within its noise, so "
+                                                   "its principal axes have no orientation")
+        else:
+            figs["d4sigma_azimuth"] = Figure(mom.azimuth, max(mom.azimuth_sigma, 1e-3), "deg", az_method)
+
+    # ---- centre hole, hotspot sectors and the transition, from rays about the hotspot's centroid
+    cvec = directions(np.radians(np.hypot(*centroid)), np.arctan2(centroid[1], centroid[0]))
+    reach = 1.5 * hot_full if np.isfinite(hot_full) else 10.0
+    step = float(np.degrees(beam.d_theta))
+    r = np.arange(0.0, reach, step)
+    n_az = 180
+    bear = np.arange(n_az) * 2 * np.pi / n_az
+    vals = beam.sample(_rays(cvec, bear, np.radians(r)))  # (n_az, n_r)
+    _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u)
+    # ---- rings (beyond a centre hole, which is not a ring)
+    rings: tuple = ()
+    if with_rings:
+        search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg,
+                            exclude_below_deg=figs["centre_hole_width"].value or 0.0, correlation_deg=correlation_deg)
+        _ring_figures(figs, search, clipped_reason, scale_u)
+        rings = search.rings
+    spill_from = (float(np.hypot(*mom.centroid)) + mom.radius if mom is not None and not mom.reason else
+                  float(np.degrees(shape.field.full_angle())) if shape.field.complete else float("nan"))
+    _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reason, pixel_deg, spill_from)
+    _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u)
+
+    # ---- principal axes of the hotspot (50 % contour) and of the spill (its edge)
+    if clipped_reason or not hot.complete:
+        for k, u in (("major_angle", "deg"), ("minor_angle", "deg"), ("ellipticity", ""), ("orientation", "deg")):
+            figs[f"hotspot_{k}"] = not_measured(u, "ellipse fitted to the 50 % contour", clipped_reason or
+                                                "the 50 % contour runs off the photo; step back or use a wider lens")
+    else:
+        x, y = (v.ravel() for v in _contour_points(pk, hot))
+        s = np.degrees(hot.sigma)
+        sx, sy = s * np.abs(np.cos(hot.bearings)), s * np.abs(np.sin(hot.bearings))
+        figs.update(_ellipse_figures("hotspot", x, y, sx, sy,
+                                     scale_u, "50 % contour (72 rays from the peak)", rng))
+    edge_reason = _clipped_edge_reason(shape, beam) if pk.clipped else None
+    if edge_reason or not edge.complete:
+        for k, u in (("major_angle", "deg"), ("minor_angle", "deg"), ("ellipticity", ""), ("orientation", "deg")):
+            figs[f"spill_{k}"] = not_measured(
+                u, "ellipse fitted to the spill edge",
+                edge_reason or "the spill edge is not complete in the photo; step back or use a wider lens")
+    else:
+        th = np.degrees(edge.theta)
+        x, y = th * np.cos(edge.phi), th * np.sin(edge.phi)
+        s = np.degrees(edge.sigma)
+        figs.update(_ellipse_figures("spill", x, y, s * np.abs(np.cos(edge.phi)), s * np.abs(np.sin(edge.phi)),
+                                     scale_u, "spill edge (36 sectors)", rng))
+
+    # ---- ISO 13694 on the hotspot
+    iso_m = ("ISO 13694 on the intensity map about the peak (area on the azimuthal-equidistant plane)")
+    if clipped_reason:
+        for key in ("hotspot_flatness", "hotspot_uniformity", "hotspot_edge_steepness"):
+            figs[key] = not_measured("", iso_m, clipped_reason)
+    else:
+        spill_level = (mom.spill_at(mom.radius + np.hypot(*centroid)) / pk.value
+                       if mom is not None and not mom.reason else None)
+        res = iso13694(beam, pk.value, noise)
+        edge_reason = None
+        if not shape.field.complete:
+            edge_reason = "the 10 % contour runs off the photo; step back or use a wider lens"
+        elif spill_level is not None and spill_level > 0.5 * 0.1:
+            edge_reason = (f"the spill beside the hotspot is at {spill_level:.0%} of the peak, too close to the 10 % "
+                           "clip level for an edge steepness of the hotspot")
+        if not hot.complete:
+            r50 = "the 50 % contour runs off the photo; step back or use a wider lens"
+            figs["hotspot_flatness"] = not_measured("", iso_m, r50)
+            figs["hotspot_uniformity"] = not_measured("", iso_m, r50)
+        else:
+            u_peak = float(pk.rel_noise * res.flatness)
+            figs["hotspot_flatness"] = Figure(res.flatness, float(np.hypot(res.flatness_sigma, u_peak)), "",
+                                              iso_m + ": flatness F = mean over A_0.5 / peak (1: flat top)",
+                                              budget=(("pixel noise", res.flatness_sigma), ("peak fit", u_peak)))
+            figs["hotspot_uniformity"] = Figure(res.uniformity, res.uniformity_sigma, "",
+                                                iso_m + ": uniformity U = RMS deviation over A_0.5 / its mean, the "
+                                                "cells' noise variance removed (0: uniform)")
+        if edge_reason:
+            figs["hotspot_edge_steepness"] = not_measured("", iso_m, edge_reason)
+        else:
+            figs["hotspot_edge_steepness"] = Figure(res.edge_steepness, res.edge_steepness_sigma, "",
+                                                    iso_m + ": edge steepness s = (A_0.1 - A_0.9) / A_0.1 "
+                                                    "(0: vertical edge)")
+    ordered = {k: figs[k] for k in SHAPE_ORDER if k in figs}
+    return ShapeResult(ordered, rings, tuple(centroid))
+
+
+def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:
+    method = ("rings: ripple of the azimuthal-mean profile about the beam axis beyond a smooth profile "
+              "(Savitzky-Golay, 3 deg) and the noise; log profile fitted with a quintic and a Gaussian ring, "
+              "reported at "
+              f"{RING_SIGNIFICANCE:g} sigma")
+    listed = "; ".join(f"{r.kind} {r.amplitude:+.1%} at {r.angle_deg:.1f} deg, {r.width_deg:.1f} deg wide"
+                       for r in search.rings)
+    if listed:
+        method += f"; rings found: {listed}"
+    if clipped_reason or search.reason:
+        why = clipped_reason or search.reason
+        for key, unit in (("ring_score", ""), ("ring_count", ""), ("ring_angle", "deg"), ("ring_amplitude", ""),
+                          ("ring_width", "deg")):
+            figs[key] = not_measured(unit, method, why)
+        return
+    best = search.strongest
+    searched = f"searched from {search.searched_deg[0]:.1f} to {search.searched_deg[1]:.1f} deg from the axis"
+    if best is None:
+        why = f"no ring distinguishable from noise ({searched})"
+        figs["ring_score"] = Figure(search.limit, None, "", method + "; ring score: the largest |amplitude| of a ring; "
+                                    "with none found, the amplitude a 1 deg wide ring would need to be found",
+                                    "upper_bound", why)
+        figs["ring_count"] = Figure(0.0, 0.0, "", method + f"; {searched}")
+        for key, unit in (("ring_angle", "deg"), ("ring_amplitude", ""), ("ring_width", "deg")):
+            figs[key] = not_measured(unit, method, why)
+        return
+    figs["ring_score"] = Figure(abs(best.amplitude), best.amplitude_sigma, "",
+                                method + "; ring score: the largest |amplitude| of a ring relative to the smooth "
+                                "profile")
+    figs["ring_count"] = Figure(float(len(search.rings)), 0.0, "", method + f"; {searched}")
+    su_a, su_w = scale_u * best.angle_deg, scale_u * best.width_deg
+    figs["ring_angle"] = Figure(best.angle_deg, float(np.hypot(best.angle_sigma, su_a)), "deg",
+                                method + "; the strongest ring's angle from the beam axis",
+                                budget=(("pixel noise", best.angle_sigma), ("wall scale", su_a)))
+    figs["ring_amplitude"] = Figure(best.amplitude, best.amplitude_sigma, "",
+                                    method + "; the strongest ring's amplitude "
+                                    "relative to the smooth profile (+ bright, - dark)")
+    figs["ring_width"] = Figure(best.width_deg, float(np.hypot(best.width_sigma, su_w)), "deg",
+                                method + "; the strongest ring's full width at half maximum",
+                                budget=(("pixel noise", best.width_sigma), ("wall scale", su_w)))
+
+
+def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u) -> None:
+    """Centre hole: depth ``1 - c / m`` of the level ``c`` at the hotspot's centre (a parabola in r
+    fitted within ``3 r0``) below the surrounding maximum ``m`` of the (lightly smoothed) azimuthal-mean
+    profile about it; width: full
+    angle where the profile has risen half-way from ``c`` to ``m``."""
+    method = ("centre hole: the level at the hotspot's centre (c + k r^2 fitted within 3 r0) against the maximum of "
+              "the azimuthal-mean profile about it (Savitzky-Golay, 1 deg); depth 1 - centre / maximum, width the full "
+              f"angle at half depth; reported at {HOLE_SIGNIFICANCE:g} sigma and {HOLE_MIN_DEPTH:.0%}")
+    if clipped_reason or not np.isfinite(hot_full):
+        why = clipped_reason or "the 50 % contour runs off the photo; step back or use a wider lens"
+        figs["centre_hole_depth"] = not_measured("", method, why)
+        figs["centre_hole_width"] = not_measured("deg", method, why)
+        return
+
+
+    step = r[1] - r[0]
+    with np.errstate(invalid="ignore"):
+        prof = np.nanmean(vals, axis=0)
+    r0 = max(0.3, 2.0 * pixel_deg)
+    # the level at the centre: p(r) = c + k r^2 fitted to the azimuthal-mean profile within 3 r0 (a
+    # dip's bottom is a parabola), each ring of samples weighted by its independent pixels, so that
+    # the curvature of a narrow hole does not lift the centre as a plain mean over a disc would
+    near = (r <= 3.0 * r0) & np.isfinite(prof)
+    n_ring = np.minimum(vals.shape[0], 2 * np.pi * np.maximum(r[near], step) / max(pixel_deg, step))
+    sig = noise.sigma(prof[near]) / np.sqrt(np.maximum(n_ring, 1.0))
+    a = np.c_[np.ones(near.sum()), r[near] ** 2] / sig[:, None]
+    coef, *_ = np.linalg.lstsq(a, prof[near] / sig, rcond=None)
+    c = float(coef[0])
+    s_c = float(np.sqrt(np.linalg.inv(a.T @ a)[0, 0]))
+    win = int(round(1.0 / step)) | 1
+    sm = savgol(np.nan_to_num(prof, nan=0.0), win, 2) if len(prof) > win else prof
+    out = r > r0
+    k = int(np.argmax(np.where(out, sm, -np.inf)))
+    m = float(sm[k])
+    circ = 2 * np.pi * max(r[k], step)
+    n_m = (min(vals.shape[0], circ / pixel_deg) if pixel_deg > 0 else vals.shape[0]) * win
+    s_m = float(noise.sigma(m) / np.sqrt(max(n_m, 1.0)))
+    depth = 1.0 - c / m if m > 0 else float("nan")
+    s_depth = float(np.hypot(s_c / m, c * s_m / m ** 2)) if m > 0 else float("nan")
+    if not np.isfinite(depth):
+        figs["centre_hole_depth"] = not_measured("", method, "the hotspot has no level to compare with")
+        figs["centre_hole_width"] = not_measured("deg", method, "the hotspot has no level to compare with")
+        return
+    if depth < max(HOLE_SIGNIFICANCE * s_depth, HOLE_MIN_DEPTH):
+        bound = max(depth, 0.0) + HOLE_SIGNIFICANCE * s_depth
+        why = "no dip at the hotspot's centre distinguishable from noise"
+        figs["centre_hole_depth"] = Figure(max(bound, HOLE_MIN_DEPTH), None, "", method, "upper_bound", why)
+        figs["centre_hole_width"] = not_measured("deg", method, why)
+        return
+    half = c + 0.5 * (m - c)
+    above = np.flatnonzero((sm >= half) & (r > r0 / 2))
+    i = int(above[0]) if above.size else k
+    if i > 0 and sm[i] != sm[i - 1]:
+        rh = r[i - 1] + (half - sm[i - 1]) / (sm[i] - sm[i - 1]) * step
+        slope = (sm[i] - sm[i - 1]) / step
+    else:
+        rh, slope = r[i], np.inf
+    s_r = float(np.hypot(noise.sigma(half) / np.sqrt(max(n_m / win, 1.0)) / max(slope, 1e-300), step / np.sqrt(12)))
+    width = 2.0 * rh
+    figs["centre_hole_depth"] = Figure(depth, s_depth, "", method + ": depth")
+    figs["centre_hole_width"] = Figure(width, float(np.hypot(2 * s_r, scale_u * width)), "deg", method + ": width",
+                                       budget=(("pixel noise", 2 * s_r), ("wall scale", scale_u * width)))
+
+
+def _sector_profile(vals_rows: np.ndarray, smooth_cells: int) -> np.ndarray:
+    """Azimuthal profile of a zone: each row divided by its own mean (the radial fall-off cancels),
+    averaged over the rows, then a running mean of ``smooth_cells`` (wrapping)."""
+    with np.errstate(invalid="ignore"):
+        rel = vals_rows / np.nanmean(vals_rows, axis=1, keepdims=True)
+        a = np.nanmean(rel, axis=0)
+    kern = np.ones(smooth_cells) / smooth_cells
+    pad = np.r_[a[-smooth_cells:], a, a[:smooth_cells]]
+    return np.convolve(pad, kern, mode="same")[smooth_cells:-smooth_cells]
+
+
+def _sector_figure(zone, rows, az_step_deg, band_rows, method, clipped_reason):
+    """RMS of the zone's azimuthal profile with the noise's share removed.  The noise is measured:
+    the zone's rows are split into alternating radial bands of ``band_rows`` (wider than a pixel),
+    whose two profiles differ by noise only where the sectors run radially (a seam, an LED's
+    corner): ``noise RMS of the full profile = RMS(a_1 - a_2) / 2``."""
+    if clipped_reason:
+        return not_measured("", method, clipped_reason)
+    if rows.shape[0] < 2 * band_rows:
+        return not_measured("", method, f"the {zone} is too small or not in the photo")
+    if np.mean(np.isfinite(rows)) < 0.95:
+        return not_measured("", method, f"the photo does not cover the whole {zone}")
+    cells = max(1, int(round(SECTOR_SMOOTH_DEG / az_step_deg)))
+    a = _sector_profile(rows, cells)
+    band = (np.arange(rows.shape[0]) // band_rows) % 2 == 0
+    diff = _sector_profile(rows[band], cells) - _sector_profile(rows[~band], cells)
+    noise = float(np.sqrt(np.nanmean((diff - np.nanmean(diff)) ** 2)) / 2.0)
+    rms = float(np.sqrt(np.nanmean((a - np.nanmean(a)) ** 2)))
+    n_ind = 360.0 / SECTOR_SMOOTH_DEG  # independent sectors of the profile
+    darkest = float(np.argmin(a) * az_step_deg)
+    brightest = float(np.argmax(a) * az_step_deg)
+    if rms <= SECTOR_SIGNIFICANCE * noise:
+        # a noise-only profile's RMS is the noise's; up to 3 times it is not distinguishable from it
+        bound = float(np.sqrt(max((SECTOR_SIGNIFICANCE * noise) ** 2 - noise ** 2, 0.0)))
+        return Figure(max(bound, float(np.sqrt(max(rms ** 2 - noise ** 2, 0.0)))), None, "", method, "upper_bound",
+                      f"no sector of the {zone} distinguishable from noise")
+    value = float(np.sqrt(rms ** 2 - noise ** 2))
+    # spread of an RMS over n independent sectors: about RMS / sqrt(2 n) (chi distribution), noise-dominated part
+    u = float(np.hypot(noise * np.sqrt(2.0 / n_ind), noise ** 2 / value))
+    where = (f"; darkest toward {darkest:.0f} deg, brightest toward {brightest:.0f} deg (counter-clockwise from "
+             "the right)")
+    return Figure(value, u, "", method + where)
+
+
+def _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reason, pixel_deg, spill_from) -> None:
+    """RMS relative azimuthal variation (``SECTOR_SMOOTH_DEG`` resolution) of the hotspot zone (about
+    its centroid, 0.3 to 1 times the 50 % half angle) and of the spill zone (about the beam axis,
+    from ``spill_from`` - where the hotspot's own light has faded: the D4sigma integration radius
+    beyond the centroid, else twice the 10 % contour's half angle - to 90 % of the spill edge),
+    the noise removed."""
+    base = ("sectors: RMS of the azimuthal profile of the {zone} (each row over its own mean, averaged over the "
+            f"zone's rows, {SECTOR_SMOOTH_DEG:g} deg running mean), the noise's share removed; includes the effect "
+            "of an oval or offset beam")
+    h = 0.5 * hot_full if np.isfinite(hot_full) else float("nan")
+    step = float(np.degrees(beam.d_theta))
+    band = max(3, int(np.ceil(2.0 * pixel_deg / step)))
+    # hotspot zone: the rays about the centroid
+    if np.isfinite(h):
+        sel = (r >= 0.3 * h) & (r <= h)
+        rows = vals[:, sel].T
+        figs["sector_nonuniformity_hotspot"] = _sector_figure(
+            "hotspot", rows, 360.0 / vals.shape[0], band,
+            base.format(zone="hotspot (about its centroid, 0.3 to 1 times the 50 % half angle)"), clipped_reason)
+    else:
+        figs["sector_nonuniformity_hotspot"] = not_measured("", base.format(zone="hotspot"),
+                                                            clipped_reason or "the 50 % contour runs off the photo")
+    # spill zone: map rows about the beam axis
+    tdeg = np.degrees(beam.theta)
+    outer = 0.9 * edge_deg if edge_deg is not None else None
+    method = base.format(zone="spill (about the beam axis, from where the hotspot's own light has faded to 90 % of "
+                              "the spill edge)")
+    if outer is None or not np.isfinite(spill_from):
+        figs["sector_nonuniformity_spill"] = not_measured("", method, "the spill edge is not complete in the photo"
+                                                          if outer is None else "the hotspot's extent is not known")
+        return
+    sel = (tdeg >= spill_from) & (tdeg <= outer)
+    rows = beam.intensity[sel]
+    figs["sector_nonuniformity_spill"] = _sector_figure("spill", rows, float(np.degrees(beam.d_phi)), band, method,
+                                                        clipped_reason)
+
+
+def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u) -> None:
+    """Hotspot-to-spill transition: the angle over which the hotspot's own light (the map minus the
+    spill model) falls from 90 % to 10 % of its maximum, on the azimuthal mean about its centroid
+    (the 10-90 % edge width of imaging practice, common practice).  A Gaussian gives 1.687 sigma."""
+    method = ("hotspot-to-spill transition: the map minus the spill model (as for D4sigma), azimuthal mean about the "
+              "hotspot's centroid; angle from its 90 % to its 10 % level")
+    if clipped_reason or mom is None or mom.reason:
+        figs["hotspot_transition_width"] = not_measured("deg", method, clipped_reason or (mom.reason if mom else
+                                                                                           "no hotspot to measure"))
+        return
+    vec = _rays(cvec, bear, np.radians(r))
+    th = np.degrees(np.arccos(np.clip(vec[..., 2], -1.0, 1.0)))
+    e = vals - mom.spill_at(th)
+    with np.errstate(invalid="ignore"):
+        prof = np.nanmean(e, axis=0)
+    step = r[1] - r[0]
+
+
+    win = int(round(0.5 / step)) | 1
+    sm = savgol(np.nan_to_num(prof, nan=0.0), win, 2) if len(prof) > win else prof
+    k = int(np.argmax(sm))
+    top = sm[k]
+    crossings = []
+    for level in (0.9, 0.1):
+        below = np.flatnonzero(sm[k:] < level * top)
+        if not below.size:
+            figs["hotspot_transition_width"] = not_measured("deg", method, "the hotspot does not fall to 10 % of its "
+                                                            "own light inside the measured range")
+            return
+        i = k + int(below[0])
+        rr = r[i - 1] + (sm[i - 1] - level * top) / (sm[i - 1] - sm[i]) * step
+        slope = (sm[i - 1] - sm[i]) / step
+        s_r = noise.sigma(level * top + float(np.interp(rr, r, mom.spill_at(r)))) / np.sqrt(vals.shape[0]) / slope
+        crossings.append((rr, float(np.hypot(s_r, step / np.sqrt(12)))))
+    width = crossings[1][0] - crossings[0][0]
+    s_n = float(np.hypot(crossings[0][1], crossings[1][1]))
+    figs["hotspot_transition_width"] = Figure(width, float(np.hypot(s_n, scale_u * width)), "deg", method,
+                                              budget=(("pixel noise", s_n), ("wall scale", scale_u * width)))

@@ -1,0 +1,278 @@
+"""Beam shape measures from laser-beam practice, applied to the angular intensity map.
+
+Both work on the azimuthal-equidistant plane about the beam axis: ``x = theta cos phi``,
+``y = theta sin phi`` in degrees (right and up as seen from behind the light), each map cell
+weighted by its area there, ``dA = theta d_theta d_phi`` (for the small angles of a hotspot this
+is its solid angle, sin theta ~ theta, to 0.5 % at 10 deg).
+
+**ISO 11146-1 second moments (D4sigma).**  For a distribution E(x, y):
+centroid ``x_c = sum x E dA / sum E dA``; ``s_xx = sum (x - x_c)^2 E dA / sum E dA``, ``s_yy``,
+``s_xy`` likewise; principal diameters
+``d_{+,-} = 2 sqrt 2 sqrt(s_xx + s_yy +- sqrt((s_xx - s_yy)^2 + 4 s_xy^2))`` and the azimuth of the
+major axis ``phi = atan2(2 s_xy, s_xx - s_yy) / 2``; ellipticity ``d_minor / d_major``.  A Gaussian
+``exp(-r^2 / 2 sigma^2)`` has ``d = 4 sigma``, a uniform disc of radius R has ``d = 2R``.
+
+For a flashlight the spill (a wide plateau of a few % of the peak) and the noise floor would
+dominate the second moments, so the hotspot is taken alone (ISO 11146-3 handles the background
+and the noise the same way, by subtraction and a noise threshold):
+
+1. the spill is modelled as ``S(theta) = a + b theta^2`` (the bowl of a reflector's spill about
+   the beam axis), fitted to the azimuthal mean profile between ``centroid offset + d`` and 90 % of
+   the spill edge (or the photo's reach), and subtracted: ``E = I - S``;
+2. cells with ``E`` below ``N_T`` = 3 times their own noise are set to 0 (ISO 11146-3: 2 to 4);
+3. only cells within ``d`` of the centroid count (ISO 11146-3 integrates over 3 d; the spill's
+   model would be extrapolated further, and a Gaussian loses only ``(1 + 8) e^-8`` = 0.3 % of its
+   second moment beyond 4 sigma);
+4. centroid, moments and ``d`` are iterated until ``d`` changes by less than 0.1 %.
+
+**ISO 13694 (power density distribution), on the hotspot.**  With ``E_max`` the peak and ``A_eta``
+the area where ``I >= eta E_max``: flatness ``F = E_mean,eta / E_max``, uniformity
+``U = std(I over A_eta) / E_mean,eta``, both at ``eta = HOTSPOT_CLIP`` = 0.5 (the hotspot's own
+level); edge steepness ``s = (A_low - A_high) / A_low`` between ``EDGE_CLIPS`` = (0.1, 0.9).
+(Definitions from a secondary source's code, not the standard's text; the 0.1 / 0.9 clip levels
+from memory; see /work/shared/REFERENCES.md 6.1.)  A flat top with vertical edges has F = 1,
+U = 0, s = 0; a Gaussian F = 0.721, U = 0.199, s = 0.954 (tests/test_shape_iso.py derives them).
+
+Noise: each measure is repeated on ``N_SUBSETS`` interleaved subsets of the azimuth columns
+(every fourth column), each a full sample of the beam with its own pixel noise; the spread of the
+subset results over sqrt(N_SUBSETS) is the 1-sigma noise of the full result (a split-sample
+estimate, common practice).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._quiet import quiet_nan
+from .beammap import BeamMap
+from .map_noise import NoiseModel
+
+__all__ = ["SecondMoments", "second_moments", "principal_diameters", "HotspotMoments", "hotspot_moments",
+           "Iso13694", "iso13694", "ae_grid", "N_T", "HOTSPOT_CLIP", "EDGE_CLIPS", "N_SUBSETS"]
+
+#: ISO 11146-3 noise threshold factor (the standard allows 2 to 4).
+N_T = 3.0
+#: ISO 13694 clip level for flatness and uniformity of a hotspot: its own 50 % level.
+HOTSPOT_CLIP = 0.5
+#: ISO 13694 edge steepness clip levels (low, high) - from memory.
+EDGE_CLIPS = (0.1, 0.9)
+#: Interleaved azimuth subsets for the noise of each measure.
+N_SUBSETS = 4
+#: The spill model is fitted to at least this many map rows (project choice: about 1 deg at 0.1 deg).
+MIN_SPILL_ROWS = 10
+
+
+def ae_grid(beam: BeamMap) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Azimuthal-equidistant ``x``, ``y`` (deg) of every cell and its area ``theta d_theta d_phi`` (deg^2)."""
+    t = np.degrees(beam.theta)[:, None]
+    x = t * np.cos(beam.phi)[None, :]
+    y = t * np.sin(beam.phi)[None, :]
+    area = t * np.degrees(beam.d_theta) * beam.d_phi * np.ones_like(x)
+    return x, y, area
+
+
+@dataclass(frozen=True)
+class SecondMoments:
+    """Centroid (deg), second moments (deg^2) and the summed ``E dA`` of a distribution."""
+
+    cx: float
+    cy: float
+    sxx: float
+    syy: float
+    sxy: float
+    power: float
+
+
+def second_moments(x: np.ndarray, y: np.ndarray, e: np.ndarray, area: np.ndarray) -> SecondMoments:
+    """First and second moments of ``e`` over cells at ``x``, ``y`` with ``area`` (ISO 11146-1 sec. 3)."""
+    w = e * area
+    p = float(np.sum(w))
+    if not p > 0:
+        nan = float("nan")
+        return SecondMoments(nan, nan, nan, nan, nan, 0.0)
+    cx, cy = float(np.sum(w * x) / p), float(np.sum(w * y) / p)
+    dx, dy = x - cx, y - cy
+    return SecondMoments(cx, cy, float(np.sum(w * dx * dx) / p), float(np.sum(w * dy * dy) / p),
+                         float(np.sum(w * dx * dy) / p), p)
+
+
+def principal_diameters(m: SecondMoments) -> tuple[float, float, float]:
+    """ISO 11146-1 principal diameters ``(d_major, d_minor)`` (deg) and the major axis's azimuth
+    (deg, 0-180, counter-clockwise from the right): ``d = 2 sqrt 2 sqrt(s_xx + s_yy +- root)``."""
+    root = np.sqrt((m.sxx - m.syy) ** 2 + 4.0 * m.sxy ** 2)
+    d_major = 2.0 * np.sqrt(2.0) * np.sqrt(max(m.sxx + m.syy + root, 0.0))
+    d_minor = 2.0 * np.sqrt(2.0) * np.sqrt(max(m.sxx + m.syy - root, 0.0))
+    azimuth = float(np.degrees(0.5 * np.arctan2(2.0 * m.sxy, m.sxx - m.syy)) % 180.0)
+    return float(d_major), float(d_minor), azimuth
+
+
+@dataclass(frozen=True)
+class HotspotMoments:
+    """ISO 11146 measures of the hotspot (spill and noise excluded); ``reason`` is set when they
+    could not be measured.  Values in degrees; ``*_sigma`` are 1-sigma noise, ``*_model`` the change
+    with a richer spill model (``+ c theta^4``)."""
+
+    reason: str | None
+    centroid: tuple[float, float] = (float("nan"), float("nan"))
+    d_major: float = float("nan")
+    d_minor: float = float("nan")
+    azimuth: float = float("nan")
+    d_major_sigma: float = 0.0
+    d_minor_sigma: float = 0.0
+    azimuth_sigma: float = 0.0
+    d_major_model: float = 0.0
+    d_minor_model: float = 0.0
+    spill: tuple[float, ...] = ()
+    radius: float = float("nan")
+    iterations: int = 0
+
+    @property
+    def ellipticity(self) -> float:
+        return self.d_minor / self.d_major if self.d_major > 0 else float("nan")
+
+    def spill_at(self, theta_deg) -> np.ndarray:
+        """The fitted spill model at polar angles ``theta_deg`` (map units)."""
+        t2 = np.asarray(theta_deg, float) ** 2
+        return sum(c * t2 ** k for k, c in enumerate(self.spill))
+
+
+def _spill_fit(tdeg, mean, lo: float, hi: float, order: int):
+    rows = np.isfinite(mean) & (tdeg >= lo) & (tdeg <= hi)
+    if rows.sum() < max(MIN_SPILL_ROWS, 3 * (order + 1)):
+        return None
+    a = np.stack([tdeg[rows] ** (2 * k) for k in range(order + 1)], axis=1)
+    coef, *_ = np.linalg.lstsq(a, mean[rows], rcond=None)
+    return tuple(float(c) for c in coef)
+
+
+def _moments_once(x, y, area, e, keep, centre, radius):
+    """Moments of ``e`` over the kept cells within ``radius`` of ``centre`` (only the map rows that
+    can reach it are looked at: rows are polar angles, and x = theta cos phi)."""
+    rows = int(np.searchsorted(np.hypot(x[:, 0], y[:, 0]), float(np.hypot(*centre)) + radius, side="right")) + 1
+    x, y, area, e, keep = x[:rows], y[:rows], area[:rows], e[:rows], keep[:rows]
+    sel = keep & ((x - centre[0]) ** 2 + (y - centre[1]) ** 2 <= radius * radius)
+    return second_moments(x[sel], y[sel], e[sel], area[sel])
+
+
+def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: float, noise: NoiseModel,
+                    outer_deg: float | None) -> HotspotMoments:
+    """ISO 11146 D4sigma of the hotspot with the spill modelled and subtracted (module docstring).
+
+    ``start_centre`` (deg, AE) and ``start_d`` (deg) start the iteration (the peak and about 1.2
+    times the 50 % full angle); ``outer_deg`` is how far the spill model may be fitted (90 % of the
+    spill edge; None: as far as the photo covers at least half the azimuths).
+    """
+    x, y, area = ae_grid(beam)
+    inten = beam.intensity
+    valid = np.isfinite(inten)
+    tdeg = np.degrees(beam.theta)
+    count = valid.sum(axis=1)
+    with quiet_nan():
+        mean = np.where(count >= 0.5 * inten.shape[1], np.nanmean(inten, axis=1), np.nan)
+    covered = tdeg[np.isfinite(mean)]
+    reach = float(covered.max()) if covered.size else 0.0
+    outer = min(outer_deg, reach) if outer_deg is not None else reach
+    sig = noise.sigma(inten)
+    centre, d = tuple(start_centre), float(start_d)
+    if not (np.isfinite(d) and d > 0):
+        return HotspotMoments("the hotspot has no 50 % contour to start from")
+    spill = None
+    it = 0
+    for it in range(1, 16):
+        lo = float(np.hypot(*centre)) + d
+        spill = _spill_fit(tdeg, mean, lo, outer, 1)
+        if spill is None:
+            return HotspotMoments(f"the spill is not seen far enough beyond the hotspot to be modelled under it "
+                                  f"(needs {lo:.1f} to {lo + 1:.1f} deg or more from the axis; the photo and the spill "
+                                  f"reach {outer:.1f} deg); step back or use a wider lens")
+        e = inten - (spill[0] + spill[1] * tdeg ** 2)[:, None]
+        keep = valid & (e > N_T * sig)
+        m = _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, d)
+        if not m.power > 0:
+            return HotspotMoments("no part of the hotspot stands above the spill and the noise")
+        d_new = principal_diameters(m)[0]
+        done = abs(d_new - d) < 1e-3 * d
+        centre, d = (m.cx, m.cy), d_new
+        if done:
+            break
+    e = inten - (spill[0] + spill[1] * tdeg ** 2)[:, None]
+    keep = valid & (e > N_T * sig)
+    m = _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, d)
+    d_major, d_minor, azimuth = principal_diameters(m)
+    # noise: interleaved azimuth subsets
+    subs = []
+    cols = np.arange(inten.shape[1])
+    for k in range(N_SUBSETS):
+        on = (cols % N_SUBSETS == k)[None, :]
+        ms = _moments_once(x, y, area, np.where(keep & on, e, 0.0), keep & on, centre, d)
+        subs.append(principal_diameters(ms))
+    subs = np.array(subs)
+    spread = np.std(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS)
+    az_spread = np.degrees(np.std(np.angle(np.exp(2j * np.radians(subs[:, 2] - azimuth))), ddof=1) / 2.0
+                           ) / np.sqrt(N_SUBSETS)
+    # spill model: a richer polynomial changes the subtracted level under the hotspot
+    richer = _spill_fit(tdeg, mean, float(np.hypot(*centre)) + d, outer, 2)
+    dm = (0.0, 0.0)
+    if richer is not None:
+        e2 = inten - sum(c * tdeg ** (2 * k) for k, c in enumerate(richer))[:, None]
+        keep2 = valid & (e2 > N_T * sig)
+        m2 = _moments_once(x, y, area, np.where(keep2, e2, 0.0), keep2, centre, d)
+        if m2.power > 0:
+            p2 = principal_diameters(m2)
+            dm = (abs(p2[0] - d_major), abs(p2[1] - d_minor))
+    return HotspotMoments(None, (m.cx, m.cy), d_major, d_minor, azimuth, float(spread[0]), float(spread[1]),
+                          float(az_spread), dm[0], dm[1], spill, d, it)
+
+
+@dataclass(frozen=True)
+class Iso13694:
+    """ISO 13694 measures of the hotspot (fractions) with their 1-sigma noise; a ``reason`` each
+    when not measured (None when measured)."""
+
+    flatness: float
+    flatness_sigma: float
+    uniformity: float
+    uniformity_sigma: float
+    edge_steepness: float
+    edge_steepness_sigma: float
+    flatness_reason: str | None = None
+    edge_reason: str | None = None
+
+
+def _iso13694_once(inten, area, e_max, var, cols_on):
+    v = np.isfinite(inten) & cols_on
+    hot = v & (inten >= HOTSPOT_CLIP * e_max)
+    a = area[hot]
+    vals = inten[hot]
+    if a.sum() <= 0:
+        return np.nan, np.nan, np.nan
+    mean = float(np.sum(vals * a) / np.sum(a))
+    var_i = float(np.sum((vals - mean) ** 2 * a) / np.sum(a))
+    noise_var = float(np.sum(var[hot] * a) / np.sum(a))
+    flat = mean / e_max
+    unif = float(np.sqrt(max(var_i - noise_var, 0.0)) / mean)
+    a_low = float(np.sum(area[v & (inten >= EDGE_CLIPS[0] * e_max)]))
+    a_high = float(np.sum(area[v & (inten >= EDGE_CLIPS[1] * e_max)]))
+    steep = (a_low - a_high) / a_low if a_low > 0 else np.nan
+    return flat, unif, steep
+
+
+def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
+             edge_reason: str | None = None, flatness_reason: str | None = None) -> Iso13694:
+    """Flatness and uniformity at ``HOTSPOT_CLIP`` and edge steepness between ``EDGE_CLIPS`` of the
+    map about its peak value ``e_max`` (module docstring).  The uniformity has the cells' own noise
+    variance (from ``noise``) removed: ``U = sqrt(var - noise var) / mean``."""
+    inten = beam.intensity
+    _, _, area = ae_grid(beam)
+    var = noise.sigma(inten) ** 2 if noise is not None else np.zeros_like(inten)
+    n = inten.shape[1]
+    cols = np.arange(n)
+    full = _iso13694_once(inten, area, e_max, var, np.ones((1, n), bool))
+    subs = np.array([_iso13694_once(inten, area, e_max, var, (cols % N_SUBSETS == k)[None, :])
+                     for k in range(N_SUBSETS)])
+    with quiet_nan():
+        spread = np.nanstd(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS)
+    return Iso13694(full[0], float(spread[0]), full[1], float(spread[1]), full[2], float(spread[2]),
+                    flatness_reason, edge_reason)
