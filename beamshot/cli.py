@@ -60,7 +60,8 @@ def _write_crash_log(exc: BaseException, argv) -> str | None:
         try:
             os.makedirs(folder, exist_ok=True)
             path = os.path.join(folder, name)
-            with open(path, "w", encoding="utf-8") as fh:
+            # arguments from a file system with non-UTF-8 names hold lone surrogates: escaped, not fatal
+            with open(path, "w", encoding="utf-8", errors="backslashreplace") as fh:
                 fh.write(text)
             return path
         except OSError:

@@ -186,7 +186,7 @@ def beam_figures(shape: BeamShape, beam: BeamMap, scale: AbsoluteScale, values: 
             figs["beam_distance"] = bound("beam_distance", "m", dist_method, "lower_bound")
         else:
             if clipped:
-                peak_method = f"the lux reading at the peak: I = E D^2 / cos^3 theta (the photo's peak is clipped)"
+                peak_method = "the lux reading at the peak: I = E D^2 / cos^3 theta (the photo's peak is clipped)"
             figs["peak_intensity"] = fig("peak_intensity", "cd", peak_method)
             figs["beam_distance"] = fig("beam_distance", "m", dist_method)
     else:

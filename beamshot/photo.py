@@ -504,6 +504,9 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
 
 def load_photo(path: str | os.PathLike, *, max_megapixels: float | None = None) -> Photo:
     """Read and decode a photo file (see :func:`decode_photo`)."""
-    name = os.path.basename(os.fspath(path))
+    name = os.path.basename(os.fsdecode(path))
+    # a name with bytes that are not UTF-8 (lone surrogates, PEP 383) is shown with U+FFFD: reports,
+    # pictures and pages cannot hold the raw bytes
+    name = name.encode("utf-8", "surrogateescape").decode("utf-8", "replace")
     data = read_user_file(path, "not a photo")
     return decode_photo(data, name, max_megapixels=max_megapixels)

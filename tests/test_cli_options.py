@@ -14,7 +14,6 @@ import subprocess
 import sys
 
 import click
-import numpy as np
 import pytest
 from click.testing import CliRunner
 
@@ -416,3 +415,19 @@ def test_demo_follows_the_out_rules(tmp_path):
     assert sorted(os.listdir(mine)) == ["notes.txt"]
     res = CliRunner().invoke(cli, ["demo", "--out", "/proc/beamshot-demo-test"])
     assert res.exit_code == 2 and "choose a folder you can write to" in res.stderr
+
+
+@pytest.mark.skipif(sys.platform != "linux", reason="a file name that is not UTF-8 needs a byte-named file system")
+def test_a_photo_name_that_is_not_utf8_is_written_as_replacement_characters(photo, tmp_path):
+    # POSIX names are bytes; Python hands undecodable ones over as lone surrogates (PEP 383), which
+    # UTF-8 JSON and HTML cannot hold: the reports show U+FFFD instead of failing
+    name = os.fsencode(tmp_path) + b"/beam-\xff\xfe.jpg"
+    with open(photo, "rb") as src, open(name, "wb") as dst:
+        dst.write(src.read())
+    out = tmp_path / "rep"
+    res = subprocess.run([sys.executable, "-m", "beamshot", "analyze", name, "--distance", "5", "--out", str(out)],
+                         capture_output=True)
+    assert res.returncode == 0, res.stderr.decode("utf-8", "replace")
+    data = json.loads((out / "report.json").read_text(encoding="utf-8"))
+    assert data["inputs"][0]["name"] == "beam-\ufffd\ufffd.jpg"
+    assert "beam-\ufffd\ufffd.jpg" in (out / "report.html").read_text(encoding="utf-8")

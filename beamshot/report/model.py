@@ -93,10 +93,20 @@ class BeamReport:
         })
 
 
+def _valid_text(text: str) -> str:
+    """``text`` as valid Unicode: a file name read from a file system with non-UTF-8 bytes carries them
+    as lone surrogates (PEP 383), which JSON in UTF-8 cannot hold; they become U+FFFD."""
+    try:
+        text.encode("utf-8")
+        return text
+    except UnicodeEncodeError:
+        return text.encode("utf-8", "surrogateescape").decode("utf-8", "replace")
+
+
 def rounded(obj, digits: int = ROUND_DIGITS):
     """A JSON-ready copy of ``obj``: floats to ``digits`` significant digits, non-finite floats as
     None, -0.0 as 0.0, numpy scalars and arrays as Python numbers and lists, tuples as lists;
-    dicts and lists recursively; bools, ints, strings and None unchanged.
+    dicts and lists recursively; text made valid Unicode; bools, ints and None unchanged.
 
     >>> rounded({"focal_px": 693.3752452815363, "phi": [265.55311615725145, float("nan")], "n": 3})
     {'focal_px': 693.375, 'phi': [265.553, None], 'n': 3}
@@ -108,8 +118,10 @@ def rounded(obj, digits: int = ROUND_DIGITS):
     if isinstance(obj, (float, np.floating)):
         x = float(obj)
         return float(f"{x:.{digits}g}") + 0.0 if np.isfinite(x) else None
+    if isinstance(obj, str):
+        return _valid_text(obj)
     if isinstance(obj, dict):
-        return {k: rounded(v, digits) for k, v in obj.items()}
+        return {_valid_text(k) if isinstance(k, str) else k: rounded(v, digits) for k, v in obj.items()}
     if isinstance(obj, (list, tuple, np.ndarray)):
         return [rounded(v, digits) for v in obj]
     return obj
