@@ -740,6 +740,28 @@ def run_batch(manifest, out_dir, *, workers: int | None = None, scheduler: str |
     return BatchResult(items, outcomes, csv_path, json_path, scheduler or (workers or default_workers()))
 
 
+# ---------------------------------------------------------------- the comparison
+
+#: Folder of a batch's comparison sheet (``--compare``), beside the summary.
+COMPARISON_DIR = "comparison"
+
+
+def compare_items(out_dir: str, items: list[Item], outcomes: dict) -> str:
+    """Compare every item with a report set (done now or before), in manifest order, with
+    ``beamshot compare`` into ``out_dir/comparison``; returns that folder.  Refuses (one line)
+    fewer than two or more than twelve such items."""
+    from .compare import MAX_LIGHTS, MIN_LIGHTS, compare
+
+    ready = [it for it in items if outcomes.get(it.row) is not None
+             and outcomes[it.row].status in (STATUS_DONE, STATUS_SKIPPED) and os.path.isdir(it.folder)]
+    if not MIN_LIGHTS <= len(ready) <= MAX_LIGHTS:
+        raise BeamshotError(f"--compare: {len(ready)} item(s) have a report set; compare takes {MIN_LIGHTS} to "
+                            f"{MAX_LIGHTS} (run 'beamshot compare' on a selection of DIR/items/*)")
+    folder = os.path.join(out_dir, COMPARISON_DIR)
+    compare([it.folder for it in ready], labels=[it.name for it in ready], out_dir=folder)
+    return folder
+
+
 # ---------------------------------------------------------------- the summary
 
 _FIGURE_PARTS = ("value", "uncertainty", "unit", "status")

@@ -75,8 +75,10 @@ class _Progress:
               help="Run on an existing Dask cluster at ADDRESS (e.g. tcp://host:8786); needs beamshot[cluster].")
 @click.option("--pictures", type=click.Choice(["all", "none"]), default="all", show_default=True,
               help="none: do not draw beam.png (faster on slow machines).")
+@click.option("--compare", "with_compare", is_flag=True,
+              help="Also compare the items (2 to 12) at one exposure into DIR/comparison (see 'beamshot compare').")
 @click.pass_context
-def batch(ctx, manifest, out_dir, workers, scheduler, pictures):
+def batch(ctx, manifest, out_dir, workers, scheduler, pictures, with_compare):
     """Analyze every row of MANIFEST (CSV or TOML, one analysis per row) into --out DIR.
 
     Runs on all local cores (or a Dask cluster with --scheduler); resumable: items already done
@@ -112,6 +114,15 @@ def batch(ctx, manifest, out_dir, workers, scheduler, pictures):
     click.echo(f"{n} item(s): {result.count(STATUS_DONE)} done, {result.count(STATUS_SKIPPED)} skipped (already "
                f"done), {result.count(STATUS_FAILED)} failed; wrote {summary_csv} and "
                f"{os.path.join(out_dir, 'summary.json')}")
+    if with_compare:
+        from .batch import compare_items
+
+        try:
+            folder = compare_items(os.path.abspath(out_dir), result.items, result.outcomes)
+            click.echo(f"compared at one exposure: {os.path.join(folder, 'sheet.png')}")
+        except BeamshotError as exc:
+            click.echo(f"beamshot: error: {exc}", err=True)
+            ctx.exit(2)
     if result.failed:
         click.echo(f"{result.failed} of {n} items failed: see {summary_csv}", err=True)
         ctx.exit(2)

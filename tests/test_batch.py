@@ -10,6 +10,7 @@ import csv
 import json
 import math
 import os
+import shutil
 import random
 import signal
 import subprocess
@@ -120,6 +121,24 @@ def test_csv_batch_figures_follow_the_inputs(local_run, shots):
         assert {key, f"{key}_uncertainty", f"{key}_unit", f"{key}_status"} <= set(header)
     for r in rows:
         assert sorted(os.listdir(os.path.join(local_run, r["folder"]))) == ["intensity-map.npz", "profile.csv", "report.html", "report.json"]
+
+
+def test_compare_after_the_batch_uses_every_item_with_a_report(local_run, shots, tmp_path):
+    # the batch run again with --compare: nothing analysed again, the three items compared by name
+    folder, _ = shots
+    out = tmp_path / "out"
+    shutil.copytree(local_run, out)
+    res = CliRunner().invoke(batch, [str(folder / "three.csv"), "--out", str(out), "--pictures", "none", "--compare"])
+    assert res.exit_code == 0, res.output
+    assert "3 skipped" in res.output and "sheet.png" in res.output
+    data = json.loads((out / "comparison" / "comparison.json").read_text(encoding="utf-8"))
+    assert [x["label"] for x in data["lights"]] == ["prototype 1", "prototype 2", "wide.jpg"]
+    # one item is not a comparison: refused in one line, exit 2, the batch itself done
+    (folder / "one.csv").write_text("photos,distance_m\nnarrow.jpg,5\n")
+    res = CliRunner().invoke(batch, [str(folder / "one.csv"), "--out", str(tmp_path / "one"), "--pictures", "none",
+                                     "--compare"])
+    assert res.exit_code == 2 and "--compare: 1 item(s) have a report set" in res.output
+    assert (tmp_path / "one" / "summary.csv").exists()
 
 
 def test_toml_gives_the_same_summary_as_csv(local_run, shots, tmp_path):
