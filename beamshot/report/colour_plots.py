@@ -226,6 +226,10 @@ def tint_figure(report, path) -> None:
     foot = "A camera gives chromaticity, not a spectrum: colour rendering (CRI, TM-30) is not measured. " + note
     import textwrap
 
+    from .plots import CAUTION_LINE
+
+    fig.text(0.99, 0.97, CAUTION_LINE, ha="right", va="top", fontsize=FONT_PT - 0.5, color="#444444", gid="caution")
+
     fig.text(0.01, 0.01, "\n".join(textwrap.wrap(foot, 190)), fontsize=FONT_PT - 0.5, color="#444444")
     fig.subplots_adjust(left=0.05, right=0.99, top=0.88, bottom=0.12, wspace=0.28)
     fig.savefig(path, dpi=110)
