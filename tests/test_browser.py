@@ -147,7 +147,8 @@ def test_report_page_in_chromium(browser, pages, width, tmp_path):
             "table.figures tbody tr",
             "rows => rows.map(r => ({key: r.dataset.key, value: r.dataset.value, u: r.dataset.uncertainty, "
             "status: r.dataset.status, shown: r.cells[1].innerText}))")
-        figures = json.loads((out / "report.json").read_text(encoding="utf-8"))["figures"]
+        data = json.loads((out / "report.json").read_text(encoding="utf-8"))
+        figures = {**data["figures"], **data.get("shape", {})}  # the figures table, then the shape table
         assert [r["key"] for r in rows] == list(figures)
         for r in rows:
             f = figures[r["key"]]

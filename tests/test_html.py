@@ -139,7 +139,8 @@ def test_every_set_holds_a_self_contained_page_with_the_json_numbers(analysed):
     text = (out / HTML_FILE).read_text(encoding="utf-8")
     assert_self_contained(text)
     data = json.loads((out / "report.json").read_text(encoding="utf-8"))
-    assert_table_matches_json(text, data["figures"])
+    assert_table_matches_json(text, {**data["figures"], **data.get("shape", {})})
+    assert 'id="shape"' in text and "shape" in data
     page = parse(text)
     imgs = [a for t, a in page.tags if t == "img"]
     assert len(imgs) == 1 and imgs[0]["alt"].startswith("intensity map")
@@ -180,7 +181,8 @@ def test_without_pictures_the_page_has_the_tables_and_says_so(tmp_path, analysed
     page = parse(text)
     assert not [t for t, _ in page.tags if t in ("img", "svg")]
     assert "Pictures were turned off" in text
-    assert_table_matches_json(text, json.loads((out / "report.json").read_text())["figures"])
+    data = json.loads((out / "report.json").read_text())
+    assert_table_matches_json(text, {**data["figures"], **data.get("shape", {})})
 
 
 def test_relative_report_says_relative(analysed, tmp_path):
@@ -193,7 +195,7 @@ def test_relative_report_says_relative(analysed, tmp_path):
     assert rel.beam.unit != "cd"
     text = report_html(rel, picture=True)
     assert "relative scale (no cd)" in text and "intensity (relative to peak)" in text
-    assert_table_matches_json(text, rel.to_dict()["figures"])
+    assert_table_matches_json(text, {**rel.to_dict()["figures"], **rel.to_dict().get("shape", {})})
 
 
 # ------------------------------------------------------------------------------- comparison page
@@ -309,3 +311,26 @@ def test_comparison_page_from_a_dict_without_optional_parts(tmp_path):
     text = comparison_html(data, tmp_path)
     assert_self_contained(text)
     assert "normalised" in text and all(esc(c) in text for c in CAUTIONS)
+
+
+def test_colour_section_holds_the_json_numbers(tmp_path):
+    # a colour photo analysed with colour: the page's colour table carries report.json's zone figures
+    from beamshot import analyze
+
+    images = os.path.join(os.path.dirname(__file__), "..", "sample_images")
+    rep = analyze(os.path.join(images, "proto-4-warm-spill-ring.jpg"), distance_m=4.0, colour=True)
+    out = tmp_path / "set"
+    write_report(rep, out)
+    text = (out / HTML_FILE).read_text(encoding="utf-8")
+    assert_self_contained(text)
+    data = json.loads((out / "report.json").read_text(encoding="utf-8"))
+    zones = data["colour"]["zones"]
+    for zone, z in zones.items():
+        m = re.search(rf'<tr data-zone="{zone}">(.*?)</tr>', text)
+        assert m, zone
+        values = [float(v) for v in re.findall(r'data-value="([^"]+)"', m.group(1))]
+        assert values == [z[k]["value"] for k in ("cct", "duv", "u_prime", "v_prime", "x", "y")]
+    assert text.count("data:image/png;base64,") == 2  # the map and tint.png
+    visible = " ".join(parse(text).text)
+    for line in data["colour"]["limits"]:
+        assert line in visible

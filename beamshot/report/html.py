@@ -82,6 +82,72 @@ def _figures_section(d: dict) -> str:
             + _budget_details(d["figures"]) + "</section>")
 
 
+def _shape_section(d: dict) -> str:
+    """Beam shape and artefacts (report.json ``shape``; docs/artefacts.md), when the report has them."""
+    shape = d.get("shape")
+    if not shape:
+        return ""
+    return ('<section id="shape"><h2>Beam shape and artefacts</h2>'
+            '<p class="note">Rings, a centre hole, sectors and the principal axes of the hotspot and the spill; '
+            'the ISO 11146 second-moment diameters and the ISO 13694 flatness, uniformity and edge steepness '
+            'of the hotspot. An artefact the noise could hide is an upper bound (“not distinguishable from '
+            'noise”). Fractions have no unit: 0.05 is 5 %.</p>'
+            + table(["figure", "value ± 1σ", "unit", "status", "method", "definition"], figure_rows(shape),
+                    cls="figures rows2") + "</section>")
+
+
+_ZONE_WORDS = {"hotspot": "hotspot (inside 50 %)", "corona": "corona (10-50 %)", "spill": "spill (to the edge)"}
+_COLOUR_KEYS = (("cct", "CCT", "K"), ("duv", "Duv", ""), ("u_prime", "u′", ""), ("v_prime", "v′", ""),
+                ("x", "x", ""), ("y", "y", ""))
+
+
+def _colour_cell(f: dict | None) -> str:
+    if not f:
+        return '<td class="num">—</td>'
+    attrs = (f'data-value="{number_attr(f.get("value"))}" data-uncertainty="{number_attr(f.get("uncertainty"))}" '
+             f'data-status="{esc(f.get("status", ""))}"')
+    title = f' title="{esc(f["reason"])}"' if f.get("reason") else ""
+    return f'<td class="num" {attrs}{title}>{esc(_value_text(f))}</td>'
+
+
+def _colour_section(d: dict, tint_png: bytes | None) -> str:
+    """Colour across the beam (report.json ``colour``; docs/colour.md), when it was asked for."""
+    c = d.get("colour")
+    if not c:
+        return ""
+    parts = ['<section id="colour"><h2>Colour across the beam</h2>']
+    if not c.get("measured"):
+        parts.append(f'<p class="note">Colour not measured: {esc(c.get("reason") or "")}</p>')
+    else:
+        rows = []
+        for zone, z in (c.get("zones") or {}).items():
+            cells = "".join(_colour_cell(z.get(k)) for k, _, _ in _COLOUR_KEYS)
+            rows.append(f'<tr data-zone="{esc(zone)}"><td>{esc(_ZONE_WORDS.get(zone, zone))}</td>{cells}</tr>')
+        parts.append(table(["zone"] + [f"{lab} ({u})" if u else lab for _, lab, u in _COLOUR_KEYS], rows,
+                           cls="colour"))
+        tint = c.get("tint") or {}
+        facts = []
+        for key, words in (("zones_max_delta_uv", "largest Δu′v′ between zones"),
+                           ("map_max_delta_uv", "largest Δu′v′ across the map")):
+            f = tint.get(key)
+            if isinstance(f, dict):
+                facts.append(f'<li data-key="{esc(key)}" data-value="{number_attr(f.get("value"))}">{esc(words)}: '
+                             f'{esc(_value_text(f))}' + (f' ({esc(f["reason"])})' if f.get("reason") else "") + "</li>")
+        transform = c.get("transform") or {}
+        if transform.get("source"):
+            facts.append(f"<li>colour transform: {esc(transform['source'])}; {esc(transform.get('white_balance', ''))}</li>")
+        parts.append("<ul>" + "".join(facts) + "</ul>")
+        if tint_png:
+            parts.append(f'<figure><img src="{png_data_uri(tint_png)}" alt="tint map and u′v′ against angle">'
+                         "<figcaption>Intensity, tint (Δu′v′ from the hotspot's colour) and the colour of each "
+                         "ring on the CIE 1976 diagram with the Planckian locus.</figcaption></figure>")
+    notes = list(c.get("notes") or []) + list(c.get("limits") or [])
+    if notes:
+        parts.append('<ul class="note">' + "".join(f"<li>{esc(n)}</li>" for n in notes) + "</ul>")
+    parts.append("</section>")
+    return "".join(parts)
+
+
 def _budget_details(figures: dict) -> str:
     parts = []
     for key, f in figures.items():
@@ -294,7 +360,7 @@ def cautions_section(cautions) -> str:
 
 # ------------------------------------------------------------------------------- the page
 
-def report_html(report, *, picture: bool = True, map_png: bytes | None = None) -> str:
+def report_html(report, *, picture: bool = True, map_png: bytes | None = None, tint_png: bytes | None = None) -> str:
     """The whole report page as text.  With ``picture=False`` no map or profile is drawn (says so);
     ``map_png``, the map panel already drawn for beam.png (:func:`beamshot.report.plots.beam_pictures`),
     saves drawing it again."""
@@ -309,7 +375,8 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None) -
            if beams and name else "",
            f"wall at {s['distance_m']:g} m" if s.get("distance_m") else "",
            "absolute scale (cd)" if report.beam.unit == "cd" else "relative scale (no cd)"]
-    sections = [_figures_section(d), _pictures_section(report, d, picture, map_png), warnings_section(d.get("warnings", [])),
+    sections = [_figures_section(d), _pictures_section(report, d, picture, map_png), _shape_section(d),
+                _colour_section(d, tint_png if picture else None), warnings_section(d.get("warnings", [])),
                 _inputs_section(d), cautions_section(CAUTIONS)]
     tool = d.get("tool", {})
     footer = (f"beamshot {tool.get('version', '')} · report schema {d.get('schema_version', '')} · "
@@ -317,6 +384,7 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None) -
     return page(f"{title}: beam report", " · ".join(x for x in sub if x), sections, footer)
 
 
-def write_report_html(report, path, *, picture: bool = True, map_png: bytes | None = None) -> None:
+def write_report_html(report, path, *, picture: bool = True, map_png: bytes | None = None,
+                      tint_png: bytes | None = None) -> None:
     """Write :func:`report_html` to ``path`` (UTF-8)."""
-    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png))
+    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png, tint_png=tint_png))

@@ -316,12 +316,15 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
             png, map_png = plots.beam_pictures(report)
             with open(os.path.join(tmp, "beam.png"), "wb") as fh:
                 fh.write(png)
+        tint_png = None
         if picture and getattr(report, "colour", None) is not None:  # only when colour was asked for
             from .colour_plots import tint_figure
 
             tint_figure(report, os.path.join(tmp, "tint.png"))
+            with open(os.path.join(tmp, "tint.png"), "rb") as fh:
+                tint_png = fh.read()
         # the page is always written (without pictures it holds the tables and says so)
-        write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png)
+        write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png, tint_png=tint_png)
 
     return write_set(out_dir, fill, is_ours=_is_our_set, writer="beamshot", doing="write the report files there")
 
