@@ -31,7 +31,7 @@ import numpy as np
 
 from .beammap import BeamMap, directions
 from .errors import BeamshotError
-from .vocabulary import FIGURES, label as figure_label
+from .vocabulary import COLOUR_FIGURE_SOURCES, COLOUR_FIGURES, FIGURES, label as figure_label, term
 
 __all__ = ["MIN_LIGHTS", "MAX_LIGHTS", "WALL_DISTANCE_M", "MAP_DECADES", "COVERAGE_K", "RATIO_FLOOR", "TILE_PX",
            "COMPARISON_SCHEMA", "COMPARISON_VERSION", "Light", "Comparison", "srgb_tone", "load_light",
@@ -97,8 +97,19 @@ class Light:
 
     @property
     def figures(self) -> dict:
+        """The report's figures, and its colour figures (:data:`beamshot.vocabulary.COLOUR_FIGURES`) when
+        colour was measured."""
         f = self.report.get("figures")
-        return f if isinstance(f, dict) else {}
+        out = dict(f) if isinstance(f, dict) else {}
+        colour = self.report.get("colour")
+        if isinstance(colour, dict) and colour.get("measured"):
+            for key, path in COLOUR_FIGURE_SOURCES.items():
+                node = colour
+                for part in path:
+                    node = node.get(part) if isinstance(node, dict) else None
+                if isinstance(node, dict) and "value" in node:
+                    out[key] = node
+        return out
 
     @property
     def clipped(self) -> bool:
@@ -227,7 +238,7 @@ def compare_figures(lights: list[Light], *, same_meter: bool = False, k: float =
     """For every pair (a before b) and figure: difference, combined 1-sigma uncertainty and verdict."""
     from .farfield import SHARED_SCALE_TERMS, _same_instrument, combined_sigma
 
-    keys = [key for key in FIGURES if any(key in x.figures for x in lights)]
+    keys = [key for key in (*FIGURES, *COLOUR_FIGURES) if any(key in x.figures for x in lights)]
     out = []
     for i in range(len(lights)):
         for j in range(i + 1, len(lights)):
@@ -235,7 +246,7 @@ def compare_figures(lights: list[Light], *, same_meter: bool = False, k: float =
             shared = tuple(t for t in SHARED_SCALE_TERMS if same_meter and _same_instrument(a.report, b.report, t))
             for key in keys:
                 fa, fb = a.figures.get(key) or {}, b.figures.get(key) or {}
-                entry = {"figure": key, "label": _full_label(key), "unit": FIGURES[key].unit, "a": a.label,
+                entry = {"figure": key, "label": _full_label(key), "unit": term(key).unit, "a": a.label,
                          "b": b.label, "difference": None, "combined_uncertainty": None, "k": k,
                          "verdict": "not compared", "reason": None}
                 reason = _not_comparable(fa, fb, a.label, b.label)
@@ -255,7 +266,7 @@ def compare_figures(lights: list[Light], *, same_meter: bool = False, k: float =
 
 def _full_label(key: str) -> str:
     """The vocabulary's label, with the parent figure's for the horizontal / vertical parts."""
-    t = FIGURES[key]
+    t = term(key)
     return f"{figure_label(t.part_of)}, {t.label}" if t.part_of else t.label
 
 

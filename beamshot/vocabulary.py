@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "SHAPE_FIGURES", "term", "label", "unit_text", "STATUS_WORDS",
+__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "COLOUR_FIGURES", "SHAPE_FIGURES", "term", "label", "unit_text", "STATUS_WORDS",
            "STATUS_MARKS"]
 
 
@@ -70,6 +70,22 @@ COLOUR_TERMS: dict[str, Term] = {t.key: t for t in (
     Term("map_max_delta_uv", "largest tint difference across the map (Δu'v')", "",
          "largest distance in CIE 1976 (u', v') between two cells of the colour map"),
 )}
+
+#: Colour figures as one-number figures, for comparisons of lights (beamshot.compare): read from a
+#: report's ``colour`` section, ``(zone or "tint", key)``.
+COLOUR_FIGURES: dict[str, Term] = {t.key: t for t in (
+    Term("hotspot_cct", "hotspot CCT", "K", "correlated colour temperature of the hotspot's light (Ohno 2013)"),
+    Term("corona_cct", "corona CCT", "K", "correlated colour temperature of the light between the 50 % and 10 % contours"),
+    Term("spill_cct", "spill CCT", "K", "correlated colour temperature of the spill's light"),
+    Term("hotspot_duv", "hotspot Duv", "", "the hotspot's distance from the Planckian locus (ANSI C78.377)"),
+    Term("spill_duv", "spill Duv", "", "the spill's distance from the Planckian locus (ANSI C78.377)"),
+    Term("zones_max_delta_uv", "largest tint difference between zones (Δu'v')", "",
+         "largest distance in CIE 1976 (u', v') between hotspot, corona and spill"),
+)}
+#: Where each :data:`COLOUR_FIGURES` key sits in report.json's ``colour`` section.
+COLOUR_FIGURE_SOURCES = {"hotspot_cct": ("zones", "hotspot", "cct"), "corona_cct": ("zones", "corona", "cct"),
+                         "spill_cct": ("zones", "spill", "cct"), "hotspot_duv": ("zones", "hotspot", "duv"),
+                         "spill_duv": ("zones", "spill", "duv"), "zones_max_delta_uv": ("tint", "zones_max_delta_uv")}
 
 #: Beam shape and artefact figures (report.json ``shape``; beamshot.artefacts; docs/artefacts.md).
 #: Fractions have no unit ("" ): 0.05 is 5 %.
@@ -134,8 +150,8 @@ STATUS_MARKS = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "
 
 
 def term(key: str) -> Term:
-    """The :class:`Term` of a figure key (a main or a shape figure); unknown keys get their key as label."""
-    return FIGURES.get(key) or SHAPE_FIGURES.get(key) or Term(key, key.replace("_", " "), "", "")
+    """The :class:`Term` of a figure key (a main, shape or colour figure); unknown keys get their key as label."""
+    return FIGURES.get(key) or SHAPE_FIGURES.get(key) or COLOUR_FIGURES.get(key) or Term(key, key.replace("_", " "), "", "")
 
 
 def label(key: str, *, indent: bool = False) -> str:

@@ -4,6 +4,7 @@ truth come from beamshot.synth (inverse-square and cosine laws, Lambertian wall,
 exposure, sRGB, JPEG)."""
 
 import json
+import os
 import shutil
 from dataclasses import replace
 
@@ -297,3 +298,22 @@ def test_wall_view_follows_the_cosine_cubed_law_and_keeps_up_at_the_top():
     upward = analytic_map(lambda t, p: 1000.0 * (1 + 0.5 * np.sin(p) + 0.2 * np.cos(p)), theta_max_deg=60.0)
     for tile in (wall_illuminance(upward, 2.0, 5.0, n=101), angular_intensity(upward, 20.0, n=101)):
         assert tile[2, 50] > tile[-3, 50] and tile[50, -3] > tile[50, 2]
+
+
+def test_colour_figures_are_compared_when_both_lights_have_colour(tmp_path):
+    # the same colour photo analysed twice: its colour figures are compared, and not distinguishable
+    from beamshot import analyze
+    from beamshot.compare import compare
+    from beamshot.report.output import write_report
+    from beamshot.vocabulary import COLOUR_FIGURES
+
+    images = os.path.join(os.path.dirname(__file__), "..", "sample_images")
+    rep = analyze(os.path.join(images, "proto-4-warm-spill-ring.jpg"), distance_m=4.0, lux_at_peak=437.0, colour=True)
+    write_report(rep, tmp_path / "a", picture=False)
+    write_report(rep, tmp_path / "b", picture=False)
+    comp = compare([tmp_path / "a", tmp_path / "b"], out_dir=tmp_path / "cmp")
+    colour_rows = [d for d in comp.differences if d["figure"] in COLOUR_FIGURES]
+    assert {d["figure"] for d in colour_rows} >= {"hotspot_cct", "spill_cct", "zones_max_delta_uv"}
+    assert all(d["verdict"] == "not distinguishable" and d["difference"] == 0 for d in colour_rows)
+    data = json.loads((tmp_path / "cmp" / "comparison.json").read_text(encoding="utf-8"))
+    assert data["lights"][0]["figures"]["hotspot_cct"]["unit"] == "K"
