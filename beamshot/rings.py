@@ -268,15 +268,16 @@ def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: flo
         if fit is None:
             continue
         ring, params = fit
-        # robustness: a richer smooth profile (two more polynomial terms) must leave the ring as it is;
-        # the knee of a flat top's edge, taken for a ring by the quintic, is followed by the richer one
-        check = _fit_ring(tm[sel], work[sel], sm[sel], t[i], smooth[sel], step, POLY_DEGREE + 2)
-        if check is None or abs(check[0].amplitude - ring.amplitude) > max(3.0 * ring.amplitude_sigma,
-                                                                          ROBUST_FRACTION * abs(ring.amplitude)):
-            continue
         if ring.significance < RING_SIGNIFICANCE or ring.angle_deg < max(inner, ring.width_deg):
             continue
         if ring.angle_deg > t[-1]:
+            continue
+        # robustness: a richer smooth profile (two more polynomial terms) must leave the ring as it is;
+        # the knee of a flat top's edge, taken for a ring by the quintic, is followed by the richer one
+        # (checked last: the second fit costs as much as the first, and a weak candidate needs neither)
+        check = _fit_ring(tm[sel], work[sel], sm[sel], t[i], smooth[sel], step, POLY_DEGREE + 2)
+        if check is None or abs(check[0].amplitude - ring.amplitude) > max(3.0 * ring.amplitude_sigma,
+                                                                          ROBUST_FRACTION * abs(ring.amplitude)):
             continue
         rings.append(ring)
         amp, mu, w = params[-3], ring.angle_deg, params[-1]
