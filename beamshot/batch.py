@@ -569,9 +569,18 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _worker_init(parent_pid: int) -> None:
+def _worker_init(parent_pid: int, threads: int = 0) -> None:
     """A local worker dies with the batch (Linux PR_SET_PDEATHSIG), so a killed batch leaves no worker
-    finishing an item behind the next run's back."""
+    finishing an item behind the next run's back.  With ``threads`` >= 1 its analyses keep to that
+    many threads (beamshot.threads; OpenCV's own pool too): one worker per core needs no more."""
+    if threads >= 1:
+        from .threads import THREADS_ENV
+
+        os.environ[THREADS_ENV] = str(threads)
+        with contextlib.suppress(Exception):
+            import cv2
+
+            cv2.setNumThreads(threads)
     if sys.platform.startswith("linux"):
         with contextlib.suppress(Exception):
             import ctypes
@@ -636,8 +645,10 @@ def _run_local(tasks: list[Task], workers: int, report) -> None:
     pending = list(tasks)
     for attempt in range(2):  # a worker that dies (out of memory...) breaks the pool: one more round
         broken: list[Task] = []
-        ex = ProcessPoolExecutor(max_workers=min(workers, len(pending)), mp_context=multiprocessing.get_context("spawn"),
-                                 initializer=_worker_init, initargs=(os.getpid(),))
+        n = min(workers, len(pending))
+        # the cores shared out: one worker per core analyses on one thread
+        ex = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
+                                 initializer=_worker_init, initargs=(os.getpid(), max(1, default_workers() // n)))
         try:
             futures = {ex.submit(run_item, t): t for t in pending}
             for fut in as_completed(futures):

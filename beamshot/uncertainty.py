@@ -44,7 +44,6 @@ How the sources act (the budget table in docs/figures.md lists their sizes):
 
 from __future__ import annotations
 
-import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 from functools import partial
@@ -97,7 +96,6 @@ WALL_POINT_DRAWS = 8
 #: A figure is an estimate when assumptions make up more than this share of its variance.
 ASSUMPTION_SHARE_FOR_ESTIMATE = 0.5
 
-_WORKERS = max(1, min(2, os.cpu_count() or 1))
 _ABSOLUTE_KEYS = ("peak_intensity", "beam_distance", "hotspot_flux", "spill_flux", "beam_flux")
 
 
@@ -318,7 +316,9 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
     # every re-measurement is submitted first, the dearest first, and runs on both cores (the map,
     # contour and edge work is numpy/OpenCV that releases the GIL for much of its time); the terms are
     # read in budget order whatever the order the jobs finish in
-    pool = ThreadPoolExecutor(max_workers=_WORKERS)
+    from .threads import pool_size
+
+    pool = ThreadPoolExecutor(max_workers=pool_size(2))
     again = partial(pool.submit, again_now)
     jobs: dict = {}
     d2 = distance_m + distance_u_m

@@ -1,4 +1,4 @@
-"""Freed buffers kept for the next photo in a batch worker (beamshot.memory_reuse)."""
+"""Batch workers: freed buffers kept for the next photo (beamshot.memory_reuse) and thread pools capped (beamshot.threads)."""
 
 from __future__ import annotations
 
@@ -38,3 +38,19 @@ def test_a_freed_photo_buffer_is_reused_without_page_faults():
     plain, kept = faults("plain"), faults("keep")
     assert plain > 8000
     assert kept < 0.05 * plain
+
+
+def test_thread_pools_follow_the_cores_and_the_environment_cap(monkeypatch):
+    # a pool never exceeds its cap or the cores; BEAMSHOT_THREADS caps it further (batch workers set 1)
+    import os
+
+    from beamshot.threads import THREADS_ENV, pool_size
+
+    monkeypatch.delenv(THREADS_ENV, raising=False)
+    cores = os.cpu_count() or 1
+    assert pool_size(4) == min(4, cores) and pool_size(1) == 1
+    monkeypatch.setenv(THREADS_ENV, "1")
+    assert pool_size(4) == 1
+    for bad in ("0", "-3", "many", ""):
+        monkeypatch.setenv(THREADS_ENV, bad)
+        assert pool_size(4) == min(4, cores)

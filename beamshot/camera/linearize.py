@@ -7,7 +7,6 @@ Binning averages linear values (never encoded ones), so it is photometrically ex
 
 from __future__ import annotations
 
-import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -33,7 +32,6 @@ WORKING_MAX_SIDE = 2000
 SATURATION_CODE_FRACTION = 250.0 / 255.0
 #: Rows decoded to linear per step, to bound memory on large photos.
 _STRIP_ROWS = 128
-_WORKERS = max(1, min(4, os.cpu_count() or 1))
 
 
 @dataclass(frozen=True)
@@ -168,7 +166,9 @@ def linearize(photo: Photo, response: Response, *, max_side: int | None = None) 
         # BT.709 weighted channel sum (cv2.transform keeps the input depth, so go through float)
         luminance[out_rows] = cv2.transform(out.astype(np.float32, copy=False), weights)
 
-    with ThreadPoolExecutor(max_workers=_WORKERS) as pool:
+    from ..threads import pool_size
+
+    with ThreadPoolExecutor(max_workers=pool_size(4)) as pool:
         list(pool.map(work, range(0, h * b, step)))
     return LinearImage(luminance=luminance, saturated=saturated, bin_factor=b, full_shape=(height, width),
                        rgb_values=values, rgb_counts=counts)
