@@ -13,7 +13,7 @@
 Layout of the output folder ``DIR``::
 
     DIR/summary.csv, DIR/summary.json      every item: status, reason, each figure
-    DIR/items/<name-or-row>-<key12>/       report.json, profile.csv, intensity-map.npz, beam.png (one set)
+    DIR/items/<name-or-row>-<key12>/       report.json, report.html, beam.png, profile.csv, intensity-map.npz (one set)
     DIR/items/<name-or-row>-<key12>.done.json   the done-marker, holding the item's full key
 
 Exactly once: an item counts as done when its marker exists and holds its key.  The marker is made

@@ -74,7 +74,7 @@ class _Progress:
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Run on an existing Dask cluster at ADDRESS (e.g. tcp://host:8786); needs beamshot[cluster].")
 @click.option("--pictures", type=click.Choice(["all", "none"]), default="all", show_default=True,
-              help="none: do not draw beam.png (faster on slow machines).")
+              help="none: draw no pictures (beam.png; report.html without them), faster on slow machines.")
 @click.option("--compare", "with_compare", is_flag=True,
               help="Also compare the items (2 to 12) at one exposure into DIR/comparison (see 'beamshot compare').")
 @click.pass_context

@@ -316,7 +316,8 @@ def cli():
 @option("--name", "light_name", default=None, show_default="the photo's file name",
         help="Name of the light, used in titles and reports.")
 @option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
-        help="Folder for report.json, profile.csv and beam.png (an older set there is replaced whole).")
+        help="Folder for the report files: report.json, report.html, beam.png, profile.csv, intensity-map.npz "
+             "(an older set there is replaced whole).")
 @option("--json", "as_json", is_flag=True,
         help="Print the report as JSON instead of a table, without the profile arrays.")
 @option("--json-full", "as_json_full", is_flag=True,
@@ -384,7 +385,7 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
                  **({"colour": True} if colour else {}), **kw)
     written = write_report(report, out_dir) if out_dir else []
     where = (f"wrote {', '.join(written)}" if written else
-             "no files written; give --out DIR for report.json, profile.csv and beam.png")
+             "no files written; give --out DIR for report.json, report.html, beam.png and the rest")
     if as_json or as_json_full:
         import json
 
@@ -490,7 +491,8 @@ def demo(out_dir):
     run_compare(folders, out_dir=os.path.join(out_dir, "comparison"))
     click.echo(f"compared at one exposure (beamshot compare {' '.join(folders)} --out "
                f"{os.path.join(out_dir, 'comparison')}): {os.path.join(out_dir, 'comparison', 'sheet.png')}")
-    click.echo(f"done in {time.perf_counter() - start:.1f} s; open {os.path.join(out_dir, '*', 'beam.png')}")
+    click.echo(f"done in {time.perf_counter() - start:.1f} s; open {os.path.join(out_dir, '*', 'report.html')} "
+               f"or {os.path.join(out_dir, 'comparison', 'comparison.html')}")
 
 
 @cli.command(short_help="Write the printable wall target (PDF and PNG).")
