@@ -31,7 +31,7 @@ import numpy as np
 
 from .beammap import BeamMap, directions
 from .errors import BeamshotError
-from .vocabulary import COLOUR_FIGURE_SOURCES, COLOUR_FIGURES, FIGURES, label as figure_label, term
+from .vocabulary import COLOUR_FIGURES, FIGURES, colour_figures_of, label as figure_label, term
 
 __all__ = ["MIN_LIGHTS", "MAX_LIGHTS", "WALL_DISTANCE_M", "MAP_DECADES", "COVERAGE_K", "RATIO_FLOOR", "TILE_PX",
            "COMPARISON_SCHEMA", "COMPARISON_VERSION", "Light", "Comparison", "srgb_tone", "load_light",
@@ -100,16 +100,7 @@ class Light:
         """The report's figures, and its colour figures (:data:`beamshot.vocabulary.COLOUR_FIGURES`) when
         colour was measured."""
         f = self.report.get("figures")
-        out = dict(f) if isinstance(f, dict) else {}
-        colour = self.report.get("colour")
-        if isinstance(colour, dict) and colour.get("measured"):
-            for key, path in COLOUR_FIGURE_SOURCES.items():
-                node = colour
-                for part in path:
-                    node = node.get(part) if isinstance(node, dict) else None
-                if isinstance(node, dict) and "value" in node:
-                    out[key] = node
-        return out
+        return {**(f if isinstance(f, dict) else {}), **colour_figures_of(self.report)}
 
     @property
     def clipped(self) -> bool:

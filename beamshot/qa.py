@@ -264,12 +264,14 @@ def _from_report(path: str, wanted=None) -> _Source:
 
 def _report_figures(data: dict, where: str) -> dict:
     """A report's figure records: ``figures`` and, when present, the shape and artefact figures
-    (``shape``), which have the same parts."""
+    (``shape``) and the colour figures (``colour``), which have the same parts."""
+    from .vocabulary import colour_figures_of
+
     figs = data.get("figures")
+    if not isinstance(figs, dict):
+        return figs
     shape = data.get("shape")
-    if isinstance(figs, dict) and isinstance(shape, dict):
-        return {**shape, **figs}
-    return figs
+    return {**colour_figures_of(data), **(shape if isinstance(shape, dict) else {}), **figs}
 
 
 def _add_from_item_report(source: "_Source", summary_path: str, folder, wanted) -> "_Source":

@@ -55,12 +55,12 @@ _UNIT_ALIASES = {"°": "deg", "degree": "deg", "degrees": "deg", "none": "", "1"
 
 
 def known_figures() -> dict:
-    """The figure vocabulary, key -> Term: the report's ``figures`` and, where the vocabulary has
-    them, its beam shape and artefact figures (report.json ``shape``); read when a spec is checked,
-    so figures added later are known."""
+    """The figure vocabulary, key -> Term: the report's ``figures``, its beam shape and artefact
+    figures (report.json ``shape``) and its colour figures (hotspot CCT... from ``colour``, when
+    the analysis measured colour); read when a spec is checked, so figures added later are known."""
     from . import vocabulary
 
-    return {**vocabulary.FIGURES, **getattr(vocabulary, "SHAPE_FIGURES", {})}
+    return {**vocabulary.FIGURES, **vocabulary.SHAPE_FIGURES, **vocabulary.COLOUR_FIGURES}
 
 
 @dataclass(frozen=True)

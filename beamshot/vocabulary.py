@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "COLOUR_FIGURES", "SHAPE_FIGURES", "term", "label", "unit_text", "STATUS_WORDS",
+__all__ = ["Term", "FIGURES", "COLOUR_TERMS", "COLOUR_FIGURES", "colour_figures_of", "SHAPE_FIGURES", "term", "label", "unit_text", "STATUS_WORDS",
            "STATUS_MARKS"]
 
 
@@ -86,6 +86,22 @@ COLOUR_FIGURES: dict[str, Term] = {t.key: t for t in (
 COLOUR_FIGURE_SOURCES = {"hotspot_cct": ("zones", "hotspot", "cct"), "corona_cct": ("zones", "corona", "cct"),
                          "spill_cct": ("zones", "spill", "cct"), "hotspot_duv": ("zones", "hotspot", "duv"),
                          "spill_duv": ("zones", "spill", "duv"), "zones_max_delta_uv": ("tint", "zones_max_delta_uv")}
+
+def colour_figures_of(report: dict) -> dict:
+    """The :data:`COLOUR_FIGURES` records (value, uncertainty, unit, status...) found in a report
+    dict's ``colour`` section; empty when colour was not measured."""
+    colour = report.get("colour") if isinstance(report, dict) else None
+    if not (isinstance(colour, dict) and colour.get("measured")):
+        return {}
+    out = {}
+    for key, path in COLOUR_FIGURE_SOURCES.items():
+        node = colour
+        for part in path:
+            node = node.get(part) if isinstance(node, dict) else None
+        if isinstance(node, dict) and "value" in node:
+            out[key] = node
+    return out
+
 
 #: Beam shape and artefact figures (report.json ``shape``; beamshot.artefacts; docs/artefacts.md).
 #: Fractions have no unit ("" ): 0.05 is 5 %.
