@@ -327,11 +327,14 @@ def cli():
 @option("--colour", "colour", is_flag=True,
         help="Also measure colour across the beam: chromaticity, CCT and Duv of hotspot, corona and spill, "
              "tint uniformity, and tint.png (see docs/colour.md).")
+@option("--spec", "spec_file", type=click.Path(dir_okay=False), default=None, metavar="FILE",
+        help="Also judge the figures against a beam specification (TOML, docs/spec.md): pass, fail or "
+             "undecided per figure, in the table, report.json and report.html ('beamshot qa' gives an exit code).")
 @click.pass_context
 def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux_at_peak, meter_accuracy, reflectance,
             no_exif_scale, focal_35mm, hfov, camera_distance, response, camera, dark, geometry, wall_points,
             scale_bar_mm, target_scale, assume_square, head_mm, light_name, out_dir, as_json, as_json_full, units,
-            colour):
+            colour, spec_file):
     """Analyze PHOTOS of a beam on a white wall: calibrated figures, report files.
 
     Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft.
@@ -363,6 +366,11 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
         _fail("give --json (compact) or --json-full (with the profile arrays), not both")
     if geometry is None and (target_scale != 1.0 or not _defaulted(ctx, "scale_bar_mm")):
         _note("the scale bar's length is used only with the printed target (--geometry); ignored here")
+    spec = None
+    if spec_file is not None:  # read first: a bad spec is refused before the analysis runs
+        from .spec import read_spec
+
+        spec = read_spec(spec_file)
     if units != "metric" and (as_json or as_json_full):
         _note("--units changes the printed table only; report.json keeps metres")
     kw = {}
@@ -383,6 +391,12 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
                  camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
                  target_scale=target_scale, assume_square=assume_square, light_name=light_name,
                  **({"colour": True} if colour else {}), **kw)
+    if spec is not None:
+        from dataclasses import replace
+
+        from .qa import judge_report
+
+        report = replace(report, qa=judge_report(spec, report, spec_file))
     written = write_report(report, out_dir) if out_dir else []
     where = (f"wrote {', '.join(written)}" if written else
              "no files written; give --out DIR for report.json, report.html, beam.png and the rest")
@@ -406,6 +420,15 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
 
         for line in colour_lines(report.colour):
             click.echo(line)
+    if report.qa is not None:
+        q = report.qa
+        counts = {v: sum(1 for c in q["checks"] if c["verdict"] == v) for v in ("pass", "fail", "undecided",
+                                                                                "not measured")}
+        click.echo(f"  specification {q['spec'] or spec_file}: {q['verdict'].upper()} (" +
+                   ", ".join(f"{n} {v}" for v, n in counts.items() if n) + f"; k = {q['coverage_factor']:g})")
+        for c in q["checks"]:
+            if c["verdict"] != "pass":
+                click.echo(f"    {c['verdict']:<12} {c['figure']}: {c['why']}")
     marks = {f.status for f in report.figures.values()}
     if "estimate" in marks:
         click.echo("  ≈ marks an estimate: most of its uncertainty comes from an assumption (see the warnings)")

@@ -38,7 +38,7 @@ from .errors import BeamshotError, read_user_file
 from .spec import Limit, Spec
 
 __all__ = ["PASS", "FAIL", "UNDECIDED", "NOT_MEASURED", "EXIT_CODES", "Check", "Unit", "QAResult", "judge",
-           "load_units", "check_sources", "QA_SCHEMA", "QA_SCHEMA_VERSION"]
+           "load_units", "check_sources", "judge_report", "QA_SCHEMA", "QA_SCHEMA_VERSION"]
 
 PASS, FAIL, UNDECIDED, NOT_MEASURED = "pass", "fail", "undecided", "not measured"
 #: Severity order of verdicts (a unit takes its worst figure's, a run its worst unit's).
@@ -210,6 +210,17 @@ def check_figures(spec: Spec, figures: dict, *, name: str, source: str, note: st
         else:
             checks.append(Check(lim, NOT_MEASURED, note or f"not in {missing}"))
     return Unit(name=name, source=source, checks=tuple(checks), note=note)
+
+
+def judge_report(spec: Spec, report, source: str | None = None) -> dict:
+    """A BeamReport's figures (and its shape and colour figures) judged against ``spec``, as the
+    report's ``qa`` section (docs/report-schema.md)."""
+    data = report.to_dict()
+    unit = check_figures(spec, _clean_figures(_report_figures(data, "this analysis"), "this analysis"),
+                         name="this analysis", source="this analysis")
+    return {"spec": spec.name, "source": None if source is None else str(source),
+            "coverage_factor": float(spec.coverage_factor), "verdict": unit.verdict,
+            "checks": [c.to_dict() for c in unit.checks]}
 
 
 # ---------------------------------------------------------------- reading the sources

@@ -6,6 +6,7 @@ pass only when the whole interval is inside the tolerance, fail only when it is 
 """
 
 import json
+from pathlib import Path
 import math
 import os
 
@@ -372,3 +373,35 @@ def test_damaged_reports_give_a_verdict_or_one_line(tmp_path):
         json.dumps(result.to_dict(), allow_nan=False)
 
     run()
+
+
+def test_analyze_with_a_spec_puts_the_verdict_in_every_output(analysed, tmp_path):
+    # the same judgement as 'beamshot qa' on the same figures, in the table, report.json and report.html
+    import jsonschema
+
+    from beamshot.report.output import read_report_json
+
+    out, truth = analysed
+    spec = tmp_path / "spec.toml"
+    spec.write_text(f'[spec]\nname = "unit check"\n[figures.hotspot_angle]\ntarget = {truth["hotspot_angle_deg"]:.3f}\n'
+                    'tolerance = 1.5\nunit = "deg"\n[figures.peak_intensity]\n'
+                    f'min = {2 * truth["peak_cd"]:.0f}\nunit = "cd"\n')
+    photo = out.parent / "beam.jpg"
+    rep = tmp_path / "rep"
+    res = CliRunner().invoke(cli, ["analyze", str(photo), "--distance", "5", "--lux", f"{truth['peak_lux_on_wall']:.0f}",
+                                   "--spec", str(spec), "--out", str(rep)])
+    assert res.exit_code == 0, res.output
+    assert "specification unit check: FAIL" in res.output
+    data = read_report_json(rep / "report.json")
+    jsonschema.validate(data, json.loads((Path(__file__).parent.parent / "beamshot/report/schema.json").read_text()))
+    assert [c["verdict"] for c in data["qa"]["checks"]] == ["pass", "fail"] and data["qa"]["verdict"] == "fail"
+    qa_run = CliRunner().invoke(cli, ["qa", str(spec), str(rep / "report.json"), "--result", str(tmp_path / "q.json")])
+    unit = json.loads((tmp_path / "q.json").read_text())["units"][0]
+    assert [c["verdict"] for c in unit["checks"]] == [c["verdict"] for c in data["qa"]["checks"]]
+    assert qa_run.exit_code == 1
+    page = (rep / "report.html").read_text(encoding="utf-8")
+    assert 'data-verdict="fail"' in page and 'data-qa="peak_intensity"' in page
+    # a spec with a mistake is refused before anything is analysed
+    spec.write_text('[figures.hotspot_angel]\nmax = 9\nunit = "deg"\n')
+    bad = CliRunner().invoke(cli, ["analyze", str(photo), "--distance", "5", "--spec", str(spec)])
+    assert bad.exit_code == 2 and "hotspot_angel" in bad.output and "figure" not in bad.output.split("\n", 1)[1]

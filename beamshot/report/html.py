@@ -148,6 +148,28 @@ def _colour_section(d: dict, tint_png: bytes | None) -> str:
     return "".join(parts)
 
 
+def _qa_section(d: dict) -> str:
+    """The figures judged against a beam specification (``analyze --spec``), when there is one."""
+    q = d.get("qa")
+    if not q:
+        return ""
+    rows = []
+    for c in q.get("checks") or []:
+        v = str(c.get("verdict", ""))
+        rows.append(f'<tr data-qa="{esc(c.get("figure", ""))}" data-verdict="{esc(v)}">'
+                    f'<td>{esc(vocabulary.label(str(c.get("figure", ""))))}</td>'
+                    f'<td>{esc((c.get("limit") or {}).get("text", ""))}</td>'
+                    f'<td><span class="status s-{esc(v.replace(" ", "_"))}">{esc(v)}</span></td>'
+                    f'<td class="wide">{esc(c.get("why", ""))}</td></tr>')
+    name = q.get("spec") or q.get("source") or "the specification"
+    k = f'{q.get("coverage_factor", 2.0):g}'
+    return (f'<section id="qa"><h2>Against the specification</h2><p class="verdict" data-verdict="{esc(q["verdict"])}">'
+            f'{esc(name)}: <strong>{esc(str(q["verdict"]).upper())}</strong> — a figure passes only if its whole '
+            f'interval value ± {esc(k)}·u lies inside its limit, fails only if it lies wholly outside, and is '
+            'otherwise undecided (docs/spec.md).</p>' + table(["figure", "limit", "verdict", "why"], rows, cls="qa")
+            + "</section>")
+
+
 def _budget_details(figures: dict) -> str:
     parts = []
     for key, f in figures.items():
@@ -375,7 +397,7 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None, t
            if beams and name else "",
            f"wall at {s['distance_m']:g} m" if s.get("distance_m") else "",
            "absolute scale (cd)" if report.beam.unit == "cd" else "relative scale (no cd)"]
-    sections = [_figures_section(d), _pictures_section(report, d, picture, map_png), _shape_section(d),
+    sections = [_figures_section(d), _qa_section(d), _pictures_section(report, d, picture, map_png), _shape_section(d),
                 _colour_section(d, tint_png if picture else None), warnings_section(d.get("warnings", [])),
                 _inputs_section(d), cautions_section(CAUTIONS)]
     tool = d.get("tool", {})

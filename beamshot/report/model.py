@@ -55,6 +55,8 @@ class BeamReport:
     colour: dict | None = field(repr=False, default=None)
     #: The BeamColour itself (with its map cells), for pictures; not written.
     colour_result: object = field(repr=False, default=None, compare=False)
+    #: The figures judged against a beam specification (``analyze --spec``; beamshot.qa), or None.
+    qa: dict | None = field(repr=False, default=None)
     #: Beam shape and artefact figures (``beamshot.artefacts.SHAPE_ORDER``), written as ``shape``.
     shape_figures: dict = field(repr=False, default_factory=dict)
 
@@ -82,6 +84,7 @@ class BeamReport:
             "warnings": list(self.warnings),
             "cautions": list(CAUTIONS),
             **({} if self.colour is None else {"colour": self.colour}),
+            **({} if self.qa is None else {"qa": self.qa}),
             "profile": {
                 "unit": self.beam.unit,
                 "theta_deg": arr(p.theta_deg),
