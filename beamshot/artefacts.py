@@ -24,7 +24,7 @@ from .frames import local_basis
 from .hotspot import _rays
 from .map_noise import noise_model
 from .measure import _clipped_edge_reason
-from .rings import RING_SIGNIFICANCE, find_rings
+from .rings import MAX_FWHM_DEG, RING_SIGNIFICANCE, find_rings
 from .savgol import savgol
 from .shape_iso import N_T, hotspot_moments, iso13694
 
@@ -332,11 +332,13 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
             figs[key] = not_measured(unit, method, why)
         return
     best = search.strongest
-    searched = f"searched from {search.searched_deg[0]:.1f} to {search.searched_deg[1]:.1f} deg from the axis"
+    searched = (f"searched from {search.searched_deg[0]:.1f} to {search.searched_deg[1]:.1f} deg from the axis, "
+                f"rings up to {MAX_FWHM_DEG:g} deg wide (wider ones are part of the smooth profile, not seen)")
     if best is None:
         why = f"no ring distinguishable from noise ({searched})"
         figs["ring_score"] = Figure(search.limit, None, "", method + "; ring score: the largest |amplitude| of a ring; "
-                                    "with none found, the amplitude a 1 deg wide ring would need to be found",
+                                    "with none found, the amplitude a 1 deg wide ring would need to be found (a ring "
+                                    f"wider than {MAX_FWHM_DEG:g} deg is not searched for)",
                                     "upper_bound", why)
         figs["ring_count"] = Figure(0.0, 0.0, "", method + f"; {searched}")
         for key, unit in (("ring_angle", "deg"), ("ring_amplitude", ""), ("ring_width", "deg")):

@@ -82,18 +82,28 @@ def reach(report, height_m, tilt_deg, out_png, label):
     if out_png is not None and not out_png.lower().endswith(".png"):
         raise BeamshotError(f"--out {out_png}: give a file name ending in .png")
     light = load_light(report, label)
+    if out_png is not None:  # a place that cannot be written is refused before anything is printed
+        folder = os.path.dirname(os.path.abspath(out_png))
+        try:
+            os.makedirs(folder, exist_ok=True)
+        except OSError as exc:
+            raise BeamshotError(f"--out {out_png}: its folder cannot be made ({exc.strerror or exc}); "
+                                "choose another place") from None
+        if not os.access(folder, os.W_OK):
+            raise BeamshotError(f"--out {out_png}: cannot be written there; choose a folder you can write to")
     peak = _peak_figure(light.figures.get("peak_intensity"))
     r = reach_of(light.beam, peak, height_m=height_m, tilt_deg=tilt_deg)
     click.echo(f"{light.label}: peak intensity {peak.text()}")
     click.echo(f"  beam distance (0.25 lx, ANSI/PLATO FL 1): {r.beam_distance.text()}")
     click.echo(f"  1 lx on the axis: {r.bright_distance.text()}")
     if out_png is not None:
-        folder = os.path.dirname(os.path.abspath(out_png))
-        os.makedirs(folder, exist_ok=True)
         tmp = os.path.join(folder, f".beamshot-tmp-{os.getpid()}-{os.path.basename(out_png)}")
         try:
             reach_figure(r, light.label, tmp)
             os.replace(tmp, out_png)
+        except OSError as exc:
+            raise BeamshotError(f"--out {out_png}: cannot be written ({exc.strerror or exc}); choose another place") \
+                from None
         finally:
             if os.path.exists(tmp):
                 os.remove(tmp)

@@ -86,6 +86,16 @@ def print_result(result, *, detail: bool) -> None:
                f"(exit {result.exit_code})")
 
 
+def _check_writable(path: str) -> None:
+    from .errors import BeamshotError
+
+    if os.path.isdir(path):
+        raise BeamshotError(f"--result {path}: is a folder; give a file name such as {os.path.join(path, 'qa.json')}")
+    folder = os.path.dirname(os.path.abspath(path))
+    if not (os.path.isdir(folder) and os.access(folder, os.W_OK)) or folder.startswith(("/proc", "/sys")):
+        raise BeamshotError(f"--result {path}: cannot be written there; choose a folder you can write to")
+
+
 def _write_json(path: str, doc: dict) -> None:
     import json
 
@@ -139,6 +149,8 @@ def qa(ctx, spec_file, sources, result_path, coverage, detail):
         for lim in spec.limits:
             click.echo(f"  {terms[lim.figure].label:26s} {lim.text}")
         return
+    if result_path:  # a result file that cannot be written is refused before any verdict is printed
+        _check_writable(result_path)
     result = check_sources(spec, sources, k=coverage)
     print_result(result, detail=len(result.units) <= _DETAIL_UP_TO if detail is None else detail)
     if result_path:

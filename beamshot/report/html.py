@@ -314,6 +314,18 @@ def _plain(v) -> str:
     return esc(v)
 
 
+def _ambient_text(amb) -> str:
+    """The light-off photo as words: its file and, when its exposure differs, the ratio applied."""
+    if not amb:
+        return "—"
+    if not isinstance(amb, dict):
+        return esc(amb)
+    ratio = amb.get("exposure_ratio")
+    extra = f" (exposure ratio {ratio:g}, scaled to the beam photo)" if isinstance(ratio, (int, float)) and ratio != 1 \
+        else " (same exposure as the beam photo)" if ratio == 1 else ""
+    return esc(str(amb.get("file", "")) + extra)
+
+
 def _inputs_section(d: dict) -> str:
     rows = []
     for i in d.get("inputs", []):
@@ -347,7 +359,7 @@ def _inputs_section(d: dict) -> str:
         ("tone curve", esc(f"{cal.get('response', s.get('response', ''))}"
                            + (f" ({cal['response_source']})" if cal.get("response_source") else ""))),
         ("flat field", esc(cal.get("flat_field", ""))),
-        ("light-off photo", esc(cal.get("ambient", ""))),
+        ("light-off photo", _ambient_text(cal.get("ambient"))),
         ("dark frame", esc(cal.get("dark_frame", ""))),
         ("photos merged", esc(cal["hdr_merge"]) if isinstance(cal.get("hdr_merge"), str)
          else _plain(cal.get("hdr_merge"))),
