@@ -341,7 +341,11 @@ def _keyword_lines(name: str, text: str, limit: int = LINE_LIMIT) -> list[str]:
     lines, head = [], f"[{name}] "
     words = text.split(" ") if text else [""]
     line = head
-    for w in words:
+    room = limit - len("[MORE] ") - 1
+    pieces = []
+    for w in words:  # a word longer than a line (a long name without spaces) is cut into line-sized pieces
+        pieces.extend([w[i:i + room] for i in range(0, len(w), room)] if len(w) > room else [w])
+    for w in pieces:
         if len(line) + len(w) > limit and line not in (head, "[MORE] "):
             lines.append(line.rstrip())
             line = "[MORE] "
@@ -478,6 +482,10 @@ def photometry_from_map(beam, report: dict | None = None, *, vertical_step_deg: 
             raise BeamshotError(f"--vertical-step {vertical_step_deg:g}: finer than the map's {map_step:g} deg would only "
                                 f"interpolate it; give {map_step:g} or more")
         step, why = float(vertical_step_deg), f"{vertical_step_deg:g} deg as asked"
+        hot = ((rep.get("figures") or {}).get("hotspot_angle") or {}).get("value")
+        if isinstance(hot, (int, float)) and hot > 0 and step > hot / 5.0:
+            notes.append(f"a {step:g} deg vertical step is coarse for a {hot:.3g} deg hotspot: the file's cone angles "
+                         f"and flux will differ from the report's; keep the step at or below {hot / 5.0:.2g} deg")
     inten = np.asarray(beam.intensity, float)
     any_row = np.isfinite(inten).any(axis=1)
     if not any_row.any():

@@ -80,6 +80,7 @@ def lm63_read(file, as_json, report_path):
            "not_integrated": why_not}
     if report_path:
         doc["against_report"] = _against_report(p, report_path, a50, a10) if flux is not None else None
+        doc["against_report_note"] = _other_photo_note(p, report_path)
     if as_json:
         import json
 
@@ -110,12 +111,32 @@ def lm63_read(file, as_json, report_path):
         from .figure import value_with_uncertainty
 
         click.echo(f"  beside {report_path}:")
+        if doc.get("against_report_note"):
+            click.echo(f"  note: {doc['against_report_note']}")
         click.echo(f"    {'figure':26s} {'report':>22s} {'file':>10s}  difference / u")
         for r in rows:
             rep = " ± ".join(value_with_uncertainty(r["report"], r["uncertainty"])) if r["uncertainty"] else \
                 f"{r['report']:.5g}"
             z = "" if r["z"] is None else f"{r['z']:+.2f}"
             click.echo(f"    {r['label']:26s} {rep:>22s} {r['file']:>10.5g}  {z}")
+
+
+def _other_photo_note(p, report_path) -> str | None:
+    """A note when the file's [TEST] names another photo (by its sha256) than the report's first input."""
+    import os
+    import re
+
+    from .report.output import read_report_json
+
+    path = os.path.join(report_path, "report.json") if os.path.isdir(report_path) else report_path
+    inputs = read_report_json(path).get("inputs") or []
+    theirs = str((inputs[0] if inputs and isinstance(inputs[0], dict) else {}).get("sha256", ""))
+    test = " ".join(t for k, t in p.keywords if k == "TEST")
+    m = re.search(r"sha256 ([0-9a-f]{12})", test)
+    if m and theirs and not theirs.startswith(m.group(1)):
+        return (f"the file was written from another photo (sha256 {m.group(1)}) than this report's "
+                f"({theirs[:12]}): the differences below compare two measurements")
+    return None
 
 
 def _against_report(p, report_path, a50, a10) -> list[dict]:
@@ -126,7 +147,8 @@ def _against_report(p, report_path, a50, a10) -> list[dict]:
     from .report.output import read_report_json
 
     path = os.path.join(report_path, "report.json") if os.path.isdir(report_path) else report_path
-    figs = read_report_json(path).get("figures") or {}
+    report = read_report_json(path)
+    figs = report.get("figures") or {}
 
     def val(key):
         f = figs.get(key) if isinstance(figs.get(key), dict) else {}
