@@ -308,3 +308,15 @@ def test_damaged_files_are_read_or_refused_in_one_line():
         assert np.isfinite(flux) or not np.all(np.isfinite(p.candela))
 
     run()
+
+
+def test_a_keyword_word_longer_than_a_line_is_cut_onto_more_lines():
+    # LM-63-2002 limits every line's length (LINE_LIMIT here, from memory): a long name without
+    # spaces is cut into [MORE] lines, and reading them back joins the text again
+    from beamshot.lm63 import LINE_LIMIT, _keyword_lines
+
+    word = "X" * 300
+    lines = _keyword_lines("LUMCAT", word)
+    assert len(lines) > 1 and all(len(line) <= LINE_LIMIT for line in lines)
+    assert lines[0].startswith("[LUMCAT] ") and all(line.startswith("[MORE] ") for line in lines[1:])
+    assert "".join(line.split(" ", 1)[1] for line in lines) == word
