@@ -341,7 +341,7 @@ def _keyword_lines(name: str, text: str, limit: int = LINE_LIMIT) -> list[str]:
     lines, head = [], f"[{name}] "
     words = text.split(" ") if text else [""]
     line = head
-    room = limit - len("[MORE] ") - 1
+    room = limit - max(len(head), len("[MORE] ")) - 1
     pieces = []
     for w in words:  # a word longer than a line (a long name without spaces) is cut into line-sized pieces
         pieces.extend([w[i:i + room] for i in range(0, len(w), room)] if len(w) > room else [w])
