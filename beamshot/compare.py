@@ -402,7 +402,10 @@ def _scale_kind(light: Light):
 
 def _slug(text: str) -> str:
     s = re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")
-    return s[:32] or "light"
+    if len(s) > 32:  # cut at a word boundary where there is one
+        cut = s[:33].rsplit("-", 1)[0]
+        s = cut if len(cut) >= 12 else s[:32]
+    return s or "light"
 
 
 def card_names(comp: Comparison) -> list[str]:

@@ -43,8 +43,15 @@ def card_figure(comp, index: int, path=None):
     def box(left, top, width, height):
         return [left / W, 1 - (top + height) / H, width / W, height / H]
 
-    fig.text(0.35 / W, 1 - 0.42 / H, plain(light.label, 34), ha="left", va="center", fontsize=22, weight="bold",
-             color=_INK)
+    if len(light.label) <= 34:
+        title, size = plain(light.label, 34), 22
+    else:  # a long name on two lines, smaller, cut only past what two lines hold
+        import textwrap
+
+        lines = textwrap.wrap(plain(light.label, 90), 46)
+        title, size = "\n".join(lines[:2]) + ("…" if len(lines) > 2 else ""), 15
+    fig.text(0.35 / W, 1 - 0.42 / H, title, ha="left", va="center", fontsize=size, weight="bold", color=_INK,
+             linespacing=1.1)
     fig.text(0.35 / W, 1 - 0.82 / H, "beam on a wall at {:g} m, one exposure for {} lights".format(
         ex["wall_distance_m"], len(comp.lights)), ha="left", va="center", fontsize=10, color=_MUTED)
     side = 4.7
