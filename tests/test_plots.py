@@ -280,3 +280,15 @@ def test_log_ticks_are_plain_decades():
         text = _decade_text(10.0 ** e)
         assert float(text.replace(",", "")) == pytest.approx(10.0 ** e, rel=1e-12), text
     assert _decade_text(3.0) == "" and _decade_text(0.0) == "" and _decade_text(float("nan")) == ""
+
+
+def test_short_log_scales_get_plain_1_2_5_ticks():
+    # a colour bar spanning under two decades is labelled at 1-2-5 steps (the preferred-number
+    # series of common practice), each label the tick's exact value
+    from beamshot.report.plots import _tick_text
+
+    for e in range(-2, 6):
+        for m in (1, 2, 5):
+            v = m * 10.0 ** e
+            assert float(_tick_text(v).replace(",", "")) == pytest.approx(v, rel=1e-12)
+    assert _tick_text(3.0) == "" and _tick_text(700.0) == "" and _tick_text(-1.0) == ""

@@ -351,7 +351,7 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
         cb = plt.colorbar(im, ax=ax, fraction=0.046, pad=0.03, extend="min")
     cb.set_label(label or ("intensity (relative to peak)" if relative else "intensity (cd)"), fontsize=fontsize)
     cb.ax.tick_params(labelsize=fontsize * 0.9)
-    _plain_log_ticks(cb.long_axis)
+    _plain_log_ticks(cb.long_axis, span=norm.vmax / norm.vmin if norm.vmin > 0 else None)
 
     # rings at round full cone angles, labelled with the full angle (twice the radius drawn)
     step = _ring_step_full_deg(half)
@@ -612,11 +612,30 @@ def _decade_text(v: float, pos=None) -> str:
     return f"1e{e}"
 
 
-def _plain_log_ticks(axis) -> None:
+def _tick_text(v: float, pos=None) -> str:
+    """A 1-2-5 tick as plain text, grouped as the figures table groups ("200", "5,000", "0.05")."""
+    if not (v > 0 and np.isfinite(v)):
+        return ""
+    e = int(np.floor(np.log10(v) + 1e-9))
+    m = v / 10.0 ** e
+    if min(abs(m - k) for k in (1.0, 2.0, 5.0)) > 1e-6:
+        return ""
+    if e < 0:
+        return f"{v:.{-e}f}"
+    return f"{int(round(v)):,}" if e <= 6 else f"{m:g}e{e}"
+
+
+def _plain_log_ticks(axis, span: float | None = None) -> None:
+    """Log-axis ticks as plain text: decades, or 1-2-5 steps when the axis spans under two decades
+    (``span``: its top over its bottom), so that a short colour bar still has more than one label."""
     from matplotlib.ticker import FuncFormatter, LogLocator, NullLocator
 
-    axis.set_major_locator(LogLocator(base=10.0, numticks=12))
-    axis.set_major_formatter(FuncFormatter(_decade_text))
+    if span is not None and np.isfinite(span) and 1.0 < span < 100.0:
+        axis.set_major_locator(LogLocator(base=10.0, subs=(1.0, 2.0, 5.0), numticks=12))
+        axis.set_major_formatter(FuncFormatter(_tick_text))
+    else:
+        axis.set_major_locator(LogLocator(base=10.0, numticks=12))
+        axis.set_major_formatter(FuncFormatter(_decade_text))
     axis.set_minor_locator(NullLocator())  # decades only: minor ticks cost more to lay out than they tell
 
 
