@@ -218,8 +218,9 @@ def comparison_html(data: dict, out_dir) -> str:
     sections.append('<section id="pictures"><h2>Beams at one exposure</h2>' + "".join(pictures) + "</section>")
     sections.append('<section id="figures"><h2>Figures</h2><p class="note">Value ± one standard uncertainty '
                     '(1σ); ≈ estimate, ≥ lower bound, ≤ upper bound.</p>'
-                    + (f'<p class="note narrow-only">The table scrolls sideways: {len(lights)} lights.</p>'
-                       if len(lights) > 1 else "") + _figures_table(lights) + "</section>")
+                    + (f'<p class="note{"" if len(lights) > 3 else " narrow-only"}">The table scrolls sideways: '
+                       f'{len(lights)} lights, the figure names stay in place.</p>' if len(lights) > 1 else "")
+                    + _figures_table(lights) + "</section>")
     diffs = _list(data.get("differences"))
     sections.append('<section id="differences"><h2>Differences</h2><p class="note">b − a with the combined '
                     'standard uncertainty u_c; significant when |b − a| &gt; k·u_c, otherwise not '
