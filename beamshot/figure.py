@@ -59,6 +59,8 @@ class Figure:
         if self.uncertainty is not None and self.uncertainty > 0:
             value, u = value_with_uncertainty(self.value, self.uncertainty)
             return f"{prefix}{value} ± {u}{unit}"
+        if self.uncertainty == 0 and float(self.value).is_integer() and abs(self.value) < 1e15:
+            return f"{prefix}{int(self.value):,}{unit}"  # an exact count ("rings found 1", not "1.00")
         return f"{prefix}{_number(self.value, digits)}{unit}"
 
 

@@ -135,3 +135,12 @@ def test_report_with_unreadable_schema_version_is_one_line(tmp_path):
     bad.write_text(json.dumps({"schema": "beamshot.report", "schema_version": "abc"}))
     with pytest.raises(BeamshotError, match="schema_version"):
         read_report_json(bad)
+
+
+def test_an_exact_count_prints_as_a_whole_number():
+    # a figure with zero uncertainty and a whole value is a count ("rings found"): no decimals
+    from beamshot.figure import Figure
+
+    assert Figure(1.0, 0.0, "", "counted").text() == "1"
+    assert Figure(12000.0, 0.0, "", "counted").text() == "12,000"
+    assert Figure(2.5, 0.0, "", "m").text() == "2.50"  # not whole: three significant digits as before
