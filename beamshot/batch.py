@@ -832,16 +832,9 @@ def _colour_cells(colour: dict | None) -> dict:
 
 
 def _atomic_write(path: str, text: str) -> None:
-    tmp = f"{path}.{os.getpid()}-{secrets.token_hex(4)}.tmp"
-    try:
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    finally:
-        with contextlib.suppress(FileNotFoundError):
-            os.remove(tmp)
+    from .atomic_file import write_text_atomic
+
+    write_text_atomic(path, text, newline="")
 
 
 def write_summary(out_dir: str, items: list[Item], outcomes: dict) -> tuple[str, str]:

@@ -374,17 +374,13 @@ def format_lm63(p: Photometry) -> str:
 
 def write_lm63(p: Photometry, path) -> None:
     """Write ``p`` to ``path`` (replaced whole: written to a temporary file, then renamed)."""
+    from .atomic_file import write_text_atomic
+
     path = os.fspath(path)
-    tmp = f"{path}.{os.getpid()}.tmp"
     try:
-        with open(tmp, "w", encoding="ascii", errors="replace", newline="") as fh:
-            fh.write(format_lm63(p))
-        os.replace(tmp, path)
+        write_text_atomic(path, format_lm63(p), encoding="ascii", errors="replace", newline="")
     except OSError as exc:
         raise BeamshotError(f"{path}: cannot be written ({exc.strerror or exc}); choose another place") from None
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
 
 
 # ---------------------------------------------------------------- our map -> a type C distribution

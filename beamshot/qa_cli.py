@@ -103,17 +103,13 @@ def _write_json(path: str, doc: dict) -> None:
 
     if os.path.isdir(path):
         raise BeamshotError(f"--result {path}: is a folder; give a file name such as {os.path.join(path, 'qa.json')}")
-    tmp = f"{path}.{os.getpid()}.tmp"
+    from .atomic_file import write_text_atomic
+
     try:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(json.dumps(doc, indent=1, ensure_ascii=False, allow_nan=False) + "\n")
-        os.replace(tmp, path)
+        write_text_atomic(path, json.dumps(doc, indent=1, ensure_ascii=False, allow_nan=False) + "\n")
     except OSError as exc:
         raise BeamshotError(f"--result {path}: cannot be written ({exc.strerror or exc}); choose another place") \
             from None
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
 
 
 @click.command("qa")

@@ -15,9 +15,10 @@ from __future__ import annotations
 import base64
 import html
 import json
-import os
 
-__all__ = ["CSP", "esc", "number_attr", "page", "png_data_uri", "table"]
+from ..atomic_file import write_text_atomic  # the pages are written whole
+
+__all__ = ["CSP", "esc", "number_attr", "page", "png_data_uri", "table", "write_text_atomic"]
 
 #: Nothing may be fetched: images only from data: URIs, styles only inline, no scripts, no frames.
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'"
@@ -162,18 +163,3 @@ def page(title: str, subtitle: str, sections: list[str], footer: str) -> str:
         + "</header>\n<main>\n" + "\n".join(sections) + "\n</main>\n"
         f"<footer>{esc(footer)}</footer>\n</body>\n</html>\n"
     )
-
-
-def write_text_atomic(path, text: str) -> None:
-    """Write ``text`` (UTF-8) to ``path`` through a temporary file beside it and one rename."""
-    path = os.fspath(path)
-    tmp = f"{path}.tmp-{os.getpid()}"
-    try:
-        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
