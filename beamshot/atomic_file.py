@@ -11,7 +11,7 @@ import contextlib
 import os
 import secrets
 
-__all__ = ["write_text_atomic"]
+__all__ = ["write_text_atomic", "can_write_beside"]
 
 
 def write_text_atomic(path, text: str, *, encoding: str = "utf-8", errors: str = "strict",
@@ -28,3 +28,17 @@ def write_text_atomic(path, text: str, *, encoding: str = "utf-8", errors: str =
     finally:
         with contextlib.suppress(FileNotFoundError):
             os.remove(tmp)
+
+
+def can_write_beside(path) -> str | None:
+    """None if a file can be created in ``path``'s folder, else why not (checked by creating and
+    removing a temporary file there: permission bits do not tell for root or for /proc and /sys)."""
+    import tempfile
+
+    folder = os.path.dirname(os.path.abspath(os.fspath(path))) or "."
+    try:
+        with tempfile.TemporaryFile(dir=folder):
+            pass
+    except OSError as exc:
+        return exc.strerror or str(exc)
+    return None

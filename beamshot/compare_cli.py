@@ -89,8 +89,11 @@ def reach(report, height_m, tilt_deg, out_png, label):
         except OSError as exc:
             raise BeamshotError(f"--out {out_png}: its folder cannot be made ({exc.strerror or exc}); "
                                 "choose another place") from None
-        if not os.access(folder, os.W_OK):
-            raise BeamshotError(f"--out {out_png}: cannot be written there; choose a folder you can write to")
+        from .atomic_file import can_write_beside
+
+        why = can_write_beside(out_png)
+        if why is not None:
+            raise BeamshotError(f"--out {out_png}: cannot be written there ({why}); choose a folder you can write to")
     peak = _peak_figure(light.figures.get("peak_intensity"))
     r = reach_of(light.beam, peak, height_m=height_m, tilt_deg=tilt_deg)
     click.echo(f"{light.label}: peak intensity {peak.text()}")

@@ -91,9 +91,11 @@ def _check_writable(path: str) -> None:
 
     if os.path.isdir(path):
         raise BeamshotError(f"--result {path}: is a folder; give a file name such as {os.path.join(path, 'qa.json')}")
-    folder = os.path.dirname(os.path.abspath(path))
-    if not (os.path.isdir(folder) and os.access(folder, os.W_OK)) or folder.startswith(("/proc", "/sys")):
-        raise BeamshotError(f"--result {path}: cannot be written there; choose a folder you can write to")
+    from .atomic_file import can_write_beside
+
+    why = can_write_beside(path)
+    if why is not None:
+        raise BeamshotError(f"--result {path}: cannot be written there ({why}); choose a folder you can write to")
 
 
 def _write_json(path: str, doc: dict) -> None:

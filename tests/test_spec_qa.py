@@ -405,3 +405,13 @@ def test_analyze_with_a_spec_puts_the_verdict_in_every_output(analysed, tmp_path
     spec.write_text('[figures.hotspot_angel]\nmax = 9\nunit = "deg"\n')
     bad = CliRunner().invoke(cli, ["analyze", str(photo), "--distance", "5", "--spec", str(spec)])
     assert bad.exit_code == 2 and "hotspot_angel" in bad.output and "figure" not in bad.output.split("\n", 1)[1]
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc"), reason="needs a folder nobody can create files in")
+def test_an_unwritable_result_file_is_refused_before_any_verdict(analysed, tmp_path):
+    # /proc refuses new files even to root, whatever its permission bits say
+    out, _ = analysed
+    spec = tmp_path / "spec.toml"
+    spec.write_text('[figures.hotspot_angle]\nmax = 90\nunit = "deg"\n')
+    res = CliRunner().invoke(cli, ["qa", str(spec), str(out / "report.json"), "--result", "/proc/qa.json"])
+    assert res.exit_code == 2 and "PASS" not in res.output and "cannot be written there" in res.output
