@@ -6,7 +6,7 @@ front of the wall) with the wall plane: a circle when the light is square to the
 ellipse displaced from the axis when it is tilted.  The five parameters — the light's foot
 point on the wall (x0, y0), the axis tilt (yaw right, pitch up) and alpha — are fitted by
 least squares to the angular residuals ``angle(P_i - L, a) - alpha`` of the edge points P_i
-(SciPy ``least_squares``); their covariance follows from the Jacobian.
+(Levenberg-Marquardt, beamshot/levenberg.py); their covariance follows from the Jacobian.
 
 The tilt shows mainly in the ellipse's elongation (0.5 % for 5 degrees at alpha = 30 deg),
 so it is only as good as the beam is round; a reflector that is not round reads as a tilt.
@@ -17,9 +17,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy.optimize import least_squares
 
 from .frames import beam_to_wall
+from .levenberg import levenberg_marquardt
 
 __all__ = ["TILT_WARN_DEG", "TILT_APPLY_SIGMAS", "TILT_SIGNIFICANCE_CHI2", "LightPose", "fit_light_pose", "axis_vector", "edge_to_wall",
            "tilt_floor_deg"]
@@ -195,8 +195,7 @@ def _fit_from(p: np.ndarray, d: float, centre: np.ndarray, foot0: np.ndarray) ->
         jac[:, 4] = -1.0
         return jac
 
-    sol = least_squares(residuals, x0, jac=jacobian, method="lm",
-                        x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
+    sol = levenberg_marquardt(residuals, x0, jacobian, x_scale=np.array([d * 0.01, d * 0.01, 0.01, 0.01, 0.01]))
     res = sol.fun
     dof = max(1, len(p) - 5)
     s2 = float(res @ res) / dof

@@ -15,10 +15,10 @@ from dataclasses import dataclass
 
 import cv2
 import numpy as np
-from skimage.filters import threshold_multiotsu
 from skimage.measure import find_contours
 
 from .errors import BeamshotError
+from .otsu import three_class_thresholds
 from .wall import WallMapping
 
 __all__ = ["BeamAxis", "find_beam_axis", "MIN_BEAM_CONTRAST", "MIN_EDGE_COVERAGE"]
@@ -97,7 +97,7 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
     stride = max(1, int(np.sqrt(logl.size / _OTSU_SAMPLES)))
     sample = logl[::stride, ::stride].ravel()
     try:
-        low, _high = threshold_multiotsu(sample, classes=3)
+        low, _high = three_class_thresholds(sample)
     except ValueError:
         low = float(np.log(peak * 0.05))
     level = float(np.exp(low))

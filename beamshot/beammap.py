@@ -17,7 +17,6 @@ from functools import cached_property
 
 import cv2
 import numpy as np
-from scipy.ndimage import map_coordinates
 
 from .camera.linearize import LinearImage
 from .frames import beam_frame, beam_to_wall
@@ -84,10 +83,36 @@ class BeamMap:
         j = (ph - self.phi[0]) / self.d_phi
         # clamp theta below the first centre; azimuth wraps through the padded copy
         k = np.clip(k, 0.0, None)
-        coords = np.stack([k.ravel(), (j + 1.0).ravel()])
-        out = map_coordinates(self._wrapped, coords, order=1, mode="constant", cval=np.nan, prefilter=False)
+        out = bilinear(self._wrapped, k.ravel(), (j + 1.0).ravel())
         out[k.ravel() > len(self.theta) - 1] = np.nan
         return out.reshape(th.shape)
+
+
+def bilinear(a: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    """Bilinear interpolation of the 2-D array ``a`` at fractional ``(rows, cols)``, NaN outside.
+
+    ``sum w_ij a[r0 + i, c0 + j]`` over the four cells around the point with weights
+    ``(1 - t)`` / ``t`` per axis (``r0 = floor(row)``, ``t = row - r0``).  A point beyond
+    ``[0, n - 1]`` on either axis is NaN; on the last row or column the missing neighbour (weight
+    0) is the mirrored one; a NaN neighbour gives NaN even at weight 0.  These are the values of
+    ``scipy.ndimage.map_coordinates(a, (rows, cols), order=1, mode="constant", cval=nan,
+    prefilter=False)`` (tests/test_numerics.py), without importing SciPy's ndimage (about 0.3 s).
+    """
+    n, m = a.shape
+    rows = np.asarray(rows, float)
+    cols = np.asarray(cols, float)
+    with np.errstate(invalid="ignore"):
+        inside = (rows >= 0) & (rows <= n - 1) & (cols >= 0) & (cols <= m - 1)
+    r = np.where(inside, rows, 0.0)
+    c = np.where(inside, cols, 0.0)
+    i, j = np.floor(r).astype(np.intp), np.floor(c).astype(np.intp)
+    tr, tc = r - i, c - j
+    i1 = np.where(i + 1 < n, i + 1, max(n - 2, 0))  # the mirrored neighbour on the last row
+    j1 = np.where(j + 1 < m, j + 1, max(m - 2, 0))
+    out = ((1.0 - tr) * ((1.0 - tc) * a[i, j] + tc * a[i, j1])
+           + tr * ((1.0 - tc) * a[i1, j] + tc * a[i1, j1]))
+    out[~inside] = np.nan
+    return out
 
 
 def directions(theta: np.ndarray, phi: np.ndarray) -> np.ndarray:

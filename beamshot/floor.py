@@ -54,11 +54,11 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.ndimage import gaussian_filter1d
-from scipy.special import ndtr
 
 from .beammap import BeamMap
+from .normal_cdf import ndtr
 from .photometry import intensity_from_wall_illuminance
+from .smoothing import gaussian_filter1d
 
 __all__ = ["CLIPPED_SCATTER_MIN", "EDGE_MARGIN_DEG", "ANNULUS_DEG", "MIN_FLOOR_CELLS", "BlackFloor",
            "clipped_mean", "unclipped_mean", "wall_gain", "estimate_floor", "remove_floor", "floor_corrected"]

@@ -38,13 +38,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import gaussian_filter1d
-from scipy.optimize import least_squares
-from .savgol import savgol
 
 from ._quiet import quiet_nan
 from .beammap import BeamMap
 from .map_noise import NoiseModel
+from .savgol import savgol
+from .smoothing import gaussian_filter1d
 
 __all__ = ["Ring", "RingSearch", "find_rings", "RING_SIGNIFICANCE"]
 
@@ -146,6 +145,8 @@ def _fit_ring(t, lp, s, guess_mu, smooth_at, step, degree=POLY_DEGREE):
     x0[-1] = float(np.clip(x0[-1], lo_w * 1.01, hi_w * 0.99))
     lb = [-np.inf] * n + [-0.95, -1.0, lo_w]
     ub = [np.inf] * n + [10.0, 1.0, hi_w]
+    from scipy.optimize import least_squares  # imported only when a ring candidate is fitted (0.3 s)
+
     try:
         fit = least_squares(lambda q: (_model(q, tc) - lp) / s, x0, jac=lambda q: _jac(q, tc) / s[:, None],
                             bounds=(lb, ub), x_scale="jac")

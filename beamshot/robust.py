@@ -7,7 +7,8 @@ loops here; a sort with NaN last and a pick of the middle finite element is exac
 from __future__ import annotations
 
 import numpy as np
-from scipy.ndimage import gaussian_filter1d
+
+from .smoothing import gaussian_filter1d
 
 __all__ = ["row_nanmedian", "row_mad_sigma", "nan_smooth_rows", "smoothed_noise_sigma"]
 

@@ -40,12 +40,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import gaussian_filter1d
 
 from .beammap import BeamMap
 from .floor import BlackFloor, estimate_floor, wall_gain
-from .robust import MAD_TO_SIGMA, nan_smooth_rows, smoothed_noise_sigma
 from .photometry import equal_cone_full_angle
+from .robust import MAD_TO_SIGMA, nan_smooth_rows, smoothed_noise_sigma
+from .smoothing import gaussian_filter1d
 
 __all__ = ["SECTOR_DEG", "EDGE_PROBE_DEG", "EDGE_MIN_CONTRAST", "EDGE_SHARPNESS", "SPILL_FLOOR_FRACTION",
            "POOL_DEG", "MAX_SIGMA_DEG", "EDGE_MIN_SIGNIFICANCE", "SpillEdge", "find_spill_edge"]
