@@ -329,7 +329,12 @@ def difference_figure(comp, path=None):
     cb.set_ticks(ticks)
     cb.set_ticklabels([f"×{2 ** t:g}" if t >= 0 else f"×1/{2 ** -t:g}" for t in ticks])
     cb.ax.tick_params(labelsize=FONT_PT * 0.85)
-    cb.set_label(f"orange: {a} brighter · blue: {b} brighter (ratio {a} / {b})", fontsize=FONT_PT * 0.85)
+    # which light is brighter, at the end of the bar where it is (one centred line ran off the picture
+    # with long names)
+    cb.set_label(f"ratio {a} / {b}", fontsize=FONT_PT * 0.85)
+    fig.text(0.1, 0.165, f"◀ {b} brighter", ha="left", va="bottom", fontsize=FONT_PT * 0.85, color=RATIO_CMAP_COLOURS[0])
+    fig.text(0.9, 0.165, f"{a} brighter ▶", ha="right", va="bottom", fontsize=FONT_PT * 0.85,
+             color=RATIO_CMAP_COLOURS[-1])
     mode = "absolute (cd / cd)" if comp.absolute else "shapes: each normalised to its own peak"
     fig.text(0.5, 0.975, f"{a} ÷ {b}", ha="center", va="top", fontsize=FONT_PT * 1.4, weight="bold")
     fig.text(0.5, 0.935, f"ratio of intensities in the same direction, {mode}", ha="center", va="top",
