@@ -19,11 +19,11 @@ from .. import vocabulary
 from ..beammap import BeamMap
 from .colour_table import CIVIDIS_RGB
 from .plots import (_BELOW, _OUTSIDE, _SKY, _VERMILLION, INSET_BELOW_FRACTION, ISO_LEVELS,
-                    RING_LABEL_BEARING_DEG, _azimuthal_grid, _contour_xy, _ring_step_full_deg, map_floor)
+                    RING_LABEL_BEARING_DEG, _contour_xy, _inside_outline, _ring_step_full_deg, map_floor)
 from .raster import Canvas
 from .raster_chart import draw_legend, draw_line_sample, draw_mark, log_ticks
 
-__all__ = ["draw_map_panel", "MAP_STYLES"]
+__all__ = ["draw_map_panel", "picture_grid", "MAP_STYLES"]
 
 #: Pixels per typographic point at beam.png's resolution (170 dpi, the earlier picture's scale).
 PX_PER_PT = 170.0 / 72.0
@@ -61,6 +61,39 @@ def _colours(values: np.ndarray, vmin: float, vmax: float) -> np.ndarray:
 
 def _hex(c: str) -> tuple[int, int, int]:
     return int(c[1:3], 16), int(c[3:5], 16), int(c[5:7], 16)
+
+
+def picture_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
+    """The map on a square grid of azimuthal-equidistant angles (deg, right/up positive), for drawing.
+
+    As :func:`beamshot.report.plots._azimuthal_grid` (bilinear between map cells, NaN beyond the
+    map; with the photo's outline known, grid points inside it that fall between the coarse
+    azimuth cells at the rim take the nearest sampled value, points outside are blank), but with
+    the cell indices computed straight from the grid's angles and OpenCV doing the work:
+    ``cv2.remap`` interpolates bilinearly (weights in 1/32 steps of a cell, invisible through a
+    256-entry colour table) and ``cv2.distanceTransformWithLabels`` finds the nearest sampled point.
+    """
+    import cv2
+
+    a = np.linspace(-half_width_deg, half_width_deg, n)
+    xx, yy = np.meshgrid(a, a)
+    th = np.radians(np.hypot(xx, yy))
+    ph = np.mod(np.arctan2(yy, xx), 2 * np.pi)
+    k = np.clip((th - beam.theta[0]) / beam.d_theta, 0.0, None)
+    j = (ph - beam.phi[0]) / beam.d_phi + 1.0  # the azimuth wraps through one padded column each side
+    wrapped = np.concatenate([beam.intensity[:, -1:], beam.intensity, beam.intensity[:, :1]], axis=1)
+    vals = cv2.remap(wrapped.astype(np.float32), j.astype(np.float32), k.astype(np.float32), cv2.INTER_LINEAR,
+                     borderMode=cv2.BORDER_REPLICATE).astype(float)
+    vals[k > len(beam.theta) - 1] = np.nan
+    finite = np.isfinite(vals)
+    if beam.footprint_deg is not None and finite.any() and not finite.all():
+        inside = _inside_outline(beam.footprint_deg, a, a)
+        _, labels = cv2.distanceTransformWithLabels((~finite).astype(np.uint8), cv2.DIST_L2, cv2.DIST_MASK_5,
+                                                    labelType=cv2.DIST_LABEL_PIXEL)
+        source = np.zeros(int(labels.max()) + 1, np.intp)
+        source[labels[finite]] = np.flatnonzero(finite)  # each label -> the sampled point it names
+        vals = np.where(inside, vals.ravel()[source[labels]], np.nan)
+    return a, vals
 
 
 class _MapAxes:
@@ -127,16 +160,13 @@ def _level_lines(grid: np.ndarray, a: np.ndarray, level: float, upsample: int = 
     return out
 
 
-def _draw_iso(c: Canvas, ax: _MapAxes, beam: BeamMap, floor: float, font_px: float) -> list[float]:
-    """Dotted iso-intensity lines at ISO_LEVELS x peak above the map's floor (nearest-cell lookup on
-    a 301 x 301 grid, smoothed by one grid step so noise does not fray them); returns the levels."""
+def _draw_iso(c: Canvas, ax: _MapAxes, a: np.ndarray, vals: np.ndarray, floor: float, font_px: float) -> list[float]:
+    """Dotted iso-intensity lines at ISO_LEVELS x peak above the map's floor, traced on the drawn grid
+    (``a`` x ``a``, values ``vals``) smoothed by a Gaussian of 1/300 of the map's width (so that
+    noise does not fray them; the earlier picture smoothed a 301 x 301 lookup by one step); returns
+    the levels drawn."""
     import cv2
 
-    a = np.linspace(-ax.half, ax.half, 301)
-    k, j = _nearest_cells(beam, a)
-    inside = k < len(beam.theta)
-    vals = np.full(k.shape, np.nan)
-    vals[inside] = beam.intensity[np.clip(k[inside], 0, None), j[inside]]
     finite = vals[np.isfinite(vals)]
     if finite.size == 0 or not float(np.max(finite)) > 0:
         return []
@@ -145,12 +175,13 @@ def _draw_iso(c: Canvas, ax: _MapAxes, beam: BeamMap, floor: float, font_px: flo
     if not levels:
         return []
     rel = np.where(np.isfinite(vals), vals / peak, np.nan)
-    # a Gaussian of one grid step, 9 taps, mirrored at the border (as scipy.ndimage.gaussian_filter's defaults)
-    smooth = cv2.GaussianBlur(np.nan_to_num(rel, nan=0.0), (9, 9), 1.0, borderType=cv2.BORDER_REFLECT)
+    sigma = (len(a) - 1) / 300.0
+    # mirrored at the border, truncated at 4 sigma (as scipy.ndimage.gaussian_filter's defaults)
+    smooth = cv2.GaussianBlur(np.nan_to_num(rel, nan=0.0), (0, 0), sigma, borderType=cv2.BORDER_REFLECT)
     smooth[~np.isfinite(rel)] = np.nan
     label_dir = np.radians(RING_LABEL_BEARING_DEG + 180.0 + 40.0)  # lower left, clear of the ring labels
     for n, lv in enumerate(levels):
-        lines = _level_lines(smooth, a, lv)
+        lines = _level_lines(smooth, a, lv, upsample=3)
         for xy in lines:
             draw_line_sample(c, ax.px(xy), MAP_STYLES["iso"], clip=ax.box)
         longest = max(lines, key=lambda q: np.isfinite(q[:, 0]).sum(), default=None)
@@ -239,7 +270,7 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
     contours = contours or {}
     cov = float(np.degrees(beam.theta[np.any(beam.valid, axis=1)].max())) if beam.valid.any() else 10.0
     half = min(cov, 89.0)
-    a, vals = _azimuthal_grid(beam, half)
+    a, vals = picture_grid(beam, half)
     relative = beam.unit != "cd"
     peak = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else np.nan
     if not peak > 0:  # nothing lit in view (the analysis refuses such photos; keep the picture drawable)
@@ -249,15 +280,18 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
     floor, below_text = map_floor(beam, edge, peak, noise)
     ax = _MapAxes(box, half)
     _draw_image(c, ax, vals, floor, peak, factor)
-    iso = _draw_iso(c, ax, beam, floor, font_px)
+    iso = _draw_iso(c, ax, a, vals, floor, font_px)
 
     # rings at round full cone angles, labelled with the full angle (twice the radius drawn)
     step = _ring_step_full_deg(half)
     t = np.linspace(0, 2 * np.pi, 361)
     lab_dir = np.radians(RING_LABEL_BEARING_DEG)
-    for full in np.arange(step, 2 * half + 1e-9, step):
+    fulls = np.arange(step, 2 * half + 1e-9, step)
+    rings = [np.vstack([np.c_[f / 2 * np.cos(t), f / 2 * np.sin(t)], [np.nan, np.nan]]) for f in fulls]
+    if rings:  # one stroke for all rings (NaN rows part them)
+        draw_line_sample(c, ax.px(np.vstack(rings)), MAP_STYLES["ring"], clip=box)
+    for full in fulls:
         r = full / 2.0
-        draw_line_sample(c, ax.px(np.c_[r * np.cos(t), r * np.sin(t)]), MAP_STYLES["ring"], clip=box)
         if r <= half * 0.9:
             xy = (r * np.cos(lab_dir), r * np.sin(lab_dir))
             x, y = ax.px(xy)[0]
@@ -291,7 +325,7 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
             ins = _MapAxes(ibox, zoom)
             (rx0, ry0), (rx1, ry1) = ax.px([(-zoom, zoom), (zoom, -zoom)])
             c.rect(rx0, ry0, rx1, ry1, edge="#ffffff", width=1.0 * PX_PER_PT, alpha=0.9)
-            a2, v2 = _azimuthal_grid(beam, zoom, n=241)
+            a2, v2 = picture_grid(beam, zoom, n=241)
             _draw_image(c, ins, v2, floor, peak, factor)
             _draw_marks(c, ins, contours, None, pk, clipped, record=False)
             c.rect(*ibox, edge="#ffffff", width=1.2 * PX_PER_PT)

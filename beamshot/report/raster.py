@@ -54,10 +54,21 @@ def font(size_px: int, style: str = "normal"):
     d = _font_dir()
     if d is not None:
         try:
-            return ImageFont.truetype(os.path.join(d, _FONT_FILES[style]), int(size_px))
+            # the basic layout (no complex-script shaping): the pictures' texts are Latin with symbols,
+            # and it draws about twice as fast as the shaping engine
+            return ImageFont.truetype(os.path.join(d, _FONT_FILES[style]), int(size_px),
+                                      layout_engine=ImageFont.Layout.BASIC)
         except OSError:
             pass
     return ImageFont.load_default(int(size_px))
+
+
+@functools.lru_cache(maxsize=1)
+def _measure():
+    """A drawing context used only to measure text."""
+    from PIL import Image, ImageDraw
+
+    return ImageDraw.Draw(Image.new("L", (1, 1)))
 
 
 @dataclass
@@ -136,14 +147,15 @@ class Canvas:
         if reg is None:
             return
         r0, r1, c0, c1 = reg
-        orig = self.img[r0:r1, c0:c1]
-        sub = orig.copy()
-        draw(sub, c0, r0)
-        if alpha < 1.0:
-            import cv2
+        view = self.img[r0:r1, c0:c1]  # OpenCV draws into a strided view in place
+        if alpha >= 1.0:
+            draw(view, c0, r0)
+            return
+        import cv2
 
-            sub = cv2.addWeighted(sub, float(alpha), orig, 1.0 - float(alpha), 0.0)
-        self.img[r0:r1, c0:c1] = sub
+        sub = view.copy()
+        draw(sub, c0, r0)
+        cv2.addWeighted(sub, float(alpha), view, 1.0 - float(alpha), 0.0, dst=view)
 
     @staticmethod
     def _pts(points, ox, oy) -> np.ndarray:
@@ -172,17 +184,19 @@ class Canvas:
         p = np.asarray(points, float)
         if closed and len(p):
             p = np.vstack([p, p[:1]])
-        runs = _finite_runs(p)
-        if dash:
-            runs = [seg for run in runs for seg in _dashes(run, dash)]
-        runs = [r for r in runs if len(r) >= 2]
+        runs = [r for r in _finite_runs(p) if len(r) >= 2]
         if not runs:
             return
         col, th = hex_rgb(colour), self._thick(width)
+        # dashes as filled quads: square-cut ends, as a pen draws them
+        quads = np.concatenate([_dash_quads(r, dash, width) for r in runs]) if dash else None
+        if quads is not None and not len(quads):
+            return
 
         def draw(sub, ox, oy):
-            if dash:  # dashes as filled quads: square-cut ends, as a pen draws them
-                cv2.fillPoly(sub, [self._pts(q, ox, oy) for q in _strokes(runs, width)], col, cv2.LINE_AA, _SHIFT)
+            if quads is not None:
+                cv2.fillPoly(sub, list(self._pts(quads.reshape(-1, 2), ox, oy).reshape(-1, 4, 2)), col, cv2.LINE_AA,
+                             _SHIFT)
             else:
                 cv2.polylines(sub, [self._pts(r, ox, oy) for r in runs], False, col, th, cv2.LINE_AA, _SHIFT)
 
@@ -233,21 +247,18 @@ class Canvas:
         if reg is None:
             return
         r0, r1, c0, c1 = reg
-        per, w = spacing * SUPERSAMPLE, width * SUPERSAMPLE
-        # (x + y) and (x - y) per pixel as broadcast sums, looked up in one period of the pattern
-        span = np.arange(-(r1 + c1), r1 + c1 + 1)
-        lut = np.mod(span, per) < w
-        cols, rows = np.arange(c0, c1)[None, :], np.arange(r0, r1)[:, None]
-        on = np.zeros((r1 - r0, c1 - c0), bool)
-        for d in directions:
-            on |= lut[(cols + rows if d == "/" else cols - rows) + (r1 + c1)]
-        where = None if mask is None else mask[: r1 - r0, : c1 - c0]
+        import cv2
+
+        pattern = _hatch_pattern(r0, r1, c0, c1, spacing, width, tuple(directions), hex_rgb(colour),
+                                 None if background is None else hex_rgb(background))
         sub = self.img[r0:r1, c0:c1]
-        if background is not None:
-            pattern = np.where(on[..., None], np.array(hex_rgb(colour), np.uint8), np.array(hex_rgb(background), np.uint8))
-            np.copyto(sub, pattern, where=True if where is None else where[..., None])
+        if background is None:
+            on = pattern[1] if mask is None else pattern[1] & mask[: r1 - r0, : c1 - c0].astype(np.uint8)
+            cv2.copyTo(pattern[0], on, sub)
+        elif mask is None:
+            sub[:] = pattern[0]
         else:
-            np.copyto(sub, np.array(hex_rgb(colour), np.uint8), where=(on if where is None else on & where)[..., None])
+            cv2.copyTo(pattern[0], mask[: r1 - r0, : c1 - c0].astype(np.uint8), sub)
 
     def image(self, rgb: np.ndarray, box, *, clip=None) -> None:
         """Paste an RGB array stretched (nearest neighbour) over ``box``."""
@@ -272,14 +283,11 @@ class Canvas:
         (top/center/baseline/bottom); ``rotate`` turns it a quarter turn counter-clockwise (reads
         bottom to top, ``ha`` then aligns vertically).  ``background`` draws a tab ``pad`` px
         around it.  Returns its record (box in final px)."""
-        from PIL import Image, ImageDraw
-
         f = font(int(round(size_px)), style)
         anchor = {"left": "l", "center": "m", "right": "r"}[ha] + {"top": "a", "center": "m", "baseline": "s",
                                                                    "bottom": "d"}[va]
         sw = int(round(stroke))
-        x0, y0, x1, y1 = ImageDraw.Draw(Image.new("L", (1, 1))).textbbox((0, 0), s, font=f, anchor=anchor,
-                                                                         stroke_width=sw)
+        x0, y0, x1, y1 = _measure().textbbox((0, 0), s, font=f, anchor=anchor, stroke_width=sw)
         if rotate:  # the horizontal box turned about the anchor point
             x0, y0, x1, y1 = y0, -x1, y1, -x0
         box = (x + x0 - pad, y + y0 - pad, x + x1 + pad, y + y1 + pad)
@@ -299,7 +307,8 @@ class Canvas:
         import cv2
         from PIL import Image, ImageDraw
 
-        small = cv2.resize(self.img, (self.width, self.height), interpolation=cv2.INTER_AREA)
+        small = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
+                                                             interpolation=cv2.INTER_AREA)
         pic = Image.fromarray(small)
         draw = ImageDraw.Draw(pic)
         for q in self._texts:
@@ -321,8 +330,7 @@ class Canvas:
     def _rotated(pic, q: _QueuedText) -> None:
         from PIL import Image, ImageDraw
 
-        x0, y0, x1, y1 = ImageDraw.Draw(Image.new("L", (1, 1))).textbbox((0, 0), q.item.text, font=q.font,
-                                                                          anchor=q.anchor)
+        x0, y0, x1, y1 = _measure().textbbox((0, 0), q.item.text, font=q.font, anchor=q.anchor)
         w, h = int(np.ceil(x1 - x0)) + 2, int(np.ceil(y1 - y0)) + 2
         ink = Image.new("L", (w, h), 0)
         ImageDraw.Draw(ink).text((1 - x0, 1 - y0), q.item.text, fill=255, font=q.font, anchor=q.anchor)
@@ -330,6 +338,27 @@ class Canvas:
         solid = Image.new("RGB", ink.size, q.item.colour)
         bx0, by0 = q.item.box[0], q.item.box[1]
         pic.paste(solid, (int(round(bx0)) - 1, int(round(by0)) - 1), ink)
+
+
+@functools.lru_cache(maxsize=16)
+def _hatch_pattern(r0, r1, c0, c1, spacing, width, directions, colour, background):
+    """A hatch over rows r0:r1, columns c0:c1 (hi-res px): its RGB picture (lines on the background,
+    or on black) and its 0/1 mask of line pixels.  Lines at (x + y) or (x - y) = k * spacing, so
+    neighbouring hatches line up.  Cached: a picture's hatched areas repeat from report to report."""
+    per, w = spacing * SUPERSAMPLE, width * SUPERSAMPLE
+    span = np.arange(-(r1 + c1), r1 + c1 + 1)
+    lut = np.mod(span, per) < w
+    cols, rows = np.arange(c0, c1)[None, :], np.arange(r0, r1)[:, None]
+    on = np.zeros((r1 - r0, c1 - c0), bool)
+    for d in directions:
+        on |= lut[(cols + rows if d == "/" else cols - rows) + (r1 + c1)]
+    rgb = np.empty(on.shape + (3,), np.uint8)
+    rgb[:] = background if background is not None else (0, 0, 0)
+    rgb[on] = colour
+    rgb.flags.writeable = False
+    mask = on.astype(np.uint8)
+    mask.flags.writeable = False
+    return rgb, mask
 
 
 def png_bytes(rgb: np.ndarray, level: int = 3) -> bytes:
@@ -372,26 +401,6 @@ def png_pair(rgb: np.ndarray, top_rows: int, level: int = 3) -> tuple[bytes, byt
     return full, top
 
 
-def _strokes(runs, width: float) -> list[np.ndarray]:
-    """Outline polygons of pen strokes ``width`` px wide along each polyline (butt ends, joins
-    offset along the mean normal of the two segments)."""
-    out = []
-    for r in runs:
-        d = np.diff(r, axis=0)
-        n = np.hypot(d[:, 0], d[:, 1])
-        keep = n > 1e-9
-        if not keep.any():
-            continue
-        r = np.vstack([r[:1], r[1:][keep]])
-        d = d[keep] / n[keep][:, None]
-        normal = np.c_[-d[:, 1], d[:, 0]]
-        vn = np.vstack([normal[:1], normal[:-1] + normal[1:], normal[-1:]])
-        vn /= np.maximum(np.hypot(vn[:, 0], vn[:, 1]), 1e-9)[:, None]
-        off = vn * (width / 2.0)
-        out.append(np.vstack([r + off, (r - off)[::-1]]))
-    return out
-
-
 def _finite_runs(p: np.ndarray) -> list[np.ndarray]:
     """Split a polyline at non-finite points."""
     ok = np.all(np.isfinite(p), axis=1)
@@ -407,22 +416,31 @@ def _finite_runs(p: np.ndarray) -> list[np.ndarray]:
     return runs
 
 
-def _dashes(p: np.ndarray, pattern) -> list[np.ndarray]:
-    """Cut a polyline into its 'on' pieces for a dash ``pattern`` (on, off, on, off, ... px)."""
+def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
+    """Pen strokes ``width`` px wide (square-cut ends) of the 'on' parts of a dash ``pattern``
+    (on, off, on, off, ... px) along the polyline ``p``, as quads ``(n, 4, 2)``: the path is cut
+    at its vertices and at the dash boundaries, and each piece whose middle falls in an 'on'
+    part becomes one quad."""
     seg = np.hypot(*np.diff(p, axis=0).T)
     s = np.r_[0.0, np.cumsum(seg)]
     total = s[-1]
     period = float(sum(pattern))
     if total <= 0 or period <= 0:
-        return [p]
+        return np.zeros((0, 4, 2))
     bounds = np.cumsum(np.r_[0.0, pattern])
     starts = np.arange(0.0, total, period)
-    a = (starts[:, None] + bounds[None, 0:-1:2]).ravel()
-    b = np.minimum((starts[:, None] + bounds[None, 1::2]).ravel(), total)
-    keep = a < total
-    a, b = a[keep], b[keep]
+    cuts = np.unique(np.r_[s, (starts[:, None] + bounds[None, :]).ravel()])
+    cuts = cuts[(cuts >= 0) & (cuts <= total)]
+    mid = 0.5 * (cuts[:-1] + cuts[1:])
+    phase = np.mod(mid, period)
+    on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
+    on &= cuts[1:] - cuts[:-1] > 1e-6
+    a, b = cuts[:-1][on], cuts[1:][on]
     pa = np.c_[np.interp(a, s, p[:, 0]), np.interp(a, s, p[:, 1])]
     pb = np.c_[np.interp(b, s, p[:, 0]), np.interp(b, s, p[:, 1])]
-    ia, ib = np.searchsorted(s, a, "right"), np.searchsorted(s, b, "left")
-    return [np.vstack([pa[i], p[ia[i]:ib[i]], pb[i]]) if ib[i] > ia[i] else np.vstack([pa[i], pb[i]])
-            for i in range(len(a))]
+    d = pb - pa
+    n = np.maximum(np.hypot(d[:, 0], d[:, 1]), 1e-9)[:, None]
+    off = np.c_[-d[:, 1], d[:, 0]] / n * (width / 2.0)
+    # pieces of one dash meet end to end: lengthen each by a hair so that no seam shows between them
+    ext = d / n * 0.25
+    return np.stack([pa - ext + off, pb + ext + off, pb + ext - off, pa - ext - off], axis=1)
