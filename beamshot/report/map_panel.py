@@ -325,7 +325,7 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
             ins = _MapAxes(ibox, zoom)
             (rx0, ry0), (rx1, ry1) = ax.px([(-zoom, zoom), (zoom, -zoom)])
             c.rect(rx0, ry0, rx1, ry1, edge="#ffffff", width=1.0 * PX_PER_PT, alpha=0.9)
-            a2, v2 = picture_grid(beam, zoom, n=241)
+            _, v2 = picture_grid(beam, zoom, n=241)
             _draw_image(c, ins, v2, floor, peak, factor)
             _draw_marks(c, ins, contours, None, pk, clipped, record=False)
             c.rect(*ibox, edge="#ffffff", width=1.2 * PX_PER_PT)

@@ -269,7 +269,7 @@ class Canvas:
 
         reg = self._region(box, clip)
         if reg is None:
-            return None
+            return
         r0, r1, c0, c1 = reg
         self.img[r0:r1, c0:c1] = cv2.resize(rgb, (c1 - c0, r1 - r0), interpolation=cv2.INTER_NEAREST)
 
