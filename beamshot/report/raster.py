@@ -179,9 +179,11 @@ class Canvas:
 
     # ------------------------------------------------------------------ shapes
     def polyline(self, points, colour, width: float = 1.0, *, dash=None, closed: bool = False,
-                 alpha: float = 1.0, clip=None) -> None:
+                 alpha: float = 1.0, clip=None, square_ends: bool = False) -> None:
         """A line through ``points`` ``(n, 2)``; ``dash`` a sequence of on/off lengths (px) or None.
-        Non-finite points break the line."""
+        Non-finite points break the line.  Solid lines have round ends unless ``square_ends``."""
+        if square_ends and not dash:
+            dash = (float("inf"), 0.0)  # one dash as long as the line
         import cv2
 
         p = np.asarray(points, float)
@@ -438,6 +440,8 @@ def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
     period = float(sum(pattern))
     if total <= 0 or period <= 0:
         return np.zeros((0, 4, 2))
+    if not np.isfinite(period):  # one dash covering the whole line
+        pattern, period = (total + 1.0, 0.0), total + 1.0
     bounds = np.cumsum(np.r_[0.0, pattern])
     starts = np.arange(0.0, total, period)
     cuts = np.unique(np.r_[s, (starts[:, None] + bounds[None, :]).ravel()])

@@ -58,17 +58,17 @@ def linear_ticks(lo: float, hi: float, most: int = 7) -> list[float]:
 Style = dict
 
 
-def draw_line_sample(c: Canvas, pts, style: Style, clip=None) -> None:
+def draw_line_sample(c: Canvas, pts, style: Style, clip=None, square_ends: bool = False) -> None:
     """A polyline in ``style`` (with its under-stroke first, if any)."""
+    kw = dict(dash=style.get("dash"), alpha=style.get("alpha", 1.0), clip=clip, square_ends=square_ends)
     if style.get("stroke"):
-        c.polyline(pts, style["stroke"], style["stroke_width"], dash=style.get("dash"), alpha=style.get("alpha", 1.0),
-                   clip=clip)
-    c.polyline(pts, style["colour"], style["width"], dash=style.get("dash"), alpha=style.get("alpha", 1.0), clip=clip)
+        c.polyline(pts, style["stroke"], style["stroke_width"], **kw)
+    c.polyline(pts, style["colour"], style["width"], **kw)
 
 
 def _draw_handle(c: Canvas, kind: str, style: dict, x: float, y: float, length: float, height: float) -> None:
     if kind == "line":
-        draw_line_sample(c, [(x, y), (x + length, y)], style)
+        draw_line_sample(c, [(x, y), (x + length, y)], style, square_ends=True)
     elif kind == "mark":
         draw_mark(c, style["shape"], (x + length / 2, y), style)
     elif kind == "patch":
