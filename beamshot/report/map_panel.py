@@ -181,7 +181,7 @@ def _draw_iso(c: Canvas, ax: _MapAxes, a: np.ndarray, vals: np.ndarray, floor: f
     smooth[~np.isfinite(rel)] = np.nan
     label_dir = np.radians(RING_LABEL_BEARING_DEG + 180.0 + 40.0)  # lower left, clear of the ring labels
     for n, lv in enumerate(levels):
-        lines = _level_lines(smooth, a, lv, upsample=3)
+        lines = _level_lines(smooth, a, lv, upsample=2)
         for xy in lines:
             draw_line_sample(c, ax.px(xy), MAP_STYLES["iso"], clip=ax.box)
         longest = max(lines, key=lambda q: np.isfinite(q[:, 0]).sum(), default=None)

@@ -308,31 +308,38 @@ class Canvas:
 
     # ------------------------------------------------------------------ out
     def finish(self) -> np.ndarray:
-        """The final picture (``height`` x ``width`` x 3 uint8): shapes shrunk, texts drawn on top."""
+        """The final picture (``height`` x ``width`` x 3 uint8): shapes shrunk, texts drawn on top.
+
+        Each text is drawn on a small Pillow copy of the pixels under it, put back at once
+        (cheaper than turning the whole picture into a Pillow image and back)."""
         import cv2
         from PIL import Image, ImageDraw
 
-        small = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
-                                                             interpolation=cv2.INTER_AREA)
-        pic = Image.fromarray(small)
-        draw = ImageDraw.Draw(pic)
+        out = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
+                                                           interpolation=cv2.INTER_AREA)
         for q in self._texts:
+            bx0, by0, bx1, by1 = q.item.box
+            x0, y0 = max(int(np.floor(bx0)) - 2, 0), max(int(np.floor(by0)) - 2, 0)
+            x1, y1 = min(int(np.ceil(bx1)) + 3, self.width), min(int(np.ceil(by1)) + 3, self.height)
+            if x1 <= x0 or y1 <= y0:
+                continue
+            patch = Image.fromarray(out[y0:y1, x0:x1])
             if q.background is not None:
                 colour, alpha = q.background
-                x0, y0, x1, y1 = (int(round(v)) for v in q.item.box)
-                x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, self.width), min(y1, self.height)
-                if x1 > x0 and y1 > y0:
-                    tab = Image.new("RGB", (x1 - x0, y1 - y0), colour)
-                    pic.paste(Image.blend(pic.crop((x0, y0, x1, y1)), tab, alpha), (x0, y0))
+                tab = (int(round(bx0)) - x0, int(round(by0)) - y0, int(round(bx1)) - x0, int(round(by1)) - y0)
+                shade = Image.blend(patch, Image.new("RGB", patch.size, colour), alpha)
+                patch.paste(shade.crop(tab), tab[:2])
             if q.rotate:
-                self._rotated(pic, q)
-                continue
-            draw.text(q.xy, q.item.text, fill=q.item.colour, font=q.font, anchor=q.anchor,
-                      stroke_width=q.stroke, stroke_fill=q.stroke_colour)
-        return np.asarray(pic)
+                self._rotated(patch, q, (x0, y0))
+            else:
+                ImageDraw.Draw(patch).text((q.xy[0] - x0, q.xy[1] - y0), q.item.text, fill=q.item.colour,
+                                           font=q.font, anchor=q.anchor, stroke_width=q.stroke,
+                                           stroke_fill=q.stroke_colour)
+            out[y0:y1, x0:x1] = np.asarray(patch)
+        return out
 
     @staticmethod
-    def _rotated(pic, q: _QueuedText) -> None:
+    def _rotated(patch, q: _QueuedText, origin) -> None:
         from PIL import Image, ImageDraw
 
         x0, y0, x1, y1 = _measure().textbbox((0, 0), q.item.text, font=q.font, anchor=q.anchor)
@@ -342,7 +349,7 @@ class Canvas:
         ink = ink.rotate(90, expand=True)
         solid = Image.new("RGB", ink.size, q.item.colour)
         bx0, by0 = q.item.box[0], q.item.box[1]
-        pic.paste(solid, (int(round(bx0)) - 1, int(round(by0)) - 1), ink)
+        patch.paste(solid, (int(round(bx0)) - 1 - origin[0], int(round(by0)) - 1 - origin[1]), ink)
 
 
 @functools.lru_cache(maxsize=16)
@@ -392,7 +399,7 @@ def png_pair(rgb: np.ndarray, top_rows: int, level: int = 3) -> tuple[bytes, byt
     top_rows = int(min(max(top_rows, 1), h))
     raw = np.zeros((h, 1 + 3 * w), np.uint8)
     raw[:, 1:] = np.ascontiguousarray(rgb, np.uint8).reshape(h, 3 * w)
-    top_raw, rest_raw = raw[:top_rows].tobytes(), raw[top_rows:].tobytes()
+    top_raw, rest_raw = memoryview(raw[:top_rows].reshape(-1)), memoryview(raw[top_rows:].reshape(-1))  # no copies
 
     rest: list[bytes] = []
 
@@ -409,12 +416,12 @@ def png_pair(rgb: np.ndarray, top_rows: int, level: int = 3) -> tuple[bytes, byt
         return b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", stream) + chunk(b"IEND", b"")
 
     worker = threading.Thread(target=deflate_rest)
-    if rest_raw:
+    if len(rest_raw):
         worker.start()
     z = zlib.compressobj(int(level), zlib.DEFLATED, -15)
     body = z.compress(top_raw)
     top = png(top_rows, body + z.copy().flush(), zlib.adler32(top_raw))
-    if not rest_raw:
+    if not len(rest_raw):
         return top, top
     body += z.flush(zlib.Z_SYNC_FLUSH)  # ends on a byte boundary, not as the last block
     worker.join()
