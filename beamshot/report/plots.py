@@ -58,14 +58,9 @@ TABLE_KEYS = (
     "spill_flux", "beam_flux", "ra", "hotspot_offset", "light_tilt",
 )
 
-#: Figure size (in) and resolution: one column 6 in wide, so that 10-11 pt text is still
-#: 9-10 px tall when the picture is shown 400 px wide (a phone); 1020 px wide on a desktop.
+#: Size (in) of a map drawn on its own by :func:`plot_intensity_map`, and its text size (pt).
 FIG_WIDTH_IN = 6.0
-FIG_DPI = 170
 FONT_PT = 11.0
-#: zlib level of beam.png (lossless at any level): 3 writes it in about half the time of the
-#: default 6 for a file about 5 % larger (measured on the report picture; speed choice).
-PNG_COMPRESS_LEVEL = 3
 #: Iso-intensity lines drawn on the map, as fractions of the peak (beside the 50 % and 10 % contours).
 ISO_LEVELS = (0.01, 0.001)
 
