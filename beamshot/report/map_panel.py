@@ -86,13 +86,15 @@ def picture_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
                      borderMode=cv2.BORDER_REPLICATE).astype(float)
     vals[k > len(beam.theta) - 1] = np.nan
     finite = np.isfinite(vals)
-    if beam.footprint_deg is not None and finite.any() and not finite.all():
+    if beam.footprint_deg is not None and finite.any():
         inside = _inside_outline(beam.footprint_deg, a, a)
-        _, labels = cv2.distanceTransformWithLabels((~finite).astype(np.uint8), cv2.DIST_L2, cv2.DIST_MASK_5,
-                                                    labelType=cv2.DIST_LABEL_PIXEL)
-        source = np.zeros(int(labels.max()) + 1, np.intp)
-        source[labels[finite]] = np.flatnonzero(finite)  # each label -> the sampled point it names
-        vals = np.where(inside, vals.ravel()[source[labels]], np.nan)
+        if not finite.all():
+            _, labels = cv2.distanceTransformWithLabels((~finite).astype(np.uint8), cv2.DIST_L2, cv2.DIST_MASK_5,
+                                                        labelType=cv2.DIST_LABEL_PIXEL)
+            source = np.zeros(int(labels.max()) + 1, np.intp)
+            source[labels[finite]] = np.flatnonzero(finite)  # each label -> the sampled point it names
+            vals = vals.ravel()[source[labels]]
+        vals = np.where(inside, vals, np.nan)
     return a, vals
 
 
