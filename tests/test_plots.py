@@ -388,3 +388,16 @@ def test_drawn_grid_matches_the_exact_resampling(drawn):
         peak = np.nanmax(exact)
         assert np.max(np.abs(fast[both] - exact[both])) <= 0.01 * peak
         assert np.percentile(np.abs(fast[both] - exact[both]), 99) <= 0.001 * peak
+
+
+def test_relative_scale_is_drawn_relative_to_the_peak():
+    # without an absolute scale the map and the profile are divided by their peak: the colour
+    # scale ends at 1 and the labels say 'relative to peak'
+    report = analyze(_photo(PATTERN, name="relative.jpg"), distance_m=DISTANCE_M, use_exif_scale=False)
+    assert report.beam.unit != "cd"
+    drawing = draw_beam_picture(report).drawing
+    assert drawing.text_of("colour-bar-label") == ["intensity (relative to peak)"]
+    assert drawing.text_of("profile-ylabel") == ["intensity (relative to peak)"]
+    assert drawing.values["colour_scale"][1] == pytest.approx(1.0, rel=1e-12)
+    _, y = drawing.values["profile_mean"]
+    assert np.nanmax(y) == pytest.approx(1.0, rel=1e-12)
