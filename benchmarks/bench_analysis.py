@@ -79,7 +79,7 @@ def main() -> None:
 
     from beamshot import analyze
     from beamshot.photo import load_photo
-    from beamshot.report.plots import beam_figure
+    from beamshot.report.beam_picture import write_beam_picture
 
     print(f"cores: {os.cpu_count()}, numpy {np.__version__}, opencv {cv2.__version__}")
     print(f"{'size':>6} {'file MB':>8} {'decode s':>9} {'load s':>8} {'analyze s':>10} {'ratio':>6} {'median':>7} {'peak RSS MB':>12}")
@@ -98,7 +98,7 @@ def main() -> None:
             t2 = time.perf_counter()
             report = analyze(path, distance_m=5.0)
             t3 = time.perf_counter()
-            beam_figure(report, png)  # the first call also pays matplotlib's import and font cache
+            write_beam_picture(report, png)  # the first call also pays the fonts' loading
             t4 = time.perf_counter()
             dec.append(t1 - t0)
             load.append(t2 - t1)

@@ -199,19 +199,19 @@ def test_second_writer_waits_then_wins_or_is_refused(tmp_path, reports, monkeypa
 
 
 def test_sigterm_while_writing_leaves_the_old_set_and_no_leftovers(tmp_path, reports, monkeypatch):
-    from beamshot.report import plots
+    from beamshot.report import beam_picture
 
     handler_before = signal.getsignal(signal.SIGTERM)
     out = tmp_path / "X"
     write_report(reports[0], out, picture=False)
     before = (out / "report.json").read_bytes()
 
-    def killed_while_drawing(report, path=None):
+    def killed_while_drawing(report):
         os.kill(os.getpid(), signal.SIGTERM)
         time.sleep(2.0)  # the handler raises during the sleep
         raise AssertionError("SIGTERM was not turned into an exception")
 
-    monkeypatch.setattr(plots, "beam_figure", killed_while_drawing)
+    monkeypatch.setattr(beam_picture, "draw_beam_picture", killed_while_drawing)
     with pytest.raises(output.Terminated):
         write_report(reports[1], out)
     assert (out / "report.json").read_bytes() == before and _ours(tmp_path) == []

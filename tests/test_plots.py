@@ -1,14 +1,21 @@
-"""The report picture (beam.png): rings as full angles, the noise floor drawn as a floor, a legend
-for every mark and area, a colour scale that shows the spill, the figures table in the vocabulary's
-words, and text that stays readable and apart at phone size.
+"""The report picture (beam.png, drawn by beamshot.report.beam_picture without matplotlib): rings as
+full angles, the noise floor drawn as a floor, a legend for every mark and area, a colour scale
+that shows the spill, the figures table in the vocabulary's words, and text that stays readable
+and apart at phone size.  The renderer returns a plain record of what it drew (texts with their
+role and box, legend entries, marks, the colour scale's range, the profile's points), which these
+tests read; pixel checks look at the PNG itself.
 
 Photos are small (400 x 300 px) synthetic JPEGs from beamshot.synth with a known analytic pattern.
 """
 
 from __future__ import annotations
 
+import io
 import re
+import subprocess
+import sys
 from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,8 +25,9 @@ from beamshot import analyze, vocabulary
 from beamshot.figure import Figure
 from beamshot.photo import decode_photo
 from beamshot.profile import radial_profile
-from beamshot.report.plots import (DETECTION_SIGMAS, FIG_DPI, FIG_WIDTH_IN, beam_figure, intensity_label,
-                                   noise_floor)
+from beamshot.report.beam_picture import (MIN_TEXT_PX, PICTURE_WIDTH_PX, beam_pictures, draw_beam_picture,
+                                          write_beam_picture)
+from beamshot.report.plots import _BELOW, _VERMILLION, CAUTION_LINE, DETECTION_SIGMAS, intensity_label, noise_floor
 from beamshot.spill import SpillEdge
 from beamshot.synth import HotspotSpillBeam, Scene, SynthCamera, encode_jpeg, exposure_time_for_peak, render_photo
 
@@ -32,7 +40,7 @@ PATTERN = HotspotSpillBeam(peak_cd=20000.0, hotspot_fwhm_deg=6.0, spill_fraction
 PHONE_WIDTH_PX = 400
 #: Smallest text height (px) that stays legible on a phone screen (common practice: ~9 px for
 #: captions; we allow 7 px for the smallest legend text).
-MIN_TEXT_PX = 7.0
+PHONE_MIN_TEXT_PX = 7.0
 
 
 def _photo(pattern, *, target=0.8, name="wall.jpg", seed=2):
@@ -48,108 +56,98 @@ def _photo(pattern, *, target=0.8, name="wall.jpg", seed=2):
 def drawn(tmp_path_factory):
     report = analyze(_photo(PATTERN), distance_m=DISTANCE_M)
     path = tmp_path_factory.mktemp("plots") / "beam.png"
-    fig = beam_figure(report, path)
-    return report, fig, path
+    pic = write_beam_picture(report, path)
+    return report, pic.drawing, path
 
 
-def _texts(fig):
-    from matplotlib.text import Text
-
-    return [t for t in fig.findobj(Text) if t.get_visible() and t.get_text().strip()]
+def _texts(drawing, prefix):
+    return [t for t in drawing.texts if t.role.startswith(prefix)]
 
 
-def _axes_with_gid(fig, prefix):
-    return [t for t in _texts(fig) if (t.get_gid() or "").startswith(prefix)]
-
-
-def _legend_texts(fig):
-    out = []
-    for ax in fig.axes:
-        leg = ax.get_legend()
-        if leg is not None:
-            out += [t.get_text() for t in leg.get_texts()]
-    return out
-
-
-def _profile_axes(fig):
-    return next(ax for ax in fig.axes if ax.get_xlabel().startswith("full cone angle"))
-
-
-def _map_image(fig):
-    return next(im for ax in fig.axes for im in ax.get_images() if im.get_array().ndim == 2 and im.get_array().shape[0] > 300)
+def _legend_texts(drawing):
+    return [label for label, _, _ in drawing.legend]
 
 
 def test_ring_labels_are_full_angles(drawn):
     # every reported angle is a full cone angle (IES beam and field angles are full angles), so a
     # ring of radius r degrees from the axis is labelled 2r
-    _, fig, _ = drawn
-    labels = _axes_with_gid(fig, "ring-label")
+    _, drawing, _ = drawn
+    labels = _texts(drawing, "ring-label")
     assert len(labels) >= 3
     for t in labels:
-        x, y = t.get_position()
-        number = float(re.match(r"([\d.]+)° full$", t.get_text()).group(1))
+        x, y = t.data
+        number = float(re.match(r"([\d.]+)° full$", t.text).group(1))
         assert number == pytest.approx(2.0 * np.hypot(x, y), abs=1e-9)
 
 
 def test_table_words_come_from_the_vocabulary(drawn):
-    report, fig, _ = drawn
-    labels = {t.get_gid().split(":", 1)[1]: t.get_text() for t in _axes_with_gid(fig, "figure-label:")}
+    report, drawing, _ = drawn
+    labels = {t.role.split(":", 1)[1]: t.text for t in _texts(drawing, "figure-label:")}
     assert set(labels) == set(report.figures)
     for key, text in labels.items():
         assert text == vocabulary.label(key)
-    for t in _axes_with_gid(fig, "figure-status:"):
-        key = t.get_gid().split(":", 1)[1]
-        assert t.get_text() == vocabulary.STATUS_WORDS[report.figures[key].status]
-    for t in _axes_with_gid(fig, "figure-value:"):
-        f = report.figures[t.get_gid().split(":", 1)[1]]
+    for t in _texts(drawing, "figure-status:"):
+        key = t.role.split(":", 1)[1]
+        assert t.text == vocabulary.STATUS_WORDS[report.figures[key].status]
+        assert (t.style == "italic") == (report.figures[key].status != "measured")
+    for t in _texts(drawing, "figure-value:"):
+        f = report.figures[t.role.split(":", 1)[1]]
         if f.value is None:
-            assert t.get_text() == "—"
+            assert t.text == "—"
             continue
-        assert t.get_text().startswith(vocabulary.STATUS_MARKS.get(f.status, ""))
-        assert t.get_text().endswith(vocabulary.unit_text(f.unit))
+        assert t.text.startswith(vocabulary.STATUS_MARKS.get(f.status, ""))
+        assert t.text.endswith(vocabulary.unit_text(f.unit))
         if f.uncertainty:
-            assert " ± " in t.get_text()
+            assert " ± " in t.text
+    # parts of a figure (horizontal / vertical) are indented under it
+    x = {t.role.split(":", 1)[1]: t.box[0] for t in _texts(drawing, "figure-label:")}
+    assert x["hotspot_angle_horizontal"] > x["hotspot_angle"] + 10
 
 
 def test_legend_names_every_area_and_mark(drawn):
-    _, fig, _ = drawn
-    texts = _legend_texts(fig)
+    _, drawing, _ = drawn
+    texts = _legend_texts(drawing)
     for entry in ("outside the photo", "below the noise floor", "peak", "beam axis (spill centre)",
                   "ring: full cone angle", vocabulary.label("hotspot_angle"), vocabulary.label("field_angle"),
                   vocabulary.label("spill_angle")):
         assert entry in texts, entry
     assert "below the noise floor (3σ of the dark wall)" in texts  # the profile's floor band
+    assert "azimuthal mean" in texts and "10–90 % over azimuth" in texts
+    # every legend entry is also drawn as text
+    drawn_texts = [t.text for t in drawing.texts if t.role in ("legend", "profile-legend")]
+    assert sorted(drawn_texts) == sorted(texts)
 
 
 def test_peak_and_axis_marks_differ_in_shape(drawn):
-    _, fig, _ = drawn
-    handles = {}
-    for ax in fig.axes:
-        leg = ax.get_legend()
-        if leg is not None:
-            handles.update({t.get_text(): h for t, h in zip(leg.get_texts(), leg.legend_handles)})
-    assert handles["peak"].get_marker() != handles["beam axis (spill centre)"].get_marker()
+    _, drawing, _ = drawn
+    handles = {label: style for label, kind, style in drawing.legend if kind == "mark"}
+    assert handles["peak"]["shape"] != handles["beam axis (spill centre)"]["shape"]
+    marks = {kind: shape for kind, shape, _, _ in drawing.marks}
+    assert marks["peak"] != marks["beam axis"]
 
 
 def test_colour_scale_reaches_below_the_spill(drawn):
     # the pattern's own spill (its analytic definition in beamshot.synth), between the field
     # angle and 0.9 of the cut-off, relative to its peak
-    report, fig, _ = drawn
+    report, drawing, _ = drawn
     field_half = report["field_angle"].value / 2.0
     theta = np.radians(np.linspace(1.2 * field_half, 0.9 * PATTERN.cutoff_deg, 200))
     spill_rel = float(np.median(PATTERN(theta, 0.0 * theta))) / PATTERN.peak_cd
-    norm = _map_image(fig).norm
+    vmin, vmax = drawing.values["colour_scale"]
     # the spill sits clearly above the bottom shade: the scale reaches to about half its level
     # (0.6 allows for the map's noise and the analyser's spill estimate)
-    assert norm.vmin / norm.vmax <= 0.6 * spill_rel
-    assert norm.vmin / norm.vmax >= 1e-6  # not so deep that the spill is squeezed into one shade
+    assert vmin / vmax <= 0.6 * spill_rel
+    assert vmin / vmax >= 1e-6  # not so deep that the spill is squeezed into one shade
+    # the colour bar's tick labels name values inside the scale, in increasing order left to right
+    ticks = _texts(drawing, "colour-bar-tick")
+    assert len(ticks) >= 2
+    assert all(vmin <= t.data[0] <= vmax for t in ticks)
+    assert [t.data[0] for t in sorted(ticks, key=lambda t: t.box[0])] == sorted(t.data[0] for t in ticks)
 
 
 def test_profile_shows_a_floor_not_noise_beyond_the_edge(drawn):
-    report, fig, _ = drawn
-    ax = _profile_axes(fig)
-    line = next(ln for ln in ax.get_lines() if ln.get_label() == "azimuthal mean")
-    x, y = (np.asarray(d, float) for d in line.get_data())
+    report, drawing, _ = drawn
+    x, y = (np.asarray(d, float) for d in drawing.values["profile_mean"])
     noise = noise_floor(report.beam, report.contours["edge"], report.profile)
     floor = noise.mean_level
     beyond = x > report["spill_angle"].value + 6.0
@@ -157,7 +155,7 @@ def test_profile_shows_a_floor_not_noise_beyond_the_edge(drawn):
     drawn_beyond = y[beyond][np.isfinite(y[beyond])]
     # nothing drawn out there but the point where the mean meets the floor
     assert np.all(drawn_beyond == pytest.approx(floor, rel=1e-9))
-    assert ax.get_ylim()[0] < floor  # the shaded floor band is in view
+    assert drawing.values["profile_ylim"][0] < floor  # the shaded floor band is in view
     # and inside the spill the mean is drawn as measured
     inside = (x > 1.5 * report["field_angle"].value) & (x < 0.8 * report["spill_angle"].value)
     assert np.all(np.isfinite(y[inside])) and np.all(y[inside] > floor)
@@ -183,10 +181,10 @@ def test_noise_floor_of_a_known_noise():
 
 
 def test_estimate_is_said_on_the_intensity_labels(drawn):
-    report, fig, _ = drawn
+    report, drawing, _ = drawn
     assert report["peak_intensity"].status == "estimate"  # exposure-metadata scale
-    assert _map_image(fig).colorbar.ax.get_xlabel() == "intensity, estimate (cd)"
-    assert _profile_axes(fig).get_ylabel() == "intensity, estimate (cd)"
+    assert drawing.text_of("colour-bar-label") == ["intensity, estimate (cd)"]
+    assert drawing.text_of("profile-ylabel") == ["intensity, estimate (cd)"]
     pk = report["peak_intensity"]
     measured = replace(report, figures={**report.figures, "peak_intensity": Figure(
         pk.value, pk.uncertainty, pk.unit, "lux meter", status="measured")},
@@ -196,80 +194,158 @@ def test_estimate_is_said_on_the_intensity_labels(drawn):
 
 
 def test_title_names_the_light_or_the_photo(drawn):
-    report, fig, _ = drawn
-    title = lambda f: next(t.get_text() for t in _axes_with_gid(f, "title"))  # noqa: E731
-    assert title(fig) == "wall.jpg"
+    report, drawing, _ = drawn
+    assert drawing.text_of("title") == ["wall.jpg"]
     named = replace(report, settings={**report.settings, "light_name": "prototype 2, smooth reflector"})
-    import matplotlib.pyplot as plt
-
-    fig2 = beam_figure(named)
-    try:
-        assert title(fig2) == "prototype 2, smooth reflector"
-    finally:
-        plt.close(fig2)
+    d2 = draw_beam_picture(named).drawing
+    assert d2.text_of("title") == ["prototype 2, smooth reflector"]
+    assert d2.text_of("subtitle") == ["photo wall.jpg · wall at 5 m"]
 
 
 def test_png_is_written_at_the_stated_size(drawn):
-    _, _, path = drawn
+    report, drawing, path = drawn
     assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948)
     with Image.open(path) as im:
         im.verify()
     with Image.open(path) as im:
-        assert im.width == round(FIG_WIDTH_IN * FIG_DPI)
+        assert (im.width, im.height) == (PICTURE_WIDTH_PX, drawing.height)
         assert im.height > im.width  # one column: map, profile, table
+        full = np.asarray(im.convert("RGB"))
+    # the map panel for the page is beam.png's upper part, down to the map's legend
+    _, panel = beam_pictures(report)
+    top = np.asarray(Image.open(io.BytesIO(panel)).convert("RGB"))
+    assert top.shape[1] == PICTURE_WIDTH_PX and 0.3 * full.shape[0] < top.shape[0] < 0.7 * full.shape[0]
+    assert np.array_equal(top, full[: top.shape[0]])
+    legend_bottom = max(t.box[3] for t in drawing.texts if t.role == "legend")
+    profile_top = min(t.box[1] for t in drawing.texts if t.role.startswith("profile"))
+    assert legend_bottom <= top.shape[0] <= profile_top
+
+
+def test_png_encoding_is_lossless():
+    # the PNG writer (beamshot.report.raster.png_pair) against Pillow's PNG decoder: any RGB
+    # array comes back exactly, and the pair's short picture is the long one's first rows
+    from beamshot.report.raster import png_pair
+
+    rgb = np.random.default_rng(3).integers(0, 256, (37, 23, 3), dtype=np.uint8)
+    full, top = png_pair(rgb, 11)
+    assert np.array_equal(np.asarray(Image.open(io.BytesIO(full))), rgb)
+    assert np.array_equal(np.asarray(Image.open(io.BytesIO(top))), rgb[:11])
 
 
 def test_readable_at_phone_width(drawn):
-    # shown 400 px wide, every text is at least MIN_TEXT_PX tall and no two texts overlap
-    _, fig, _ = drawn
-    px_per_pt = PHONE_WIDTH_PX / (FIG_WIDTH_IN * 72.0)
-    texts = _texts(fig)
-    for t in texts:
-        assert t.get_fontsize() * px_per_pt >= MIN_TEXT_PX, t.get_text()
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-
-    canvas = FigureCanvasAgg(fig)  # the saved figure was closed; lay it out again off screen
-    canvas.draw()
-    renderer = canvas.get_renderer()
-    boxes = [(t.get_text(), t.get_window_extent(renderer)) for t in texts]
+    # shown 400 px wide, every text is at least PHONE_MIN_TEXT_PX tall and no two texts overlap
+    _, drawing, _ = drawn
+    shrink = PHONE_WIDTH_PX / PICTURE_WIDTH_PX
+    assert MIN_TEXT_PX * shrink >= PHONE_MIN_TEXT_PX
+    for t in drawing.texts:
+        assert t.size_px * shrink >= PHONE_MIN_TEXT_PX, t.text
+        x0, y0, x1, y1 = t.box
+        assert 0 <= x0 and x1 <= drawing.width and 0 <= y0 and y1 <= drawing.height, t.text  # inside the picture
+    boxes = [(t.text, t.box) for t in drawing.texts]
     for i, (a, ba) in enumerate(boxes):
         for b, bb in boxes[i + 1:]:
-            overlap_w = min(ba.x1, bb.x1) - max(ba.x0, bb.x0)
-            overlap_h = min(ba.y1, bb.y1) - max(ba.y0, bb.y0)
+            overlap_w = min(ba[2], bb[2]) - max(ba[0], bb[0])
+            overlap_h = min(ba[3], bb[3]) - max(ba[1], bb[1])
             assert overlap_w <= 1.0 or overlap_h <= 1.0, (a, b)
+
+
+def _map_box(drawing):
+    """Rows of the map (px): below the title, down to the note in the map's lower corner."""
+    note = next(t for t in drawing.texts if t.role == "map-note")
+    title = next(t for t in drawing.texts if t.role == "title")
+    return int(title.box[3]) + 30, int(note.box[3])
+
+
+def _has_colour(rgb, colour, tol=3):
+    c = np.array([int(colour[i:i + 2], 16) for i in (1, 3, 5)])
+    return int(np.sum(np.all(np.abs(rgb.astype(int) - c) <= tol, axis=-1)))
+
+
+def test_map_pixels_show_the_areas_the_legend_names(drawn):
+    # the hatched 'outside the photo' (grey lines on light grey) and 'below the noise floor' (black)
+    # colours are on the map itself, not only in its legend
+    _, drawing, path = drawn
+    rgb = np.asarray(Image.open(path).convert("RGB"))
+    top, bottom = _map_box(drawing)
+    area = rgb[top:bottom]
+    assert _has_colour(area, "#eeeeee") > 5000 and _has_colour(area, "#9a9a9a") > 1000
+    assert _has_colour(area, _BELOW) > 5000
 
 
 def test_clipped_photo_marks_the_clipped_area():
     report = analyze(_photo(PATTERN, target=4.0, name="clipped.jpg"), distance_m=DISTANCE_M)
     assert report["peak_intensity"].status == "lower_bound"
-    import matplotlib.pyplot as plt
+    pic = draw_beam_picture(report)
+    texts = _legend_texts(pic.drawing)
+    assert texts.count("clipped: not measured") == 2  # map and profile
+    assert "peak" not in texts  # a clipped peak is not marked as found
+    assert "peak" not in [kind for kind, _, _, _ in pic.drawing.marks]
+    assert "outside the photo" in texts
+    # the clipped area's colour is drawn on the map (around its centre, where the clipped cells are)
+    top, bottom = _map_box(pic.drawing)
+    mid = (top + bottom) // 2
+    centre = pic.rgb[mid - 80:mid + 80, PICTURE_WIDTH_PX // 2 - 80:PICTURE_WIDTH_PX // 2 + 80]
+    assert _has_colour(centre, _VERMILLION, tol=10) > 200
 
-    fig = beam_figure(report)
-    try:
-        texts = _legend_texts(fig)
-        assert texts.count("clipped: not measured") == 2  # map and profile
-        assert "peak" not in texts  # a clipped peak is not marked as found
-        assert "outside the photo" in texts
-    finally:
-        plt.close(fig)
 
-
-def test_caution_line_and_no_font_warnings_for_any_file_name(tmp_path):
-    # a photo named in a script the font lacks: the picture is written without a warning reaching
-    # the user, and it carries the safety line (pictures travel without their report)
+@pytest.mark.parametrize("name", ["光束.jpg", "🔦 beam 🔦.jpg", "prototype " + "x" * 290 + ".jpg"])
+def test_caution_line_and_no_warnings_for_any_file_name(tmp_path, name):
+    # a photo named in a script the font lacks, with emoji, or 300 characters long: the picture is
+    # written without a warning reaching the user, the title stays inside the picture, and it
+    # carries the safety line (pictures travel without their report)
     import warnings
 
-    from beamshot.analysis import analyze
-    from beamshot.report.plots import CAUTION_LINE, beam_figure
-
     pattern = HotspotSpillBeam(peak_cd=8000.0, hotspot_fwhm_deg=8.0, spill_fraction=0.02, cutoff_deg=30.0)
-    rep = analyze(_photo(pattern, name="光束.jpg"), distance_m=5.0)
+    rep = analyze(_photo(pattern, name=name), distance_m=5.0)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        fig = beam_figure(rep)
-        beam_figure(rep, tmp_path / "beam.png")
-    assert not [w for w in caught if "Glyph" in str(w.message)]
-    assert CAUTION_LINE in [t.get_text() for t in fig.texts]
+        pic = write_beam_picture(rep, tmp_path / "beam.png")
+    assert not caught, [str(w.message) for w in caught]
+    assert pic.drawing.text_of("caution") == [CAUTION_LINE]
+    title = next(t for t in pic.drawing.texts if t.role == "title")
+    assert 0 <= title.box[0] and title.box[2] <= PICTURE_WIDTH_PX
+    assert title.size_px >= MIN_TEXT_PX
+    if len(name) < 60:
+        assert title.text == name
+
+
+def test_colour_table_is_matplotlibs_cividis():
+    # the stored table against matplotlib's own (cividis: Nuñez, Anderton and Renslow 2018), to
+    # the 8-bit rounding of the stored entries
+    import matplotlib
+
+    from beamshot.report.colour_table import CIVIDIS_RGB
+
+    ref = matplotlib.colormaps["cividis"].resampled(256)(np.arange(256))[:, :3] * 255.0
+    assert CIVIDIS_RGB.shape == (256, 3)
+    assert np.max(np.abs(CIVIDIS_RGB - ref)) <= 0.5 + 1e-9
+
+
+def test_report_set_is_written_without_matplotlib(tmp_path):
+    # a plain analysis (no --colour) writes beam.png and the page without importing matplotlib
+    code = f"""
+import sys
+sys.path.insert(0, {str(Path(__file__).parent)!r})
+from test_plots import PATTERN, _photo
+from beamshot import analyze
+from beamshot.report.output import write_report
+names = write_report(analyze(_photo(PATTERN), distance_m=5.0), {str(tmp_path / "out")!r})
+assert any(n.endswith("beam.png") for n in names) and any(n.endswith("report.html") for n in names), names
+assert "matplotlib" not in sys.modules, sorted(m for m in sys.modules if m.startswith("matplotlib"))[:5]
+"""
+    run = subprocess.run([sys.executable, "-c", code], check=False, capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stderr[-2000:]
+
+
+def test_log_ticks_on_the_colour_bar():
+    # decades on long scales, 1-2-5 on scales under two decades (the preferred-number series of
+    # common practice); every tick inside the range
+    from beamshot.report.raster_chart import linear_ticks, log_ticks
+
+    assert [v for v, _ in log_ticks(0.5, 2e4)] == pytest.approx([1.0, 10.0, 100.0, 1e3, 1e4])
+    assert [t for _, t in log_ticks(3.0, 60.0, short_scales=True)] == ["5", "10", "20", "50"]
+    assert log_ticks(0.0, 1.0) == [] and log_ticks(2.0, 1.0) == []
+    assert linear_ticks(0.0, 97.0) == pytest.approx([0.0, 20.0, 40.0, 60.0, 80.0])
 
 
 def test_log_ticks_are_plain_decades():
@@ -292,3 +368,36 @@ def test_short_log_scales_get_plain_1_2_5_ticks():
             v = m * 10.0 ** e
             assert float(_tick_text(v).replace(",", "")) == pytest.approx(v, rel=1e-12)
     assert _tick_text(3.0) == "" and _tick_text(700.0) == "" and _tick_text(-1.0) == ""
+
+
+def test_drawn_grid_matches_the_exact_resampling(drawn):
+    # the picture's fast grid (OpenCV remap and nearest-label fill) against the exact one the
+    # comparison maps use (scipy's map_coordinates and distance transform): same cells shown, values
+    # within the 1/32-cell weight steps of the fast bilinear interpolation (common practice: judged
+    # against the colour table's 256 steps over several decades)
+    from beamshot.report.map_panel import picture_grid
+    from beamshot.report.plots import _azimuthal_grid
+
+    report, _, _ = drawn
+    for half, n in ((60.0, 401), (8.0, 241)):
+        a1, exact = _azimuthal_grid(report.beam, half, n)
+        a2, fast = picture_grid(report.beam, half, n)
+        assert np.array_equal(a1, a2)
+        assert np.array_equal(np.isfinite(exact), np.isfinite(fast))
+        both = np.isfinite(exact)
+        peak = np.nanmax(exact)
+        assert np.max(np.abs(fast[both] - exact[both])) <= 0.01 * peak
+        assert np.percentile(np.abs(fast[both] - exact[both]), 99) <= 0.001 * peak
+
+
+def test_relative_scale_is_drawn_relative_to_the_peak():
+    # without an absolute scale the map and the profile are divided by their peak: the colour
+    # scale ends at 1 and the labels say 'relative to peak'
+    report = analyze(_photo(PATTERN, name="relative.jpg"), distance_m=DISTANCE_M, use_exif_scale=False)
+    assert report.beam.unit != "cd"
+    drawing = draw_beam_picture(report).drawing
+    assert drawing.text_of("colour-bar-label") == ["intensity (relative to peak)"]
+    assert drawing.text_of("profile-ylabel") == ["intensity (relative to peak)"]
+    assert drawing.values["colour_scale"][1] == pytest.approx(1.0, rel=1e-12)
+    _, y = drawing.values["profile_mean"]
+    assert np.nanmax(y) == pytest.approx(1.0, rel=1e-12)

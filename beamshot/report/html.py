@@ -13,7 +13,6 @@ says what the JSON says.  The frame (escaping, CSS, no requests) is :mod:`.html_
 
 from __future__ import annotations
 
-import io
 import json
 
 import numpy as np
@@ -197,40 +196,12 @@ def _short(x) -> str:
 # ------------------------------------------------------------------------------- pictures
 
 def _map_png(report) -> bytes:
-    """The intensity map drawn on its own (beamshot.report.plots), for a page written without beam.png's
-    drawing at hand; :func:`beamshot.report.output.write_report` passes the map panel of beam.png instead."""
-    import warnings
+    """The map panel of beam.png (title, map, colour bar and legend, :mod:`beamshot.report.beam_picture`),
+    for a page written without beam.png's drawing at hand; :func:`beamshot.report.output.write_report`
+    passes the panel it drew for beam.png instead."""
+    from .beam_picture import beam_pictures
 
-    import matplotlib
-
-    from .plots import intensity_label, noise_floor, plot_intensity_map
-
-    matplotlib.use("Agg", force=False)  # no display needed (as beamshot.report.plots does)
-    import matplotlib.pyplot as plt
-
-    beam = report.beam
-    W = MAP_WIDTH_IN
-    side, cbar, cbar_lab, legend = W - 0.6, 0.16, 0.6, 1.0
-    H = 0.2 + side + 0.1 + cbar + cbar_lab + legend
-    fig = plt.figure(figsize=(W, H), dpi=MAP_DPI)
-
-    def box(left, top, width, height):
-        return [left / W, 1 - (top + height) / H, width / W, height / H]
-
-    ax = fig.add_axes(box(0.3, 0.2, side, side))
-    ax_cb = fig.add_axes(box(0.3, 0.3 + side, side, cbar))
-    ax_leg = fig.add_axes(box(0.1, 0.3 + side + cbar + cbar_lab, W - 0.2, legend))
-    unit = "cd" if beam.unit == "cd" else "relative"
-    label = intensity_label(report, unit)
-    noise = noise_floor(beam, (report.contours or {}).get("edge"), report.profile)
-    plot_intensity_map(beam, report.contours, ax=ax, noise=noise, label=label, cbar_ax=ax_cb, legend_ax=ax_leg,
-                       fontsize=10.0)
-    buf = io.BytesIO()
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", message="Glyph .* missing from font")
-        fig.savefig(buf, format="png", dpi=MAP_DPI, pil_kwargs={"compress_level": 6})
-    plt.close(fig)
-    return buf.getvalue()
+    return beam_pictures(report)[1]
 
 
 def _profiles_svg(report, figures: dict) -> str:

@@ -303,7 +303,7 @@ def _sigterm_as_exception():
 def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[str]:
     """Write all report files into ``out_dir`` as one set, replacing an older set whole; returns
     their paths.  Refuses (:class:`BeamshotError`) a folder holding files beamshot did not write."""
-    from . import plots
+    from . import beam_picture
     from .html import HTML_FILE, write_report_html
     from .intensity_map import MAP_FILE, write_intensity_map
 
@@ -313,7 +313,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
         write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
         map_png = None
         if picture:  # one drawing: beam.png, and its map panel for the page
-            png, map_png = plots.beam_pictures(report)
+            png, map_png = beam_picture.beam_pictures(report)
             with open(os.path.join(tmp, "beam.png"), "wb") as fh:
                 fh.write(png)
         tint_png = None

@@ -1,12 +1,10 @@
-"""Pictures of a beam: the intensity map, the radial profile and the table of figures.
+"""The intensity map drawn with matplotlib (for tint.png and other matplotlib pictures), and the
+data and text helpers that every beam picture shares: noise floor, colour-scale floor, the
+azimuthal-equidistant grid, percentiles over azimuth, tick texts and the figures' value texts.
 
-``beam_figure`` composes the report picture (beam.png) in one column, so that it reads on a
-phone (about 400 px wide) as well as on a desktop: the map with rings labelled as full cone
-angles, the radial profile against the full cone angle with the dark wall's noise floor drawn
-as a floor, and the figures with their status in words from :mod:`beamshot.vocabulary`.
-
-Each helper takes ``ax=None`` (a new figure is made), imports matplotlib lazily with the
-non-interactive Agg backend, labels its axes with units and returns the main artist.
+beam.png itself is drawn without matplotlib by :mod:`beamshot.report.beam_picture`; this module's
+top level imports no matplotlib either (it is imported lazily, with the Agg backend, by
+:func:`plot_intensity_map` and :func:`_pyplot`).
 
 Conventions: map coordinates are azimuthal-equidistant angles from the beam axis in degrees
 (right and up positive); every angle written on the picture is a full cone angle (twice the
@@ -28,8 +26,8 @@ from ..beammap import BeamMap, directions
 from ..figure import value_with_uncertainty
 from ..hotspot import local_basis
 
-__all__ = ["NoiseFloor", "noise_floor", "map_floor", "plot_intensity_map", "plot_radial_profile",
-           "plot_figure_table", "beam_figure", "TABLE_KEYS"]
+__all__ = ["NoiseFloor", "noise_floor", "map_floor", "plot_intensity_map", "figure_value_text", "intensity_label",
+           "row_percentiles", "CAUTION_LINE", "TABLE_KEYS"]
 
 #: Sigmas above the dark wall's median for a value to count as detected (k = 3, IUPAC, from memory).
 DETECTION_SIGMAS = 3.0
@@ -60,14 +58,9 @@ TABLE_KEYS = (
     "spill_flux", "beam_flux", "ra", "hotspot_offset", "light_tilt",
 )
 
-#: Figure size (in) and resolution: one column 6 in wide, so that 10-11 pt text is still
-#: 9-10 px tall when the picture is shown 400 px wide (a phone); 1020 px wide on a desktop.
+#: Size (in) of a map drawn on its own by :func:`plot_intensity_map`, and its text size (pt).
 FIG_WIDTH_IN = 6.0
-FIG_DPI = 170
 FONT_PT = 11.0
-#: zlib level of beam.png (lossless at any level): 3 writes it in about half the time of the
-#: default 6 for a file about 5 % larger (measured on the report picture; speed choice).
-PNG_COMPRESS_LEVEL = 3
 #: Iso-intensity lines drawn on the map, as fractions of the peak (beside the 50 % and 10 % contours).
 ISO_LEVELS = (0.01, 0.001)
 
@@ -525,78 +518,6 @@ def row_percentiles(v: np.ndarray, q) -> np.ndarray:
     return out
 
 
-def plot_radial_profile(profile, figures: dict, *, ax=None, beam: BeamMap | None = None,
-                        noise: NoiseFloor | None = None, label: str = "intensity (cd)",
-                        fontsize: float = FONT_PT):
-    """Azimuthal mean intensity (log scale) against the full cone angle, with the figure marks.
-
-    The band is the 10-90 % spread over azimuth (from ``beam``), drawn where the mean is
-    detected.  With ``noise``, values below the azimuthal mean's detection level are drawn at
-    that level, over a shaded band labelled as the noise floor, instead of as noise.
-    Relative profiles (``label`` mentioning 'relative') are divided by their peak.
-    """
-    plt = _pyplot()
-    if ax is None:
-        _, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 3.4))
-    ok = np.isfinite(profile.mean)
-    full = 2.0 * np.asarray(profile.theta_deg)[ok]
-    mean = np.asarray(profile.mean)[ok]
-    top = float(np.nanmax(mean)) if mean.size else 1.0
-    factor = 1.0 / top if "relative" in label and top > 0 else 1.0
-    mean = mean * factor
-    top *= factor
-    floor = noise.mean_level * factor if noise is not None and noise.mean_level > 0 else None
-    bottom = floor / 3.0 if floor is not None else top * 10 ** (-DEFAULT_DECADES - 1)
-    bottom = max(bottom, top * 10 ** (-MAX_DECADES))
-    detected = mean > (floor if floor is not None else bottom)
-    if beam is not None:
-        lo, hi = _azimuth_percentiles(beam)[:, ok] * factor
-        band = detected & np.isfinite(lo) & np.isfinite(hi)
-        ax.fill_between(full, np.maximum(lo, bottom), np.maximum(hi, bottom), where=band, color=_BLUE,
-                        alpha=0.22, lw=0, label="10–90 % over azimuth")
-    if beam is not None and np.any(beam.saturated):
-        # polar angles with clipped cells: the profile there is only a lower bound
-        reach = 2.0 * float(np.degrees(np.max(np.asarray(beam.theta)[np.any(beam.saturated, axis=1)]) + beam.d_theta / 2))
-        import matplotlib as mpl
-
-        with mpl.rc_context({"hatch.color": _VERMILLION, "hatch.linewidth": 1.0}):
-            ax.axvspan(0.0, reach, facecolor="none", edgecolor=_VERMILLION, hatch="xx", lw=0.0,
-                       label="clipped: not measured")
-    # the mean is drawn where it is detected, down to the floor where it sinks below it
-    level = floor if floor is not None else bottom
-    shown = np.where(detected, mean, np.nan)
-    sinks = np.flatnonzero(~detected[1:] & detected[:-1]) + 1
-    shown[sinks] = level
-    spill = figures.get("spill_angle")
-    if spill is not None and spill.value is not None:
-        # past the spill edge the mean ends where it first sinks into the floor: what rises above it
-        # further out (a few cells in the photo's corners) is noise, not beam
-        past = np.flatnonzero((full > spill.value) & ~detected)
-        if past.size:
-            shown[past[0] + 1:] = np.nan
-    (line,) = ax.plot(full, shown, color=_BLUE, lw=1.8, label="azimuthal mean")
-    if floor is not None:
-        ax.axhspan(bottom * 1e-3, floor, color="#555555", alpha=0.28, lw=0,
-                   label="below the noise floor (3σ of the dark wall)")
-    # the same line styles as on the map
-    marks = (("hotspot_angle", dict(color="black", ls="-", lw=1.4)), ("field_angle", dict(color="black", ls="--", lw=1.3)),
-             ("spill_angle", _edge_style()))
-    for key, style in marks:
-        f = figures.get(key)
-        if f is not None and f.value is not None:
-            ax.axvline(f.value, label=vocabulary.label(key), **style)
-    ax.set_yscale("log")
-    _plain_log_ticks(ax.yaxis)
-    ax.set_ylim(bottom, top * 2.0)
-    ax.set_xlim(0, full.max() if full.size else 1)
-    ax.set_xlabel("full cone angle (°), twice the angle from the axis", fontsize=fontsize)
-    ax.set_ylabel(label, fontsize=fontsize)
-    ax.tick_params(labelsize=fontsize * 0.9)
-    ax.grid(True, which="major", alpha=0.3)
-    ax.legend(fontsize=fontsize * 0.8, loc="best", framealpha=0.9, handlelength=2.2, labelspacing=0.3)
-    return line
-
-
 def _decade_text(v: float, pos=None) -> str:
     """A decade tick as plain text ("0.01", "100", "10,000", "1e7"): no math typesetting, which
     costs more than the rest of the profile panel to lay out."""
@@ -662,43 +583,6 @@ def figure_value_text(fig) -> str:
     return f"{mark}{_number(fig.value)}{sep}{unit}"
 
 
-def plot_figure_table(figures: dict, *, ax=None, fontsize: float = FONT_PT):
-    """The key figures as a text table: label, value ± uncertainty unit, status in words.
-
-    Labels, units and status words come from :mod:`beamshot.vocabulary`; each label's text
-    artist carries ``gid='figure-label:<key>'``.  Returns the list of label artists.
-    """
-    plt = _pyplot()
-    if ax is None:
-        _, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 3.6))
-    ax.axis("off")
-    keys = [k for k in TABLE_KEYS if k in figures] + [k for k in figures if k not in TABLE_KEYS]
-    n = len(keys) + 1
-    y = lambda i: 1.0 - (i + 0.5) / n  # noqa: E731  (row centres, top to bottom)
-    head = dict(fontsize=fontsize * 0.9, color="#444444", va="center", weight="bold")
-    ax.text(0.0, y(0), "figure", ha="left", transform=ax.transAxes, **head)
-    ax.text(0.70, y(0), "value ± 1σ", ha="right", transform=ax.transAxes, **head)
-    ax.text(0.74, y(0), "status", ha="left", transform=ax.transAxes, **head)
-    labels = []
-    for i, key in enumerate(keys, start=1):
-        f = figures[key]
-        part = vocabulary.term(key).part_of is not None
-        grey = f.status == "not_measured"
-        colour = "#8a8a8a" if grey else "black"
-        if i % 2 == 0:
-            ax.axhspan(y(i) - 0.5 / n, y(i) + 0.5 / n, color="#f0f0f0", lw=0, zorder=0)
-        labels.append(ax.text(0.04 if part else 0.0, y(i), vocabulary.label(key), ha="left", va="center",
-                              fontsize=fontsize * (0.9 if part else 1.0), color=colour, transform=ax.transAxes,
-                              gid=f"figure-label:{key}"))
-        ax.text(0.70, y(i), figure_value_text(f), ha="right", va="center", fontsize=fontsize * (0.9 if part else 1.0),
-                color=colour, transform=ax.transAxes, gid=f"figure-value:{key}")
-        ax.text(0.74, y(i), vocabulary.STATUS_WORDS.get(f.status, f.status), ha="left", va="center",
-                fontsize=fontsize * 0.9, color=colour, style="italic" if f.status != "measured" else "normal",
-                transform=ax.transAxes, gid=f"figure-status:{key}")
-    ax.set_ylim(0, 1)
-    return labels
-
-
 # ----------------------------------------------------------------------------- the report picture
 def _title(report) -> tuple[str, str]:
     beams = [i["name"] for i in report.inputs if i.get("role") == "beam"]
@@ -714,89 +598,3 @@ def _title(report) -> tuple[str, str]:
 
 #: The safety line at the foot of every picture (pictures are shared without their report).
 CAUTION_LINE = "Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft."
-
-
-def beam_pictures(report) -> tuple[bytes, bytes]:
-    """beam.png's bytes, and its upper part (title, map, colour bar and legend) for the HTML page,
-    from one drawing of :func:`beam_figure`; PNG at ``FIG_DPI``, RGB."""
-    import warnings
-
-    plt = _pyplot()
-    fig = beam_figure(report)
-    try:
-        with warnings.catch_warnings():
-            warnings.filterwarnings("ignore", message="Glyph .* missing from font")
-            fig.canvas.draw()
-        rgb = np.asarray(fig.canvas.buffer_rgba())[..., :3]
-        renderer = fig.canvas.get_renderer()
-        legend_ax = next(a for a in fig.axes if a.get_label() == "legend")
-        bottoms = [legend_ax.get_window_extent(renderer).y0]
-        if legend_ax.get_legend() is not None:
-            bottoms.append(legend_ax.get_legend().get_window_extent(renderer).y0)
-        cut = int(np.clip(rgb.shape[0] - min(bottoms) - 2, 1, rgb.shape[0]))  # above the profile panel's frame
-        return _png_bytes(rgb), _png_bytes(rgb[:cut])
-    finally:
-        plt.close(fig)
-
-
-def _png_bytes(rgb: np.ndarray) -> bytes:
-    import cv2
-
-    ok, data = cv2.imencode(".png", cv2.cvtColor(np.ascontiguousarray(rgb), cv2.COLOR_RGB2BGR),
-                            [cv2.IMWRITE_PNG_COMPRESSION, PNG_COMPRESS_LEVEL])
-    if not ok:  # pragma: no cover - OpenCV encodes any 8-bit RGB array
-        raise RuntimeError("PNG encoding failed")
-    return data.tobytes()
-
-
-def beam_figure(report, path=None):
-    """The report picture in one column: title, map, colour bar, legend, radial profile, figures table.
-
-    ``FIG_WIDTH_IN`` wide at ``FIG_DPI`` (about 1000 px), readable when shown 400 px wide.
-    Returns the matplotlib figure (closed after saving when ``path`` is given).
-    """
-    plt = _pyplot()
-    W = FIG_WIDTH_IN
-    n_rows = len(report.figures) + 1
-    # panel heights from the top, inches: title, map, colour bar + label, legend, profile, table
-    title_h, map_side, cbar_h, cbar_lab, legend_h = 0.85, W - 1.0, 0.17, 0.62, 1.25
-    prof_h, prof_lab, table_h = 2.9, 0.75, 0.3 * n_rows
-    H = title_h + map_side + 0.12 + cbar_h + cbar_lab + legend_h + prof_h + prof_lab + table_h + 0.4
-    fig = plt.figure(figsize=(W, H), dpi=FIG_DPI)
-
-    def box(left, top, width, height):  # inches from the top-left corner -> figure fraction
-        return [left / W, 1 - (top + height) / H, width / W, height / H]
-
-    y = title_h
-    ax_map = fig.add_axes(box(0.5, y, map_side, map_side))
-    y += map_side + 0.12
-    ax_cb = fig.add_axes(box(0.5, y, map_side, cbar_h))
-    y += cbar_h + cbar_lab
-    ax_leg = fig.add_axes(box(0.2, y, W - 0.4, legend_h), label="legend")
-    y += legend_h
-    ax_prof = fig.add_axes(box(0.95, y, W - 1.15, prof_h))
-    y += prof_h + prof_lab
-    ax_tab = fig.add_axes(box(0.2, y, W - 0.35, table_h))
-
-    unit = "cd" if report.beam.unit == "cd" else "relative"
-    label = intensity_label(report, unit)
-    noise = noise_floor(report.beam, (report.contours or {}).get("edge"), report.profile)
-    plot_intensity_map(report.beam, report.contours, ax=ax_map, noise=noise, label=label, cbar_ax=ax_cb,
-                       legend_ax=ax_leg)
-    plot_radial_profile(report.profile, report.figures, ax=ax_prof, beam=report.beam, noise=noise, label=label)
-    plot_figure_table(report.figures, ax=ax_tab)
-    title, sub = _title(report)
-    fig.text(0.5, 1 - 0.32 / H, title, ha="center", va="center", fontsize=FONT_PT * 1.3, weight="bold", gid="title")
-    if sub:
-        fig.text(0.5, 1 - 0.64 / H, sub, ha="center", va="center", fontsize=FONT_PT * 0.9, color="#444444")
-    fig.text(0.5, 0.06 / H, CAUTION_LINE, ha="center", va="bottom", fontsize=FONT_PT * 0.7, color="#444444",
-             gid="caution")
-    if path is not None:
-        import warnings
-
-        with warnings.catch_warnings():
-            # a title in a script the font lacks (a CJK file name) is drawn with boxes, not a warning
-            warnings.filterwarnings("ignore", message="Glyph .* missing from font")
-            fig.savefig(path, dpi=FIG_DPI, pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
-        plt.close(fig)
-    return fig
