@@ -160,7 +160,7 @@ def test_light_pose_fit_recovers_an_exact_cone():
     assert pose.foot_mm == pytest.approx((120.0, -80.0), abs=1e-3)
 
 
-def test_an_analysis_imports_no_scipy():
+def test_an_analysis_and_its_report_set_import_no_scipy():
     # the speed of a whole `beamshot analyze` process depends on it (benchmarks/bench_analysis.py)
     code = (
         "import sys\n"
@@ -176,7 +176,8 @@ def test_an_analysis_imports_no_scipy():
         "for m in [m for m in sys.modules if m.startswith('scipy')]:\n"
         "    del sys.modules[m]\n"
         "from beamshot import analyze\n"
-        "analyze(path, distance_m=3.0)\n"
+        "from beamshot.report.output import write_report\n"
+        "write_report(analyze(path, distance_m=3.0), os.path.join(os.path.dirname(path), 'out'))\n"
         "print(sorted(m for m in sys.modules if m.startswith('scipy')))\n"
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
