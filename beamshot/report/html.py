@@ -365,13 +365,14 @@ def cautions_section(cautions) -> str:
 
 # ------------------------------------------------------------------------------- the page
 
-def report_html(report, *, picture: bool = True, map_png: bytes | None = None, tint_png: bytes | None = None) -> str:
+def report_html(report, *, picture: bool = True, map_png: bytes | None = None, tint_png: bytes | None = None,
+                data: dict | None = None) -> str:
     """The whole report page as text.  With ``picture=False`` no map or profile is drawn (says so);
     ``map_png``, the map panel already drawn for beam.png (:func:`beamshot.report.plots.beam_pictures`),
-    saves drawing it again."""
+    saves drawing it again; ``data``, ``report.to_dict()`` when the caller has it already."""
     from .model import CAUTIONS
 
-    d = report.to_dict()
+    d = report.to_dict() if data is None else data
     s = d.get("settings", {})
     beams = [i.get("name", "") for i in d.get("inputs", []) if i.get("role") == "beam"]
     name = s.get("light_name")
@@ -390,6 +391,6 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None, t
 
 
 def write_report_html(report, path, *, picture: bool = True, map_png: bytes | None = None,
-                      tint_png: bytes | None = None) -> None:
+                      tint_png: bytes | None = None, data: dict | None = None) -> None:
     """Write :func:`report_html` to ``path`` (UTF-8)."""
-    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png, tint_png=tint_png))
+    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png, tint_png=tint_png, data=data))
