@@ -404,7 +404,8 @@ def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured"
     ratio_delta = getattr(unc, "ratio_delta", 0.0)
     return shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
                          correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
-                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed").figures
+                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed",
+                         bent=getattr(getattr(unc, "budget", None), "tone_bent", None)).figures
 
 
 # ---- stage 9: colour across the beam (beamshot.colour) -------------------------------------------

@@ -140,7 +140,7 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
 
 def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: float = 0.0,
                   correlation_deg: float = 0.0, tone_eps: float = 0.0, tone_assumed: bool = False,
-                  seed: int = 0) -> ShapeResult:
+                  seed: int = 0, bent=None) -> ShapeResult:
     """Every shape figure of a measured beam (``shape``: :class:`beamshot.measure.BeamShape`).
 
     ``pixel_deg`` is the angular size of a working pixel (for the noise of means), ``scale_u`` the
@@ -149,7 +149,9 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     ``tone_eps`` is the 1-sigma tone-curve (gamma) error of the linearisation, as in
     :func:`beamshot.uncertainty.tone_bent`: the figures are measured again on the map bent by it,
     and the change is each figure's "tone curve" term; with ``tone_assumed`` (an assumed curve) a
-    figure whose variance is mostly that term is an ``estimate``.
+    figure whose variance is mostly that term is an ``estimate``.  ``bent`` may hold that bent map
+    and its shape already measured (:class:`beamshot.uncertainty.ToneBent`, from the uncertainty
+    budget's tone term); it is used only if it is the bend of this ``beam`` by ``tone_eps``.
     """
     result = _shape_once(beam, shape, pixel_deg, scale_u, correlation_deg, seed)
     if not tone_eps:
@@ -157,9 +159,13 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     from .measure import measure_shape
     from .uncertainty import tone_bent
 
-    bent_map = tone_bent(beam, shape.peak.value, tone_eps)
-    bent = _shape_once(bent_map, measure_shape(bent_map, boundary_noise=False), pixel_deg, scale_u,
-                       correlation_deg, seed, with_rings=False).figures
+    bent = bent.of(beam, shape.peak.value, tone_eps) if bent is not None else None
+    if bent is not None:
+        bent_map, bent_shape = bent.map, bent.shape
+    else:
+        bent_map = tone_bent(beam, shape.peak.value, tone_eps)
+        bent_shape = measure_shape(bent_map, boundary_noise=False)
+    bent = _shape_once(bent_map, bent_shape, pixel_deg, scale_u, correlation_deg, seed, with_rings=False).figures
     # rings, without fitting them again: a ring multiplies the profile, (1 + a g), and the bend raises
     # that factor to the power 1 + eps: the amplitude becomes (1 + a)^(1 + eps) - 1, the location and
     # (for small a) the width stay
