@@ -134,8 +134,12 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     full_xy = mapping.wall_to_image(wall)
     b = image.bin_factor
     work = (full_xy - (b - 1) / 2.0) / b
-    mx = np.nan_to_num(work[..., 0], nan=-10.0).astype(np.float32)  # NaN: ray misses the wall
-    my = np.nan_to_num(work[..., 1], nan=-10.0).astype(np.float32)
+    # NaN: the ray misses the wall (as np.nan_to_num(nan=-10.0) then float32: its +-1.8e308 for an
+    # infinite coordinate is +-inf in float32 as well)
+    mx = work[..., 0].astype(np.float32)
+    my = work[..., 1].astype(np.float32)
+    mx[np.isnan(mx)] = -10.0
+    my[np.isnan(my)] = -10.0
     lum = cv2.remap(image.luminance, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT,
                     borderValue=float("nan"))
     sat = cv2.remap(image.saturated.view(np.uint8), mx, my, cv2.INTER_NEAREST,

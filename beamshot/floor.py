@@ -231,7 +231,7 @@ def remove_floor(beam: BeamMap, floor: BlackFloor, *, gain: np.ndarray | None = 
     g = wall_gain(beam) if gain is None else gain
     m = _smooth_map(beam.intensity / g, beam)
     bias = np.clip(m - unclipped_mean(m, floor.sigma), 0.0, 2.0 * floor.level)
-    bias = np.nan_to_num(bias, nan=0.0)
+    bias[np.isnan(bias)] = 0.0  # np.nan_to_num's NaN -> 0 (clipped: nothing infinite is left)
     return replace(beam, intensity=beam.intensity - bias * g)
 
 
