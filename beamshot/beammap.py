@@ -62,7 +62,7 @@ class BeamMap:
 
     def cell_solid_angles(self) -> np.ndarray:
         """Solid angle (sr) of each cell, shape ``(n_theta, 1)`` (broadcasts over phi)."""
-        edges = np.r_[self.theta - self.d_theta / 2, self.theta[-1] + self.d_theta / 2]
+        edges = np.append(self.theta - self.d_theta / 2, self.theta[-1] + self.d_theta / 2)
         edges[0] = max(edges[0], 0.0)
         return polar_cell_solid_angles(edges, len(self.phi))[:, None]
 

@@ -63,7 +63,7 @@ def noise_model(beam: BeamMap, pixel_deg: float = 0.0) -> NoiseModel:
         return NoiseModel(0.0, 0.0)
     x, y = level[ok], var[ok]
     # least squares for (a, b) with a, b >= 0 (a negative part of a variance has no meaning)
-    A = np.c_[np.ones_like(x), np.maximum(x, 0.0)]
+    A = np.stack([np.ones_like(x), np.maximum(x, 0.0)], axis=1)
     (a, b), *_ = np.linalg.lstsq(A, y, rcond=None)
     if b < 0:
         a, b = float(np.median(y)), 0.0

@@ -113,8 +113,8 @@ class SpillEdge:
 
     def at(self, phi: np.ndarray) -> np.ndarray:
         """Edge angle (rad) interpolated periodically at azimuths ``phi`` (rad)."""
-        p = np.r_[self.phi - 2 * np.pi, self.phi, self.phi + 2 * np.pi]
-        t = np.r_[self.theta, self.theta, self.theta]
+        p = np.concatenate([self.phi - 2 * np.pi, self.phi, self.phi + 2 * np.pi])
+        t = np.concatenate([self.theta, self.theta, self.theta])
         return np.interp(np.mod(phi, 2 * np.pi), p, t)
 
 
