@@ -12,9 +12,9 @@ Conversion from the wall (light square to the wall, axis at the wall foot point)
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, field, replace
 from functools import cached_property
-import threading
 
 import cv2
 import numpy as np

@@ -123,7 +123,7 @@ class Budget:
     terms: tuple[Term, ...]
     #: The tone term's bent map and its shape (:class:`ToneBent`), for the shape stage, which
     #: measures the same bent map again (beamshot.artefacts.shape_figures); None without a tone term.
-    tone_bent: "ToneBent | None" = field(default=None, repr=False, compare=False)
+    tone_bent: ToneBent | None = field(default=None, repr=False, compare=False)
 
     def sigma(self, key: str) -> float:
         return float(np.sqrt(sum(t.deltas.get(key, 0.0) ** 2 for t in self.terms)))
@@ -405,7 +405,7 @@ class ToneBent:
     map: BeamMap
     shape: object
 
-    def of(self, beam: BeamMap, peak_value: float, eps: float) -> "ToneBent | None":
+    def of(self, beam: BeamMap, peak_value: float, eps: float) -> ToneBent | None:
         """This, if it is the bend of ``beam`` about ``peak_value`` by ``eps`` (else None)."""
         return self if (beam is self.source and peak_value == self.peak_value and eps == self.eps) else None
 

@@ -309,7 +309,7 @@ def test_shape_stage_with_the_budgets_bent_map_equals_bending_again():
     photo, _ = _photo(Scene(distance_m=5.0))
     measured, _ = _measured_of(photo, distance_m=5.0)
     eps = 0.075
-    kw = dict(pixel_deg=0.05, scale_u=0.01, correlation_deg=0.2, tone_eps=eps, tone_assumed=True)
+    kw = {"pixel_deg": 0.05, "scale_u": 0.01, "correlation_deg": 0.2, "tone_eps": eps, "tone_assumed": True}
     own = shape_figures(measured.beam, measured.shape, **kw)
     bent = _tone_bent_shape(measured, eps)
     assert shape_figures(measured.beam, measured.shape, bent=bent, **kw) == own
@@ -320,8 +320,7 @@ def test_shape_stage_with_the_budgets_bent_map_equals_bending_again():
 def test_maps_built_again_from_kept_geometry_and_weights_equal_fresh_ones():
     # a map rebuilt on the same view reuses the sampling geometry (beammap) and the floor's smoothed
     # weights (floor); reference: the same map with nothing kept
-    import beamshot.beammap as beammap
-    import beamshot.floor as floor
+    from beamshot import beammap, floor
     from beamshot.uncertainty import with_luminance
 
     photo, _ = _photo(Scene(distance_m=5.0))
