@@ -86,17 +86,28 @@ def analyze(photo, *, distance_m: float, distance_uncertainty_m: float | None = 
         lux_point_px=lux_point_px), colour=colour)
 
 
+#: Stages run with BLAS on one thread (beamshot.threads.one_blas_thread): their small matrix products
+#: give the same numbers on any number of threads, and spare threads only spin.
+ONE_BLAS_THREAD_STAGES = ("wall mapping", "beam map", "scale", "uncertainty", "figures", "shape", "colour")
+
+
 class _StageClock:
-    """Wall-clock seconds spent in each named stage."""
+    """Wall-clock seconds spent in each named stage (and BLAS on one thread where it gains nothing)."""
 
     def __init__(self):
         self.seconds: dict[str, float] = {}
 
     @contextmanager
     def __call__(self, name: str):
+        from .threads import one_blas_thread
+
         t0 = time.perf_counter()
         try:
-            yield
+            if name in ONE_BLAS_THREAD_STAGES:
+                with one_blas_thread():
+                    yield
+            else:
+                yield
         finally:
             self.seconds[name] = round(time.perf_counter() - t0, 4)
 
@@ -404,7 +415,8 @@ def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured"
     ratio_delta = getattr(unc, "ratio_delta", 0.0)
     return shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
                          correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
-                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed").figures
+                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed",
+                         bent=getattr(getattr(unc, "budget", None), "tone_bent", None)).figures
 
 
 # ---- stage 9: colour across the beam (beamshot.colour) -------------------------------------------

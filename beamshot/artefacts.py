@@ -72,7 +72,7 @@ def ellipse_of_points(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float
     ellipse fitted to the points (OpenCV fitEllipse: least-squares conic, Fitzgibbon et al. 1999)."""
     import cv2
 
-    pts = np.c_[x, y].astype(np.float32)
+    pts = np.stack([x, y], axis=1).astype(np.float32)
     (_, _), (w, h), ang = cv2.fitEllipse(pts)
     if w >= h:
         return float(w), float(h), float(ang % 180.0)
@@ -93,7 +93,7 @@ def _contour_centre(pk, hot) -> tuple[float, float]:
     import cv2
 
     x, y = _contour_points(pk, hot)
-    (cx, cy), _, _ = cv2.fitEllipse(np.c_[x.ravel(), y.ravel()].astype(np.float32))
+    (cx, cy), _, _ = cv2.fitEllipse(np.stack([x.ravel(), y.ravel()], axis=1).astype(np.float32))
     return float(cx), float(cy)
 
 
@@ -107,10 +107,11 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
     """Major/minor full angles, ellipticity and orientation of an outline, with uncertainties from
     ``ELLIPSE_DRAWS`` refits with the points moved by their 1-sigma (``sx``, ``sy``)."""
     major, minor, orient = ellipse_of_points(x, y)
-    draws = []
-    for _ in range(ELLIPSE_DRAWS):
-        draws.append(ellipse_of_points(x + sx * rng.standard_normal(len(x)), y + sy * rng.standard_normal(len(y))))
-    draws = np.array(draws)
+    # the normal deviates of every refit at once: the same numbers, in the same order, as drawing
+    # those of x then those of y for each refit in turn
+    z = rng.standard_normal((ELLIPSE_DRAWS, 2, len(x)))
+    xs, ys = x + sx * z[:, 0], y + sy * z[:, 1]
+    draws = np.array([ellipse_of_points(a, b) for a, b in zip(xs, ys)])
     s_major, s_minor = np.std(draws[:, 0], ddof=1), np.std(draws[:, 1], ddof=1)
     s_orient = float(np.degrees(np.std(np.angle(np.exp(2j * np.radians(draws[:, 2] - orient))), ddof=1) / 2.0))
     ell = minor / major
@@ -140,7 +141,7 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
 
 def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: float = 0.0,
                   correlation_deg: float = 0.0, tone_eps: float = 0.0, tone_assumed: bool = False,
-                  seed: int = 0) -> ShapeResult:
+                  seed: int = 0, bent=None) -> ShapeResult:
     """Every shape figure of a measured beam (``shape``: :class:`beamshot.measure.BeamShape`).
 
     ``pixel_deg`` is the angular size of a working pixel (for the noise of means), ``scale_u`` the
@@ -149,7 +150,9 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     ``tone_eps`` is the 1-sigma tone-curve (gamma) error of the linearisation, as in
     :func:`beamshot.uncertainty.tone_bent`: the figures are measured again on the map bent by it,
     and the change is each figure's "tone curve" term; with ``tone_assumed`` (an assumed curve) a
-    figure whose variance is mostly that term is an ``estimate``.
+    figure whose variance is mostly that term is an ``estimate``.  ``bent`` may hold that bent map
+    and its shape already measured (:class:`beamshot.uncertainty.ToneBent`, from the uncertainty
+    budget's tone term); it is used only if it is the bend of this ``beam`` by ``tone_eps``.
     """
     result = _shape_once(beam, shape, pixel_deg, scale_u, correlation_deg, seed)
     if not tone_eps:
@@ -157,9 +160,13 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     from .measure import measure_shape
     from .uncertainty import tone_bent
 
-    bent_map = tone_bent(beam, shape.peak.value, tone_eps)
-    bent = _shape_once(bent_map, measure_shape(bent_map, boundary_noise=False), pixel_deg, scale_u,
-                       correlation_deg, seed, with_rings=False).figures
+    bent = bent.of(beam, shape.peak.value, tone_eps) if bent is not None else None
+    if bent is not None:
+        bent_map, bent_shape = bent.map, bent.shape
+    else:
+        bent_map = tone_bent(beam, shape.peak.value, tone_eps)
+        bent_shape = measure_shape(bent_map, boundary_noise=False)
+    bent = _shape_once(bent_map, bent_shape, pixel_deg, scale_u, correlation_deg, seed, with_rings=False).figures
     # rings, without fitting them again: a ring multiplies the profile, (1 + a g), and the bend raises
     # that factor to the power 1 + eps: the amplitude becomes (1 + a)^(1 + eps) - 1, the location and
     # (for small a) the width stay
@@ -385,7 +392,7 @@ def _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, sca
     near = (r <= 3.0 * r0) & np.isfinite(prof)
     n_ring = np.minimum(vals.shape[0], 2 * np.pi * np.maximum(r[near], step) / max(pixel_deg, step))
     sig = noise.sigma(prof[near]) / np.sqrt(np.maximum(n_ring, 1.0))
-    a = np.c_[np.ones(near.sum()), r[near] ** 2] / sig[:, None]
+    a = np.stack([np.ones(near.sum()), r[near] ** 2], axis=1) / sig[:, None]
     coef, *_ = np.linalg.lstsq(a, prof[near] / sig, rcond=None)
     c = float(coef[0])
     s_c = float(np.sqrt(np.linalg.inv(a.T @ a)[0, 0]))
@@ -431,7 +438,7 @@ def _sector_profile(vals_rows: np.ndarray, smooth_cells: int) -> np.ndarray:
         rel = vals_rows / np.nanmean(vals_rows, axis=1, keepdims=True)
         a = np.nanmean(rel, axis=0)
     kern = np.ones(smooth_cells) / smooth_cells
-    pad = np.r_[a[-smooth_cells:], a, a[:smooth_cells]]
+    pad = np.concatenate([a[-smooth_cells:], a, a[:smooth_cells]])
     return np.convolve(pad, kern, mode="same")[smooth_cells:-smooth_cells]
 
 

@@ -12,6 +12,7 @@ Conversion from the wall (light square to the wall, axis at the wall foot point)
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
@@ -61,7 +62,7 @@ class BeamMap:
 
     def cell_solid_angles(self) -> np.ndarray:
         """Solid angle (sr) of each cell, shape ``(n_theta, 1)`` (broadcasts over phi)."""
-        edges = np.r_[self.theta - self.d_theta / 2, self.theta[-1] + self.d_theta / 2]
+        edges = np.append(self.theta - self.d_theta / 2, self.theta[-1] + self.d_theta / 2)
         edges[0] = max(edges[0], 0.0)
         return polar_cell_solid_angles(edges, len(self.phi))[:, None]
 
@@ -132,6 +133,74 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     intensity follows from the general form ``I = E r^2 / cos(incidence)`` with ``r`` and the
     incidence from the light's position, which for a square light is ``E D^2 / cos^3(theta)``.
     """
+    geo = _geometry(image, mapping, axis_mm, distance_m, theta_step_deg, phi_step_deg, axis_dir)
+    lum = cv2.remap(image.luminance, geo.mx, geo.my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT,
+                    borderValue=float("nan"))
+    sat = geo.saturated_of(image.saturated)
+    intensity = lum.astype(np.float64) * geo.factor
+    return BeamMap(theta=geo.theta.copy(), phi=geo.phi.copy(), intensity=intensity, saturated=sat,
+                   distance_m=distance_m, footprint_deg=None if geo.footprint is None else geo.footprint.copy())
+
+
+@dataclass(frozen=True)
+class _Geometry:
+    """What a map's grid, wall mapping, foot point, distance and axis fix, whatever the photo's values:
+    the grid, the working-image coordinates each cell samples, the factor from wall illuminance to
+    intensity per cell, and the photo's outline; and the clip mask sampled, per clip mask."""
+
+    key: tuple
+    mapping: object
+    axis_dir: object
+    theta: np.ndarray
+    phi: np.ndarray
+    mx: np.ndarray
+    my: np.ndarray
+    factor: np.ndarray
+    footprint: np.ndarray | None
+    sampled: list = field(default_factory=list)  # [(clip mask, its samples)], the latest only
+
+    def matches(self, key: tuple, mapping, axis_dir) -> bool:
+        if key != self.key or mapping is not self.mapping:
+            return False
+        if axis_dir is None or self.axis_dir is None:
+            return axis_dir is None and self.axis_dir is None
+        return axis_dir is self.axis_dir or np.array_equal(axis_dir, self.axis_dir)
+
+    def saturated_of(self, saturated: np.ndarray) -> np.ndarray:
+        """The clip mask sampled at the cells (nearest pixel; outside the photo: not clipped)."""
+        seen = self.sampled[0] if self.sampled else None
+        if seen is None or seen[0] is not saturated:
+            sat = cv2.remap(saturated.view(np.uint8), self.mx, self.my, cv2.INTER_NEAREST,
+                            borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
+            seen = (saturated, sat)
+            self.sampled[:] = [seen]
+        return seen[1].copy()
+
+
+#: Geometries of the latest maps, for maps built again on the same grid, mapping, foot point, distance
+#: and axis (the uncertainty budget's lens-shading term, the colour channels): the same numbers,
+#: computed once.  The mapping is held, so an identity match cannot be a new object at its address.
+_GEOMETRIES: list = []
+_GEOMETRIES_KEPT = 4
+_GEOMETRIES_LOCK = threading.Lock()
+
+
+def _geometry(image: LinearImage, mapping: WallMapping, axis_mm, distance_m: float, theta_step_deg, phi_step_deg,
+              axis_dir) -> _Geometry:
+    key = (tuple(image.full_shape), image.bin_factor, tuple(float(a) for a in axis_mm), float(distance_m),
+           theta_step_deg, phi_step_deg)
+    with _GEOMETRIES_LOCK:
+        for g in _GEOMETRIES:
+            if g.matches(key, mapping, axis_dir):
+                return g
+    g = _new_geometry(image, mapping, axis_mm, distance_m, theta_step_deg, phi_step_deg, axis_dir, key)
+    with _GEOMETRIES_LOCK:
+        _GEOMETRIES.insert(0, g)
+        del _GEOMETRIES[_GEOMETRIES_KEPT:]
+    return g
+
+
+def _new_geometry(image, mapping, axis_mm, distance_m, theta_step_deg, phi_step_deg, axis_dir, key) -> _Geometry:
     d_theta = np.radians(THETA_STEP_DEG if theta_step_deg is None else theta_step_deg)
     d_phi = np.radians(PHI_STEP_DEG if phi_step_deg is None else phi_step_deg)
     h_full, w_full = image.full_shape
@@ -159,17 +228,18 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
     full_xy = mapping.wall_to_image(wall)
     b = image.bin_factor
     work = (full_xy - (b - 1) / 2.0) / b
-    mx = np.nan_to_num(work[..., 0], nan=-10.0).astype(np.float32)  # NaN: ray misses the wall
-    my = np.nan_to_num(work[..., 1], nan=-10.0).astype(np.float32)
-    lum = cv2.remap(image.luminance, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT,
-                    borderValue=float("nan"))
-    sat = cv2.remap(image.saturated.view(np.uint8), mx, my, cv2.INTER_NEAREST,
-                    borderMode=cv2.BORDER_CONSTANT, borderValue=0).astype(bool)
-    intensity = lum.astype(np.float64) * factor
+    # NaN: the ray misses the wall (as np.nan_to_num(nan=-10.0) then float32: its +-1.8e308 for an
+    # infinite coordinate is +-inf in float32 as well)
+    mx = work[..., 0].astype(np.float32)
+    my = work[..., 1].astype(np.float32)
+    mx[np.isnan(mx)] = -10.0
+    my[np.isnan(my)] = -10.0
     frame = beam_frame(axis_dir)
     footprint = _footprint_deg(mapping, image.full_shape, axis_mm, distance_m, frame, theta_max)
-    return BeamMap(theta=theta, phi=phi, intensity=intensity, saturated=sat, distance_m=distance_m,
-                   footprint_deg=footprint)
+    for a in (theta, phi, mx, my, factor) + (() if footprint is None else (footprint,)):
+        a.flags.writeable = False
+    return _Geometry(key, mapping, None if axis_dir is None else np.array(axis_dir, float), theta, phi, mx, my,
+                     factor, footprint)
 
 
 def _footprint_deg(mapping: WallMapping, full_shape: tuple[int, int], axis_mm, distance_m: float,

@@ -51,6 +51,7 @@ flux against 1.5 % under without the correction).
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -208,15 +209,46 @@ def estimate_floor(beam: BeamMap, edge=None, *, bin_factor: int = 1, gain: np.nd
     return _floor_from(block[np.isfinite(block)], bin_factor, "darkest annulus and beyond")
 
 
+#: The smoothed weights (valid-cell masks) of the latest maps: a map rebuilt from the same view (the
+#: lens-shading term, the colour channels) has the same valid cells, so the same smoothed weights.
+_WEIGHTS: list = []
+_WEIGHTS_KEPT = 3
+_WEIGHTS_LOCK = threading.Lock()
+
+
+def _kept_weights(finite: np.ndarray, s_phi: float, s_theta: float) -> np.ndarray | None:
+    """The smoothed weights kept for exactly this mask and smoothing (read-only), or None."""
+    with _WEIGHTS_LOCK:
+        kept = list(_WEIGHTS)
+    for mask, sp, st, den in kept:
+        if sp == s_phi and st == s_theta and mask.shape == finite.shape and np.array_equal(mask, finite):
+            return den
+    return None
+
+
+def _keep_weights(finite: np.ndarray, s_phi: float, s_theta: float, den: np.ndarray) -> None:
+    mask = finite.copy()
+    mask.flags.writeable = den.flags.writeable = False  # den is not written after this
+    with _WEIGHTS_LOCK:
+        _WEIGHTS.insert(0, (mask, s_phi, s_theta, den))
+        del _WEIGHTS[_WEIGHTS_KEPT:]
+
+
 def _smooth_map(wall: np.ndarray, beam: BeamMap) -> np.ndarray:
     """NaN-aware Gaussian smoothing of a map (normalised convolution), periodic in azimuth."""
     finite = np.isfinite(wall)
     s_phi = SMOOTH_PHI_DEG / np.degrees(beam.d_phi)
     s_theta = SMOOTH_THETA_DEG / np.degrees(beam.d_theta)
-    num, den = np.where(finite, wall, 0.0), finite.astype(float)
-    for arr in (num, den):
+    num = np.where(finite, wall, 0.0)
+    den = _kept_weights(finite, s_phi, s_theta)  # the weights' smoothing, if this mask was smoothed lately
+    fresh = den is None
+    if fresh:
+        den = finite.astype(float)
+    for arr in (num, den) if fresh else (num,):
         arr[:] = gaussian_filter1d(arr, s_phi, axis=1, mode="wrap")
         arr[:] = gaussian_filter1d(arr, s_theta, axis=0, mode="nearest")
+    if fresh:
+        _keep_weights(finite, s_phi, s_theta, den)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(finite & (den > 1e-3), num / den, np.nan)
 
@@ -231,7 +263,7 @@ def remove_floor(beam: BeamMap, floor: BlackFloor, *, gain: np.ndarray | None = 
     g = wall_gain(beam) if gain is None else gain
     m = _smooth_map(beam.intensity / g, beam)
     bias = np.clip(m - unclipped_mean(m, floor.sigma), 0.0, 2.0 * floor.level)
-    bias = np.nan_to_num(bias, nan=0.0)
+    bias[np.isnan(bias)] = 0.0  # np.nan_to_num's NaN -> 0 (clipped: nothing infinite is left)
     return replace(beam, intensity=beam.intensity - bias * g)
 
 

@@ -62,8 +62,8 @@ def inside_contour(beam: BeamMap, contour: Contour, centre: np.ndarray, scale: f
     then has those rows.
     """
     dist, bearing = _peak_polar(beam, centre) if polar is None else polar
-    b = np.r_[contour.bearings - 2 * np.pi, contour.bearings, contour.bearings + 2 * np.pi]
-    a = np.r_[contour.alpha, contour.alpha, contour.alpha] * scale
+    b = np.concatenate([contour.bearings - 2 * np.pi, contour.bearings, contour.bearings + 2 * np.pi])
+    a = np.concatenate([contour.alpha, contour.alpha, contour.alpha]) * scale
     return np.clip(0.5 - (dist - np.interp(bearing, b, a)) / beam.d_theta, 0.0, 1.0)
 
 

@@ -25,7 +25,8 @@ def local_basis(centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     x = np.array([1.0, 0.0, 0.0])
     e1 = x - np.dot(x, c) * c
     e1 /= np.linalg.norm(e1)
-    e2 = np.cross(c, e1)
+    # c x e1, written out as np.cross computes it (the same products and differences)
+    e2 = np.array([c[1] * e1[2] - c[2] * e1[1], c[2] * e1[0] - c[0] * e1[2], c[0] * e1[1] - c[1] * e1[0]])
     return e1, e2
 
 

@@ -12,6 +12,7 @@ the two ray pairs along the wall's horizontal and vertical through the peak.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -127,23 +128,35 @@ def find_peak(beam: BeamMap) -> Peak:
     return Peak(value=value, vector=centre, theta=theta, phi=phi, rel_noise=max(rel_noise, 1e-4), clipped=clipped)
 
 
+@lru_cache(maxsize=16)
+def _patch(radius: float) -> tuple[np.ndarray, ...]:
+    """The tangent-plane patch of :func:`_quadratic_peak` for ``radius`` (rad): offsets ``uu``, ``vv``
+    on a 31 x 31 grid, the disc within the radius, and ``cos r``, ``sinc(r / pi)`` of the offsets'
+    length ``r`` (shaped to broadcast over vectors); the same for every map, so kept (read-only)."""
+    n = 15
+    u = np.linspace(-radius, radius, 2 * n + 1)
+    uu, vv = np.meshgrid(u, u, indexing="ij")
+    rr = np.hypot(uu, vv)
+    out = (uu, vv, rr <= radius, np.cos(rr)[..., None], np.sinc(rr / np.pi)[..., None])
+    for a in out:
+        a.flags.writeable = False
+    return out
+
+
 def _quadratic_peak(beam: BeamMap, centre: np.ndarray, radius: float, reference: float):
     """Fit ``a + b.u + u^T C u`` to samples >= 95 % of ``reference`` on a patch of ``radius`` (rad).
 
     Returns ``(value, relative noise, vertex vector, fraction of patch used)`` or None.
     """
-    n = 15
-    u = np.linspace(-radius, radius, 2 * n + 1)
-    uu, vv = np.meshgrid(u, u, indexing="ij")
-    disc = np.hypot(uu, vv) <= radius
+    uu, vv, disc, cos_rr, sinc_rr = _patch(float(radius))
     e1, e2 = local_basis(centre)
-    rr = np.hypot(uu, vv)
-    vec = np.cos(rr)[..., None] * centre + np.sinc(rr / np.pi)[..., None] * (uu[..., None] * e1 + vv[..., None] * e2)
+    vec = cos_rr * centre + sinc_rr * (uu[..., None] * e1 + vv[..., None] * e2)
     vals = beam.sample(vec)
     use = disc & np.isfinite(vals) & (vals >= PEAK_FIT_LEVEL * reference)
     if use.sum() < 12:
         return None
-    a = np.c_[np.ones(use.sum()), uu[use], vv[use], uu[use] ** 2, uu[use] * vv[use], vv[use] ** 2]
+    us, vs = uu[use], vv[use]
+    a = np.stack([np.ones(use.sum()), us, vs, us ** 2, us * vs, vs ** 2], axis=1)
     coef, *_ = np.linalg.lstsq(a, vals[use], rcond=None)
     resid = vals[use] - a @ coef
     rel_noise = float(np.std(resid) / np.sqrt(use.sum() / 6.0) / max(reference, 1e-30))

@@ -20,6 +20,7 @@ import numpy as np
 
 from ._quiet import quiet_nan
 from .beammap import BeamMap
+from .robust import row_nanmedian
 
 __all__ = ["NoiseModel", "noise_model", "row_mean_sigma"]
 
@@ -52,17 +53,17 @@ def noise_model(beam: BeamMap, pixel_deg: float = 0.0) -> NoiseModel:
     rows = rows[::ROW_STRIDE] if rows.size >= 15 * ROW_STRIDE else rows
     inten = beam.intensity[rows]
     resid = inten - 0.5 * (np.roll(inten, 1, axis=1) + np.roll(inten, -1, axis=1))
-    with quiet_nan():
-        med = np.nanmedian(resid, axis=1, keepdims=True)
-        mad = np.nanmedian(np.abs(resid - med), axis=1)
-        level = np.nanmedian(inten, axis=1)
+    with quiet_nan():  # row_nanmedian: np.nanmedian's values, without its masked arrays
+        med = row_nanmedian(resid)[:, None]
+        mad = row_nanmedian(np.abs(resid - med))
+        level = row_nanmedian(inten)
     var = (MAD_TO_SIGMA * mad) ** 2 / 1.5
     ok = np.isfinite(var) & np.isfinite(level) & (np.sum(np.isfinite(inten), axis=1) >= 20)
     if ok.sum() < 3:
         return NoiseModel(0.0, 0.0)
     x, y = level[ok], var[ok]
     # least squares for (a, b) with a, b >= 0 (a negative part of a variance has no meaning)
-    A = np.c_[np.ones_like(x), np.maximum(x, 0.0)]
+    A = np.stack([np.ones_like(x), np.maximum(x, 0.0)], axis=1)
     (a, b), *_ = np.linalg.lstsq(A, y, rcond=None)
     if b < 0:
         a, b = float(np.median(y)), 0.0

@@ -18,10 +18,11 @@ MAD_TO_SIGMA = 1.4826
 
 
 def row_nanmedian(a: np.ndarray) -> np.ndarray:
-    """Median of each row of a 2-D array, ignoring NaN; NaN for a row without finite values."""
+    """Median of each row of a 2-D array, ignoring NaN; NaN for a row of NaN only.  The same values
+    as ``np.nanmedian(a, axis=1)`` (the middle element, or the two middle ones added and halved)."""
     a = np.asarray(a, float)
-    s = np.sort(a, axis=1)  # NaN sorts last
-    n = np.isfinite(a).sum(axis=1)
+    s = np.sort(a, axis=1)  # NaN sorts last (after +inf)
+    n = (~np.isnan(a)).sum(axis=1)
     lo = np.clip((n - 1) // 2, 0, None)
     hi = np.clip(n // 2, 0, None)
     pick_lo = np.take_along_axis(s, lo[:, None], axis=1)[:, 0]

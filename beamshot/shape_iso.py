@@ -64,9 +64,10 @@ N_SUBSETS = 4
 MIN_SPILL_ROWS = 10
 
 
-def ae_grid(beam: BeamMap) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Azimuthal-equidistant ``x``, ``y`` (deg) of every cell and its area ``theta d_theta d_phi`` (deg^2)."""
-    t = np.degrees(beam.theta)[:, None]
+def ae_grid(beam: BeamMap, rows: int | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Azimuthal-equidistant ``x``, ``y`` (deg) of every cell and its area ``theta d_theta d_phi`` (deg^2)
+    (of the first ``rows`` theta rows only, if given: the same values, elementwise)."""
+    t = np.degrees(beam.theta[:rows])[:, None]
     x = t * np.cos(beam.phi)[None, :]
     y = t * np.sin(beam.phi)[None, :]
     area = t * np.degrees(beam.d_theta) * beam.d_phi * np.ones_like(x)
@@ -156,6 +157,32 @@ def _moments_once(x, y, area, e, keep, centre, radius):
     return second_moments(x[sel], y[sel], e[sel], area[sel])
 
 
+class _NearRows:
+    """The map's first theta rows as far as a disc about a centre reaches (rows are polar angles):
+    AE ``x``, ``y``, ``area``, intensity, validity, noise sigma and theta (deg).  Every value is
+    elementwise, so it is the one computed on the whole map; rows are computed once, as needed."""
+
+    def __init__(self, beam: BeamMap, noise: NoiseModel):
+        self.beam, self.noise = beam, noise
+        t = np.degrees(beam.theta)
+        # hypot(x[:, 0], y[:, 0]) of ae_grid, the distance from the axis that _moments_once sorts by
+        self.radius_of_row = np.hypot(t * np.cos(beam.phi)[0], t * np.sin(beam.phi)[0])
+        self.rows = -1
+        self.arrays = ()
+
+    def within(self, centre, radius: float) -> tuple:
+        """The arrays over the rows that :func:`_moments_once` looks at for this disc."""
+        rows = int(np.searchsorted(self.radius_of_row, float(np.hypot(*centre)) + radius, side="right")) + 1
+        rows = min(rows, len(self.beam.theta))
+        if rows > self.rows:
+            x, y, area = ae_grid(self.beam, rows)
+            inten = self.beam.intensity[:rows]
+            self.arrays = (x, y, area, inten, np.isfinite(inten), self.noise.sigma(inten),
+                           np.degrees(self.beam.theta[:rows]))
+            self.rows = rows
+        return tuple(a[:rows] for a in self.arrays)
+
+
 def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: float, noise: NoiseModel,
                     outer_deg: float | None) -> HotspotMoments:
     """ISO 11146 D4sigma of the hotspot with the spill modelled and subtracted (module docstring).
@@ -164,17 +191,15 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
     times the 50 % full angle); ``outer_deg`` is how far the spill model may be fitted (90 % of the
     spill edge; None: as far as the photo covers at least half the azimuths).
     """
-    x, y, area = ae_grid(beam)
     inten = beam.intensity
-    valid = np.isfinite(inten)
     tdeg = np.degrees(beam.theta)
-    count = valid.sum(axis=1)
+    count = np.isfinite(inten).sum(axis=1)
     with quiet_nan():
         mean = np.where(count >= 0.5 * inten.shape[1], np.nanmean(inten, axis=1), np.nan)
     covered = tdeg[np.isfinite(mean)]
     reach = float(covered.max()) if covered.size else 0.0
     outer = min(outer_deg, reach) if outer_deg is not None else reach
-    sig = noise.sigma(inten)
+    near = _NearRows(beam, noise)
     centre, d = tuple(start_centre), float(start_d)
     if not (np.isfinite(d) and d > 0):
         return HotspotMoments("the hotspot has no 50 % contour to start from")
@@ -187,7 +212,8 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
             return HotspotMoments(f"the spill is not seen far enough beyond the hotspot to be modelled under it "
                                   f"(needs {lo:.1f} to {lo + 1:.1f} deg or more from the axis; the photo and the spill "
                                   f"reach {outer:.1f} deg); step back or use a wider lens")
-        e = inten - (spill[0] + spill[1] * tdeg ** 2)[:, None]
+        x, y, area, inten, valid, sig, t = near.within(centre, d)
+        e = inten - (spill[0] + spill[1] * t ** 2)[:, None]
         keep = valid & (e > N_T * sig)
         m = _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, d)
         if not m.power > 0:
@@ -197,7 +223,8 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
         centre, d = (m.cx, m.cy), d_new
         if done:
             break
-    e = inten - (spill[0] + spill[1] * tdeg ** 2)[:, None]
+    x, y, area, inten, valid, sig, t = near.within(centre, d)
+    e = inten - (spill[0] + spill[1] * t ** 2)[:, None]
     keep = valid & (e > N_T * sig)
     m = _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, d)
     d_major, d_minor, azimuth = principal_diameters(m)
@@ -216,7 +243,7 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
     richer = _spill_fit(tdeg, mean, float(np.hypot(*centre)) + d, outer, 2)
     dm = (0.0, 0.0)
     if richer is not None:
-        e2 = inten - sum(c * tdeg ** (2 * k) for k, c in enumerate(richer))[:, None]
+        e2 = inten - sum(c * t ** (2 * k) for k, c in enumerate(richer))[:, None]
         keep2 = valid & (e2 > N_T * sig)
         m2 = _moments_once(x, y, area, np.where(keep2, e2, 0.0), keep2, centre, d)
         if m2.power > 0:
@@ -264,8 +291,13 @@ def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
     """Flatness and uniformity at ``HOTSPOT_CLIP`` and edge steepness between ``EDGE_CLIPS`` of the
     map about its peak value ``e_max`` (module docstring).  The uniformity has the cells' own noise
     variance (from ``noise``) removed: ``U = sqrt(var - noise var) / mean``."""
-    inten = beam.intensity
-    _, _, area = ae_grid(beam)
+    # every cell these measures select is at or above the lowest clip level: only the rows up to the
+    # last such cell are looked at (the same cells in the same order, so the same sums)
+    low = min(EDGE_CLIPS[0] * e_max, HOTSPOT_CLIP * e_max, EDGE_CLIPS[1] * e_max)
+    lit = np.flatnonzero((beam.intensity >= low).any(axis=1))
+    rows = int(lit[-1]) + 1 if lit.size else 0
+    inten = beam.intensity[:rows]
+    _, _, area = ae_grid(beam, rows)
     var = noise.sigma(inten) ** 2 if noise is not None else np.zeros_like(inten)
     n = inten.shape[1]
     cols = np.arange(n)

@@ -38,6 +38,7 @@ at ``MAX_SIGMA_DEG``.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -112,8 +113,8 @@ class SpillEdge:
 
     def at(self, phi: np.ndarray) -> np.ndarray:
         """Edge angle (rad) interpolated periodically at azimuths ``phi`` (rad)."""
-        p = np.r_[self.phi - 2 * np.pi, self.phi, self.phi + 2 * np.pi]
-        t = np.r_[self.theta, self.theta, self.theta]
+        p = np.concatenate([self.phi - 2 * np.pi, self.phi, self.phi + 2 * np.pi])
+        t = np.concatenate([self.theta, self.theta, self.theta])
         return np.interp(np.mod(phi, 2 * np.pi), p, t)
 
 
@@ -123,21 +124,62 @@ def _sector_profiles(beam: BeamMap) -> tuple[np.ndarray, np.ndarray]:
     Each map column counts with the fraction of its azimuth width that lies inside the sector,
     so a column straddling a sector boundary is shared between the two sectors.
     """
+    centres, weights, runs = _sector_weights(beam.phi.tobytes(), beam.d_phi)
+    inten = beam.intensity
+    missing = ~np.isfinite(inten)
+    profiles = np.where(missing, 0.0, inten) @ weights.T  # np.nan_to_num(nan=posinf=neginf=0)
+    # a sector is NaN at a row where any of its columns is (the same as a 0/1 matrix product > 0,
+    # without a second BLAS call): its columns are one run of azimuths, wrapping through 0, so the
+    # missing ones are counted from running counts along the azimuth, repeated once around
+    if runs is None:
+        for s, cols in enumerate(_sector_columns(weights)):
+            profiles[missing[:, cols].any(axis=1), s] = np.nan
+    else:
+        first, length = runs
+        n_phi = missing.shape[1]
+        counts = np.zeros((missing.shape[0], 2 * n_phi + 1), np.int32)
+        np.cumsum(np.concatenate([missing, missing], axis=1), axis=1, out=counts[:, 1:])
+        profiles[(counts[:, first + length] - counts[:, first]) > 0] = np.nan
+    return np.radians(centres), np.ascontiguousarray(profiles.T)
+
+
+@lru_cache(maxsize=8)
+def _sector_weights(phi_bytes: bytes, d_phi: float) -> tuple[np.ndarray, np.ndarray, tuple | None]:
+    """Sector centres (deg), the ``(n_sec, n_phi)`` weights of the map columns (azimuths ``phi``,
+    given as the bytes of a float64 array) in each sector, and :func:`_sector_runs` of them.  The
+    same for every map of a grid, so kept (read-only) for the next map."""
+    phi = np.frombuffer(phi_bytes, float)
     n_sec = int(round(360.0 / SECTOR_DEG))
     centres = np.arange(n_sec) * SECTOR_DEG
-    col = np.degrees(beam.d_phi)
-    d = np.abs((np.degrees(beam.phi)[None, :] - centres[:, None] + 180.0) % 360.0 - 180.0)
+    col = np.degrees(d_phi)
+    d = np.abs((np.degrees(phi)[None, :] - centres[:, None] + 180.0) % 360.0 - 180.0)
     overlap = np.clip(SECTOR_DEG / 2 - d + col / 2, 0.0, col) / col  # (n_sec, n_phi)
     overlap[overlap < 1e-9] = 0.0
     weights = overlap / overlap.sum(axis=1, keepdims=True)
-    inten = beam.intensity
-    missing = ~np.isfinite(inten)
-    profiles = np.nan_to_num(inten, nan=0.0, posinf=0.0, neginf=0.0) @ weights.T
-    # a sector is NaN at a row where any of its columns is: a boolean any() over its few columns
-    # (the same as a 0/1 matrix product > 0, without a second BLAS call)
-    for s, cols in enumerate(_sector_columns(weights)):
-        profiles[missing[:, cols].any(axis=1), s] = np.nan
-    return np.radians(centres), np.ascontiguousarray(profiles.T)
+    runs = _sector_runs(weights)
+    for a in (centres, weights, *(runs or ())):
+        a.flags.writeable = False
+    return centres, weights, runs
+
+
+def _sector_runs(weights: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """Per sector, the first column and the number of columns of its run of nonzero weights, going
+    round through azimuth 0 (None if a sector's columns are not one such run)."""
+    on = weights > 0
+    n_sec, n_phi = on.shape
+    first = np.empty(n_sec, int)
+    length = on.sum(axis=1)
+    for s in range(n_sec):
+        cols = np.flatnonzero(on[s])
+        if cols.size == 0 or cols.size == n_phi:
+            return None
+        gaps = np.flatnonzero(np.diff(cols) > 1)
+        if gaps.size > 1:
+            return None
+        first[s] = cols[gaps[0] + 1] if gaps.size else cols[0]
+        if not on[s, (first[s] + np.arange(length[s])) % n_phi].all():
+            return None
+    return first, length
 
 
 def _sector_columns(weights: np.ndarray) -> list[np.ndarray]:
@@ -180,6 +222,30 @@ def _second_differences(raw: np.ndarray, n: int) -> np.ndarray:
     return sums[2 * n:] - 2.0 * sums[n:-n] + sums[:-2 * n]
 
 
+class _WindowSumVariances:
+    """:func:`_window_sum_variance` of one profile's second differences ``d2`` at lag ``n``, kept per
+    set of samples (an edge's two rules often ask for the same segments)."""
+
+    def __init__(self, d2: np.ndarray, n: int):
+        self.d2, self.n, self.seen = d2, n, {}
+
+    def __call__(self, segments: list[tuple[int, int]]) -> float:
+        n = self.n
+        key = tuple((max(lo, 0), max(hi - 3 * n + 1, 0)) for lo, hi in segments)
+        if key not in self.seen:
+            self.seen[key] = _window_sum_variance(self.d2, n, segments)
+        return self.seen[key]
+
+
+def _second_differences_rows(rows: np.ndarray, n: int) -> np.ndarray:
+    """:func:`_second_differences` of every row of ``rows`` (the running sums are sequential along
+    each row, so each row's first entries are those of the row's own head)."""
+    c = np.zeros((rows.shape[0], rows.shape[1] + 1))
+    np.cumsum(rows, axis=1, out=c[:, 1:])
+    sums = c[:, n:] - c[:, :-n]
+    return sums[:, 2 * n:] - 2.0 * sums[:, n:-n] + sums[:, :-2 * n]
+
+
 def _window_sum_variance(d2: np.ndarray, n: int, segments: list[tuple[int, int]]) -> float:
     """Variance of the sum of ``n`` consecutive profile samples, from the profile's own scatter
     on the ``segments`` (``(lo, hi)`` sample ranges that leave out the cut-off itself), given the
@@ -200,7 +266,7 @@ def _window_sum_variance(d2: np.ndarray, n: int, segments: list[tuple[int, int]]
 
 
 def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
-                   d2: np.ndarray) -> tuple[float, float, float] | None:
+                   variances: _WindowSumVariances) -> tuple[float, float, float] | None:
     """Edge position (rad), its 1-sigma and the step's significance (``D`` over the 1-sigma of
     ``a - b``) of a cut-off centred near sample ``c`` by the equivalent-step (area) rule, on the
     unsmoothed profile ``raw``.
@@ -213,7 +279,7 @@ def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: Be
     line-spread function.  Being linear in the samples it has no first-passage bias, and its
     1-sigma follows from the noise: ``var t = (d_theta / D)^2 [V_W + (S/D)^2 V_a + (S/D - N)^2 V_b]``
     (first-order propagation; ``V`` the variances of the window sum and of the level means, from
-    ``d2``, the second differences of ``h``-sample sums, short enough that the profile's curvature
+    ``variances`` (second differences of ``h``-sample sums), short enough that the profile's curvature
     does not enter; the window sum's scaled by ``n / h``, as for noise correlated over less than
     ``h`` samples - the bilinear samples and JPEG's 8-pixel blocks are).
     """
@@ -237,7 +303,7 @@ def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: Be
     ratio = float(min(max((win.sum() - n * b) / d, 0.0), n))
     d_theta = beam.d_theta
     t = beam.theta[w0] - d_theta / 2 + ratio * d_theta
-    v_h = _window_sum_variance(d2, h, [(lo, w0 - h), (w1 + h, last)])
+    v_h = variances([(lo, w0 - h), (w1 + h, last)])  # lag h
     if not np.isfinite(v_h):
         return None
     v_n = v_h * n / h
@@ -247,8 +313,8 @@ def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: Be
     return float(t), float(np.sqrt(var + d_theta**2 / 12.0)), float(significance)
 
 
-def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, d2: np.ndarray, k: int, sm: float,
-                start: int, last: int, beam: BeamMap) -> tuple[float, float]:
+def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, variances: _WindowSumVariances, k: int,
+                sm: float, start: int, last: int, beam: BeamMap) -> tuple[float, float]:
     """The area-rule edge ``step`` or, if it is the more precise of the two, the half-level crossing
     of the smoothed profile ``ps`` between the levels at ``c -+ EDGE_PROBE_DEG`` (``c`` the
     cut-off's steepest point).
@@ -256,7 +322,7 @@ def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, d2: np
     The crossing sees the noise only where the profile falls, so for a sharp, clean cut-off it is
     the more precise; it is used only when the smoothed profile crosses the level once within
     ``EDGE_PROBE_DEG`` of the edge (no first-passage ambiguity).  Its 1-sigma: the smoothed noise
-    (per-sample noise from ``d2`` over ``sqrt(2 sqrt(pi) sm)``, the white-noise gain of the Gaussian
+    (per-sample noise from ``variances`` over ``sqrt(2 sqrt(pi) sm)``, the white-noise gain of the Gaussian
     smoothing) on the crossing sample and, halved, on the two levels, over the local slope, plus
     the grid step (:func:`_crossing`).
     """
@@ -269,7 +335,7 @@ def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, d2: np
     flips = np.flatnonzero(below[1:] != below[:-1])  # where the profile crosses the level
     if len(flips) != 1 or not seg[flips[0] + 1] < level:
         return step[0], step[1]
-    v_h = _window_sum_variance(d2, h, [(start, c - k - h), (c + k + 1 + h, last)])
+    v_h = variances([(start, c - k - h), (c + k + 1 + h, last)])  # lag h
     if not np.isfinite(v_h):
         return step[0], step[1]
     noise = np.sqrt(1.5 * v_h / h / (2.0 * np.sqrt(np.pi) * sm))
@@ -342,6 +408,10 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
     starts = np.where(below_half.any(axis=1), np.argmax(below_half, axis=1), lasts)
     starts = np.minimum(starts, lasts)
     chosen = _cutoff_points(smoothed, floors, starts, lasts, k)
+    h = max(2, k // 2)
+    # second differences of h-sample sums of every row at once (row s is used on its first lasts[s]
+    # samples only, where it equals _second_differences(profiles[s, :lasts[s]], h))
+    d2_rows = _second_differences_rows(profiles, h) if any(chosen) else None
     for s in range(n_sec):
         last = int(lasts[s])
         coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
@@ -351,16 +421,16 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
         ps = smoothed[s, :last]
         noise, floor, start = noises[s], floors[s], int(starts[s])
         found = None
-        d2 = _second_differences(profiles[s, :last], max(2, k // 2)) if chosen[s] else None
+        variances = _WindowSumVariances(d2_rows[s], h) if chosen[s] else None
         for c in chosen[s]:  # the outermost cut-off that stands out of the noise
             # (None: too close to the photo's border to see the outside level)
-            step = _step_position(profiles[s], c, k, start, last, beam, d2)
+            step = _step_position(profiles[s], c, k, start, last, beam, variances)
             if step is not None:  # once more with the window centred on the edge found
                 centred = int(np.floor((step[0] - beam.theta[0]) / beam.d_theta + 0.5))
                 if centred != c:
-                    step = _step_position(profiles[s], centred, k, start, last, beam, d2) or step
+                    step = _step_position(profiles[s], centred, k, start, last, beam, variances) or step
             if step is not None and step[2] >= EDGE_MIN_SIGNIFICANCE:
-                found = (*_sharper_of(step, c, ps, d2, k, sm, start, last, beam), "cutoff")
+                found = (*_sharper_of(step, c, ps, variances, k, sm, start, last, beam), "cutoff")
                 break
         if found is None:
             level = max(SPILL_FLOOR_FRACTION * peak_value, floor)

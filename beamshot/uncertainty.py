@@ -68,6 +68,7 @@ __all__ = [
     "ASSUMPTION_SHARE_FOR_ESTIMATE",
     "Term",
     "Budget",
+    "ToneBent",
     "absolute_values",
     "scale_factor",
     "tone_bent",
@@ -120,6 +121,9 @@ class Budget:
     """The terms of one analysis; figures' standard uncertainties are their root sum of squares."""
 
     terms: tuple[Term, ...]
+    #: The tone term's bent map and its shape (:class:`ToneBent`), for the shape stage, which
+    #: measures the same bent map again (beamshot.artefacts.shape_figures); None without a tone term.
+    tone_bent: ToneBent | None = field(default=None, repr=False, compare=False)
 
     def sigma(self, key: str) -> float:
         return float(np.sqrt(sum(t.deltas.get(key, 0.0) ** 2 for t in self.terms)))
@@ -354,11 +358,12 @@ def build_budget(measured, base: dict[str, float], *, scale: AbsoluteScale, lux_
                 continue
             jobs["points"].append(again(mapping=replace(m, distortion=measured.mapping.distortion)))
     if ratio_delta > 0:  # the cheapest (no map to build): last, so the two cores finish together
-        jobs["tone"] = pool.submit(_tone_moved, measured, eps, scale, lux_at_peak)
+        jobs["tone"] = pool.submit(_tone_bent_shape, measured, eps)
     try:
-        return Budget(tuple(_terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m,
-                                   camera_beside, wall_scale_u, ratio_delta, ratio_assumed, eps, shading, pixel_deg,
-                                   block_deg)))
+        terms = tuple(_terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m,
+                             camera_beside, wall_scale_u, ratio_delta, ratio_assumed, eps, shading, pixel_deg,
+                             block_deg))
+        return Budget(terms, jobs["tone"].result() if "tone" in jobs else None)
     finally:
         pool.shutdown(wait=True)
 
@@ -389,8 +394,25 @@ def shape_at_distance(shape, factor: float):
                                                         spill=None if fx.spill is None else fx.spill * factor))
 
 
-def _tone_moved(measured, eps: float, scale: AbsoluteScale, lux_at_peak: float | None) -> dict:
-    """Values with the tone curve bent by ``eps``: ``remeasure(tone=eps)`` without rebuilding the map.
+@dataclass(frozen=True)
+class ToneBent:
+    """The map ``source`` bent by a tone error ``eps`` about ``peak_value`` (:func:`tone_bent`), and
+    the shape measured on it (``measure_shape(map, boundary_noise=False)``)."""
+
+    source: BeamMap
+    peak_value: float
+    eps: float
+    map: BeamMap
+    shape: object
+
+    def of(self, beam: BeamMap, peak_value: float, eps: float) -> ToneBent | None:
+        """This, if it is the bend of ``beam`` about ``peak_value`` by ``eps`` (else None)."""
+        return self if (beam is self.source and peak_value == self.peak_value and eps == self.eps) else None
+
+
+def _tone_bent_shape(measured, eps: float) -> ToneBent | None:
+    """The map measured, bent by ``eps``, and its shape: ``remeasure(tone=eps)`` without rebuilding
+    the map (None if ``measured`` has no map to bend).
 
     With no input moved the map rebuilt is the one measured (``measured.beam``: same image, mapping,
     foot point, distance and axis), so the bent map is built from it; tests/test_speed_equivalence.py
@@ -400,9 +422,20 @@ def _tone_moved(measured, eps: float, scale: AbsoluteScale, lux_at_peak: float |
 
     beam = getattr(measured, "beam", None)
     if beam is None:
+        return None
+    peak = measured.shape.peak.value
+    bent = tone_bent(beam, peak, eps)
+    return ToneBent(beam, peak, eps, bent, measure_shape(bent, boundary_noise=False))
+
+
+def _tone_moved(measured, eps: float, scale: AbsoluteScale, lux_at_peak: float | None,
+                bent: ToneBent | None = None) -> dict:
+    """Values with the tone curve bent by ``eps`` (from ``bent``, :func:`_tone_bent_shape`, if given)."""
+    if bent is None:
+        bent = _tone_bent_shape(measured, eps)
+    if bent is None:
         return measured.values(scale, lux_at_peak, measured.remeasure(tone=eps), None)
-    shape_ = measure_shape(tone_bent(beam, measured.shape.peak.value, eps), boundary_noise=False)
-    return measured.values(scale, lux_at_peak, shape_, None)
+    return measured.values(scale, lux_at_peak, bent.shape, None)
 
 
 def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance_u_m, camera_beside, wall_scale_u,
@@ -465,7 +498,7 @@ def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance
                           True, scale.kind == "exposure_metadata", {key: v for key, v in sd.items() if np.isfinite(v)}))
     # ---- tone curve
     if ratio_delta > 0:
-        moved = jobs["tone"].result()
+        moved = _tone_moved(measured, eps, scale, lux_at_peak, jobs["tone"].result())
         size = (f"assumed curve, gamma error {ratio_delta / np.log(RATIO_SPAN):.3g}" if ratio_assumed else
                 f"{ratio_delta:.1%} ratio error over 1:{RATIO_SPAN:g}")
         terms.append(term_from_change("tone curve", "intensity ratios bent by a power law I (I/Ipeak)^eps", size,

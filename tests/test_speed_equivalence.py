@@ -227,3 +227,136 @@ def test_row_percentiles_equal_numpys_nanpercentile():
     got = row_percentiles(v, q)
     want = np.nanpercentile(v, q, axis=1)
     assert np.array_equal(got, want)
+
+
+def test_row_nanmedian_is_numpys_nanmedian():
+    # reference: numpy's nanmedian (the middle value, or the two middle ones added and halved), row by row
+    import warnings
+
+    from beamshot.robust import row_nanmedian
+
+    rng = np.random.default_rng(4)
+    for n_cols in (1, 2, 7, 180, 181):
+        a = np.round(rng.normal(size=(40, n_cols)) * 10, 1)  # ties as well
+        a[rng.random(a.shape) < 0.3] = np.nan
+        a[0] = np.nan  # a row of NaN only
+        a[1, :1] = np.inf
+        a[2, -1:] = -np.inf
+        with warnings.catch_warnings(), np.errstate(invalid="ignore"):
+            warnings.simplefilter("ignore", RuntimeWarning)
+            want = np.nanmedian(a, axis=1)
+        assert np.array_equal(row_nanmedian(a), want, equal_nan=True)
+
+
+def test_second_differences_of_all_rows_equal_each_rows_head():
+    # reference: the one-row definition, on each row's finite head
+    from beamshot.spill import _second_differences, _second_differences_rows
+
+    rng = np.random.default_rng(5)
+    rows = rng.lognormal(size=(12, 300))
+    lasts = rng.integers(40, 301, 12)
+    for s, last in enumerate(lasts):
+        rows[s, last:] = np.nan
+    for n in (2, 3, 7):
+        got = _second_differences_rows(rows, n)
+        for s, last in enumerate(lasts):
+            want = _second_differences(rows[s, :last], n)
+            assert np.array_equal(got[s, :len(want)], want)
+
+
+def test_iso13694_on_the_lit_rows_equals_the_whole_map():
+    # reference: the measures over every row of the map (cells below the lowest clip are never selected)
+    from beamshot.map_noise import NoiseModel
+    from beamshot.shape_iso import N_SUBSETS, _iso13694_once, ae_grid, iso13694
+
+    from conftest import analytic_map
+
+    rng = np.random.default_rng(6)
+    beam = analytic_map(lambda t, p: np.exp(-(np.degrees(t) / 4.0) ** 2) + 0.02, theta_max_deg=40.0, d_theta_deg=0.1,
+                        d_phi_deg=2.0)
+    beam = replace(beam, intensity=beam.intensity + rng.normal(0.0, 0.01, beam.intensity.shape))
+    noise = NoiseModel(1e-4, 1e-3)
+    _, _, area = ae_grid(beam)
+    var = noise.sigma(beam.intensity) ** 2
+    n = beam.intensity.shape[1]
+    cols = np.arange(n)
+    full = _iso13694_once(beam.intensity, area, 1.0, var, np.ones((1, n), bool))
+    subs = np.array([_iso13694_once(beam.intensity, area, 1.0, var, (cols % N_SUBSETS == k)[None, :])
+                     for k in range(N_SUBSETS)])
+    got = iso13694(beam, 1.0, noise)
+    assert (got.flatness, got.uniformity, got.edge_steepness) == tuple(full)
+    assert got.flatness_sigma == float(np.nanstd(subs, axis=0, ddof=1)[0] / np.sqrt(N_SUBSETS))
+    # the rows a disc reaches, for the D4sigma moments: slices of the whole map's arrays
+    from beamshot.shape_iso import _NearRows
+
+    near = _NearRows(beam, noise)
+    x, y, a = ae_grid(beam)
+    for centre, radius in (((0.5, -0.3), 6.0), ((0.0, 0.0), 2.0), ((1.0, 1.0), 100.0)):
+        part = near.within(centre, radius)
+        rows = len(part[0])
+        for got_a, want_a in zip(part, (x, y, a, beam.intensity, np.isfinite(beam.intensity),
+                                        noise.sigma(beam.intensity), np.degrees(beam.theta))):
+            assert np.array_equal(got_a, want_a[:rows])
+        assert rows == min(len(beam.theta), int(np.searchsorted(np.hypot(x[:, 0], y[:, 0]),
+                                                                float(np.hypot(*centre)) + radius, side="right")) + 1)
+
+
+def test_shape_stage_with_the_budgets_bent_map_equals_bending_again():
+    # the shape stage takes the tone term's bent map and shape from the budget: the same figures as its own
+    from beamshot.artefacts import shape_figures
+    from beamshot.uncertainty import _tone_bent_shape
+
+    photo, _ = _photo(Scene(distance_m=5.0))
+    measured, _ = _measured_of(photo, distance_m=5.0)
+    eps = 0.075
+    kw = {"pixel_deg": 0.05, "scale_u": 0.01, "correlation_deg": 0.2, "tone_eps": eps, "tone_assumed": True}
+    own = shape_figures(measured.beam, measured.shape, **kw)
+    bent = _tone_bent_shape(measured, eps)
+    assert shape_figures(measured.beam, measured.shape, bent=bent, **kw) == own
+    assert bent.of(measured.beam, measured.shape.peak.value, eps) is bent
+    assert bent.of(measured.beam, measured.shape.peak.value, 2 * eps) is None  # another bend: not used
+
+
+def test_maps_built_again_from_kept_geometry_and_weights_equal_fresh_ones():
+    # a map rebuilt on the same view reuses the sampling geometry (beammap) and the floor's smoothed
+    # weights (floor); reference: the same map with nothing kept
+    from beamshot import beammap, floor
+    from beamshot.uncertainty import with_luminance
+
+    photo, _ = _photo(Scene(distance_m=5.0))
+    measured, _ = _measured_of(photo, distance_m=5.0)
+    img = measured.image
+    other = with_luminance(img, img.luminance * np.float32(0.7) + np.float32(1e-4))  # same clip mask object
+
+    def build(image):
+        raw = beammap.build_beam_map(image, measured.mapping, measured.foot_mm, measured.distance_m,
+                                     axis_dir=measured.axis_dir)
+        return raw, floor.floor_corrected(raw, bin_factor=image.bin_factor)[0]
+
+    def same(a, b):
+        for f in ("theta", "phi", "intensity", "saturated", "footprint_deg"):
+            assert np.array_equal(getattr(a, f), getattr(b, f), equal_nan=True), f
+
+    beammap._GEOMETRIES.clear()
+    floor._WEIGHTS.clear()
+    first = build(img)
+    for image in (img, other):
+        kept = build(image)  # geometry and weights kept from the first build
+        beammap._GEOMETRIES.clear()
+        floor._WEIGHTS.clear()
+        fresh = build(image)
+        for a, b in zip(kept, fresh):
+            same(a, b)
+    same(first[1], build(img)[1])
+
+
+def test_one_blas_thread_measures_the_same_shape():
+    # the stages after the linear image run BLAS on one thread: their products give the same numbers
+    from beamshot.measure import measure_shape, shape_values
+    from beamshot.threads import one_blas_thread
+
+    photo, _ = _photo(Scene(distance_m=5.0))
+    measured, _ = _measured_of(photo, distance_m=5.0)
+    with one_blas_thread():
+        one = shape_values(measure_shape(measured.beam))
+    assert one == shape_values(measure_shape(measured.beam))
