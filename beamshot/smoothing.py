@@ -32,7 +32,7 @@ def gaussian_filter1d(a, sigma: float, axis: int = -1, mode: str = "reflect") ->
     """``a`` smoothed along ``axis`` by a Gaussian of ``sigma`` samples (see the module docstring).
 
     >>> gaussian_filter1d(np.array([0.0, 0.0, 1.0, 0.0, 0.0]), 1.0).round(4).tolist()
-    [0.0604, 0.2421, 0.3991, 0.2421, 0.0604]
+    [0.0584, 0.2421, 0.3989, 0.2421, 0.0584]
     """
     if mode not in _PAD_MODES:
         raise ValueError(f"mode must be one of {sorted(_PAD_MODES)}")
