@@ -7,8 +7,9 @@ no traceback (click's own usage errors too, in at most three lines); 3 an intern
 one-line apology on stderr naming the log file that holds the traceback; 130 interrupted (Ctrl-C);
 143 terminated (SIGTERM) while the output set was being written.
 
-Only click and small modules of our own are imported at start-up: numpy, OpenCV, matplotlib and
-the analysis are imported inside the commands, so ``beamshot --help`` is quick.
+Only click and small modules of our own are imported at start-up: numpy, OpenCV and the analysis
+are imported inside the commands (matplotlib and SciPy only where a command draws with or fits by
+them), so ``beamshot --help`` is quick.
 """
 
 from __future__ import annotations
@@ -266,8 +267,9 @@ def cli():
     Caution: do not look into the beam or aim it at people, animals, vehicles or aircraft;
     powerful lights can scorch materials close to the lens.
 
-    Exit codes: 0 done; 1 far-field found a real difference; 2 an input problem (one line
-    naming the fix); 3 an internal error (the message names a log file).
+    Exit codes: 0 done; 1 far-field found a real difference, or qa a figure outside its
+    limits; 4 qa could not decide every figure; 2 an input problem (one line naming the fix);
+    3 an internal error (the message names a log file); 130 interrupted; 143 terminated.
     """
 
 

@@ -35,6 +35,7 @@ def compare(reports, out_dir, labels, wall_distance_m, same_meter):
     report.json); the folder must hold intensity-map.npz.  See docs/compare.md.
     """
     from .compare import compare as run_compare
+    from .figure import value_with_uncertainty
 
     comp = run_compare(reports, labels=labels, out_dir=out_dir, wall_distance_m=wall_distance_m,
                        same_meter=same_meter)
@@ -51,8 +52,10 @@ def compare(reports, out_dir, labels, wall_distance_m, same_meter):
                f"{len(comp.differences) - len(sig) - len(same)} not compared (bounds or not measured)")
     for d in sig:
         unit = {"deg": "°", "": ""}.get(d["unit"], " " + d["unit"])
-        click.echo(f"  {d['label']}: {d['b']} vs {d['a']}: {d['difference']:+.4g}{unit} "
-                   f"(± {d['combined_uncertainty']:.2g}, {abs(d['difference']) / d['combined_uncertainty']:.1f} σ)")
+        diff, u = value_with_uncertainty(d["difference"], d["combined_uncertainty"])  # GUM 7.2.6 rounding
+        sign = "+" if d["difference"] >= 0 and not diff.startswith("-") else ""
+        click.echo(f"  {d['label']}: {d['b']} vs {d['a']}: {sign}{diff} ± {u}{unit} "
+                   f"({abs(d['difference']) / d['combined_uncertainty']:.1f} σ)")
     for n in comp.notes:
         click.echo(f"  note: {n}")
     click.echo(f"wrote {os.path.join(out_dir, 'comparison.json')} and its pictures")

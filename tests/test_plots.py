@@ -68,6 +68,16 @@ def _legend_texts(drawing):
     return [label for label, _, _ in drawing.legend]
 
 
+def test_inset_label_gives_its_enlargement_on_the_page(drawn):
+    # the inset's "xN" is how much larger it shows the hotspot than the map does: the ratio of the
+    # two scales in degrees per pixel (it once gave the ratio of the angular widths shown, 2.6x too much)
+    _, drawing, _ = drawn
+    (label,) = drawing.text_of("inset-label")
+    shown = float(re.match(r"×([\d.]+)$", label).group(1))
+    v = drawing.values
+    assert shown == pytest.approx(v["map_deg_per_px"] / v["inset_deg_per_px"], abs=0.051)
+
+
 def test_ring_labels_are_full_angles(drawn):
     # every reported angle is a full cone angle (IES beam and field angles are full angles), so a
     # ring of radius r degrees from the axis is labelled 2r

@@ -331,7 +331,11 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
             _draw_image(c, ins, v2, floor, peak, factor)
             _draw_marks(c, ins, contours, None, pk, clipped, record=False)
             c.rect(*ibox, edge="#ffffff", width=1.2 * PX_PER_PT)
-            c.text(ibox[0] + 8, ibox[3] - 6, f"×{half / zoom:.0f}", font_px * 0.85, role="inset-label", ha="left",
+            # the enlargement on the page: the inset's side over the side of the box it enlarges
+            mag = (ibox[2] - ibox[0]) / max(abs(rx1 - rx0), 1e-9)
+            c.record.values["inset_deg_per_px"] = 2.0 * zoom / (ibox[2] - ibox[0])
+            c.record.values["map_deg_per_px"] = 2.0 * half / side
+            c.text(ibox[0] + 8, ibox[3] - 6, f"×{mag:.1f}", font_px * 0.85, role="inset-label", ha="left",
                    va="bottom", colour="#ffffff", stroke=2, stroke_colour="#000000")
     c.rect(*box, edge="#000000", width=1.0)
     c.text(box[2] - 8, box[3] - 6, "seen from behind the light", font_px * 0.8, role="map-note", ha="right",

@@ -23,11 +23,12 @@ MAX_TICKS = 12
 
 def log_ticks(lo: float, hi: float, *, short_scales: bool = False) -> list[tuple[float, str]]:
     """Tick values in ``[lo, hi]`` with their texts: decades, or 1-2-5 steps when ``short_scales``
-    and ``hi / lo`` is under 100."""
+    and fewer than three decades fall inside (a scale from 70 to 9,500 would show only 100 and 1,000)."""
     if not (lo > 0 and hi > lo and math.isfinite(lo) and math.isfinite(hi)):
         return []
     e0, e1 = math.floor(math.log10(lo)) - 1, math.ceil(math.log10(hi)) + 1
-    if short_scales and hi / lo < 100.0:
+    decades = sum(1 for e in range(e0, e1 + 1) if lo * (1 - 1e-9) <= 10.0 ** e <= hi * (1 + 1e-9))
+    if short_scales and decades < 3:
         vals = [m * 10.0 ** e for e in range(e0, e1 + 1) for m in (1, 2, 5)]
         text = _tick_text
     else:
