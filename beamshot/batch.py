@@ -788,7 +788,9 @@ def summary_rows(out_dir: str, items: list[Item], outcomes: dict) -> list[dict]:
     for it in items:
         o = outcomes.get(it.row) or Outcome(it.row, STATUS_FAILED, "not run (the batch stopped first)")
         rec = {"name": it.name, "row": it.row, "status": o.status, "reason": o.reason or "",
-               "folder": os.path.relpath(it.folder, out_dir) if it.folder else "", "key": it.key,
+               # a failed row's folder was never written: name none rather than one that does not exist
+               "folder": os.path.relpath(it.folder, out_dir) if it.folder and os.path.isdir(it.folder) else "",
+               "key": it.key,
                "seconds": o.seconds, "stage_seconds": o.stage_seconds or None, "figures": {}}
         if o.details:
             rec["details"] = o.details

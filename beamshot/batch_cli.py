@@ -98,8 +98,11 @@ def batch(ctx, manifest, out_dir, workers, scheduler, pictures, with_compare):
         where = f"the Dask cluster at {scheduler}" if scheduler else \
             f"{min(workers or default_workers(), todo)} local worker(s)"
         parts = [f"{len(items)} item(s) in {manifest}"]
+        bad = sum(1 for it in items if it.error is not None)
         if done:
             parts.append(f"{done} already done (skipped)")
+        if bad:
+            parts.append(f"{bad} refused (bad input; the summary says why)")
         parts.append(f"{todo} to analyse on {where}" if todo else "nothing to analyse")
         click.echo(", ".join(parts), err=True)
         progress.start(len(items))
