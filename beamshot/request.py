@@ -150,7 +150,7 @@ def check_positive(name: str, value, lo=None, hi=None, unit="", fix="", *, shown
     show = shown or (lambda v: f"{v:g}{unit}")
     tail = f"; {fix}" if fix else ""
     if not np.isfinite(value) or value <= 0:
-        raise BeamshotError(f"{name} must be a positive number, not {show(value)}{tail}")
+        raise BeamshotError(f"{name} must be a finite positive number, not {show(value)}{tail}")
     if lo is not None and value < lo:
         raise BeamshotError(f"{name} {show(value)} is too small (minimum {show(lo)}){tail}")
     if hi is not None and value > hi:

@@ -189,7 +189,7 @@ def test_broken_rows_fail_alone(shots, tmp_path):
     assert [rows[f"prototype {i}"]["status"] for i in range(1, 7)] == \
         [STATUS_DONE, STATUS_FAILED, STATUS_FAILED, STATUS_FAILED, STATUS_DONE, STATUS_FAILED]
     assert "missing.jpg: no such file" in rows["prototype 2"]["reason"]
-    assert "distance must be a positive number, not 0 m" in rows["prototype 3"]["reason"]
+    assert "distance must be a finite positive number, not 0 m" in rows["prototype 3"]["reason"]
     assert "distance_m 'five' is not a number" in rows["prototype 4"]["reason"]
     assert "0.05 looks like a fraction; write 5 for +/-5 %" in rows["prototype 6"]["reason"]
     for r in rows.values():
