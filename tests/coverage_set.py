@@ -101,8 +101,39 @@ def _project(cam: SynthCamera, wall_m: np.ndarray, distance_m: float) -> np.ndar
     return np.c_[p[:, 0] / p[:, 2] * f + cx, p[:, 1] / p[:, 2] * f + cy]
 
 
-def run_case(case: Case) -> list[dict]:
-    """Analyse one case; one row per reported figure with a known truth."""
+def ideal_shape_figures(rep, pattern) -> dict:
+    """The beam-shape figures of the same beam measured without a camera: the shape stage run on the
+    pattern itself, sampled on the report's map grid (no noise, no fault).  Their values are the truth
+    the report's shape figures are compared with (each figure as the tool defines it)."""
+    from beamshot.artefacts import shape_figures
+    from beamshot.beammap import BeamMap
+    from beamshot.measure import measure_shape
+
+    grid = rep.beam
+    tt, pp = np.meshgrid(grid.theta, grid.phi, indexing="ij")
+    ideal = BeamMap(theta=grid.theta, phi=grid.phi, intensity=np.asarray(pattern(tt, pp), float),
+                    saturated=np.zeros(tt.shape, bool), distance_m=grid.distance_m, unit="cd")
+    return shape_figures(ideal, measure_shape(ideal)).figures
+
+
+def shape_rows(case: Case, rep) -> list[dict]:
+    """One row per shape figure the report gives as measured or estimate with an uncertainty, against
+    :func:`ideal_shape_figures` where that is measured."""
+    truth = ideal_shape_figures(rep, case.pattern)
+    rows = []
+    for key, f in (rep.shape_figures or {}).items():
+        t = truth.get(key)
+        if (f.value is None or not f.uncertainty or f.status not in ("measured", "estimate") or t is None
+                or t.value is None or t.status != "measured"):
+            continue
+        rows.append({"case": case.name, "seed": case.seed, "figure": key, "value": f.value, "truth": t.value,
+                     "sigma": f.uncertainty, "z": float((f.value - t.value) / f.uncertainty), "status": f.status})
+    return rows
+
+
+def run_case(case: Case, shape: bool = False) -> list[dict]:
+    """Analyse one case; one row per reported figure with a known truth (with ``shape``, the
+    beam-shape figures too, figure names prefixed ``shape:``)."""
     photo = decode_photo(encode_jpeg(render_photo(case.pattern, case.scene, case.camera, seed=case.seed),
                                      case.camera, quality=case.quality), f"{case.name}.jpg")
     truth = truth_figures(case.pattern, case.scene.distance_m)
@@ -134,13 +165,15 @@ def run_case(case: Case) -> list[dict]:
         z = (f.value - truth[tkey]) / f.uncertainty
         rows.append({"case": case.name, "seed": case.seed, "figure": key, "value": f.value, "truth": truth[tkey],
                      "sigma": f.uncertainty, "z": float(z), "status": f.status})
+    if shape:
+        rows.extend(dict(r, figure="shape:" + r["figure"]) for r in shape_rows(case, rep))
     return rows
 
 
-def run(n_cases: int, first_seed: int = 0) -> list[dict]:
+def run(n_cases: int, first_seed: int = 0, shape: bool = False) -> list[dict]:
     rows = []
     for seed in range(first_seed, first_seed + n_cases):
-        rows.extend(run_case(draw_case(seed)))
+        rows.extend(run_case(draw_case(seed), shape=shape))
     return rows
 
 
@@ -148,7 +181,7 @@ def summary(rows: list[dict]) -> dict:
     """Fraction of figures within 2 sigma, and per figure the count, mean z and RMS z."""
     z = np.array([r["z"] for r in rows])
     per = {}
-    for key in TRUTH_KEYS:
+    for key in list(TRUTH_KEYS) + sorted({r["figure"] for r in rows} - set(TRUTH_KEYS)):
         zk = np.array([r["z"] for r in rows if r["figure"] == key])
         if len(zk):
             per[key] = {"n": int(len(zk)), "mean_z": float(zk.mean()), "rms_z": float(np.sqrt(np.mean(zk**2))),
