@@ -132,7 +132,7 @@ def run(request: Request, *, colour: bool | None = None) -> BeamReport:
     with clock("figures"):
         figures = figures_of(req, measured, scaled, unc)
     with clock("shape"):
-        shape = shape_of(req, linear, mapped, measured, unc)
+        shape = shape_of(req, linear, mapped, measured, unc, figures)
     colour_result = None
     if COLOUR_BY_DEFAULT if colour is None else colour:
         with clock("colour"):
@@ -406,17 +406,20 @@ def figures_of(req: Request, measured: "_Measured", scaled: Scaled, unc: Uncerta
 
 # ---- stage 8: beam shape and artefacts (artefacts.py, rings.py, shape_iso.py) -------------------
 
-def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured", unc: Uncertain) -> dict:
+def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured", unc: Uncertain,
+             figures: dict | None = None) -> dict:
     """Rings, centre hole, sectors, principal axes, ISO 11146 and ISO 13694 measures of the relative
-    map (scale-free: the absolute scale does not enter); see docs/artefacts.md."""
-    from .artefacts import shape_figures
+    map (scale-free: the absolute scale does not enter); see docs/artefacts.md.  The axes of the
+    hotspot and spill outlines take the systematic terms of the main figures on the same outline."""
+    from .artefacts import shape_figures, with_shared_terms
 
     block = _block_deg(unc.pixel_deg, mapped.image, linear.prep.beam_photos)
     ratio_delta = getattr(unc, "ratio_delta", 0.0)
-    return shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
-                         correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
-                         tone_assumed=getattr(unc, "ratio_source", "") == "assumed",
-                         bent=getattr(getattr(unc, "budget", None), "tone_bent", None)).figures
+    shape = shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
+                          correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
+                          tone_assumed=getattr(unc, "ratio_source", "") == "assumed",
+                          bent=getattr(getattr(unc, "budget", None), "tone_bent", None)).figures
+    return with_shared_terms(shape, figures or {})
 
 
 # ---- stage 9: colour across the beam (beamshot.colour) -------------------------------------------

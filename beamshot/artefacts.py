@@ -139,6 +139,46 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
     return out
 
 
+#: Shape figures measured on the same outline as a main figure, which therefore share its
+#: systematic error terms (distance, lens shading, wall points, pixel footprint): the main figures
+#: whose terms they take (the larger of the two, relative to each value).
+SHARED_OUTLINE = {
+    "spill_major_angle": ("spill_angle_horizontal", "spill_angle_vertical"),
+    "spill_minor_angle": ("spill_angle_horizontal", "spill_angle_vertical"),
+    "hotspot_major_angle": ("hotspot_angle_horizontal", "hotspot_angle_vertical"),
+    "hotspot_minor_angle": ("hotspot_angle_horizontal", "hotspot_angle_vertical"),
+}
+#: Terms the shape stage already counts itself (its pixel noise, the tone curve, the wall scale).
+_COUNTED = ("pixel noise", "tone curve", "wall scale")
+
+
+def with_shared_terms(shape: dict, main: dict) -> dict:
+    """``shape`` figures with the systematic terms of the main figures on the same outline
+    (:data:`SHARED_OUTLINE`) added in quadrature, each as the same fraction of the value (an error
+    that scales the outline, as the distance or the wall points do, scales both alike).  The
+    coverage check over faulted photos found the spill axes' pixel-noise-only uncertainty 5-10x too
+    small (benchmarks/coverage.py --shape)."""
+    out = dict(shape)
+    for key, sources in SHARED_OUTLINE.items():
+        f = shape.get(key)
+        if f is None or f.value is None or f.uncertainty is None or f.status not in ("measured", "estimate"):
+            continue
+        rel: dict[str, float] = {}
+        for src in sources:
+            m = main.get(src)
+            if m is None or not m.value or not m.budget:
+                continue
+            for name, u in m.budget:
+                if not name.startswith(_COUNTED):
+                    rel[name] = max(rel.get(name, 0.0), abs(u / m.value))
+        if not rel:
+            continue
+        extra = tuple((name, r * abs(f.value)) for name, r in rel.items())
+        u = float(np.sqrt(f.uncertainty ** 2 + sum(t ** 2 for _, t in extra)))
+        out[key] = replace(f, uncertainty=u, budget=(f.budget or (("pixel noise", f.uncertainty),)) + extra)
+    return out
+
+
 def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: float = 0.0,
                   correlation_deg: float = 0.0, tone_eps: float = 0.0, tone_assumed: bool = False,
                   seed: int = 0, bent=None) -> ShapeResult:

@@ -211,3 +211,24 @@ def test_a_clipped_hotspot_leaves_the_shape_not_measured():
     for key in ("ring_score", "centre_hole_depth", "d4sigma_major", "hotspot_flatness", "hotspot_major_angle"):
         assert s[key].status == "not_measured", key
         assert "clipped" in s[key].reason
+
+
+def test_outline_axes_take_the_systematic_terms_of_the_main_figures_on_that_outline():
+    # GUM 5.1.2 (uncorrelated terms add in quadrature); an error that scales the outline (the
+    # distance, the wall points) is the same fraction of both axes as of the spill angle
+    from beamshot.artefacts import with_shared_terms
+    from beamshot.figure import Figure
+
+    main = {"spill_angle_horizontal": Figure(60.0, 0.62, "deg", "m", budget=(("pixel noise", 0.1),
+                                             ("distance to the wall", 0.6), ("tone curve", 0.1))),
+            "spill_angle_vertical": Figure(60.0, 0.45, "deg", "m", budget=(("pixel noise", 0.1),
+                                           ("distance to the wall", 0.3), ("lens shading", 0.3)))}
+    shape = {"spill_major_angle": Figure(62.0, 0.05, "deg", "m", budget=(("pixel noise", 0.05),)),
+             "spill_ellipticity": Figure(0.99, 0.001, "", "m")}
+    out = with_shared_terms(shape, main)
+    terms = dict(out["spill_major_angle"].budget)
+    assert terms["distance to the wall"] == pytest.approx(0.01 * 62.0)  # the larger fraction of the two
+    assert terms["lens shading"] == pytest.approx(0.005 * 62.0)
+    assert "tone curve" not in terms  # the shape stage counts its own
+    assert out["spill_major_angle"].uncertainty == pytest.approx(np.sqrt(0.05**2 + 0.62**2 + 0.31**2))
+    assert out["spill_ellipticity"] is shape["spill_ellipticity"]  # a ratio: scale errors cancel
