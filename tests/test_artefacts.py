@@ -232,3 +232,17 @@ def test_outline_axes_take_the_systematic_terms_of_the_main_figures_on_that_outl
     assert "tone curve" not in terms  # the shape stage counts its own
     assert out["spill_major_angle"].uncertainty == pytest.approx(np.sqrt(0.05**2 + 0.62**2 + 0.31**2))
     assert out["spill_ellipticity"] is shape["spill_ellipticity"]  # a ratio: scale errors cancel
+
+
+def test_axis_ratios_take_the_wall_mappings_anisotropy():
+    # a mapping whose two axes differ in scale by a fraction d changes minor/major by that fraction
+    # (first order); GUM 5.1.2 quadrature with the noise term
+    from beamshot.artefacts import with_mapping_anisotropy
+    from beamshot.figure import Figure
+
+    shape = {"spill_ellipticity": Figure(0.98, 0.0005, "", "m", budget=(("pixel noise", 0.0005),)),
+             "spill_major_angle": Figure(60.0, 0.1, "deg", "m")}
+    out = with_mapping_anisotropy(shape, 0.003)
+    assert out["spill_ellipticity"].uncertainty == pytest.approx(np.hypot(0.0005, 0.003 * 0.98))
+    assert out["spill_major_angle"] is shape["spill_major_angle"]
+    assert with_mapping_anisotropy(shape, 0.0) is shape  # a pinhole square to the wall scales both alike
