@@ -411,7 +411,7 @@ def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured"
     """Rings, centre hole, sectors, principal axes, ISO 11146 and ISO 13694 measures of the relative
     map (scale-free: the absolute scale does not enter); see docs/artefacts.md.  The axes of the
     hotspot and spill outlines take the systematic terms of the main figures on the same outline."""
-    from .artefacts import shape_figures, with_mapping_anisotropy, with_shared_terms
+    from .artefacts import shape_figures, with_known_limits, with_mapping_anisotropy, with_shared_terms
 
     block = _block_deg(unc.pixel_deg, mapped.image, linear.prep.beam_photos)
     ratio_delta = getattr(unc, "ratio_delta", 0.0)
@@ -421,7 +421,7 @@ def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured"
                           bent=getattr(getattr(unc, "budget", None), "tone_bent", None)).figures
     # a homography (points or a target) may scale its two axes differently; a pinhole scales both alike
     anisotropy = mapped.f_u if mapped.f_px is None else 0.0
-    return with_mapping_anisotropy(with_shared_terms(shape, figures or {}), anisotropy)
+    return with_known_limits(with_mapping_anisotropy(with_shared_terms(shape, figures or {}), anisotropy))
 
 
 # ---- stage 9: colour across the beam (beamshot.colour) -------------------------------------------
