@@ -411,3 +411,24 @@ def test_relative_scale_is_drawn_relative_to_the_peak():
     assert drawing.values["colour_scale"][1] == pytest.approx(1.0, rel=1e-12)
     _, y = drawing.values["profile_mean"]
     assert np.nanmax(y) == pytest.approx(1.0, rel=1e-12)
+
+
+@pytest.mark.parametrize("light", [2, 3])
+def test_profile_legend_leaves_the_curve_visible(tmp_path, light):
+    # the demo beams whose spill plateau ran under the legend (prototypes 3 and 4): no drawn point
+    # of the azimuthal mean lies inside the legend's box
+    from beamshot.demo import DEMO_DISTANCE_M, DEMO_LIGHTS
+
+    name = DEMO_LIGHTS[light].name
+    images = Path(__file__).resolve().parents[1] / "sample_images"
+    report = analyze(str(images / f"{name}.jpg"), distance_m=DEMO_DISTANCE_M, ambient=str(images / f"{name}-off.jpg"))
+    v = write_beam_picture(report, tmp_path / "beam.png").drawing.values
+    (x0, y0, x1, y1), xmax = v["profile_box"]
+    lo, hi = np.log10(v["profile_ylim"])
+    x, y = v["profile_mean"]
+    ok = np.isfinite(y) & (y > 0)
+    px = x0 + x[ok] / xmax * (x1 - x0)
+    py = y1 - (np.log10(y[ok]) - lo) / (hi - lo) * (y1 - y0)
+    bx0, by0, bx1, by1 = v["profile_legend_box"]
+    inside = (px >= bx0) & (px <= bx1) & (py >= by0) & (py <= by1)
+    assert not inside.any()

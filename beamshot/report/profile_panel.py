@@ -60,6 +60,24 @@ def profile_series(profile, figures: dict, beam: BeamMap | None, noise: NoiseFlo
     return out
 
 
+def _legend_labels(s: dict, figures: dict) -> list:
+    """The legend's entries as :func:`draw_profile_panel` makes them (labels and kinds), to size the
+    legend before drawing."""
+    out = []
+    if s["band"] is not None:
+        out.append(("10–90 % over azimuth", "patch", {}))
+    if s["clipped_to"] is not None:
+        out.append(("clipped: not measured", "patch", {}))
+    out.append(("azimuthal mean", "line", {}))
+    if s["floor"] is not None:
+        out.append(("below the noise floor (3σ of the dark wall)", "patch", {}))
+    for key in ("hotspot_angle", "field_angle", "spill_angle"):
+        f = figures.get(key)
+        if f is not None and f.value is not None:
+            out.append((vocabulary.label(key), "line", {}))
+    return out
+
+
 def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap | None, noise: NoiseFloor | None,
                        label: str, font_px: float) -> None:
     """The radial profile in ``box`` (the plotting area, px) with ticks and labels around it."""
@@ -67,6 +85,19 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
     x0, y0, x1, y1 = box
     xmax = float(s["x"].max()) if s["x"].size else 1.0
     lo, hi = (np.log10(v) for v in s["ylim"])
+    # room at the top right for the legend: the y range grows upward until the curve under the
+    # legend's width stays below it (as a plot's legend would otherwise hide the spill)
+    size = 0.8 * font_px
+    lb = legend_box(_legend_labels(s, figures), top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2,
+                    row_gap=0.3)
+    w_leg, h_leg, m_leg = lb[2] - lb[0], lb[3] - lb[1], 0.8 * size
+    under = s["x"] >= xmax * (1.0 - (w_leg + 2.0 * m_leg) / (x1 - x0))
+    ys = s["y"][under] if s["x"].size else np.array([])
+    ys = ys[np.isfinite(ys) & (ys > 0)]
+    free = 1.0 - (h_leg + 2.0 * m_leg) / (y1 - y0)  # the fraction of the height below the legend
+    if ys.size and 0.3 < free < 1.0:
+        hi = max(hi, lo + (np.log10(float(ys.max())) - lo) / free + 0.02 * (hi - lo))
+        s["ylim"] = (s["ylim"][0], 10.0 ** hi)
 
     def px(x, y):
         x, y = np.asarray(x, float), np.asarray(y, float)
@@ -129,8 +160,8 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
     c.text(x0 - 22 - widest, (y0 + y1) / 2, label, font_px, role="profile-ylabel", ha="center", va="bottom",
            rotate=True)
 
-    # the legend in the corner where it covers the fewest drawn points of the mean (as 'best' placement)
-    size = 0.8 * font_px
+    # the legend in the corner where it covers the fewest drawn points of the mean (as 'best' placement;
+    # the y range above keeps the top right clear)
     lb = legend_box(entries, top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2, row_gap=0.3)
     w, h, m = lb[2] - lb[0], lb[3] - lb[1], 0.8 * size
     pts = px(s["x"], s["y"])
@@ -142,5 +173,8 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
         return int(np.sum((pts[:, 0] >= cx) & (pts[:, 0] <= cx + w) & (pts[:, 1] >= cy) & (pts[:, 1] <= cy + h)))
 
     best = min(corners, key=covered)
-    draw_legend(c, entries, top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2, row_gap=0.3,
-                role="profile-legend", frame=("#ffffff", "#cccccc"), box=best)
+    placed = draw_legend(c, entries, top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2, row_gap=0.3,
+                         role="profile-legend", frame=("#ffffff", "#cccccc"), box=best)
+    c.record.values["profile_box"] = (box, xmax)
+    pad = 0.4 * size  # draw_legend's frame around the entries
+    c.record.values["profile_legend_box"] = (placed[0] - pad, placed[1] - pad, placed[2] + pad, placed[3] + pad)
