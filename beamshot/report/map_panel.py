@@ -19,7 +19,7 @@ from .. import vocabulary
 from ..beammap import BeamMap
 from .colour_table import CIVIDIS_RGB
 from .plots import (_BELOW, _OUTSIDE, _SKY, _VERMILLION, INSET_BELOW_FRACTION, ISO_LEVELS,
-                    RING_LABEL_BEARING_DEG, _contour_xy, _inside_outline, _ring_step_full_deg, map_floor)
+                    RING_LABEL_BEARING_DEG, _contour_xy, _inside_outline, _ring_step_full_deg, map_view)
 from .raster import Canvas
 from .raster_chart import draw_legend, draw_line_sample, draw_mark, log_ticks
 
@@ -270,16 +270,8 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
                    font_px: float) -> float:
     """The map in ``box`` (square, px), its colour bar and legend below; returns the legend's bottom (px)."""
     contours = contours or {}
-    cov = float(np.degrees(beam.theta[np.any(beam.valid, axis=1)].max())) if beam.valid.any() else 10.0
-    half = min(cov, 89.0)
-    a, vals = picture_grid(beam, half)
-    relative = beam.unit != "cd"
-    peak = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else np.nan
-    if not peak > 0:  # nothing lit in view (the analysis refuses such photos; keep the picture drawable)
-        peak = 1.0
-    factor = 1.0 / peak if relative else 1.0
+    half, a, vals, peak, factor, floor, below_text = map_view(beam, contours, noise, picture_grid)
     edge = contours.get("edge")
-    floor, below_text = map_floor(beam, edge, peak, noise)
     ax = _MapAxes(box, half)
     _draw_image(c, ax, vals, floor, peak, factor)
     iso = _draw_iso(c, ax, a, vals, floor, font_px)

@@ -159,6 +159,22 @@ def _spill_median(beam: BeamMap, edge, peak: float) -> float | None:
     return float(np.median(v[cells]))
 
 
+def map_view(beam: BeamMap, contours: dict, noise: NoiseFloor | None, grid, half_width_deg: float | None = None):
+    """What a map picture shows, whichever draws it: the half width (deg; the photo's coverage, at
+    most 89), the grid ``grid(beam, half) -> (angles, values)``, the peak in view, the factor to the
+    shown unit (1/peak for a relative map) and the floor with its legend words (:func:`map_floor`).
+    Returns ``(half, a, vals, peak, factor, floor, below_text)``."""
+    cov = float(np.degrees(beam.theta[np.any(beam.valid, axis=1)].max())) if beam.valid.any() else 10.0
+    half = half_width_deg or min(cov, 89.0)
+    a, vals = grid(beam, half)
+    peak = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else np.nan
+    if not peak > 0:  # nothing lit in view (the analysis refuses such photos; keep the picture drawable)
+        peak = 1.0
+    factor = 1.0 / peak if beam.unit != "cd" else 1.0
+    floor, below_text = map_floor(beam, (contours or {}).get("edge"), peak, noise)
+    return half, a, vals, peak, factor, floor, below_text
+
+
 def map_floor(beam: BeamMap, edge, peak: float, noise: NoiseFloor | None) -> tuple[float, str]:
     """Bottom of the map's colour scale and what lies below it (for the legend).
 
@@ -313,16 +329,10 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     if ax is None:
         _, ax = plt.subplots(figsize=(FIG_WIDTH_IN, FIG_WIDTH_IN))
     contours = contours or {}
-    cov = float(np.degrees(beam.theta[np.any(beam.valid, axis=1)].max())) if beam.valid.any() else 10.0
-    half = half_width_deg or min(cov, 89.0)
-    a, vals = _azimuthal_grid(beam, half)
+    half, a, vals, peak, factor, floor, below_text = map_view(beam, contours, noise, _azimuthal_grid,
+                                                              half_width_deg)
     relative = beam.unit != "cd"
-    peak = float(np.nanmax(vals)) if np.any(np.isfinite(vals)) else np.nan
-    if not peak > 0:  # nothing lit in view (the analysis refuses such photos; keep the picture drawable)
-        peak = 1.0
-    factor = 1.0 / peak if relative else 1.0
     edge = contours.get("edge")
-    floor, below_text = map_floor(beam, edge, peak, noise)
     # NaN cells (outside the photo) are transparent: the hatched background shows through
     cmap = plt.get_cmap(_CMAP).with_extremes(under=_BELOW, bad=(0.0, 0.0, 0.0, 0.0))
     norm = LogNorm(vmin=floor * factor, vmax=peak * factor)

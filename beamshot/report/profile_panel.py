@@ -60,21 +60,31 @@ def profile_series(profile, figures: dict, beam: BeamMap | None, noise: NoiseFlo
     return out
 
 
-def _legend_labels(s: dict, figures: dict) -> list:
-    """The legend's entries as :func:`draw_profile_panel` makes them (labels and kinds), to size the
-    legend before drawing."""
+def _angle_styles() -> tuple:
+    """The vertical lines at the beam angles: (figure key, line style)."""
+    return (("hotspot_angle", dict(colour="#000000", width=1.4 * PX_PER_PT)),
+            ("field_angle", dict(MAP_STYLES["field"], width=1.3 * PX_PER_PT)),
+            ("spill_angle", MAP_STYLES["edge"]))
+
+
+_MEAN_STYLE = dict(colour=_BLUE, width=1.8 * PX_PER_PT)
+
+
+def _legend_entries(s: dict, figures: dict) -> list:
+    """The legend's entries ``(label, kind, style)``, in drawing order, for what the panel draws."""
     out = []
     if s["band"] is not None:
-        out.append(("10–90 % over azimuth", "patch", {}))
+        out.append(("10–90 % over azimuth", "patch", dict(fill=_BLUE, alpha=0.22)))
     if s["clipped_to"] is not None:
-        out.append(("clipped: not measured", "patch", {}))
-    out.append(("azimuthal mean", "line", {}))
+        out.append(("clipped: not measured", "patch", dict(hatch=("/", "\\"), hatch_colour=_VERMILLION,
+                                                           spacing=7.0, edge=None)))
+    out.append(("azimuthal mean", "line", _MEAN_STYLE))
     if s["floor"] is not None:
-        out.append(("below the noise floor (3σ of the dark wall)", "patch", {}))
-    for key in ("hotspot_angle", "field_angle", "spill_angle"):
+        out.append(("below the noise floor (3σ of the dark wall)", "patch", dict(fill=_FLOOR, alpha=0.28)))
+    for key, style in _angle_styles():
         f = figures.get(key)
         if f is not None and f.value is not None:
-            out.append((vocabulary.label(key), "line", {}))
+            out.append((vocabulary.label(key), "line", style))
     return out
 
 
@@ -88,7 +98,8 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
     # room at the top right for the legend: the y range grows upward until the curve under the
     # legend's width stays below it (as a plot's legend would otherwise hide the spill)
     size = 0.8 * font_px
-    lb = legend_box(_legend_labels(s, figures), top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2,
+    entries = _legend_entries(s, figures)
+    lb = legend_box(entries, top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2,
                     row_gap=0.3)
     w_leg, h_leg, m_leg = lb[2] - lb[0], lb[3] - lb[1], 0.8 * size
     under = s["x"] >= xmax * (1.0 - (w_leg + 2.0 * m_leg) / (x1 - x0))
@@ -112,7 +123,6 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
     for v in xt:
         c.polyline([(px(v, 1.0)[0, 0], y0), (px(v, 1.0)[0, 0], y1)], _GRID, 0.8 * PX_PER_PT, clip=box)
 
-    entries = []
     if s["band"] is not None:
         blo, bhi, where = s["band"]
         for i, j in finite_runs_mask(where):
@@ -120,29 +130,20 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
                 continue
             poly = np.vstack([px(s["x"][i:j], bhi[i:j]), px(s["x"][i:j], blo[i:j])[::-1]])
             c.polygon(poly, fill=_BLUE, alpha=0.22, clip=box)
-        entries.append(("10–90 % over azimuth", "patch", dict(fill=_BLUE, alpha=0.22)))
     if s["clipped_to"] is not None:
         xr = min(px(s["clipped_to"], 1.0)[0, 0], x1)
         c.hatch((x0, y0, xr, y1), colour=_VERMILLION, spacing=10.0, width=1.0, directions=("/", "\\"))
-        entries.append(("clipped: not measured", "patch", dict(hatch=("/", "\\"), hatch_colour=_VERMILLION,
-                                                               spacing=7.0, edge=None)))
-    mean_style = dict(colour=_BLUE, width=1.8 * PX_PER_PT)
-    c.polyline(px(s["x"], s["y"]), _BLUE, mean_style["width"], clip=box)
-    entries.append(("azimuthal mean", "line", mean_style))
+    c.polyline(px(s["x"], s["y"]), _BLUE, _MEAN_STYLE["width"], clip=box)
     c.record.values["profile_mean"] = (s["x"], s["y"])
     c.record.values["profile_ylim"] = s["ylim"]
     if s["floor"] is not None:
         yf = px(1.0, s["floor"])[0, 1]
         c.rect(x0, yf, x1, y1, fill=_FLOOR, alpha=0.28)
-        entries.append(("below the noise floor (3σ of the dark wall)", "patch", dict(fill=_FLOOR, alpha=0.28)))
-    for key, style in (("hotspot_angle", dict(colour="#000000", width=1.4 * PX_PER_PT)),
-                       ("field_angle", dict(MAP_STYLES["field"], width=1.3 * PX_PER_PT)),
-                       ("spill_angle", MAP_STYLES["edge"])):
+    for key, style in _angle_styles():
         f = figures.get(key)
         if f is not None and f.value is not None:
             x = px(f.value, 1.0)[0, 0]
             draw_line_sample(c, [(x, y0), (x, y1)], style, clip=box)
-            entries.append((vocabulary.label(key), "line", style))
     c.rect(x0, y0, x1, y1, edge="#000000", width=0.8 * PX_PER_PT)
 
     tick_px = 0.9 * font_px
@@ -162,8 +163,7 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
 
     # the legend in the corner where it covers the fewest drawn points of the mean (as 'best' placement;
     # the y range above keeps the top right clear)
-    lb = legend_box(entries, top=0.0, centre_x=0.0, size_px=size, ncol=1, handle_len=2.2, row_gap=0.3)
-    w, h, m = lb[2] - lb[0], lb[3] - lb[1], 0.8 * size
+    w, h, m = w_leg, h_leg, m_leg
     pts = px(s["x"], s["y"])
     pts = pts[np.isfinite(pts[:, 1])]
     corners = [(x1 - m - w, y0 + m), (x0 + m, y0 + m), (x1 - m - w, y1 - m - h), (x0 + m, y1 - m - h)]
