@@ -349,7 +349,7 @@ def reach_overlay_figure(comp, path=None):
     """Every light's axis illuminance against distance, and its 1 lx and 0.25 lx footprints on the ground."""
     from ..reach import (BEAM_DISTANCE_LUX, BRIGHT_POINT_LUX, DEFAULT_HEIGHT_M, DEFAULT_TILT_DEG, ground_illuminance,
                          lit_extent)
-    from .reach_plots import plot_axis_illuminance
+    from .reach_plots import for_iso_lines, plot_axis_illuminance
 
     plt = _pyplot()
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(7.2, 9.4), dpi=DPI, gridspec_kw={"height_ratios": (1, 1.25)})
@@ -362,7 +362,7 @@ def reach_overlay_figure(comp, path=None):
         g = ground_illuminance(light.beam, height_m=DEFAULT_HEIGHT_M, tilt_deg=DEFAULT_TILT_DEG, reach_m=reach_m,
                                half_width_m=half_m, n=301)
         st = style(i)
-        e = np.where(np.isfinite(g.illuminance), g.illuminance, 0.0)
+        e = for_iso_lines(g.illuminance)
         ax2.contour(g.x_m, g.y_m, e, levels=[BEAM_DISTANCE_LUX], colors=[st["color"]], linewidths=1.0,
                     linestyles=[":"])
         ax2.contour(g.x_m, g.y_m, e, levels=[BRIGHT_POINT_LUX], colors=[st["color"]], linewidths=1.8,

@@ -57,6 +57,16 @@ def plot_axis_illuminance(items, *, ax=None):
     return ax
 
 
+def for_iso_lines(e: np.ndarray) -> np.ndarray:
+    """A ground illuminance grid made ready for iso-lux lines: outside the map 0, smoothed by one grid
+    step (0.2-0.3 m at the usual extents) so that the map's cell noise in a faint, flat spill does not
+    fray the lines; a peak four steps wide loses a few per cent.  Colours stay unsmoothed."""
+    from ..smoothing import gaussian_filter1d
+
+    filled = np.where(np.isfinite(e), e, 0.0)
+    return gaussian_filter1d(gaussian_filter1d(filled, 1.0, axis=0), 1.0, axis=1)
+
+
 def plot_ground(ground, *, ax=None, cbar_ax=None):
     """The ground from above: illuminance (lx, log colour) and labelled iso-lux lines. Returns the image."""
     from matplotlib.colors import LogNorm
@@ -83,13 +93,7 @@ def plot_ground(ground, *, ax=None, cbar_ax=None):
     im = ax.imshow(shown, origin="lower", extent=(ground.x_m[0], ground.x_m[-1], ground.y_m[0], ground.y_m[-1]),
                    cmap=cmap, norm=norm, interpolation="bilinear", aspect="auto")
     if levels:
-        from ..smoothing import gaussian_filter1d
-
-        # smoothed by one grid step (0.2-0.3 m at the usual extents), so that the map cell noise in a faint,
-        # flat spill does not fray the lines; a peak four steps wide loses a few per cent (colours unsmoothed)
-        filled = np.where(np.isfinite(e), e, 0.0)
-        filled = gaussian_filter1d(gaussian_filter1d(filled, 1.0, axis=0), 1.0, axis=1)
-        cs = ax.contour(ground.x_m, ground.y_m, filled, levels=levels, colors="white", linewidths=1.0)
+        cs = ax.contour(ground.x_m, ground.y_m, for_iso_lines(e), levels=levels, colors="white", linewidths=1.0)
         ax.clabel(cs, fmt=(lambda v: f"{v:g} lx") if absolute else (lambda v: f"{v:.0e} of max"),
                   fontsize=FONT_PT * 0.75)
     ax.plot([0], [0], marker="^", color="#E69F00", ms=9, mec="black", ls="none")
