@@ -6,7 +6,15 @@ is taken and ``mu`` shrinks by ``max(1/3, 1 - (2 rho - 1)^3)`` (``rho``: actual 
 decrease), otherwise ``mu`` grows by ``nu`` and ``nu`` doubles.  This is Algorithm 3.16 of
 K. Madsen, H. B. Nielsen, O. Tingleff, *Methods for Non-Linear Least Squares Problems*, 2nd ed.,
 IMM DTU 2004 (Marquardt 1963; damping update by Nielsen 1999), with the stopping tests
-``|g|_inf <= gtol`` and ``|h| <= xtol (|x| + xtol)``.
+``|g|_inf <= gtol``, ``|h| <= xtol (|x| + xtol)`` and, if ``ftol`` > 0, a step that lowers ``F``
+by less than ``ftol F`` as predicted and as found (MINPACK's test; Moré, Garbow & Hillstrom 1980).
+
+With ``bounds=(lower, upper)`` each trial point is projected onto the box (a projected
+Levenberg-Marquardt step; Kanzow, Yamashita & Fukushima, J. Comput. Appl. Math. 172, 2004): the
+variables held at a bound by the gradient are left out of the step (an active set), the
+step taken is the projected one, its predicted decrease is that of the Gauss-Newton model for that
+step, ``-h^T g - h^T A h / 2``, and gradient components that push against an active bound do not
+count in the stopping test.
 
 The light-pose fit (beamshot/aim.py) runs on every analysis; SciPy's ``least_squares`` would cost
 about 0.3 s of import per process for a five-parameter fit of a few hundred points.
@@ -35,38 +43,61 @@ class LeastSquaresFit:
 
 
 def levenberg_marquardt(fun: Callable, x0, jac: Callable, *, x_scale=None, gtol: float = 1e-12,
-                        xtol: float = 1e-12, max_iterations: int = 500) -> LeastSquaresFit:
-    """Minimise ``|fun(x)|^2`` from ``x0`` with the Jacobian ``jac(x)`` (see the module docstring)."""
+                        xtol: float = 1e-12, max_iterations: int = 500, bounds=None,
+                        ftol: float = 0.0) -> LeastSquaresFit:
+    """Minimise ``|fun(x)|^2`` from ``x0`` with the Jacobian ``jac(x)``, optionally within
+    ``bounds=(lower, upper)`` (see the module docstring)."""
     x = np.asarray(x0, float).copy()
     scale = np.ones_like(x) if x_scale is None else np.asarray(x_scale, float)
+    if bounds is None:
+        lower = upper = None
+    else:
+        lower, upper = (np.broadcast_to(np.asarray(b, float), x.shape) for b in bounds)
+        x = np.clip(x, lower, upper)
+
+    def free(g):  # the gradient without components pushing against an active bound
+        if lower is None:
+            return g
+        return np.where(((x <= lower) & (g > 0)) | ((x >= upper) & (g < 0)), 0.0, g)
+
     r, J = np.asarray(fun(x), float), np.asarray(jac(x), float)
     Js = J * scale
     A, g = Js.T @ Js, Js.T @ r
     mu, nu = 1e-3 * float(np.max(np.diag(A))), 2.0
     cost = 0.5 * float(r @ r)
-    converged = bool(np.max(np.abs(g)) <= gtol)
+    converged = bool(np.max(np.abs(free(g))) <= gtol)
     k = 0
     while not converged and k < max_iterations:
         k += 1
+        fr = free(g) != 0 if lower is not None else slice(None)  # variables not held by a bound
+        h = np.zeros_like(x)
         try:
-            h = np.linalg.solve(A + mu * np.eye(x.size), -g)
+            h[fr] = np.linalg.solve(A[fr][:, fr] + mu * np.eye(int(np.count_nonzero(fr)) if lower is not None
+                                                             else x.size), -g[fr])
         except np.linalg.LinAlgError:
             break
+        x_new = x + h * scale
+        if lower is not None:
+            x_new = np.clip(x_new, lower, upper)
+            h = (x_new - x) / scale
         u = x / scale
         if np.linalg.norm(h) <= xtol * (np.linalg.norm(u) + xtol):
             converged = True
             break
-        x_new = x + h * scale
         r_new = np.asarray(fun(x_new), float)
         cost_new = 0.5 * float(r_new @ r_new)
-        predicted = 0.5 * float(h @ (mu * h - g))
+        if lower is None:  # the exact step: -h^T g - h^T A h / 2 = h^T (mu h - g) / 2
+            predicted = 0.5 * float(h @ (mu * h - g))
+        else:
+            predicted = -float(h @ g) - 0.5 * float(h @ A @ h)
         rho = (cost - cost_new) / predicted if predicted > 0 else -1.0
         if rho > 0:
+            small = ftol > 0 and cost - cost_new <= ftol * cost and predicted <= ftol * cost
             x, r, cost = x_new, r_new, cost_new
             J = np.asarray(jac(x), float)
             Js = J * scale
             A, g = Js.T @ Js, Js.T @ r
-            converged = bool(np.max(np.abs(g)) <= gtol)
+            converged = small or bool(np.max(np.abs(free(g))) <= gtol)
             mu *= max(1.0 / 3.0, 1.0 - (2.0 * rho - 1.0) ** 3)
             nu = 2.0
         else:

@@ -134,27 +134,53 @@ def _jac(params, t):
     return np.stack(powers + [k, amp * k * (t - mu) / w ** 2, amp * k * (t - mu) ** 2 / w ** 3], axis=1)
 
 
+def _ring_log(theta, t):
+    """``ln(1 + a g)`` of the ring ``theta = (a, mu, w)`` and its derivatives by ``theta``, ``(len(t), 3)``."""
+    amp, mu, w = theta
+    g = np.exp(-0.5 * ((t - mu) / w) ** 2)
+    k = g / (1.0 + amp * g)
+    return np.log1p(amp * g), np.stack([k, amp * k * (t - mu) / w ** 2, amp * k * (t - mu) ** 2 / w ** 3], axis=1)
+
+
 def _fit_ring(t, lp, s, guess_mu, smooth_at, step, degree=POLY_DEGREE):
     """Least-squares fit of :func:`_model` to the log profile ``lp`` (1-sigma ``s``) on samples ``t``
-    (deg) about ``guess_mu``: ``(Ring, params)`` with ``params`` centred at ``guess_mu``, or None."""
+    (deg) about ``guess_mu``: ``(Ring, params)`` with ``params`` centred at ``guess_mu``, or None.
+
+    The model is linear in the polynomial's coefficients, so they are projected out (variable
+    projection; Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973): with ``Q`` an orthonormal basis
+    of the weighted polynomial columns, the ring's ``(a, mu, w)`` minimise
+    ``|(I - Q Q^T) W (ln(1 + a g) - lp)|^2``, whose Jacobian is the projected one exactly (the
+    projector does not depend on them); a bounded Levenberg-Marquardt fit (beamshot.levenberg)
+    finds them and the coefficients follow by linear least squares.  The minimum is the one of
+    the full model (tests/test_numerics.py compares it with SciPy's ``least_squares``), and the
+    covariance is that of the full model's Jacobian at it.
+    """
+    from .levenberg import levenberg_marquardt
+
     tc = t - guess_mu
     n = degree + 1
     a0 = float(np.clip(np.expm1(np.interp(0.0, tc, lp - smooth_at)), -0.5, 1.0))
-    x0 = np.polyfit(tc, smooth_at, degree)[::-1].tolist() + [a0, 0.0, 0.4]
     lo_w, hi_w = MIN_FWHM_DEG / _FWHM, MAX_FWHM_DEG / _FWHM
-    x0[-1] = float(np.clip(x0[-1], lo_w * 1.01, hi_w * 0.99))
-    lb = [-np.inf] * n + [-0.95, -1.0, lo_w]
-    ub = [np.inf] * n + [10.0, 1.0, hi_w]
-    from scipy.optimize import least_squares  # imported only when a ring candidate is fitted (0.3 s)
+    theta0 = [a0, 0.0, float(np.clip(0.4, lo_w * 1.01, hi_w * 0.99))]
+    wt = 1.0 / s
+    basis = np.vander(tc, n, increasing=True) * wt[:, None]
+    qbasis = np.linalg.qr(basis)[0]
+    target = lp * wt
 
-    try:
-        fit = least_squares(lambda q: (_model(q, tc) - lp) / s, x0, jac=lambda q: _jac(q, tc) / s[:, None],
-                            bounds=(lb, ub), x_scale="jac")
-    except ValueError:
+    def off_basis(v):  # (I - Q Q^T) v
+        return v - qbasis @ (qbasis.T @ v)
+
+    fit = levenberg_marquardt(lambda th: off_basis(_ring_log(th, tc)[0] * wt - target),
+                              theta0, lambda th: off_basis(_ring_log(th, tc)[1] * wt[:, None]),
+                              bounds=([-0.95, -1.0, lo_w], [10.0, 1.0, hi_w]), gtol=0.0, xtol=1e-10, ftol=1e-12)
+    if not fit.converged or not np.all(np.isfinite(fit.x)):
         return None
-    q = fit.x
-    chi2 = float(np.sum(fit.fun ** 2) / max(len(t) - len(q), 1))
-    jac = fit.jac
+    ring_part = _ring_log(fit.x, tc)[0]
+    coef = np.linalg.lstsq(basis, target - ring_part * wt, rcond=None)[0]
+    q = np.r_[coef, fit.x]
+    resid = (_model(q, tc) - lp) / s
+    chi2 = float(np.sum(resid ** 2) / max(len(t) - len(q), 1))
+    jac = _jac(q, tc) / s[:, None]
     try:
         cov = np.linalg.inv(jac.T @ jac) * max(chi2, 1.0)
     except np.linalg.LinAlgError:

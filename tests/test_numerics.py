@@ -141,6 +141,58 @@ def test_levenberg_marquardt_finds_scipys_minimum():
     np.testing.assert_allclose(ours.jac, jac(ours.x), rtol=0, atol=0)
 
 
+def test_bounded_levenberg_marquardt_stops_on_the_bound_scipy_finds():
+    # the same decay fit with the rate held below its free optimum: SciPy's bounded trust-region
+    # fit ends on the bound, and so must ours (the gradient pushes against it)
+    rng = np.random.default_rng(4)
+    t = np.linspace(0, 4, 60)
+    y = 2.5 * np.exp(-1.3 * t) + 0.5 + rng.normal(0, 0.02, t.size)
+
+    def fun(q):
+        return q[0] * np.exp(-q[1] * t) + q[2] - y
+
+    def jac(q):
+        e = np.exp(-q[1] * t)
+        return np.c_[e, -q[0] * t * e, np.ones_like(t)]
+
+    lo, hi = [-np.inf, 0.0, -np.inf], [np.inf, 1.0, np.inf]
+    ours = levenberg_marquardt(fun, [1.0, 0.5, 0.0], jac, bounds=(lo, hi), ftol=1e-15)
+    ref = optimize.least_squares(fun, [1.0, 0.5, 0.0], jac=jac, bounds=(lo, hi), xtol=1e-15, ftol=1e-15,
+                                 gtol=1e-15)
+    assert ours.converged and ours.x[1] == 1.0
+    np.testing.assert_allclose(ours.x, ref.x, rtol=1e-7)
+
+
+@pytest.mark.parametrize("amp, mu, fwhm", [(0.3, 0.2, 1.0), (-0.15, -0.3, 0.6), (0.05, 0.0, 2.0)])
+def test_ring_fit_finds_the_minimum_of_the_full_model(amp, mu, fwhm):
+    # a log-parabola hotspot (a Gaussian profile) times a Gaussian ring, with noise: the separable
+    # fit must reach the minimum SciPy's bounded least_squares finds on all nine parameters with
+    # tight tolerances (the reference implementation), and the same covariance
+    from beamshot.rings import POLY_DEGREE, _FWHM, _fit_ring, _jac, _model
+
+    rng = np.random.default_rng(5)
+    step = 0.05
+    centre = 8.0
+    t = np.arange(centre - 3.0, centre + 3.0 + step / 2, step)
+    w = fwhm / _FWHM
+    smooth = -0.5 * (t / 6.0) ** 2
+    s = np.full(t.size, 0.01)
+    lp = smooth + np.log1p(amp * np.exp(-0.5 * ((t - centre - mu) / w) ** 2)) + rng.normal(0, 0.01, t.size)
+    ring, q = _fit_ring(t, lp, s, centre, smooth, step)
+    tc = t - centre
+    lo_w, hi_w = 0.2 / _FWHM, 3.0 / _FWHM
+    n = POLY_DEGREE + 1
+    x0 = np.polyfit(tc, smooth, POLY_DEGREE)[::-1].tolist() + [0.0, 0.0, 0.4]
+    ref = optimize.least_squares(lambda p: (_model(p, tc) - lp) / s, x0, jac=lambda p: _jac(p, tc) / s[:, None],
+                                 bounds=([-np.inf] * n + [-0.95, -1.0, lo_w], [np.inf] * n + [10.0, 1.0, hi_w]),
+                                 x_scale="jac", xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=10000)
+    sigma = np.array([ring.amplitude_sigma, ring.angle_sigma, ring.width_sigma / _FWHM])
+    assert np.all(np.abs(q[-3:] - ref.x[-3:]) <= 1e-4 * sigma)  # the same minimum, to 1e-4 of its 1-sigma
+    assert np.sum(((_model(q, tc) - lp) / s) ** 2) <= 2.0 * ref.cost * (1 + 1e-12)
+    assert ring.amplitude == pytest.approx(amp, abs=5 * ring.amplitude_sigma)
+    assert ring.angle_deg == pytest.approx(centre + mu, abs=5 * ring.angle_sigma)
+
+
 def test_light_pose_fit_recovers_an_exact_cone():
     # analytic: points on the intersection of a cone (apex 5 m from the wall, axis turned 4 deg
     # right and 2 deg up, half-angle 25 deg) with the wall plane give back the cone
@@ -167,7 +219,8 @@ def test_an_analysis_and_its_report_set_import_no_scipy():
         "from beamshot.synth import HotspotSpillBeam, Scene, SynthCamera, render_photo, encode_jpeg, exposure_time_for_peak\n"
         "from dataclasses import replace\n"
         "import tempfile, os\n"
-        "p = HotspotSpillBeam(peak_cd=5000, hotspot_fwhm_deg=8, spill_fraction=0.02, cutoff_deg=30)\n"
+        "p = HotspotSpillBeam(peak_cd=5000, hotspot_fwhm_deg=8, spill_fraction=0.02, cutoff_deg=30,\n"
+        "                     rings=((12.0, 1.0, 0.1),))\n"
         "s = Scene(distance_m=3.0)\n"
         "c = SynthCamera(width_px=800, height_px=600, focal_35mm_mm=18)\n"
         "c = replace(c, exposure_time_s=exposure_time_for_peak(p, s, c, target=0.8))\n"
@@ -175,10 +228,16 @@ def test_an_analysis_and_its_report_set_import_no_scipy():
         "open(path, 'wb').write(encode_jpeg(render_photo(p, s, c), c))\n"
         "for m in [m for m in sys.modules if m.startswith('scipy')]:\n"
         "    del sys.modules[m]\n"
-        "from beamshot import analyze\n"
+        "from beamshot import analyze, rings\n"
         "from beamshot.report.output import write_report\n"
+        "fits = []\n"
+        "fit_ring = rings._fit_ring\n"
+        "rings._fit_ring = lambda *a, **k: fits.append(1) or fit_ring(*a, **k)\n"
         "write_report(analyze(path, distance_m=3.0), os.path.join(os.path.dirname(path), 'out'))\n"
+        "print(len(fits))\n"
         "print(sorted(m for m in sys.modules if m.startswith('scipy')))\n"
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert out.stdout.strip().splitlines()[-1] == "[]"
+    lines = out.stdout.strip().splitlines()
+    assert int(lines[-2]) >= 1  # the ring was fitted (with beamshot.levenberg, not SciPy)
+    assert lines[-1] == "[]"
