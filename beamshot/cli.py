@@ -379,20 +379,26 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
     if point is not None:
         kw["lux_point_px"] = point
 
-    from .analysis import analyze as run
-    from .report.output import write_report
+    meter_u = None if _defaulted(ctx, "meter_accuracy") else _meter_accuracy_fraction(meter_accuracy, "--meter-accuracy")
+    from .decode_ahead import decode_ahead
 
-    report = run(list(photos) if len(photos) > 1 else photos[0], distance_m=distance_m,
-                 distance_uncertainty_m=None if _defaulted(ctx, "distance_u") else distance_u,
-                 ambient=ambient, flat=flat, lux_at_peak=lux,
-                 lux_meter_accuracy=None if _defaulted(ctx, "meter_accuracy")
-                 else _meter_accuracy_fraction(meter_accuracy, "--meter-accuracy"),
-                 reflectance=None if _defaulted(ctx, "reflectance") else reflectance,
-                 use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
-                 camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
-                 camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
-                 target_scale=target_scale, assume_square=assume_square, light_name=light_name,
-                 **({"colour": True} if colour else {}), **kw)
+    # the photos decode on a second thread while the analysis modules import (beamshot/decode_ahead.py)
+    ahead, (beam, ambient, flat, dark) = decode_ahead(list(photos), ambient, flat, dark)
+    try:
+        from .analysis import analyze as run
+        from .report.output import write_report
+
+        report = run(beam if len(beam) > 1 else beam[0], distance_m=distance_m,
+                     distance_uncertainty_m=None if _defaulted(ctx, "distance_u") else distance_u,
+                     ambient=ambient, flat=flat, lux_at_peak=lux, lux_meter_accuracy=meter_u,
+                     reflectance=None if _defaulted(ctx, "reflectance") else reflectance,
+                     use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
+                     camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
+                     camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
+                     target_scale=target_scale, assume_square=assume_square, light_name=light_name,
+                     **({"colour": True} if colour else {}), **kw)
+    finally:
+        ahead.settle()  # before anything is printed: the decoder's stderr capture has ended
     if spec is not None:
         from dataclasses import replace
 

@@ -38,6 +38,7 @@ from .camera.hdr import merge_bracket
 from .camera.linearize import LinearImage, linearize
 from .camera.profile import CameraProfile
 from .camera.response import Response, parse_response
+from .decode_ahead import PendingPhoto
 from .errors import BeamshotError
 from .photo import Photo, load_photo
 
@@ -51,9 +52,11 @@ RESPONSE_SOURCES = ("assumed", "camera profile", "recovered from the bracket", "
 
 
 def load_input(obj, role: str) -> Photo:
-    """A Photo as given, or loaded from a path."""
+    """A Photo as given, loaded from a path, or the result of one being loaded (beamshot.decode_ahead)."""
     if isinstance(obj, Photo):
         return obj
+    if isinstance(obj, PendingPhoto):
+        return obj.result()
     if isinstance(obj, (str, os.PathLike)):
         return load_photo(obj)
     raise TypeError(f"{role}: expected a path or a Photo, not {type(obj).__name__}")
