@@ -1,6 +1,6 @@
 """Benchmark: analysis time beside plain decoding of the same JPEG, at 12 MP and 48 MP.
 
-Run:  python benchmarks/bench_analysis.py [--sizes 12 48] [--repeat 3]
+Run:  python benchmarks/bench_analysis.py [--sizes 12 48] [--repeat 3] [--processes 5]
 
 Photos are rendered once by beamshot.synth into benchmarks/_cache/.  For each size the
 script times, in the same process and run: (a) plain decoding with OpenCV, (b) beamshot's
@@ -10,6 +10,12 @@ ratios of each repeat - plus the peak resident memory (VmHWM) of a separate proc
 (c) once.  A second table gives the median seconds of each analysis stage (report.stage_seconds)
 and of beam.png.  The photos carry phone-like sensor noise so that they compress (and decode)
 like real ones.
+
+With ``--processes N`` a third table times whole processes, as a user waits for them: ``beamshot
+analyze PHOTO --distance 5 --out DIR`` (all report files) and a process that only imports OpenCV
+and decodes the same photo, run alternately N times each, with Python's bytecode cache on (as after
+a normal install, whatever PYTHONDONTWRITEBYTECODE says here); it reports both medians and the
+median of the per-pair ratios.
 """
 
 from __future__ import annotations
@@ -66,6 +72,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--sizes", type=int, nargs="+", default=[12, 48])
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--processes", type=int, default=0, help="also time N whole processes of each kind")
     ap.add_argument("--child", default=None, help=argparse.SUPPRESS)
     ap.add_argument("--render", type=int, default=None, help=argparse.SUPPRESS)
     args = ap.parse_args()
@@ -117,6 +124,36 @@ def main() -> None:
     print(f"{'size':>6} " + " ".join(f"{k:>12}" for k in keys))
     for mp, med in stage_rows:
         print(f"{mp:>4}MP " + " ".join(f"{med[k]:>12.3f}" for k in keys))
+
+    if args.processes:
+        whole_processes(args.sizes, args.processes)
+
+
+def whole_processes(sizes, n: int) -> None:
+    """Median wall seconds of ``beamshot analyze --out`` and of a decode-only process, alternated."""
+    import shutil
+    import tempfile
+
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+    out = tempfile.mkdtemp(prefix="beamshot-bench-")
+    print(f"\nwhole processes, {n} of each kind alternated (bytecode cache on)")
+    print(f"{'size':>6} {'analyze s':>10} {'decode s':>9} {'ratio':>6}")
+    for mp in sizes:
+        path = ensure_photo(mp)
+        ana, dec = [], []
+        for _ in range(n):
+            t0 = time.perf_counter()
+            subprocess.run([sys.executable, "-m", "beamshot", "analyze", path, "--distance", "5", "--out",
+                            os.path.join(out, "set")], env=env, check=True, capture_output=True)
+            t1 = time.perf_counter()
+            subprocess.run([sys.executable, "-c", f"import cv2; cv2.imread({path!r})"], env=env, check=True)
+            t2 = time.perf_counter()
+            ana.append(t1 - t0)
+            dec.append(t2 - t1)
+        ratio = float(np.median(np.asarray(ana) / np.asarray(dec)))
+        print(f"{mp:>4}MP {np.median(ana):>10.3f} {np.median(dec):>9.3f} {ratio:>6.2f}")
+    shutil.rmtree(out, ignore_errors=True)
+
 
 if __name__ == "__main__":
     main()
