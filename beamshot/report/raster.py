@@ -74,6 +74,73 @@ def _measure():
     return ImageDraw.Draw(Image.new("L", (1, 1)))
 
 
+@functools.lru_cache(maxsize=4096)
+def _text_bbox(s: str, size_i: int, style: str, anchor: str, stroke: int) -> tuple:
+    """Pillow's box of ``s`` drawn at (0, 0) (px); cached per process, as a batch repeats most texts."""
+    return tuple(_measure().textbbox((0, 0), s, font=font(size_i, style), anchor=anchor, stroke_width=stroke))
+
+
+@functools.lru_cache(maxsize=4096)
+def _text_length(s: str, size_i: int, style: str) -> float:
+    return float(font(size_i, style).getlength(s))
+
+
+@functools.lru_cache(maxsize=2048)
+def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float):
+    """The coverage (0-255, ``uint8``, read-only) Pillow draws for ``s`` anchored at a point whose
+    fractional position is ``(fx, fy)``, and that point's integer position in the array ``(ox, oy)``:
+    Pillow's own ``ImageDraw.text`` on a blank 'L' image, so that each glyph's anti-aliasing is
+    Pillow's; ``None`` where ``ox + fx`` is not exact in floating point (the caller then draws the
+    text with Pillow on the picture).  Cached per process: a batch's pictures repeat most texts at
+    the same fractional positions (labels, ticks, legend, table)."""
+    from PIL import Image, ImageDraw
+
+    x0, y0, x1, y1 = _text_bbox(s, size_i, style, anchor, stroke)
+    ox, oy = 2 - int(np.floor(x0)), 2 - int(np.floor(y0))
+    if (ox + fx) - ox != fx or (oy + fy) - oy != fy:
+        return None
+    w, h = int(np.ceil(x1)) + ox + 3, int(np.ceil(y1)) + oy + 3
+    img = Image.new("L", (max(w, 1), max(h, 1)), 0)
+    ImageDraw.Draw(img).text((ox + fx, oy + fy), s, fill=255, font=font(size_i, style), anchor=anchor,
+                             stroke_width=stroke)
+    ink = np.asarray(img)
+    ink.flags.writeable = False
+    return ink, ox, oy
+
+
+def _blend_ink(out: np.ndarray, ink: np.ndarray, left: int, top: int, colour, region) -> None:
+    """Paint ``colour`` through the coverage ``ink`` placed with its corner at ``(left, top)`` onto
+    ``out`` (RGB uint8), within ``region`` ``(x0, y0, x1, y1)``: Pillow's mask fill in integers,
+    out = (bg (255 - m) + c m) / 255 rounded as its ``DIV255`` (``t = v + 128; ((t >> 8) + t) >> 8``),
+    so that the pixels equal those ``ImageDraw.text`` gives (tests/test_raster_text.py checks it)."""
+    x0, y0, x1, y1 = max(region[0], left), max(region[1], top), min(region[2], left + ink.shape[1]), \
+        min(region[3], top + ink.shape[0])
+    if x1 <= x0 or y1 <= y0:
+        return
+    m = ink[y0 - top:y1 - top, x0 - left:x1 - left]
+    rows, cols = np.nonzero(m)
+    if rows.size == 0:
+        return
+    # only the inked box: the rest keeps its pixels (m = 0 leaves a pixel as it is)
+    r0, r1, c0, c1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
+    m = m[r0:r1, c0:c1].astype(np.uint32)[:, :, None]
+    sub = out[y0 + r0:y0 + r1, x0 + c0:x0 + c1]
+    t = sub * (255 - m) + np.asarray(colour, np.uint32) * m + 128
+    sub[:] = ((t >> 8) + t) >> 8
+
+
+def _blend_tab(out: np.ndarray, box, colour, alpha: float) -> None:
+    """``Image.blend`` of the pixels in ``box`` with ``colour``: in1 + alpha (in2 - in1) in single
+    precision, truncated to 8 bits, as Pillow computes it."""
+    x0, y0, x1, y1 = max(box[0], 0), max(box[1], 0), min(box[2], out.shape[1]), min(box[3], out.shape[0])
+    if x1 <= x0 or y1 <= y0:
+        return
+    sub = out[y0:y1, x0:x1]
+    a = np.float32(alpha)
+    v = sub.astype(np.float32) + a * (np.asarray(colour, np.float32) - sub.astype(np.float32))
+    sub[:] = np.clip(v, 0, 255).astype(np.uint8)
+
+
 @dataclass
 class TextItem:
     """One text drawn: its role (e.g. 'title', 'legend', 'figure-value:peak_intensity'), the text,
@@ -112,6 +179,7 @@ class _QueuedText:
     xy: tuple[float, float]
     anchor: str
     font: object
+    size_i: int
     stroke: int
     stroke_colour: tuple | None
     background: tuple | None
@@ -288,32 +356,34 @@ class Canvas:
         (top/center/baseline/bottom); ``rotate`` turns it a quarter turn counter-clockwise (reads
         bottom to top, ``ha`` then aligns vertically).  ``background`` draws a tab ``pad`` px
         around it.  Returns its record (box in final px)."""
-        f = font(int(round(size_px)), style)
+        size_i = int(round(size_px))
+        f = font(size_i, style)
         anchor = {"left": "l", "center": "m", "right": "r"}[ha] + {"top": "a", "center": "m", "baseline": "s",
                                                                    "bottom": "d"}[va]
         sw = int(round(stroke))
-        x0, y0, x1, y1 = _measure().textbbox((0, 0), s, font=f, anchor=anchor, stroke_width=sw)
+        x0, y0, x1, y1 = _text_bbox(s, size_i, style, anchor, sw)
         if rotate:  # the horizontal box turned about the anchor point
             x0, y0, x1, y1 = y0, -x1, y1, -x0
         box = (x + x0 - pad, y + y0 - pad, x + x1 + pad, y + y1 + pad)
         item = TextItem(role, s, box, float(size_px), hex_rgb(colour), style, data)
         self.record.texts.append(item)
-        self._texts.append(_QueuedText(item, (x, y), anchor, f, sw, hex_rgb(stroke_colour) if sw else None,
+        self._texts.append(_QueuedText(item, (x, y), anchor, f, size_i, sw, hex_rgb(stroke_colour) if sw else None,
                                        (hex_rgb(background[0]), background[1]) if background else None, rotate))
         return item
 
     @staticmethod
     def text_width(s: str, size_px: float, style: str = "normal") -> float:
-        return float(font(int(round(size_px)), style).getlength(s))
+        return _text_length(s, int(round(size_px)), style)
 
     # ------------------------------------------------------------------ out
     def finish(self) -> np.ndarray:
         """The final picture (``height`` x ``width`` x 3 uint8): shapes shrunk, texts drawn on top.
 
-        Each text is drawn on a small Pillow copy of the pixels under it, put back at once
-        (cheaper than turning the whole picture into a Pillow image and back)."""
+        Each text's coverage is Pillow's (:func:`_text_ink`, cached per process) painted with
+        Pillow's integer blend straight into the pixels, within the box Pillow drew it in before
+        (the text's box and 2-3 px around it); a turned text, or one whose position does not
+        split exactly, is drawn by Pillow on a small copy of the pixels under it, put back at once."""
         import cv2
-        from PIL import Image, ImageDraw
 
         out = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
                                                            interpolation=cv2.INTER_AREA)
@@ -323,20 +393,46 @@ class Canvas:
             x1, y1 = min(int(np.ceil(bx1)) + 3, self.width), min(int(np.ceil(by1)) + 3, self.height)
             if x1 <= x0 or y1 <= y0:
                 continue
-            patch = Image.fromarray(out[y0:y1, x0:x1])
+            x, y = q.xy
+            inks = None
+            if not q.rotate and x >= 0 and y >= 0 and "\n" not in q.item.text:
+                fx, fy = x - np.floor(x), y - np.floor(y)
+                key = (q.item.text, q.size_i, q.item.style, q.anchor)
+                inks = [_text_ink(*key, q.stroke, fx, fy)] if q.stroke else []
+                if not q.stroke or q.stroke_colour != q.item.colour:
+                    inks.append(_text_ink(*key, 0, fx, fy))
+                if any(i is None for i in inks):
+                    inks = None
+            if inks is None:
+                self._text_on_patch(out, q, (x0, y0, x1, y1))
+                continue
             if q.background is not None:
                 colour, alpha = q.background
-                tab = (int(round(bx0)) - x0, int(round(by0)) - y0, int(round(bx1)) - x0, int(round(by1)) - y0)
-                shade = Image.blend(patch, Image.new("RGB", patch.size, colour), alpha)
-                patch.paste(shade.crop(tab), tab[:2])
-            if q.rotate:
-                self._rotated(patch, q, (x0, y0))
-            else:
-                ImageDraw.Draw(patch).text((q.xy[0] - x0, q.xy[1] - y0), q.item.text, fill=q.item.colour,
-                                           font=q.font, anchor=q.anchor, stroke_width=q.stroke,
-                                           stroke_fill=q.stroke_colour)
-            out[y0:y1, x0:x1] = np.asarray(patch)
+                _blend_tab(out, (int(round(bx0)), int(round(by0)), int(round(bx1)), int(round(by1))), colour, alpha)
+            colours = ([q.stroke_colour] if q.stroke else []) + [q.item.colour]
+            for (ink, ox, oy), colour in zip(inks, colours):
+                _blend_ink(out, ink, int(np.floor(x)) - ox, int(np.floor(y)) - oy, colour, (x0, y0, x1, y1))
         return out
+
+    def _text_on_patch(self, out: np.ndarray, q: _QueuedText, region) -> None:
+        """Draw one text with Pillow on a copy of the pixels in ``region`` and put them back."""
+        from PIL import Image, ImageDraw
+
+        x0, y0, x1, y1 = region
+        bx0, by0, bx1, by1 = q.item.box
+        patch = Image.fromarray(out[y0:y1, x0:x1])
+        if q.background is not None:
+            colour, alpha = q.background
+            tab = (int(round(bx0)) - x0, int(round(by0)) - y0, int(round(bx1)) - x0, int(round(by1)) - y0)
+            shade = Image.blend(patch, Image.new("RGB", patch.size, colour), alpha)
+            patch.paste(shade.crop(tab), tab[:2])
+        if q.rotate:
+            self._rotated(patch, q, (x0, y0))
+        else:
+            ImageDraw.Draw(patch).text((q.xy[0] - x0, q.xy[1] - y0), q.item.text, fill=q.item.colour,
+                                       font=q.font, anchor=q.anchor, stroke_width=q.stroke,
+                                       stroke_fill=q.stroke_colour)
+        out[y0:y1, x0:x1] = np.asarray(patch)
 
     @staticmethod
     def _rotated(patch, q: _QueuedText, origin) -> None:
