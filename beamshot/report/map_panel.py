@@ -13,6 +13,8 @@ enlarged in an inset.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from .. import vocabulary
@@ -50,17 +52,42 @@ CLIP_HATCH_PX = 10.0
 
 def _colours(values: np.ndarray, vmin: float, vmax: float) -> np.ndarray:
     """RGB of ``values`` on a log scale from ``vmin`` to ``vmax`` through :data:`CIVIDIS_RGB`:
-    index ``int(256 t)`` (the last entry at ``t = 1``), below ``vmin`` the 'below' colour."""
+    index ``int(256 t)`` (the last entry at ``t = 1``), below ``vmin`` the 'below' colour (NaN
+    takes the first entry)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        t = (np.log10(values) - np.log10(vmin)) / (np.log10(vmax) - np.log10(vmin))
-    idx = np.clip(np.floor(np.nan_to_num(t, nan=0.0) * 256), 0, 255).astype(np.intp)
-    rgb = CIVIDIS_RGB[idx]
-    rgb[np.nan_to_num(t, nan=0.0) < 0] = _hex(_BELOW)
+        t = np.log10(values)
+        t -= np.log10(vmin)
+        t /= np.log10(vmax) - np.log10(vmin)
+    np.nan_to_num(t, copy=False, nan=0.0)
+    below = t < 0
+    t *= 256
+    np.floor(t, out=t)
+    np.clip(t, 0, 255, out=t)
+    rgb = np.take(CIVIDIS_RGB, t.astype(np.intp), axis=0)
+    rgb[below] = _hex(_BELOW)
     return rgb
 
 
 def _hex(c: str) -> tuple[int, int, int]:
     return int(c[1:3], 16), int(c[3:5], 16), int(c[5:7], 16)
+
+
+@functools.lru_cache(maxsize=8)
+def _grid_cells(half_width_deg: float, n: int, theta0: float, d_theta: float, n_theta: int, phi0: float,
+                d_phi: float):
+    """The square grid's angles ``a`` (deg) and, for each of its points, the map's cell coordinates
+    (row ``k``, column ``j`` + 1 of the azimuth-padded map, float32 for ``cv2.remap``) and whether it
+    lies beyond the map's last row.  Cached per process: a batch's maps share their grid and view."""
+    a = np.linspace(-half_width_deg, half_width_deg, n)
+    xx, yy = a[None, :], a[:, None]  # broadcast: the values np.meshgrid would hold, without its arrays
+    th = np.radians(np.hypot(xx, yy))
+    ph = np.mod(np.arctan2(yy, xx), 2 * np.pi)
+    k = np.clip((th - theta0) / d_theta, 0.0, None)
+    j = (ph - phi0) / d_phi + 1.0  # the azimuth wraps through one padded column each side
+    out = (a, j.astype(np.float32), k.astype(np.float32), k > n_theta - 1)
+    for arr in out:
+        arr.flags.writeable = False
+    return out
 
 
 def picture_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
@@ -75,16 +102,13 @@ def picture_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
     """
     import cv2
 
-    a = np.linspace(-half_width_deg, half_width_deg, n)
-    xx, yy = np.meshgrid(a, a)
-    th = np.radians(np.hypot(xx, yy))
-    ph = np.mod(np.arctan2(yy, xx), 2 * np.pi)
-    k = np.clip((th - beam.theta[0]) / beam.d_theta, 0.0, None)
-    j = (ph - beam.phi[0]) / beam.d_phi + 1.0  # the azimuth wraps through one padded column each side
+    a, j, k, beyond = _grid_cells(float(half_width_deg), int(n), float(beam.theta[0]), float(beam.d_theta),
+                                  len(beam.theta), float(beam.phi[0]), float(beam.d_phi))
+    a = a.copy()
     wrapped = np.concatenate([beam.intensity[:, -1:], beam.intensity, beam.intensity[:, :1]], axis=1)
-    vals = cv2.remap(wrapped.astype(np.float32), j.astype(np.float32), k.astype(np.float32), cv2.INTER_LINEAR,
+    vals = cv2.remap(wrapped.astype(np.float32), j, k, cv2.INTER_LINEAR,
                      borderMode=cv2.BORDER_REPLICATE).astype(float)
-    vals[k > len(beam.theta) - 1] = np.nan
+    vals[beyond] = np.nan
     finite = np.isfinite(vals)
     if beam.footprint_deg is not None and finite.any():
         inside = _inside_outline(beam.footprint_deg, a, a)
