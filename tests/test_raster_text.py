@@ -21,7 +21,8 @@ def test_mask_blend_equals_pillow_fill_for_every_pair():
         ref = Image.fromarray(bg.copy())
         ref.paste(colour, (0, 0, 256, 256), Image.fromarray(mask))
         out = bg.copy()
-        raster._blend_ink(out, mask, 0, 0, colour, (0, 0, 256, 256))
+        m = np.repeat(mask.astype(np.uint16)[:, :, None], 3, axis=2)
+        raster._blend_ink(out, (255 - m, m * np.asarray(colour, np.uint16) + 128), 0, 0, (0, 0, 256, 256))
         np.testing.assert_array_equal(out, np.asarray(ref))
 
 
@@ -78,6 +79,6 @@ def test_cached_text_drawing_equals_pillow_drawing():
     c2 = Canvas(420, 300)
     c2.img[:] = base
     _texts(c2, np.random.default_rng(4))
-    hits = raster._text_ink.cache_info().hits
+    hits = raster._text_paint.cache_info().hits
     np.testing.assert_array_equal(c2.finish(), ref)
-    assert raster._text_ink.cache_info().hits > hits
+    assert raster._text_paint.cache_info().hits > hits

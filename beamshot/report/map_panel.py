@@ -132,7 +132,7 @@ class _MapAxes:
     def px(self, xy) -> np.ndarray:
         p = np.atleast_2d(np.asarray(xy, float))
         s = (self.x1 - self.x0) / (2 * self.half)
-        return np.c_[self.x0 + (p[:, 0] + self.half) * s, self.y0 + (self.half - p[:, 1]) * s]
+        return np.column_stack((self.x0 + (p[:, 0] + self.half) * s, self.y0 + (self.half - p[:, 1]) * s))
 
 
 def _draw_image(c: Canvas, ax: _MapAxes, vals: np.ndarray, floor: float, peak: float, factor: float):
@@ -180,7 +180,7 @@ def _level_lines(grid: np.ndarray, a: np.ndarray, level: float, upsample: int = 
         if len(p) < 8:
             continue
         gi = (p + 0.5) * n / m - 0.5  # fine pixel -> grid index
-        xy = np.c_[a[0] + gi[:, 0] * step, a[0] + gi[:, 1] * step]
+        xy = np.column_stack((a[0] + gi[:, 0] * step, a[0] + gi[:, 1] * step))
         xy[bad[p[:, 1].astype(int), p[:, 0].astype(int)]] = np.nan
         out.append(np.vstack([xy, xy[:1]]))
     return out
@@ -249,9 +249,9 @@ def _draw_marks(c: Canvas, ax: _MapAxes, contours: dict, edge, pk, clipped: bool
         draw_line_sample(c, ax.px(_contour_xy(pk.vector, cont.bearings, cont.alpha)), MAP_STYLES[key], clip=ax.box)
         entries.append((vocabulary.label(fkey), "line", MAP_STYLES[key]))
     if edge is not None and np.any(np.isfinite(edge.theta)):
-        th = np.degrees(np.r_[edge.theta, edge.theta[:1]])
-        ph = np.r_[edge.phi, edge.phi[:1]]
-        draw_line_sample(c, ax.px(np.c_[th * np.cos(ph), th * np.sin(ph)]), MAP_STYLES["edge"], clip=ax.box)
+        th = np.degrees(np.concatenate((edge.theta, edge.theta[:1])))
+        ph = np.concatenate((edge.phi, edge.phi[:1]))
+        draw_line_sample(c, ax.px(np.column_stack((th * np.cos(ph), th * np.sin(ph)))), MAP_STYLES["edge"], clip=ax.box)
         entries.append((vocabulary.label("spill_angle"), "line", MAP_STYLES["edge"]))
     centre = tuple(ax.px((0.0, 0.0))[0])
     draw_mark(c, "ring", centre, MAP_STYLES["axis"], clip=ax.box)
@@ -305,7 +305,7 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
     t = np.linspace(0, 2 * np.pi, 361)
     lab_dir = np.radians(RING_LABEL_BEARING_DEG)
     fulls = np.arange(step, 2 * half + 1e-9, step)
-    rings = [np.vstack([np.c_[f / 2 * np.cos(t), f / 2 * np.sin(t)], [np.nan, np.nan]]) for f in fulls]
+    rings = [np.vstack([np.column_stack((f / 2 * np.cos(t), f / 2 * np.sin(t))), [np.nan, np.nan]]) for f in fulls]
     if rings:  # one stroke for all rings (NaN rows part them)
         draw_line_sample(c, ax.px(np.vstack(rings)), MAP_STYLES["ring"], clip=box)
     for full in fulls:

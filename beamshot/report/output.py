@@ -33,6 +33,7 @@ import csv
 import errno
 import hashlib
 import json
+import math
 import os
 import re
 import secrets
@@ -116,12 +117,15 @@ def write_profile_csv(report: BeamReport, path) -> None:
         w.writerow(["theta_deg", f"mean_{unit}", f"std_{unit}", f"min_{unit}", f"max_{unit}", "cells",
                     f"right_{unit}", f"left_{unit}", f"up_{unit}", f"down_{unit}"])
 
-        def fmt(x):
-            return "" if not np.isfinite(x) else f"{x:.6g}"
+        def col(values) -> list[str]:  # as Python floats (the values exactly): '' where not finite
+            return ["" if not math.isfinite(x) else f"{x:.6g}" for x in np.asarray(values, float)[:n].tolist()]
 
-        for i in range(n):
-            w.writerow([f"{p.theta_deg[i]:.3f}", fmt(p.mean[i]), fmt(p.std[i]), fmt(p.min[i]), fmt(p.max[i]),
-                        int(p.count[i]), fmt(h_val[n + i]), fmt(h_val[n - 1 - i]), fmt(v_val[n + i]), fmt(v_val[n - 1 - i])])
+        h_val, v_val = np.asarray(h_val, float), np.asarray(v_val, float)
+        columns = [[f"{x:.3f}" for x in np.asarray(p.theta_deg, float).tolist()], col(p.mean), col(p.std),
+                   col(p.min), col(p.max), [int(c) for c in np.asarray(p.count)[:n].tolist()],
+                   col(h_val[n:2 * n]), col(h_val[n - 1::-1] if n else h_val[:0]), col(v_val[n:2 * n]),
+                   col(v_val[n - 1::-1] if n else v_val[:0])]
+        w.writerows(zip(*columns))
 
 
 # ---------------------------------------------------------------- one set, replaced at once

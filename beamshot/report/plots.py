@@ -512,12 +512,12 @@ def _contour_xy(centre, bearings, alpha):
     """Azimuthal-equidistant coordinates (deg) of a contour traced around ``centre``."""
     c = np.asarray(centre, float)
     e1, e2 = local_basis(c)
-    b = np.r_[bearings, bearings[:1]]
-    a = np.r_[alpha, alpha[:1]]
+    b = np.concatenate((bearings, bearings[:1]))
+    a = np.concatenate((alpha, alpha[:1]))
     v = np.cos(a)[:, None] * c + np.sin(a)[:, None] * (np.cos(b)[:, None] * e1 + np.sin(b)[:, None] * e2)
     th = np.degrees(np.arccos(np.clip(v[:, 2], -1, 1)))
     ph = np.arctan2(v[:, 1], v[:, 0])
-    return np.c_[th * np.cos(ph), th * np.sin(ph)]
+    return np.column_stack((th * np.cos(ph), th * np.sin(ph)))
 
 
 # ----------------------------------------------------------------------------- the profile

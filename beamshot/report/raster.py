@@ -87,12 +87,13 @@ def _text_length(s: str, size_i: int, style: str) -> float:
 
 @functools.lru_cache(maxsize=2048)
 def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float):
-    """The coverage (0-255, ``uint8``, read-only) Pillow draws for ``s`` anchored at a point whose
-    fractional position is ``(fx, fy)``, and that point's integer position in the array ``(ox, oy)``:
-    Pillow's own ``ImageDraw.text`` on a blank 'L' image, so that each glyph's anti-aliasing is
-    Pillow's; ``None`` where ``ox + fx`` is not exact in floating point (the caller then draws the
-    text with Pillow on the picture).  Cached per process: a batch's pictures repeat most texts at
-    the same fractional positions (labels, ticks, legend, table)."""
+    """The coverage Pillow draws for ``s`` anchored at a point whose fractional position is
+    ``(fx, fy)``: ``(m, ox, oy)``, the coverage ``m`` (0-255, ``uint8``, read-only) cut to its inked
+    box, and the anchor point's integer position relative to the box's corner.  Drawn by Pillow's
+    own ``ImageDraw.text`` on a blank 'L' image, so that each glyph's anti-aliasing is Pillow's;
+    ``None`` where ``ox + fx`` is not exact in floating point (the caller then draws the text with
+    Pillow on the picture).  Cached per process: a batch's pictures repeat most texts at the same
+    fractional positions (labels, ticks, legend, table)."""
     from PIL import Image, ImageDraw
 
     x0, y0, x1, y1 = _text_bbox(s, size_i, style, anchor, stroke)
@@ -104,29 +105,49 @@ def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: flo
     ImageDraw.Draw(img).text((ox + fx, oy + fy), s, fill=255, font=font(size_i, style), anchor=anchor,
                              stroke_width=stroke)
     ink = np.asarray(img)
+    rows, cols = np.nonzero(ink)
+    if rows.size == 0:
+        ink, r0, c0 = ink[:0, :0], 0, 0
+    else:
+        r0, c0 = int(rows.min()), int(cols.min())
+        ink = ink[r0:rows.max() + 1, c0:cols.max() + 1]
+    ink = ink.copy()
     ink.flags.writeable = False
-    return ink, ox, oy
+    return ink, ox - c0, oy - r0
 
 
-def _blend_ink(out: np.ndarray, ink: np.ndarray, left: int, top: int, colour, region) -> None:
-    """Paint ``colour`` through the coverage ``ink`` placed with its corner at ``(left, top)`` onto
-    ``out`` (RGB uint8), within ``region`` ``(x0, y0, x1, y1)``: Pillow's mask fill in integers,
-    out = (bg (255 - m) + c m) / 255 rounded as its ``DIV255`` (``t = v + 128; ((t >> 8) + t) >> 8``),
-    so that the pixels equal those ``ImageDraw.text`` gives (tests/test_raster_text.py checks it)."""
-    x0, y0, x1, y1 = max(region[0], left), max(region[1], top), min(region[2], left + ink.shape[1]), \
-        min(region[3], top + ink.shape[0])
+@functools.lru_cache(maxsize=2048)
+def _text_paint(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float, colour: tuple):
+    """:func:`_text_ink` ready to paint in ``colour``: ``(255 - m, m c + 128, ox, oy)``, both
+    ``uint16`` ``(h, w, 3)`` (same shapes make numpy's loops run whole rows), or None."""
+    got = _text_ink(s, size_i, style, anchor, stroke, fx, fy)
+    if got is None:
+        return None
+    ink, ox, oy = got
+    m = np.repeat(ink.astype(np.uint16)[:, :, None], 3, axis=2)
+    rest, mc = 255 - m, m * np.asarray(colour, np.uint16) + 128
+    rest.flags.writeable = mc.flags.writeable = False
+    return rest, mc, ox, oy
+
+
+def _blend_ink(out: np.ndarray, paint, left: int, top: int, region) -> None:
+    """Paint a text's coverage (``(255 - m, m c + 128)`` as :func:`_text_paint` gives them)
+    placed with its corner at ``(left, top)`` onto ``out`` (RGB uint8), within ``region``
+    ``(x0, y0, x1, y1)``: Pillow's mask fill in integers, out = (bg (255 - m) + c m) / 255 rounded
+    as its ``DIV255`` (``t = v + 128; ((t >> 8) + t) >> 8``, within 16 bits), so that the pixels
+    equal those ``ImageDraw.text`` gives (tests/test_raster_text.py checks it)."""
+    rest, mc = paint
+    x0, y0, x1, y1 = max(region[0], left), max(region[1], top), min(region[2], left + rest.shape[1]), \
+        min(region[3], top + rest.shape[0])
     if x1 <= x0 or y1 <= y0:
         return
-    m = ink[y0 - top:y1 - top, x0 - left:x1 - left]
-    rows, cols = np.nonzero(m)
-    if rows.size == 0:
-        return
-    # only the inked box: the rest keeps its pixels (m = 0 leaves a pixel as it is)
-    r0, r1, c0, c1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
-    m = m[r0:r1, c0:c1].astype(np.uint32)[:, :, None]
-    sub = out[y0 + r0:y0 + r1, x0 + c0:x0 + c1]
-    t = sub * (255 - m) + np.asarray(colour, np.uint32) * m + 128
-    sub[:] = ((t >> 8) + t) >> 8
+    ys, xs = slice(y0 - top, y1 - top), slice(x0 - left, x1 - left)
+    sub = out[y0:y1, x0:x1]
+    t = sub * rest[ys, xs]
+    t += mc[ys, xs]
+    t += t >> 8
+    t >>= 8
+    sub[:] = t
 
 
 def _blend_tab(out: np.ndarray, box, colour, alpha: float) -> None:
@@ -396,11 +417,12 @@ class Canvas:
             x, y = q.xy
             inks = None
             if not q.rotate and x >= 0 and y >= 0 and "\n" not in q.item.text:
-                fx, fy = x - np.floor(x), y - np.floor(y)
+                fx, fy = float(x - np.floor(x)), float(y - np.floor(y))
                 key = (q.item.text, q.size_i, q.item.style, q.anchor)
-                inks = [_text_ink(*key, q.stroke, fx, fy)] if q.stroke else []
+                # a stroked text: the stroke's coverage in its colour, then the text's in its own
+                inks = [_text_paint(*key, q.stroke, fx, fy, q.stroke_colour)] if q.stroke else []
                 if not q.stroke or q.stroke_colour != q.item.colour:
-                    inks.append(_text_ink(*key, 0, fx, fy))
+                    inks.append(_text_paint(*key, 0, fx, fy, q.item.colour))
                 if any(i is None for i in inks):
                     inks = None
             if inks is None:
@@ -409,9 +431,8 @@ class Canvas:
             if q.background is not None:
                 colour, alpha = q.background
                 _blend_tab(out, (int(round(bx0)), int(round(by0)), int(round(bx1)), int(round(by1))), colour, alpha)
-            colours = ([q.stroke_colour] if q.stroke else []) + [q.item.colour]
-            for (ink, ox, oy), colour in zip(inks, colours):
-                _blend_ink(out, ink, int(np.floor(x)) - ox, int(np.floor(y)) - oy, colour, (x0, y0, x1, y1))
+            for rest, mc, ox, oy in inks:
+                _blend_ink(out, (rest, mc), int(np.floor(x)) - ox, int(np.floor(y)) - oy, (x0, y0, x1, y1))
         return out
 
     def _text_on_patch(self, out: np.ndarray, q: _QueuedText, region) -> None:
@@ -516,19 +537,20 @@ def png_pair(rgb: np.ndarray, top_rows: int, level: int = 3) -> tuple[bytes, byt
         worker.start()
     z = zlib.compressobj(int(level), zlib.DEFLATED, -15)
     body = z.compress(top_raw)
-    top = png(top_rows, body + z.copy().flush(), zlib.adler32(top_raw))
+    top_adler = zlib.adler32(top_raw)
+    top = png(top_rows, body + z.copy().flush(), top_adler)
     if not len(rest_raw):
         return top, top
     body += z.flush(zlib.Z_SYNC_FLUSH)  # ends on a byte boundary, not as the last block
     worker.join()
-    full = png(h, body + rest[0], zlib.adler32(rest_raw, zlib.adler32(top_raw)))
+    full = png(h, body + rest[0], zlib.adler32(rest_raw, top_adler))
     return full, top
 
 
 def _finite_runs(p: np.ndarray) -> list[np.ndarray]:
     """Split a polyline at non-finite points."""
     ok = np.all(np.isfinite(p), axis=1)
-    d = np.diff(np.r_[0, ok.astype(np.int8), 0])
+    d = np.diff(np.concatenate(([0], ok.astype(np.int8), [0])))
     return [p[i:j] for i, j in zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1))]
 
 
@@ -538,27 +560,27 @@ def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
     at its vertices and at the dash boundaries, and each piece whose middle falls in an 'on'
     part becomes one quad."""
     seg = np.hypot(*np.diff(p, axis=0).T)
-    s = np.r_[0.0, np.cumsum(seg)]
+    s = np.concatenate(([0.0], np.cumsum(seg)))
     total = s[-1]
     period = float(sum(pattern))
     if total <= 0 or period <= 0:
         return np.zeros((0, 4, 2))
     if not np.isfinite(period):  # one dash covering the whole line
         pattern, period = (total + 1.0, 0.0), total + 1.0
-    bounds = np.cumsum(np.r_[0.0, pattern])
+    bounds = np.cumsum(np.concatenate(([0.0], pattern)))
     starts = np.arange(0.0, total, period)
-    cuts = np.unique(np.r_[s, (starts[:, None] + bounds[None, :]).ravel()])
+    cuts = np.unique(np.concatenate((s, (starts[:, None] + bounds[None, :]).ravel())))
     cuts = cuts[(cuts >= 0) & (cuts <= total)]
     mid = 0.5 * (cuts[:-1] + cuts[1:])
     phase = np.mod(mid, period)
     on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
     on &= cuts[1:] - cuts[:-1] > 1e-6
     a, b = cuts[:-1][on], cuts[1:][on]
-    pa = np.c_[np.interp(a, s, p[:, 0]), np.interp(a, s, p[:, 1])]
-    pb = np.c_[np.interp(b, s, p[:, 0]), np.interp(b, s, p[:, 1])]
+    pa = np.column_stack((np.interp(a, s, p[:, 0]), np.interp(a, s, p[:, 1])))
+    pb = np.column_stack((np.interp(b, s, p[:, 0]), np.interp(b, s, p[:, 1])))
     d = pb - pa
     n = np.maximum(np.hypot(d[:, 0], d[:, 1]), 1e-9)[:, None]
-    off = np.c_[-d[:, 1], d[:, 0]] / n * (width / 2.0)
+    off = np.column_stack((-d[:, 1], d[:, 0])) / n * (width / 2.0)
     # pieces of one dash meet end to end: lengthen each by a hair so that no seam shows between them
     ext = d / n * 0.25
     return np.stack([pa - ext + off, pb + ext + off, pb + ext - off, pa - ext - off], axis=1)
