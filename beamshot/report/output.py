@@ -311,6 +311,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
     from . import beam_picture
     from .html import HTML_FILE, write_report_html
     from .intensity_map import MAP_FILE, write_intensity_map
+    from .plots import FROM_REPORT, report_noise_floor
 
     def fill(tmp: str) -> None:
         data = report.to_dict()  # once for report.json and the page (about 16 ms)
@@ -318,8 +319,10 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
         write_profile_csv(report, os.path.join(tmp, "profile.csv"))
         write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
         map_png = None
-        if picture:  # one drawing: beam.png, and its map panel for the page
-            png, map_png = beam_picture.beam_pictures(report)
+        noise = FROM_REPORT
+        if picture:  # one drawing: beam.png, and its map panel for the page; one noise floor for both
+            noise = report_noise_floor(report)
+            png, map_png = beam_picture.beam_pictures(report, noise=noise)
             with open(os.path.join(tmp, "beam.png"), "wb") as fh:
                 fh.write(png)
         tint_png = None
@@ -331,7 +334,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 tint_png = fh.read()
         # the page is always written (without pictures it holds the tables and says so)
         write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png, tint_png=tint_png,
-                          data=data)
+                          data=data, noise=noise)
 
     return write_set(out_dir, fill, is_ours=_is_our_set, writer="beamshot", doing="write the report files there")
 

@@ -145,6 +145,15 @@ def noise_floor(beam: BeamMap, edge, profile=None) -> NoiseFloor | None:
     return NoiseFloor(sigma, cell_level, mean_sigma, mean_level, int(dark.sum()), rows)
 
 
+#: ``noise`` argument of the report writers: work out the report's noise floor where it is needed.
+FROM_REPORT = "from the report"
+
+
+def report_noise_floor(report) -> NoiseFloor | None:
+    """:func:`noise_floor` of a report's map, spill edge and profile (what beam.png and the page show)."""
+    return noise_floor(report.beam, (report.contours or {}).get("edge"), report.profile)
+
+
 def _spill_median(beam: BeamMap, edge, peak: float) -> float | None:
     """Median of the map cells between the 10 % region and 0.9 x the spill edge (None if too few)."""
     if edge is None or not np.any(np.isfinite(edge.theta)):
