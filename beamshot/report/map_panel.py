@@ -63,13 +63,18 @@ def _colours(values: np.ndarray, vmin: float, vmax: float) -> np.ndarray:
     t *= 256
     np.floor(t, out=t)
     np.clip(t, 0, 255, out=t)
-    rgb = np.take(CIVIDIS_RGB, t.astype(np.intp), axis=0)
-    rgb[below] = _hex(_BELOW)
-    return rgb
+    idx = t.astype(np.intp)
+    idx += 1  # entry 0 of the table with the 'below' colour first
+    idx[below] = 0
+    return np.take(_WITH_BELOW, idx, axis=0)
 
 
 def _hex(c: str) -> tuple[int, int, int]:
     return int(c[1:3], 16), int(c[3:5], 16), int(c[5:7], 16)
+
+
+#: The colour table with the 'below' colour as entry 0, for one lookup.
+_WITH_BELOW = np.vstack([np.array([_hex(_BELOW)], np.uint8), CIVIDIS_RGB])
 
 
 @functools.lru_cache(maxsize=8)
