@@ -261,7 +261,8 @@ class Canvas:
     @staticmethod
     def _bbox(points, pad: float):
         p = np.asarray(points, float)
-        p = p[np.all(np.isfinite(p), axis=1)]
+        if not np.isfinite(p).all():
+            p = p[np.all(np.isfinite(p), axis=1)]
         if p.size == 0:
             return (0.0, 0.0, 0.0, 0.0)
         return (p[:, 0].min() - pad, p[:, 1].min() - pad, p[:, 0].max() + pad, p[:, 1].max() + pad)
@@ -294,7 +295,7 @@ class Canvas:
             else:
                 cv2.polylines(sub, [self._pts(r, ox, oy) for r in runs], False, col, th, cv2.LINE_AA, _SHIFT)
 
-        self._paint(self._bbox(np.vstack(runs), width + 2), clip, alpha, draw)
+        self._paint(self._bbox(runs[0] if len(runs) == 1 else np.vstack(runs), width + 2), clip, alpha, draw)
 
     def polygon(self, points, fill=None, edge=None, width: float = 1.0, *, alpha: float = 1.0, clip=None) -> None:
         """A filled and/or outlined closed polygon."""
@@ -549,7 +550,10 @@ def png_pair(rgb: np.ndarray, top_rows: int, level: int = 3) -> tuple[bytes, byt
 
 def _finite_runs(p: np.ndarray) -> list[np.ndarray]:
     """Split a polyline at non-finite points."""
-    ok = np.all(np.isfinite(p), axis=1)
+    fin = np.isfinite(p)
+    if fin.all():
+        return [p] if len(p) else []
+    ok = np.all(fin, axis=1)
     d = np.diff(np.concatenate(([0], ok.astype(np.int8), [0])))
     return [p[i:j] for i, j in zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1))]
 
@@ -565,16 +569,18 @@ def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
     period = float(sum(pattern))
     if total <= 0 or period <= 0:
         return np.zeros((0, 4, 2))
-    if not np.isfinite(period):  # one dash covering the whole line
-        pattern, period = (total + 1.0, 0.0), total + 1.0
-    bounds = np.cumsum(np.concatenate(([0.0], pattern)))
-    starts = np.arange(0.0, total, period)
-    cuts = np.unique(np.concatenate((s, (starts[:, None] + bounds[None, :]).ravel())))
-    cuts = cuts[(cuts >= 0) & (cuts <= total)]
-    mid = 0.5 * (cuts[:-1] + cuts[1:])
-    phase = np.mod(mid, period)
-    on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
-    on &= cuts[1:] - cuts[:-1] > 1e-6
+    if not np.isfinite(period):  # one dash covering the whole line: the pieces are the segments
+        cuts = np.unique(s)
+        on = cuts[1:] - cuts[:-1] > 1e-6
+    else:
+        bounds = np.cumsum(np.concatenate(([0.0], pattern)))
+        starts = np.arange(0.0, total, period)
+        cuts = np.unique(np.concatenate((s, (starts[:, None] + bounds[None, :]).ravel())))
+        cuts = cuts[(cuts >= 0) & (cuts <= total)]
+        mid = 0.5 * (cuts[:-1] + cuts[1:])
+        phase = np.mod(mid, period)
+        on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
+        on &= cuts[1:] - cuts[:-1] > 1e-6
     a, b = cuts[:-1][on], cuts[1:][on]
     pa = np.column_stack((np.interp(a, s, p[:, 0]), np.interp(a, s, p[:, 1])))
     pb = np.column_stack((np.interp(b, s, p[:, 0]), np.interp(b, s, p[:, 1])))
