@@ -558,6 +558,9 @@ def _finite_runs(p: np.ndarray) -> list[np.ndarray]:
     return [p[i:j] for i, j in zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1))]
 
 
+_PERPENDICULAR = np.array([-1.0, 1.0])
+
+
 def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
     """Pen strokes ``width`` px wide (square-cut ends) of the 'on' parts of a dash ``pattern``
     (on, off, on, off, ... px) along the polyline ``p``, as quads ``(n, 4, 2)``: the path is cut
@@ -570,7 +573,7 @@ def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
     if total <= 0 or period <= 0:
         return np.zeros((0, 4, 2))
     if not np.isfinite(period):  # one dash covering the whole line: the pieces are the segments
-        cuts = np.unique(s)
+        cuts = s[np.concatenate(([True], s[1:] != s[:-1]))]  # np.unique of the sorted s
         on = cuts[1:] - cuts[:-1] > 1e-6
     else:
         bounds = np.cumsum(np.concatenate(([0.0], pattern)))
@@ -582,11 +585,18 @@ def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
         on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
         on &= cuts[1:] - cuts[:-1] > 1e-6
     a, b = cuts[:-1][on], cuts[1:][on]
-    pa = np.column_stack((np.interp(a, s, p[:, 0]), np.interp(a, s, p[:, 1])))
-    pb = np.column_stack((np.interp(b, s, p[:, 0]), np.interp(b, s, p[:, 1])))
+    pa, pb = np.empty((len(a), 2)), np.empty((len(b), 2))
+    for k in (0, 1):
+        pa[:, k] = np.interp(a, s, p[:, k])
+        pb[:, k] = np.interp(b, s, p[:, k])
     d = pb - pa
     n = np.maximum(np.hypot(d[:, 0], d[:, 1]), 1e-9)[:, None]
-    off = np.column_stack((-d[:, 1], d[:, 0])) / n * (width / 2.0)
+    off = d[:, ::-1] * _PERPENDICULAR / n * (width / 2.0)  # (-dy, dx): a quarter turn
     # pieces of one dash meet end to end: lengthen each by a hair so that no seam shows between them
     ext = d / n * 0.25
-    return np.stack([pa - ext + off, pb + ext + off, pb + ext - off, pa - ext - off], axis=1)
+    quads = np.empty((len(a), 4, 2))
+    quads[:, 0] = pa - ext + off
+    quads[:, 1] = pb + ext + off
+    quads[:, 2] = pb + ext - off
+    quads[:, 3] = pa - ext - off
+    return quads
