@@ -163,10 +163,11 @@ def _nearest_cells(beam: BeamMap, a: np.ndarray):
     return k, j
 
 
-def _level_lines(grid: np.ndarray, a: np.ndarray, level: float, upsample: int = 4) -> list[np.ndarray]:
-    """Lines (deg) where the bilinear surface through ``grid`` (on ``a`` x ``a``) crosses ``level``:
-    the grid is interpolated ``upsample`` times finer and the crossing traced with OpenCV's border
-    following; points next to NaN cells are dropped (no line along the photo's outline)."""
+def _level_lines(grid: np.ndarray, a: np.ndarray, levels, upsample: int = 4) -> list[list[np.ndarray]]:
+    """For each of ``levels``, the lines (deg) where the bilinear surface through ``grid`` (on
+    ``a`` x ``a``) crosses it: the grid is interpolated ``upsample`` times finer (once for all
+    levels) and each crossing traced with OpenCV's border following; points next to NaN cells are
+    dropped (no line along the photo's outline)."""
     import cv2
 
     n = len(a)
@@ -174,20 +175,23 @@ def _level_lines(grid: np.ndarray, a: np.ndarray, level: float, upsample: int = 
     g = np.nan_to_num(grid, nan=-1.0).astype(np.float32)
     fine = cv2.resize(g, (m, m), interpolation=cv2.INTER_LINEAR)
     # cv2's INTER_LINEAR aligns pixel centres: fine[i] ~ grid[(i + 0.5) / (m / n) - 0.5]
-    above = (fine >= level).astype(np.uint8)
     bad = cv2.resize((~np.isfinite(grid)).astype(np.uint8), (m, m), interpolation=cv2.INTER_NEAREST)
     bad = cv2.dilate(bad, np.ones((2 * upsample + 1, 2 * upsample + 1), np.uint8)).astype(bool)
-    contours, _ = cv2.findContours(above, cv2.RETR_LIST, cv2.CHAIN_APPROX_NONE)
     step = a[1] - a[0]
     out = []
-    for cnt in contours:
-        p = cnt[:, 0, :].astype(float)
-        if len(p) < 8:
-            continue
-        gi = (p + 0.5) * n / m - 0.5  # fine pixel -> grid index
-        xy = np.column_stack((a[0] + gi[:, 0] * step, a[0] + gi[:, 1] * step))
-        xy[bad[p[:, 1].astype(int), p[:, 0].astype(int)]] = np.nan
-        out.append(np.vstack([xy, xy[:1]]))
+    for level in levels:
+        above = (fine >= level).astype(np.uint8)
+        contours, _ = cv2.findContours(above, cv2.RETR_LIST, cv2.CHAIN_APPROX_NONE)
+        lines = []
+        for cnt in contours:
+            p = cnt[:, 0, :].astype(float)
+            if len(p) < 8:
+                continue
+            gi = (p + 0.5) * n / m - 0.5  # fine pixel -> grid index
+            xy = np.column_stack((a[0] + gi[:, 0] * step, a[0] + gi[:, 1] * step))
+            xy[bad[p[:, 1].astype(int), p[:, 0].astype(int)]] = np.nan
+            lines.append(np.vstack([xy, xy[:1]]))
+        out.append(lines)
     return out
 
 
@@ -211,8 +215,7 @@ def _draw_iso(c: Canvas, ax: _MapAxes, a: np.ndarray, vals: np.ndarray, floor: f
     smooth = cv2.GaussianBlur(np.nan_to_num(rel, nan=0.0), (0, 0), sigma, borderType=cv2.BORDER_REFLECT)
     smooth[~np.isfinite(rel)] = np.nan
     label_dir = np.radians(RING_LABEL_BEARING_DEG + 180.0 + 40.0)  # lower left, clear of the ring labels
-    for n, lv in enumerate(levels):
-        lines = _level_lines(smooth, a, lv, upsample=2)
+    for n, (lv, lines) in enumerate(zip(levels, _level_lines(smooth, a, levels, upsample=2))):
         for xy in lines:
             draw_line_sample(c, ax.px(xy), MAP_STYLES["iso"], clip=ax.box)
         longest = max(lines, key=lambda q: np.isfinite(q[:, 0]).sum(), default=None)
