@@ -130,6 +130,25 @@ def _text_paint(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: f
     return rest, mc, ox, oy
 
 
+@functools.lru_cache(maxsize=64)
+def _rotated_paint(s: str, size_i: int, style: str, anchor: str, colour: tuple):
+    """A text turned a quarter turn counter-clockwise, ready to paint in ``colour`` as
+    :func:`_text_paint` gives it: Pillow draws it on a blank 'L' image 1 px inside its box and turns
+    that image (``Image.rotate(90, expand=True)``); its corner goes 1 px above and left of the turned
+    box's rounded corner."""
+    from PIL import Image, ImageDraw
+
+    f = font(size_i, style)
+    x0, y0, x1, y1 = _measure().textbbox((0, 0), s, font=f, anchor=anchor)
+    w, h = int(np.ceil(x1 - x0)) + 2, int(np.ceil(y1 - y0)) + 2
+    ink = Image.new("L", (w, h), 0)
+    ImageDraw.Draw(ink).text((1 - x0, 1 - y0), s, fill=255, font=f, anchor=anchor)
+    m = np.repeat(np.asarray(ink.rotate(90, expand=True)).astype(np.uint16)[:, :, None], 3, axis=2)
+    rest, mc = 255 - m, m * np.asarray(colour, np.uint16) + 128
+    rest.flags.writeable = mc.flags.writeable = False
+    return rest, mc
+
+
 def _blend_ink(out: np.ndarray, paint, left: int, top: int, region) -> None:
     """Paint a text's coverage (``(255 - m, m c + 128)`` as :func:`_text_paint` gives them)
     placed with its corner at ``(left, top)`` onto ``out`` (RGB uint8), within ``region``
@@ -401,10 +420,10 @@ class Canvas:
     def finish(self) -> np.ndarray:
         """The final picture (``height`` x ``width`` x 3 uint8): shapes shrunk, texts drawn on top.
 
-        Each text's coverage is Pillow's (:func:`_text_ink`, cached per process) painted with
-        Pillow's integer blend straight into the pixels, within the box Pillow drew it in before
-        (the text's box and 2-3 px around it); a turned text, or one whose position does not
-        split exactly, is drawn by Pillow on a small copy of the pixels under it, put back at once."""
+        Each text's coverage is Pillow's (:func:`_text_ink`, :func:`_rotated_paint`, cached per
+        process) painted with Pillow's integer blend straight into the pixels, within the box
+        Pillow drew it in before (the text's box and 2-3 px around it); a text whose position does
+        not split exactly is drawn by Pillow on a small copy of the pixels under it, put back at once."""
         import cv2
 
         out = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
@@ -417,7 +436,11 @@ class Canvas:
                 continue
             x, y = q.xy
             inks = None
-            if not q.rotate and x >= 0 and y >= 0 and "\n" not in q.item.text:
+            if q.rotate and "\n" not in q.item.text:  # placed at its box's rounded corner, less 1 px
+                rest, mc = _rotated_paint(q.item.text, q.size_i, q.item.style, q.anchor, q.item.colour)
+                left, top = int(round(bx0)) - 1, int(round(by0)) - 1
+                inks = [(rest, mc, int(np.floor(x)) - left, int(np.floor(y)) - top)]
+            elif not q.rotate and x >= 0 and y >= 0 and "\n" not in q.item.text:
                 fx, fy = float(x - np.floor(x)), float(y - np.floor(y))
                 key = (q.item.text, q.size_i, q.item.style, q.anchor)
                 # a stroked text: the stroke's coverage in its colour, then the text's in its own
