@@ -105,12 +105,12 @@ def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: flo
     ImageDraw.Draw(img).text((ox + fx, oy + fy), s, fill=255, font=font(size_i, style), anchor=anchor,
                              stroke_width=stroke)
     ink = np.asarray(img)
-    rows, cols = np.nonzero(ink)
+    rows, cols = np.flatnonzero(ink.any(axis=1)), np.flatnonzero(ink.any(axis=0))
     if rows.size == 0:
         ink, r0, c0 = ink[:0, :0], 0, 0
     else:
-        r0, c0 = int(rows.min()), int(cols.min())
-        ink = ink[r0:rows.max() + 1, c0:cols.max() + 1]
+        r0, c0 = int(rows[0]), int(cols[0])
+        ink = ink[r0:rows[-1] + 1, c0:cols[-1] + 1]
     ink = ink.copy()
     ink.flags.writeable = False
     return ink, ox - c0, oy - r0
@@ -124,10 +124,21 @@ def _text_paint(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: f
     if got is None:
         return None
     ink, ox, oy = got
-    m = np.repeat(ink.astype(np.uint16)[:, :, None], 3, axis=2)
-    rest, mc = 255 - m, m * np.asarray(colour, np.uint16) + 128
+    return (*_paint_terms(ink, colour), ox, oy)
+
+
+def _paint_terms(ink: np.ndarray, colour) -> tuple[np.ndarray, np.ndarray]:
+    """``(255 - m, m c + 128)`` of a coverage ``ink`` (``(h, w)``, 0-255) in ``colour``, ``uint16``
+    ``(h, w, 3)``, read-only; built row by row (whole rows of the colour repeated, not a 3-long
+    inner loop per pixel)."""
+    h, w = ink.shape
+    m = np.repeat(ink.astype(np.uint16), 3, axis=1)  # (h, 3 w): each coverage for R, G and B
+    rest = 255 - m
+    mc = m * np.tile(np.asarray(colour, np.uint16), w)
+    mc += 128
+    rest, mc = rest.reshape(h, w, 3), mc.reshape(h, w, 3)
     rest.flags.writeable = mc.flags.writeable = False
-    return rest, mc, ox, oy
+    return rest, mc
 
 
 @functools.lru_cache(maxsize=64)
@@ -143,10 +154,7 @@ def _rotated_paint(s: str, size_i: int, style: str, anchor: str, colour: tuple):
     w, h = int(np.ceil(x1 - x0)) + 2, int(np.ceil(y1 - y0)) + 2
     ink = Image.new("L", (w, h), 0)
     ImageDraw.Draw(ink).text((1 - x0, 1 - y0), s, fill=255, font=f, anchor=anchor)
-    m = np.repeat(np.asarray(ink.rotate(90, expand=True)).astype(np.uint16)[:, :, None], 3, axis=2)
-    rest, mc = 255 - m, m * np.asarray(colour, np.uint16) + 128
-    rest.flags.writeable = mc.flags.writeable = False
-    return rest, mc
+    return _paint_terms(np.asarray(ink.rotate(90, expand=True)), colour)
 
 
 def _blend_ink(out: np.ndarray, paint, left: int, top: int, region) -> None:
