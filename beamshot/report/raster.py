@@ -507,17 +507,18 @@ def _hatch_pattern(r0, r1, c0, c1, spacing, width, directions, colour, backgroun
     or on black) and its 0/1 mask of line pixels.  Lines at (x + y) or (x - y) = k * spacing, so
     neighbouring hatches line up.  Cached: a picture's hatched areas repeat from report to report."""
     per, w = spacing * SUPERSAMPLE, width * SUPERSAMPLE
-    span = np.arange(-(r1 + c1), r1 + c1 + 1)
-    lut = np.mod(span, per) < w
-    cols, rows = np.arange(c0, c1)[None, :], np.arange(r0, r1)[:, None]
+    k = r1 + c1  # lut[v + k] tells whether x + y or x - y = v lies on a line
+    lut = np.mod(np.arange(-k, k + 1), per) < w
+    # row r of the '/' lines is lut[c0 + r + k : c1 + r + k], of the '\\' lines lut[c0 - r + k : c1 - r + k]:
+    # windows of one table, without an index per pixel
+    windows = np.lib.stride_tricks.sliding_window_view(lut, c1 - c0)
     on = np.zeros((r1 - r0, c1 - c0), bool)
     for d in directions:
-        on |= lut[(cols + rows if d == "/" else cols - rows) + (r1 + c1)]
-    rgb = np.empty(on.shape + (3,), np.uint8)
-    rgb[:] = background if background is not None else (0, 0, 0)
-    rgb[on] = colour
+        on |= windows[c0 + r0 + k:c0 + r1 + k] if d == "/" else windows[c0 - r1 + 1 + k:c0 - r0 + 1 + k][::-1]
+    mask = on.view(np.uint8).copy()
+    palette = np.array([background if background is not None else (0, 0, 0), colour], np.uint8)
+    rgb = np.take(palette, mask, axis=0)
     rgb.flags.writeable = False
-    mask = on.astype(np.uint8)
     mask.flags.writeable = False
     return rgb, mask
 
