@@ -16,8 +16,7 @@ import numpy as np
 
 from .. import vocabulary
 from .map_panel import PX_PER_PT, draw_map_panel
-from .plots import (CAUTION_LINE, FROM_REPORT, TABLE_KEYS, _title, figure_value_text, intensity_label,
-                    report_noise_floor)
+from .plots import CAUTION_LINE, FROM_REPORT, TABLE_KEYS, _title, figure_value_text, intensity_label, report_noise_floor
 from .profile_panel import draw_profile_panel
 from .raster import Canvas, Drawing, png_bytes, png_pair
 

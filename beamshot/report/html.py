@@ -383,9 +383,9 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None, t
            if beams and name else "",
            f"wall at {s['distance_m']:g} m" if s.get("distance_m") else "",
            "absolute scale (cd)" if report.beam.unit == "cd" else "relative scale (no cd)"]
-    sections = [_figures_section(d), _qa_section(d), _pictures_section(report, d, picture, map_png, noise), _shape_section(d),
-                _colour_section(d, tint_png if picture else None), warnings_section(d.get("warnings", [])),
-                _inputs_section(d), cautions_section(CAUTIONS)]
+    sections = [_figures_section(d), _qa_section(d), _pictures_section(report, d, picture, map_png, noise),
+                _shape_section(d), _colour_section(d, tint_png if picture else None),
+                warnings_section(d.get("warnings", [])), _inputs_section(d), cautions_section(CAUTIONS)]
     tool = d.get("tool", {})
     footer = (f"beamshot {tool.get('version', '')} · report schema {d.get('schema_version', '')} · "
               f"{d.get('created_utc', '')} · the same numbers are in report.json beside this page")

@@ -77,7 +77,7 @@ def _hex(c: str) -> tuple[int, int, int]:
 _WITH_BELOW = np.vstack([np.array([_hex(_BELOW)], np.uint8), CIVIDIS_RGB])
 
 
-@functools.lru_cache(maxsize=8)
+@functools.lru_cache(maxsize=4)  # about 1.4 MB each for the 401-point grid
 def _grid_cells(half_width_deg: float, n: int, theta0: float, d_theta: float, n_theta: int, phi0: float,
                 d_phi: float):
     """The square grid's angles ``a`` (deg) and, for each of its points, the map's cell coordinates

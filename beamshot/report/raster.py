@@ -85,7 +85,7 @@ def _text_length(s: str, size_i: int, style: str) -> float:
     return float(font(size_i, style).getlength(s))
 
 
-@functools.lru_cache(maxsize=2048)
+@functools.lru_cache(maxsize=1024)  # about 3 kB each: a few MB at most
 def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float):
     """The coverage Pillow draws for ``s`` anchored at a point whose fractional position is
     ``(fx, fy)``: ``(m, ox, oy)``, the coverage ``m`` (0-255, ``uint8``, read-only) cut to its inked
@@ -116,7 +116,7 @@ def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: flo
     return ink, ox - c0, oy - r0
 
 
-@functools.lru_cache(maxsize=2048)
+@functools.lru_cache(maxsize=256)  # about 35 kB each: some 9 MB at most; a picture draws about 90 texts
 def _text_paint(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float, colour: tuple):
     """:func:`_text_ink` ready to paint in ``colour``: ``(255 - m, m c + 128, ox, oy)``, both
     ``uint16`` ``(h, w, 3)`` (same shapes make numpy's loops run whole rows), or None."""
