@@ -157,6 +157,21 @@ def _rotated_paint(s: str, size_i: int, style: str, anchor: str, colour: tuple):
     return _paint_terms(np.asarray(ink.rotate(90, expand=True)), colour)
 
 
+_SEEN: set = set()
+#: Texts remembered as met (their keys only); past this the memory starts again.
+_SEEN_MAX = 8192
+
+
+def _seen_before(key: tuple) -> bool:
+    """Whether a text with this key was drawn before in this process (and remember it)."""
+    if key in _SEEN:
+        return True
+    if len(_SEEN) >= _SEEN_MAX:
+        _SEEN.clear()
+    _SEEN.add(key)
+    return False
+
+
 def _blend_ink(out: np.ndarray, paint, left: int, top: int, region) -> None:
     """Paint a text's coverage (``(255 - m, m c + 128)`` as :func:`_text_paint` gives them)
     placed with its corner at ``(left, top)`` onto ``out`` (RGB uint8), within ``region``
@@ -428,10 +443,13 @@ class Canvas:
     def finish(self) -> np.ndarray:
         """The final picture (``height`` x ``width`` x 3 uint8): shapes shrunk, texts drawn on top.
 
-        Each text's coverage is Pillow's (:func:`_text_ink`, :func:`_rotated_paint`, cached per
-        process) painted with Pillow's integer blend straight into the pixels, within the box
-        Pillow drew it in before (the text's box and 2-3 px around it); a text whose position does
-        not split exactly is drawn by Pillow on a small copy of the pixels under it, put back at once."""
+        A text met before in this process (the same words, font, colours and sub-pixel position:
+        labels, ticks, legends of a batch's pictures) is painted from Pillow's coverage
+        (:func:`_text_ink`, :func:`_rotated_paint`, cached per process) with Pillow's integer blend
+        straight into the pixels, within the box Pillow drew it in before (the text's box and 2-3 px
+        around it); a text met for the first time, or one whose position does not split exactly, is
+        drawn by Pillow on a small copy of the pixels under it, put back at once.  Both give the
+        same pixels (tests/test_raster_text.py)."""
         import cv2
 
         out = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
@@ -444,13 +462,15 @@ class Canvas:
                 continue
             x, y = q.xy
             inks = None
-            if q.rotate and "\n" not in q.item.text:  # placed at its box's rounded corner, less 1 px
-                rest, mc = _rotated_paint(q.item.text, q.size_i, q.item.style, q.anchor, q.item.colour)
+            fx, fy = float(x - np.floor(x)), float(y - np.floor(y))
+            key = (q.item.text, q.size_i, q.item.style, q.anchor)
+            if not _seen_before((*key, q.stroke, q.rotate, fx, fy, q.item.colour, q.stroke_colour)):
+                pass  # a text met for the first time (a figure's value, most likely once): Pillow as it comes
+            elif q.rotate and "\n" not in q.item.text:  # placed at its box's rounded corner, less 1 px
+                rest, mc = _rotated_paint(*key, q.item.colour)
                 left, top = int(round(bx0)) - 1, int(round(by0)) - 1
                 inks = [(rest, mc, int(np.floor(x)) - left, int(np.floor(y)) - top)]
             elif not q.rotate and x >= 0 and y >= 0 and "\n" not in q.item.text:
-                fx, fy = float(x - np.floor(x)), float(y - np.floor(y))
-                key = (q.item.text, q.size_i, q.item.style, q.anchor)
                 # a stroked text: the stroke's coverage in its colour, then the text's in its own
                 inks = [_text_paint(*key, q.stroke, fx, fy, q.stroke_colour)] if q.stroke else []
                 if not q.stroke or q.stroke_colour != q.item.colour:
