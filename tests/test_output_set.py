@@ -206,7 +206,7 @@ def test_sigterm_while_writing_leaves_the_old_set_and_no_leftovers(tmp_path, rep
     write_report(reports[0], out, picture=False)
     before = (out / "report.json").read_bytes()
 
-    def killed_while_drawing(report):
+    def killed_while_drawing(report, **_):
         os.kill(os.getpid(), signal.SIGTERM)
         time.sleep(2.0)  # the handler raises during the sleep
         raise AssertionError("SIGTERM was not turned into an exception")

@@ -19,7 +19,7 @@ import numpy as np
 
 from .. import vocabulary
 from ..figure import Figure
-from .plots import ISO_LEVELS  # noqa: F401 - the levels the map draws, named in its caption
+from .plots import FROM_REPORT, ISO_LEVELS  # noqa: F401 - ISO_LEVELS: the levels the map draws, named in its caption
 from .html_page import esc, number_attr, page, png_data_uri, table, write_text_atomic
 
 __all__ = ["HTML_FILE", "figure_rows", "report_html", "write_comparison_html", "write_report_html"]
@@ -204,7 +204,7 @@ def _map_png(report) -> bytes:
     return beam_pictures(report)[1]
 
 
-def _profiles_svg(report, figures: dict) -> str:
+def _profiles_svg(report, figures: dict, noise=FROM_REPORT) -> str:
     from ..profile import plane_profile
     from .html_profiles import svg_chart
 
@@ -224,9 +224,10 @@ def _profiles_svg(report, figures: dict) -> str:
             marks.append((float(f["value"]), vocabulary.label(key)))
     spill = figures.get("spill_angle", {}).get("value")
     full_max = min(2 * reach, 1.25 * spill) if spill else 2 * reach
-    from .plots import noise_floor
+    if noise is FROM_REPORT:
+        from .plots import report_noise_floor
 
-    noise = noise_floor(beam, (report.contours or {}).get("edge"), p)
+        noise = report_noise_floor(report)
     level = noise.mean_level * scale if noise is not None else None
     radial = svg_chart([("azimuthal mean", 2 * np.asarray(p.theta_deg), mean * scale)], floor=level,
                        xlabel="full cone angle (°), twice the angle from the axis", ylabel=ylabel, log_y=True,
@@ -241,7 +242,7 @@ def _profiles_svg(report, figures: dict) -> str:
     return radial, planes, level
 
 
-def _pictures_section(report, d: dict, picture: bool, map_png: bytes | None = None) -> str:
+def _pictures_section(report, d: dict, picture: bool, map_png: bytes | None = None, noise=FROM_REPORT) -> str:
     if not picture:
         return ('<section id="pictures"><h2>Map and profiles</h2><p class="note">Pictures were turned off for '
                 'this analysis (no map or profile drawn); the numbers are in the table above and in profile.csv '
@@ -249,7 +250,7 @@ def _pictures_section(report, d: dict, picture: bool, map_png: bytes | None = No
     uri = png_data_uri(map_png if map_png is not None else _map_png(report))
     unit_note = ("intensity in cd" if report.beam.unit == "cd"
                  else "intensity relative to the peak (no absolute scale)")
-    radial, planes, level = _profiles_svg(report, d["figures"])
+    radial, planes, level = _profiles_svg(report, d["figures"], noise)
     below = (f" Values below the detection level of the dark wall beyond the spill ({_short(level)}"
              f"{' cd' if report.beam.unit == 'cd' else ' of the peak'}: its median + 3σ) are not drawn."
              if level else "")
@@ -366,10 +367,11 @@ def cautions_section(cautions) -> str:
 # ------------------------------------------------------------------------------- the page
 
 def report_html(report, *, picture: bool = True, map_png: bytes | None = None, tint_png: bytes | None = None,
-                data: dict | None = None) -> str:
+                data: dict | None = None, noise=FROM_REPORT) -> str:
     """The whole report page as text.  With ``picture=False`` no map or profile is drawn (says so);
     ``map_png``, the map panel already drawn for beam.png (:func:`beamshot.report.plots.beam_pictures`),
-    saves drawing it again; ``data``, ``report.to_dict()`` when the caller has it already."""
+    saves drawing it again; ``data``, ``report.to_dict()`` when the caller has it already; ``noise``,
+    its :func:`~beamshot.report.plots.report_noise_floor` likewise."""
     from .model import CAUTIONS
 
     d = report.to_dict() if data is None else data
@@ -381,9 +383,9 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None, t
            if beams and name else "",
            f"wall at {s['distance_m']:g} m" if s.get("distance_m") else "",
            "absolute scale (cd)" if report.beam.unit == "cd" else "relative scale (no cd)"]
-    sections = [_figures_section(d), _qa_section(d), _pictures_section(report, d, picture, map_png), _shape_section(d),
-                _colour_section(d, tint_png if picture else None), warnings_section(d.get("warnings", [])),
-                _inputs_section(d), cautions_section(CAUTIONS)]
+    sections = [_figures_section(d), _qa_section(d), _pictures_section(report, d, picture, map_png, noise),
+                _shape_section(d), _colour_section(d, tint_png if picture else None),
+                warnings_section(d.get("warnings", [])), _inputs_section(d), cautions_section(CAUTIONS)]
     tool = d.get("tool", {})
     footer = (f"beamshot {tool.get('version', '')} · report schema {d.get('schema_version', '')} · "
               f"{d.get('created_utc', '')} · the same numbers are in report.json beside this page")
@@ -391,6 +393,7 @@ def report_html(report, *, picture: bool = True, map_png: bytes | None = None, t
 
 
 def write_report_html(report, path, *, picture: bool = True, map_png: bytes | None = None,
-                      tint_png: bytes | None = None, data: dict | None = None) -> None:
+                      tint_png: bytes | None = None, data: dict | None = None, noise=FROM_REPORT) -> None:
     """Write :func:`report_html` to ``path`` (UTF-8)."""
-    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png, tint_png=tint_png, data=data))
+    write_text_atomic(path, report_html(report, picture=picture, map_png=map_png, tint_png=tint_png, data=data,
+                                        noise=noise))

@@ -15,6 +15,7 @@ from __future__ import annotations
 import base64
 import html
 import json
+import re
 
 from ..atomic_file import write_text_atomic  # the pages are written whole
 
@@ -112,6 +113,9 @@ footer { color: var(--muted); font-size: 0.82rem; text-align: center; padding: 1
 """
 
 
+_SURROGATES = re.compile("[\ud800-\udfff]")
+
+
 def esc(value) -> str:
     """Text from anywhere, safe in HTML text and in quoted attributes (``html.escape``, quotes too).
 
@@ -124,8 +128,8 @@ def esc(value) -> str:
     True
     """
     text = "" if value is None else str(value)
-    if any(0xD800 <= ord(ch) <= 0xDFFF for ch in text):
-        text = "".join("\ufffd" if 0xD800 <= ord(ch) <= 0xDFFF else ch for ch in text)
+    if not text.isascii():
+        text = _SURROGATES.sub("\ufffd", text)
     return html.escape(text, quote=True)
 
 

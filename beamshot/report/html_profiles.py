@@ -124,10 +124,11 @@ def svg_chart(series: list[tuple[str, np.ndarray, np.ndarray]], *, xlabel: str, 
         ok = np.isfinite(y) & (x >= x0) & (x <= x1) & ((y > low) if log_y else True)
         with np.errstate(divide="ignore", invalid="ignore"):
             yv = np.clip(ty(np.where(ok, y, 1.0)), y0, y1)
+            xs_px, ys_px = px(x).tolist(), py(yv).tolist()  # element by element as px(x[k]), py(yv[k])
         runs, cur = [], []
-        for k in range(len(x)):
-            if ok[k]:
-                cur.append(f"{float(px(x[k])):.1f},{float(py(yv[k])):.1f}")
+        for k, drawn in enumerate(ok.tolist()):
+            if drawn:
+                cur.append(f"{xs_px[k]:.1f},{ys_px[k]:.1f}")
             elif cur:
                 runs.append(cur)
                 cur = []

@@ -13,6 +13,8 @@ enlarged in an inset.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from .. import vocabulary
@@ -50,17 +52,47 @@ CLIP_HATCH_PX = 10.0
 
 def _colours(values: np.ndarray, vmin: float, vmax: float) -> np.ndarray:
     """RGB of ``values`` on a log scale from ``vmin`` to ``vmax`` through :data:`CIVIDIS_RGB`:
-    index ``int(256 t)`` (the last entry at ``t = 1``), below ``vmin`` the 'below' colour."""
+    index ``int(256 t)`` (the last entry at ``t = 1``), below ``vmin`` the 'below' colour (NaN
+    takes the first entry)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        t = (np.log10(values) - np.log10(vmin)) / (np.log10(vmax) - np.log10(vmin))
-    idx = np.clip(np.floor(np.nan_to_num(t, nan=0.0) * 256), 0, 255).astype(np.intp)
-    rgb = CIVIDIS_RGB[idx]
-    rgb[np.nan_to_num(t, nan=0.0) < 0] = _hex(_BELOW)
-    return rgb
+        t = np.log10(values)
+        t -= np.log10(vmin)
+        t /= np.log10(vmax) - np.log10(vmin)
+    np.nan_to_num(t, copy=False, nan=0.0)
+    below = t < 0
+    t *= 256
+    np.floor(t, out=t)
+    np.clip(t, 0, 255, out=t)
+    idx = t.astype(np.intp)
+    idx += 1  # entry 0 of the table with the 'below' colour first
+    idx[below] = 0
+    return np.take(_WITH_BELOW, idx, axis=0)
 
 
 def _hex(c: str) -> tuple[int, int, int]:
     return int(c[1:3], 16), int(c[3:5], 16), int(c[5:7], 16)
+
+
+#: The colour table with the 'below' colour as entry 0, for one lookup.
+_WITH_BELOW = np.vstack([np.array([_hex(_BELOW)], np.uint8), CIVIDIS_RGB])
+
+
+@functools.lru_cache(maxsize=4)  # about 1.4 MB each for the 401-point grid
+def _grid_cells(half_width_deg: float, n: int, theta0: float, d_theta: float, n_theta: int, phi0: float,
+                d_phi: float):
+    """The square grid's angles ``a`` (deg) and, for each of its points, the map's cell coordinates
+    (row ``k``, column ``j`` + 1 of the azimuth-padded map, float32 for ``cv2.remap``) and whether it
+    lies beyond the map's last row.  Cached per process: a batch's maps share their grid and view."""
+    a = np.linspace(-half_width_deg, half_width_deg, n)
+    xx, yy = a[None, :], a[:, None]  # broadcast: the values np.meshgrid would hold, without its arrays
+    th = np.radians(np.hypot(xx, yy))
+    ph = np.mod(np.arctan2(yy, xx), 2 * np.pi)
+    k = np.clip((th - theta0) / d_theta, 0.0, None)
+    j = (ph - phi0) / d_phi + 1.0  # the azimuth wraps through one padded column each side
+    out = (a, j.astype(np.float32), k.astype(np.float32), k > n_theta - 1)
+    for arr in out:
+        arr.flags.writeable = False
+    return out
 
 
 def picture_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
@@ -75,16 +107,13 @@ def picture_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
     """
     import cv2
 
-    a = np.linspace(-half_width_deg, half_width_deg, n)
-    xx, yy = np.meshgrid(a, a)
-    th = np.radians(np.hypot(xx, yy))
-    ph = np.mod(np.arctan2(yy, xx), 2 * np.pi)
-    k = np.clip((th - beam.theta[0]) / beam.d_theta, 0.0, None)
-    j = (ph - beam.phi[0]) / beam.d_phi + 1.0  # the azimuth wraps through one padded column each side
+    a, j, k, beyond = _grid_cells(float(half_width_deg), int(n), float(beam.theta[0]), float(beam.d_theta),
+                                  len(beam.theta), float(beam.phi[0]), float(beam.d_phi))
+    a = a.copy()
     wrapped = np.concatenate([beam.intensity[:, -1:], beam.intensity, beam.intensity[:, :1]], axis=1)
-    vals = cv2.remap(wrapped.astype(np.float32), j.astype(np.float32), k.astype(np.float32), cv2.INTER_LINEAR,
+    vals = cv2.remap(wrapped.astype(np.float32), j, k, cv2.INTER_LINEAR,
                      borderMode=cv2.BORDER_REPLICATE).astype(float)
-    vals[k > len(beam.theta) - 1] = np.nan
+    vals[beyond] = np.nan
     finite = np.isfinite(vals)
     if beam.footprint_deg is not None and finite.any():
         inside = _inside_outline(beam.footprint_deg, a, a)
@@ -108,7 +137,7 @@ class _MapAxes:
     def px(self, xy) -> np.ndarray:
         p = np.atleast_2d(np.asarray(xy, float))
         s = (self.x1 - self.x0) / (2 * self.half)
-        return np.c_[self.x0 + (p[:, 0] + self.half) * s, self.y0 + (self.half - p[:, 1]) * s]
+        return np.column_stack((self.x0 + (p[:, 0] + self.half) * s, self.y0 + (self.half - p[:, 1]) * s))
 
 
 def _draw_image(c: Canvas, ax: _MapAxes, vals: np.ndarray, floor: float, peak: float, factor: float):
@@ -134,10 +163,11 @@ def _nearest_cells(beam: BeamMap, a: np.ndarray):
     return k, j
 
 
-def _level_lines(grid: np.ndarray, a: np.ndarray, level: float, upsample: int = 4) -> list[np.ndarray]:
-    """Lines (deg) where the bilinear surface through ``grid`` (on ``a`` x ``a``) crosses ``level``:
-    the grid is interpolated ``upsample`` times finer and the crossing traced with OpenCV's border
-    following; points next to NaN cells are dropped (no line along the photo's outline)."""
+def _level_lines(grid: np.ndarray, a: np.ndarray, levels, upsample: int = 4) -> list[list[np.ndarray]]:
+    """For each of ``levels``, the lines (deg) where the bilinear surface through ``grid`` (on
+    ``a`` x ``a``) crosses it: the grid is interpolated ``upsample`` times finer (once for all
+    levels) and each crossing traced with OpenCV's border following; points next to NaN cells are
+    dropped (no line along the photo's outline)."""
     import cv2
 
     n = len(a)
@@ -145,20 +175,23 @@ def _level_lines(grid: np.ndarray, a: np.ndarray, level: float, upsample: int = 
     g = np.nan_to_num(grid, nan=-1.0).astype(np.float32)
     fine = cv2.resize(g, (m, m), interpolation=cv2.INTER_LINEAR)
     # cv2's INTER_LINEAR aligns pixel centres: fine[i] ~ grid[(i + 0.5) / (m / n) - 0.5]
-    above = (fine >= level).astype(np.uint8)
     bad = cv2.resize((~np.isfinite(grid)).astype(np.uint8), (m, m), interpolation=cv2.INTER_NEAREST)
     bad = cv2.dilate(bad, np.ones((2 * upsample + 1, 2 * upsample + 1), np.uint8)).astype(bool)
-    contours, _ = cv2.findContours(above, cv2.RETR_LIST, cv2.CHAIN_APPROX_NONE)
     step = a[1] - a[0]
     out = []
-    for cnt in contours:
-        p = cnt[:, 0, :].astype(float)
-        if len(p) < 8:
-            continue
-        gi = (p + 0.5) * n / m - 0.5  # fine pixel -> grid index
-        xy = np.c_[a[0] + gi[:, 0] * step, a[0] + gi[:, 1] * step]
-        xy[bad[p[:, 1].astype(int), p[:, 0].astype(int)]] = np.nan
-        out.append(np.vstack([xy, xy[:1]]))
+    for level in levels:
+        above = (fine >= level).astype(np.uint8)
+        contours, _ = cv2.findContours(above, cv2.RETR_LIST, cv2.CHAIN_APPROX_NONE)
+        lines = []
+        for cnt in contours:
+            p = cnt[:, 0, :].astype(float)
+            if len(p) < 8:
+                continue
+            gi = (p + 0.5) * n / m - 0.5  # fine pixel -> grid index
+            xy = np.column_stack((a[0] + gi[:, 0] * step, a[0] + gi[:, 1] * step))
+            xy[bad[p[:, 1].astype(int), p[:, 0].astype(int)]] = np.nan
+            lines.append(np.vstack([xy, xy[:1]]))
+        out.append(lines)
     return out
 
 
@@ -182,8 +215,7 @@ def _draw_iso(c: Canvas, ax: _MapAxes, a: np.ndarray, vals: np.ndarray, floor: f
     smooth = cv2.GaussianBlur(np.nan_to_num(rel, nan=0.0), (0, 0), sigma, borderType=cv2.BORDER_REFLECT)
     smooth[~np.isfinite(rel)] = np.nan
     label_dir = np.radians(RING_LABEL_BEARING_DEG + 180.0 + 40.0)  # lower left, clear of the ring labels
-    for n, lv in enumerate(levels):
-        lines = _level_lines(smooth, a, lv, upsample=2)
+    for n, (lv, lines) in enumerate(zip(levels, _level_lines(smooth, a, levels, upsample=2))):
         for xy in lines:
             draw_line_sample(c, ax.px(xy), MAP_STYLES["iso"], clip=ax.box)
         longest = max(lines, key=lambda q: np.isfinite(q[:, 0]).sum(), default=None)
@@ -225,9 +257,9 @@ def _draw_marks(c: Canvas, ax: _MapAxes, contours: dict, edge, pk, clipped: bool
         draw_line_sample(c, ax.px(_contour_xy(pk.vector, cont.bearings, cont.alpha)), MAP_STYLES[key], clip=ax.box)
         entries.append((vocabulary.label(fkey), "line", MAP_STYLES[key]))
     if edge is not None and np.any(np.isfinite(edge.theta)):
-        th = np.degrees(np.r_[edge.theta, edge.theta[:1]])
-        ph = np.r_[edge.phi, edge.phi[:1]]
-        draw_line_sample(c, ax.px(np.c_[th * np.cos(ph), th * np.sin(ph)]), MAP_STYLES["edge"], clip=ax.box)
+        th = np.degrees(np.concatenate((edge.theta, edge.theta[:1])))
+        ph = np.concatenate((edge.phi, edge.phi[:1]))
+        draw_line_sample(c, ax.px(np.column_stack((th * np.cos(ph), th * np.sin(ph)))), MAP_STYLES["edge"], clip=ax.box)
         entries.append((vocabulary.label("spill_angle"), "line", MAP_STYLES["edge"]))
     centre = tuple(ax.px((0.0, 0.0))[0])
     draw_mark(c, "ring", centre, MAP_STYLES["axis"], clip=ax.box)
@@ -281,7 +313,7 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
     t = np.linspace(0, 2 * np.pi, 361)
     lab_dir = np.radians(RING_LABEL_BEARING_DEG)
     fulls = np.arange(step, 2 * half + 1e-9, step)
-    rings = [np.vstack([np.c_[f / 2 * np.cos(t), f / 2 * np.sin(t)], [np.nan, np.nan]]) for f in fulls]
+    rings = [np.vstack([np.column_stack((f / 2 * np.cos(t), f / 2 * np.sin(t))), [np.nan, np.nan]]) for f in fulls]
     if rings:  # one stroke for all rings (NaN rows part them)
         draw_line_sample(c, ax.px(np.vstack(rings)), MAP_STYLES["ring"], clip=box)
     for full in fulls:

@@ -8,6 +8,7 @@ written as ``null`` (RFC 8259 JSON has no NaN or Infinity).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -114,6 +115,14 @@ def rounded(obj, digits: int = ROUND_DIGITS):
     >>> rounded({"focal_px": 693.3752452815363, "phi": [265.55311615725145, float("nan")], "n": 3})
     {'focal_px': 693.375, 'phi': [265.553, None], 'n': 3}
     """
+    kind = type(obj)
+    if kind is float:  # the common cases first, by exact type (the same results as the general rules below)
+        return float(f"{obj:.{digits}g}") + 0.0 if math.isfinite(obj) else None
+    if kind is list:
+        return [(float(f"{v:.{digits}g}") + 0.0 if math.isfinite(v) else None) if type(v) is float
+                else rounded(v, digits) for v in obj]
+    if kind is str or kind is int or obj is None:
+        return _valid_text(obj) if kind is str else obj
     if isinstance(obj, (bool, np.bool_)):
         return bool(obj)
     if isinstance(obj, (int, np.integer)):

@@ -33,6 +33,7 @@ import csv
 import errno
 import hashlib
 import json
+import math
 import os
 import re
 import secrets
@@ -116,12 +117,15 @@ def write_profile_csv(report: BeamReport, path) -> None:
         w.writerow(["theta_deg", f"mean_{unit}", f"std_{unit}", f"min_{unit}", f"max_{unit}", "cells",
                     f"right_{unit}", f"left_{unit}", f"up_{unit}", f"down_{unit}"])
 
-        def fmt(x):
-            return "" if not np.isfinite(x) else f"{x:.6g}"
+        def col(values) -> list[str]:  # as Python floats (the values exactly): '' where not finite
+            return ["" if not math.isfinite(x) else f"{x:.6g}" for x in np.asarray(values, float)[:n].tolist()]
 
-        for i in range(n):
-            w.writerow([f"{p.theta_deg[i]:.3f}", fmt(p.mean[i]), fmt(p.std[i]), fmt(p.min[i]), fmt(p.max[i]),
-                        int(p.count[i]), fmt(h_val[n + i]), fmt(h_val[n - 1 - i]), fmt(v_val[n + i]), fmt(v_val[n - 1 - i])])
+        h_val, v_val = np.asarray(h_val, float), np.asarray(v_val, float)
+        columns = [[f"{x:.3f}" for x in np.asarray(p.theta_deg, float).tolist()], col(p.mean), col(p.std),
+                   col(p.min), col(p.max), [int(c) for c in np.asarray(p.count)[:n].tolist()],
+                   col(h_val[n:2 * n]), col(h_val[n - 1::-1] if n else h_val[:0]), col(v_val[n:2 * n]),
+                   col(v_val[n - 1::-1] if n else v_val[:0])]
+        w.writerows(zip(*columns))
 
 
 # ---------------------------------------------------------------- one set, replaced at once
@@ -307,6 +311,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
     from . import beam_picture
     from .html import HTML_FILE, write_report_html
     from .intensity_map import MAP_FILE, write_intensity_map
+    from .plots import FROM_REPORT, report_noise_floor
 
     def fill(tmp: str) -> None:
         data = report.to_dict()  # once for report.json and the page (about 16 ms)
@@ -314,8 +319,10 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
         write_profile_csv(report, os.path.join(tmp, "profile.csv"))
         write_intensity_map(report.beam, os.path.join(tmp, MAP_FILE))
         map_png = None
-        if picture:  # one drawing: beam.png, and its map panel for the page
-            png, map_png = beam_picture.beam_pictures(report)
+        noise = FROM_REPORT
+        if picture:  # one drawing: beam.png, and its map panel for the page; one noise floor for both
+            noise = report_noise_floor(report)
+            png, map_png = beam_picture.beam_pictures(report, noise=noise)
             with open(os.path.join(tmp, "beam.png"), "wb") as fh:
                 fh.write(png)
         tint_png = None
@@ -327,7 +334,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
                 tint_png = fh.read()
         # the page is always written (without pictures it holds the tables and says so)
         write_report_html(report, os.path.join(tmp, HTML_FILE), picture=picture, map_png=map_png, tint_png=tint_png,
-                          data=data)
+                          data=data, noise=noise)
 
     return write_set(out_dir, fill, is_ours=_is_our_set, writer="beamshot", doing="write the report files there")
 

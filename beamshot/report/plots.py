@@ -145,6 +145,15 @@ def noise_floor(beam: BeamMap, edge, profile=None) -> NoiseFloor | None:
     return NoiseFloor(sigma, cell_level, mean_sigma, mean_level, int(dark.sum()), rows)
 
 
+#: ``noise`` argument of the report writers: work out the report's noise floor where it is needed.
+FROM_REPORT = "from the report"
+
+
+def report_noise_floor(report) -> NoiseFloor | None:
+    """:func:`noise_floor` of a report's map, spill edge and profile (what beam.png and the page show)."""
+    return noise_floor(report.beam, (report.contours or {}).get("edge"), report.profile)
+
+
 def _spill_median(beam: BeamMap, edge, peak: float) -> float | None:
     """Median of the map cells between the 10 % region and 0.9 x the spill edge (None if too few)."""
     if edge is None or not np.any(np.isfinite(edge.theta)):
@@ -225,26 +234,49 @@ def _inside_outline(outline: np.ndarray, xs: np.ndarray, ys: np.ndarray) -> np.n
     """Which points of the grid ``(ys[i], xs[j])`` lie inside the closed polygon ``outline`` ``(n, 2)``.
 
     The even-odd crossing test (W. R. Franklin's pnpoly, which matplotlib's ``Path.contains_points``
-    runs point by point) with the same comparisons in the same arithmetic, row by row: an edge from
-    ``p0`` to ``p1`` that straddles the row's ``y`` flips every point whose ``+x`` ray it crosses,
-    ``((y1 - y) (x0 - x1) >= (x1 - x) (y0 - y1)) == (y1 >= y)``.  Only the few edges that straddle
-    a row are evaluated, so a 401 x 401 grid costs milliseconds instead of a pass over every edge.
+    runs point by point) with the same comparisons in the same arithmetic: an edge from ``p0`` to
+    ``p1`` that straddles a row's ``y`` flips every point whose ``+x`` ray it crosses,
+    ``((y1 - y) (x0 - x1) >= (x1 - x) (y0 - y1)) == (y1 >= y)``.  For increasing ``xs`` that
+    test holds on a first run of points only (its right side is monotonic in ``x``, and rounding
+    keeps it so), so each straddling edge needs only where its run ends: estimated from the
+    crossing and settled by evaluating the test itself beside it.  A point is inside when an odd
+    number of its row's runs cover it.  ``xs`` and ``ys`` must increase.
     """
     p0 = np.asarray(outline, float)
     p1 = np.roll(p0, -1, axis=0)  # the outline is closed: the last vertex joins the first
-    above0 = p0[None, :, 1] >= ys[:, None]
-    above1 = p1[None, :, 1] >= ys[:, None]
-    rows, edges = np.nonzero(above0 != above1)  # row-major: each row's straddling edges together
-    inside = np.zeros((len(ys), len(xs)), bool)
+    # an edge straddles the rows with min(y0, y1) < y <= max(y0, y1) (exactly the rows where
+    # (y0 >= y) != (y1 >= y)): a run of rows for increasing ys
+    first = np.searchsorted(ys, np.minimum(p0[:, 1], p1[:, 1]), side="right")
+    stop = np.searchsorted(ys, np.maximum(p0[:, 1], p1[:, 1]), side="right")
+    span = np.maximum(stop - first, 0)
+    edges = np.repeat(np.arange(len(p0)), span)
+    rows = np.arange(span.sum()) - np.repeat(np.cumsum(span) - span, span) + np.repeat(first, span)
+    n = len(xs)
+    inside = np.zeros((len(ys), n), bool)
     if rows.size == 0:
         return inside
     x0, y0, x1, y1 = p0[edges, 0], p0[edges, 1], p1[edges, 0], p1[edges, 1]
-    ty = ys[rows]
-    lhs = (y1 - ty) * (x0 - x1)
-    rhs = (x1[:, None] - xs[None, :]) * (y0 - y1)[:, None]
-    flips = (lhs[:, None] >= rhs) == above1[rows, edges][:, None]
-    starts = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
-    inside[rows[starts]] = np.add.reduceat(flips.astype(np.int32), starts, axis=0) % 2 == 1
+    lhs = (y1 - ys[rows]) * (x0 - x1)
+    dy = y0 - y1
+    up = y1 >= ys[rows]
+
+    def flips(j):  # the test at column j (clipped to the grid), as the point-by-point loop evaluates it
+        return (lhs >= (x1 - xs[np.clip(j, 0, n - 1)]) * dy) == up
+
+    with np.errstate(divide="ignore", invalid="ignore"):
+        guess = np.nan_to_num(x1 - lhs / dy, nan=xs[0])
+    end = np.searchsorted(xs, guess)  # first column not flipped, about
+    for _ in range(n + 1):  # settle: flipped at end - 1 (or end 0), not flipped at end (or end n)
+        fwd = (end < n) & flips(end)
+        back = (end > 0) & ~flips(end - 1)
+        if not (fwd.any() or back.any()):
+            break
+        end = end + fwd - (back & ~fwd)
+    counts = np.zeros((len(ys), n + 1), np.int32)
+    np.add.at(counts, (rows, end), 1)
+    # columns j < end are flipped: the number of runs covering j is the count of ends above j
+    covering = np.cumsum(counts[:, ::-1], axis=1)[:, ::-1][:, 1:]
+    inside[:] = covering % 2 == 1
     return inside
 
 
@@ -489,12 +521,12 @@ def _contour_xy(centre, bearings, alpha):
     """Azimuthal-equidistant coordinates (deg) of a contour traced around ``centre``."""
     c = np.asarray(centre, float)
     e1, e2 = local_basis(c)
-    b = np.r_[bearings, bearings[:1]]
-    a = np.r_[alpha, alpha[:1]]
+    b = np.concatenate((bearings, bearings[:1]))
+    a = np.concatenate((alpha, alpha[:1]))
     v = np.cos(a)[:, None] * c + np.sin(a)[:, None] * (np.cos(b)[:, None] * e1 + np.sin(b)[:, None] * e2)
     th = np.degrees(np.arccos(np.clip(v[:, 2], -1, 1)))
     ph = np.arctan2(v[:, 1], v[:, 0])
-    return np.c_[th * np.cos(ph), th * np.sin(ph)]
+    return np.column_stack((th * np.cos(ph), th * np.sin(ph)))
 
 
 # ----------------------------------------------------------------------------- the profile

@@ -114,7 +114,7 @@ def draw_profile_panel(c: Canvas, profile, figures: dict, *, box, beam: BeamMap 
         x, y = np.asarray(x, float), np.asarray(y, float)
         with np.errstate(divide="ignore", invalid="ignore"):
             yy = y1 - (np.log10(y) - lo) / (hi - lo) * (y1 - y0)
-        return np.c_[x0 + x / xmax * (x1 - x0), yy]
+        return np.column_stack((np.atleast_1d(x0 + x / xmax * (x1 - x0)), np.atleast_1d(yy)))
 
     yt = log_ticks(*s["ylim"])
     xt = linear_ticks(0.0, xmax)

@@ -74,6 +74,136 @@ def _measure():
     return ImageDraw.Draw(Image.new("L", (1, 1)))
 
 
+@functools.lru_cache(maxsize=4096)
+def _text_bbox(s: str, size_i: int, style: str, anchor: str, stroke: int) -> tuple:
+    """Pillow's box of ``s`` drawn at (0, 0) (px); cached per process, as a batch repeats most texts."""
+    return tuple(_measure().textbbox((0, 0), s, font=font(size_i, style), anchor=anchor, stroke_width=stroke))
+
+
+@functools.lru_cache(maxsize=4096)
+def _text_length(s: str, size_i: int, style: str) -> float:
+    return float(font(size_i, style).getlength(s))
+
+
+@functools.lru_cache(maxsize=1024)  # about 3 kB each: a few MB at most
+def _text_ink(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float):
+    """The coverage Pillow draws for ``s`` anchored at a point whose fractional position is
+    ``(fx, fy)``: ``(m, ox, oy)``, the coverage ``m`` (0-255, ``uint8``, read-only) cut to its inked
+    box, and the anchor point's integer position relative to the box's corner.  Drawn by Pillow's
+    own ``ImageDraw.text`` on a blank 'L' image, so that each glyph's anti-aliasing is Pillow's;
+    ``None`` where ``ox + fx`` is not exact in floating point (the caller then draws the text with
+    Pillow on the picture).  Cached per process: a batch's pictures repeat most texts at the same
+    fractional positions (labels, ticks, legend, table)."""
+    from PIL import Image, ImageDraw
+
+    x0, y0, x1, y1 = _text_bbox(s, size_i, style, anchor, stroke)
+    ox, oy = 2 - int(np.floor(x0)), 2 - int(np.floor(y0))
+    if (ox + fx) - ox != fx or (oy + fy) - oy != fy:
+        return None
+    w, h = int(np.ceil(x1)) + ox + 3, int(np.ceil(y1)) + oy + 3
+    img = Image.new("L", (max(w, 1), max(h, 1)), 0)
+    ImageDraw.Draw(img).text((ox + fx, oy + fy), s, fill=255, font=font(size_i, style), anchor=anchor,
+                             stroke_width=stroke)
+    ink = np.asarray(img)
+    rows, cols = np.flatnonzero(ink.any(axis=1)), np.flatnonzero(ink.any(axis=0))
+    if rows.size == 0:
+        ink, r0, c0 = ink[:0, :0], 0, 0
+    else:
+        r0, c0 = int(rows[0]), int(cols[0])
+        ink = ink[r0:rows[-1] + 1, c0:cols[-1] + 1]
+    ink = ink.copy()
+    ink.flags.writeable = False
+    return ink, ox - c0, oy - r0
+
+
+@functools.lru_cache(maxsize=256)  # about 35 kB each: some 9 MB at most; a picture draws about 90 texts
+def _text_paint(s: str, size_i: int, style: str, anchor: str, stroke: int, fx: float, fy: float, colour: tuple):
+    """:func:`_text_ink` ready to paint in ``colour``: ``(255 - m, m c + 128, ox, oy)``, both
+    ``uint16`` ``(h, w, 3)`` (same shapes make numpy's loops run whole rows), or None."""
+    got = _text_ink(s, size_i, style, anchor, stroke, fx, fy)
+    if got is None:
+        return None
+    ink, ox, oy = got
+    return (*_paint_terms(ink, colour), ox, oy)
+
+
+def _paint_terms(ink: np.ndarray, colour) -> tuple[np.ndarray, np.ndarray]:
+    """``(255 - m, m c + 128)`` of a coverage ``ink`` (``(h, w)``, 0-255) in ``colour``, ``uint16``
+    ``(h, w, 3)``, read-only; built row by row (whole rows of the colour repeated, not a 3-long
+    inner loop per pixel)."""
+    h, w = ink.shape
+    m = np.repeat(ink.astype(np.uint16), 3, axis=1)  # (h, 3 w): each coverage for R, G and B
+    rest = 255 - m
+    mc = m * np.tile(np.asarray(colour, np.uint16), w)
+    mc += 128
+    rest, mc = rest.reshape(h, w, 3), mc.reshape(h, w, 3)
+    rest.flags.writeable = mc.flags.writeable = False
+    return rest, mc
+
+
+@functools.lru_cache(maxsize=64)
+def _rotated_paint(s: str, size_i: int, style: str, anchor: str, colour: tuple):
+    """A text turned a quarter turn counter-clockwise, ready to paint in ``colour`` as
+    :func:`_text_paint` gives it: Pillow draws it on a blank 'L' image 1 px inside its box and turns
+    that image (``Image.rotate(90, expand=True)``); its corner goes 1 px above and left of the turned
+    box's rounded corner."""
+    from PIL import Image, ImageDraw
+
+    f = font(size_i, style)
+    x0, y0, x1, y1 = _measure().textbbox((0, 0), s, font=f, anchor=anchor)
+    w, h = int(np.ceil(x1 - x0)) + 2, int(np.ceil(y1 - y0)) + 2
+    ink = Image.new("L", (w, h), 0)
+    ImageDraw.Draw(ink).text((1 - x0, 1 - y0), s, fill=255, font=f, anchor=anchor)
+    return _paint_terms(np.asarray(ink.rotate(90, expand=True)), colour)
+
+
+_SEEN: set = set()
+#: Texts remembered as met (their keys only); past this the memory starts again.
+_SEEN_MAX = 8192
+
+
+def _seen_before(key: tuple) -> bool:
+    """Whether a text with this key was drawn before in this process (and remember it)."""
+    if key in _SEEN:
+        return True
+    if len(_SEEN) >= _SEEN_MAX:
+        _SEEN.clear()
+    _SEEN.add(key)
+    return False
+
+
+def _blend_ink(out: np.ndarray, paint, left: int, top: int, region) -> None:
+    """Paint a text's coverage (``(255 - m, m c + 128)`` as :func:`_text_paint` gives them)
+    placed with its corner at ``(left, top)`` onto ``out`` (RGB uint8), within ``region``
+    ``(x0, y0, x1, y1)``: Pillow's mask fill in integers, out = (bg (255 - m) + c m) / 255 rounded
+    as its ``DIV255`` (``t = v + 128; ((t >> 8) + t) >> 8``, within 16 bits), so that the pixels
+    equal those ``ImageDraw.text`` gives (tests/test_raster_text.py checks it)."""
+    rest, mc = paint
+    x0, y0, x1, y1 = max(region[0], left), max(region[1], top), min(region[2], left + rest.shape[1]), \
+        min(region[3], top + rest.shape[0])
+    if x1 <= x0 or y1 <= y0:
+        return
+    ys, xs = slice(y0 - top, y1 - top), slice(x0 - left, x1 - left)
+    sub = out[y0:y1, x0:x1]
+    t = sub * rest[ys, xs]
+    t += mc[ys, xs]
+    t += t >> 8
+    t >>= 8
+    sub[:] = t
+
+
+def _blend_tab(out: np.ndarray, box, colour, alpha: float) -> None:
+    """``Image.blend`` of the pixels in ``box`` with ``colour``: in1 + alpha (in2 - in1) in single
+    precision, truncated to 8 bits, as Pillow computes it."""
+    x0, y0, x1, y1 = max(box[0], 0), max(box[1], 0), min(box[2], out.shape[1]), min(box[3], out.shape[0])
+    if x1 <= x0 or y1 <= y0:
+        return
+    sub = out[y0:y1, x0:x1]
+    a = np.float32(alpha)
+    v = sub.astype(np.float32) + a * (np.asarray(colour, np.float32) - sub.astype(np.float32))
+    sub[:] = np.clip(v, 0, 255).astype(np.uint8)
+
+
 @dataclass
 class TextItem:
     """One text drawn: its role (e.g. 'title', 'legend', 'figure-value:peak_intensity'), the text,
@@ -112,6 +242,7 @@ class _QueuedText:
     xy: tuple[float, float]
     anchor: str
     font: object
+    size_i: int
     stroke: int
     stroke_colour: tuple | None
     background: tuple | None
@@ -172,7 +303,8 @@ class Canvas:
     @staticmethod
     def _bbox(points, pad: float):
         p = np.asarray(points, float)
-        p = p[np.all(np.isfinite(p), axis=1)]
+        if not np.isfinite(p).all():
+            p = p[np.all(np.isfinite(p), axis=1)]
         if p.size == 0:
             return (0.0, 0.0, 0.0, 0.0)
         return (p[:, 0].min() - pad, p[:, 1].min() - pad, p[:, 0].max() + pad, p[:, 1].max() + pad)
@@ -205,7 +337,7 @@ class Canvas:
             else:
                 cv2.polylines(sub, [self._pts(r, ox, oy) for r in runs], False, col, th, cv2.LINE_AA, _SHIFT)
 
-        self._paint(self._bbox(np.vstack(runs), width + 2), clip, alpha, draw)
+        self._paint(self._bbox(runs[0] if len(runs) == 1 else np.vstack(runs), width + 2), clip, alpha, draw)
 
     def polygon(self, points, fill=None, edge=None, width: float = 1.0, *, alpha: float = 1.0, clip=None) -> None:
         """A filled and/or outlined closed polygon."""
@@ -288,32 +420,37 @@ class Canvas:
         (top/center/baseline/bottom); ``rotate`` turns it a quarter turn counter-clockwise (reads
         bottom to top, ``ha`` then aligns vertically).  ``background`` draws a tab ``pad`` px
         around it.  Returns its record (box in final px)."""
-        f = font(int(round(size_px)), style)
+        size_i = int(round(size_px))
+        f = font(size_i, style)
         anchor = {"left": "l", "center": "m", "right": "r"}[ha] + {"top": "a", "center": "m", "baseline": "s",
                                                                    "bottom": "d"}[va]
         sw = int(round(stroke))
-        x0, y0, x1, y1 = _measure().textbbox((0, 0), s, font=f, anchor=anchor, stroke_width=sw)
+        x0, y0, x1, y1 = _text_bbox(s, size_i, style, anchor, sw)
         if rotate:  # the horizontal box turned about the anchor point
             x0, y0, x1, y1 = y0, -x1, y1, -x0
         box = (x + x0 - pad, y + y0 - pad, x + x1 + pad, y + y1 + pad)
         item = TextItem(role, s, box, float(size_px), hex_rgb(colour), style, data)
         self.record.texts.append(item)
-        self._texts.append(_QueuedText(item, (x, y), anchor, f, sw, hex_rgb(stroke_colour) if sw else None,
+        self._texts.append(_QueuedText(item, (x, y), anchor, f, size_i, sw, hex_rgb(stroke_colour) if sw else None,
                                        (hex_rgb(background[0]), background[1]) if background else None, rotate))
         return item
 
     @staticmethod
     def text_width(s: str, size_px: float, style: str = "normal") -> float:
-        return float(font(int(round(size_px)), style).getlength(s))
+        return _text_length(s, int(round(size_px)), style)
 
     # ------------------------------------------------------------------ out
     def finish(self) -> np.ndarray:
         """The final picture (``height`` x ``width`` x 3 uint8): shapes shrunk, texts drawn on top.
 
-        Each text is drawn on a small Pillow copy of the pixels under it, put back at once
-        (cheaper than turning the whole picture into a Pillow image and back)."""
+        A text met before in this process (the same words, font, colours and sub-pixel position:
+        labels, ticks, legends of a batch's pictures) is painted from Pillow's coverage
+        (:func:`_text_ink`, :func:`_rotated_paint`, cached per process) with Pillow's integer blend
+        straight into the pixels, within the box Pillow drew it in before (the text's box and 2-3 px
+        around it); a text met for the first time, or one whose position does not split exactly, is
+        drawn by Pillow on a small copy of the pixels under it, put back at once.  Both give the
+        same pixels (tests/test_raster_text.py)."""
         import cv2
-        from PIL import Image, ImageDraw
 
         out = self.img if SUPERSAMPLE == 1 else cv2.resize(self.img, (self.width, self.height),
                                                            interpolation=cv2.INTER_AREA)
@@ -323,20 +460,52 @@ class Canvas:
             x1, y1 = min(int(np.ceil(bx1)) + 3, self.width), min(int(np.ceil(by1)) + 3, self.height)
             if x1 <= x0 or y1 <= y0:
                 continue
-            patch = Image.fromarray(out[y0:y1, x0:x1])
+            x, y = q.xy
+            inks = None
+            fx, fy = float(x - np.floor(x)), float(y - np.floor(y))
+            key = (q.item.text, q.size_i, q.item.style, q.anchor)
+            if not _seen_before((*key, q.stroke, q.rotate, fx, fy, q.item.colour, q.stroke_colour)):
+                pass  # a text met for the first time (a figure's value, most likely once): Pillow as it comes
+            elif q.rotate and "\n" not in q.item.text:  # placed at its box's rounded corner, less 1 px
+                rest, mc = _rotated_paint(*key, q.item.colour)
+                left, top = int(round(bx0)) - 1, int(round(by0)) - 1
+                inks = [(rest, mc, int(np.floor(x)) - left, int(np.floor(y)) - top)]
+            elif not q.rotate and x >= 0 and y >= 0 and "\n" not in q.item.text:
+                # a stroked text: the stroke's coverage in its colour, then the text's in its own
+                inks = [_text_paint(*key, q.stroke, fx, fy, q.stroke_colour)] if q.stroke else []
+                if not q.stroke or q.stroke_colour != q.item.colour:
+                    inks.append(_text_paint(*key, 0, fx, fy, q.item.colour))
+                if any(i is None for i in inks):
+                    inks = None
+            if inks is None:
+                self._text_on_patch(out, q, (x0, y0, x1, y1))
+                continue
             if q.background is not None:
                 colour, alpha = q.background
-                tab = (int(round(bx0)) - x0, int(round(by0)) - y0, int(round(bx1)) - x0, int(round(by1)) - y0)
-                shade = Image.blend(patch, Image.new("RGB", patch.size, colour), alpha)
-                patch.paste(shade.crop(tab), tab[:2])
-            if q.rotate:
-                self._rotated(patch, q, (x0, y0))
-            else:
-                ImageDraw.Draw(patch).text((q.xy[0] - x0, q.xy[1] - y0), q.item.text, fill=q.item.colour,
-                                           font=q.font, anchor=q.anchor, stroke_width=q.stroke,
-                                           stroke_fill=q.stroke_colour)
-            out[y0:y1, x0:x1] = np.asarray(patch)
+                _blend_tab(out, (int(round(bx0)), int(round(by0)), int(round(bx1)), int(round(by1))), colour, alpha)
+            for rest, mc, ox, oy in inks:
+                _blend_ink(out, (rest, mc), int(np.floor(x)) - ox, int(np.floor(y)) - oy, (x0, y0, x1, y1))
         return out
+
+    def _text_on_patch(self, out: np.ndarray, q: _QueuedText, region) -> None:
+        """Draw one text with Pillow on a copy of the pixels in ``region`` and put them back."""
+        from PIL import Image, ImageDraw
+
+        x0, y0, x1, y1 = region
+        bx0, by0, bx1, by1 = q.item.box
+        patch = Image.fromarray(out[y0:y1, x0:x1])
+        if q.background is not None:
+            colour, alpha = q.background
+            tab = (int(round(bx0)) - x0, int(round(by0)) - y0, int(round(bx1)) - x0, int(round(by1)) - y0)
+            shade = Image.blend(patch, Image.new("RGB", patch.size, colour), alpha)
+            patch.paste(shade.crop(tab), tab[:2])
+        if q.rotate:
+            self._rotated(patch, q, (x0, y0))
+        else:
+            ImageDraw.Draw(patch).text((q.xy[0] - x0, q.xy[1] - y0), q.item.text, fill=q.item.colour,
+                                       font=q.font, anchor=q.anchor, stroke_width=q.stroke,
+                                       stroke_fill=q.stroke_colour)
+        out[y0:y1, x0:x1] = np.asarray(patch)
 
     @staticmethod
     def _rotated(patch, q: _QueuedText, origin) -> None:
@@ -358,17 +527,18 @@ def _hatch_pattern(r0, r1, c0, c1, spacing, width, directions, colour, backgroun
     or on black) and its 0/1 mask of line pixels.  Lines at (x + y) or (x - y) = k * spacing, so
     neighbouring hatches line up.  Cached: a picture's hatched areas repeat from report to report."""
     per, w = spacing * SUPERSAMPLE, width * SUPERSAMPLE
-    span = np.arange(-(r1 + c1), r1 + c1 + 1)
-    lut = np.mod(span, per) < w
-    cols, rows = np.arange(c0, c1)[None, :], np.arange(r0, r1)[:, None]
+    k = r1 + c1  # lut[v + k] tells whether x + y or x - y = v lies on a line
+    lut = np.mod(np.arange(-k, k + 1), per) < w
+    # row r of the '/' lines is lut[c0 + r + k : c1 + r + k], of the '\\' lines lut[c0 - r + k : c1 - r + k]:
+    # windows of one table, without an index per pixel
+    windows = np.lib.stride_tricks.sliding_window_view(lut, c1 - c0)
     on = np.zeros((r1 - r0, c1 - c0), bool)
     for d in directions:
-        on |= lut[(cols + rows if d == "/" else cols - rows) + (r1 + c1)]
-    rgb = np.empty(on.shape + (3,), np.uint8)
-    rgb[:] = background if background is not None else (0, 0, 0)
-    rgb[on] = colour
+        on |= windows[c0 + r0 + k:c0 + r1 + k] if d == "/" else windows[c0 - r1 + 1 + k:c0 - r0 + 1 + k][::-1]
+    mask = on.view(np.uint8).copy()
+    palette = np.array([background if background is not None else (0, 0, 0), colour], np.uint8)
+    rgb = np.take(palette, mask, axis=0)
     rgb.flags.writeable = False
-    mask = on.astype(np.uint8)
     mask.flags.writeable = False
     return rgb, mask
 
@@ -420,20 +590,27 @@ def png_pair(rgb: np.ndarray, top_rows: int, level: int = 3) -> tuple[bytes, byt
         worker.start()
     z = zlib.compressobj(int(level), zlib.DEFLATED, -15)
     body = z.compress(top_raw)
-    top = png(top_rows, body + z.copy().flush(), zlib.adler32(top_raw))
+    top_adler = zlib.adler32(top_raw)
+    top = png(top_rows, body + z.copy().flush(), top_adler)
     if not len(rest_raw):
         return top, top
     body += z.flush(zlib.Z_SYNC_FLUSH)  # ends on a byte boundary, not as the last block
     worker.join()
-    full = png(h, body + rest[0], zlib.adler32(rest_raw, zlib.adler32(top_raw)))
+    full = png(h, body + rest[0], zlib.adler32(rest_raw, top_adler))
     return full, top
 
 
 def _finite_runs(p: np.ndarray) -> list[np.ndarray]:
     """Split a polyline at non-finite points."""
-    ok = np.all(np.isfinite(p), axis=1)
-    d = np.diff(np.r_[0, ok.astype(np.int8), 0])
+    fin = np.isfinite(p)
+    if fin.all():
+        return [p] if len(p) else []
+    ok = np.all(fin, axis=1)
+    d = np.diff(np.concatenate(([0], ok.astype(np.int8), [0])))
     return [p[i:j] for i, j in zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1))]
+
+
+_PERPENDICULAR = np.array([-1.0, 1.0])
 
 
 def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
@@ -442,27 +619,36 @@ def _dash_quads(p: np.ndarray, pattern, width: float) -> np.ndarray:
     at its vertices and at the dash boundaries, and each piece whose middle falls in an 'on'
     part becomes one quad."""
     seg = np.hypot(*np.diff(p, axis=0).T)
-    s = np.r_[0.0, np.cumsum(seg)]
+    s = np.concatenate(([0.0], np.cumsum(seg)))
     total = s[-1]
     period = float(sum(pattern))
     if total <= 0 or period <= 0:
         return np.zeros((0, 4, 2))
-    if not np.isfinite(period):  # one dash covering the whole line
-        pattern, period = (total + 1.0, 0.0), total + 1.0
-    bounds = np.cumsum(np.r_[0.0, pattern])
-    starts = np.arange(0.0, total, period)
-    cuts = np.unique(np.r_[s, (starts[:, None] + bounds[None, :]).ravel()])
-    cuts = cuts[(cuts >= 0) & (cuts <= total)]
-    mid = 0.5 * (cuts[:-1] + cuts[1:])
-    phase = np.mod(mid, period)
-    on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
-    on &= cuts[1:] - cuts[:-1] > 1e-6
+    if not np.isfinite(period):  # one dash covering the whole line: the pieces are the segments
+        cuts = s[np.concatenate(([True], s[1:] != s[:-1]))]  # np.unique of the sorted s
+        on = cuts[1:] - cuts[:-1] > 1e-6
+    else:
+        bounds = np.cumsum(np.concatenate(([0.0], pattern)))
+        starts = np.arange(0.0, total, period)
+        cuts = np.unique(np.concatenate((s, (starts[:, None] + bounds[None, :]).ravel())))
+        cuts = cuts[(cuts >= 0) & (cuts <= total)]
+        mid = 0.5 * (cuts[:-1] + cuts[1:])
+        phase = np.mod(mid, period)
+        on = (np.searchsorted(bounds, phase, side="right") - 1) % 2 == 0
+        on &= cuts[1:] - cuts[:-1] > 1e-6
     a, b = cuts[:-1][on], cuts[1:][on]
-    pa = np.c_[np.interp(a, s, p[:, 0]), np.interp(a, s, p[:, 1])]
-    pb = np.c_[np.interp(b, s, p[:, 0]), np.interp(b, s, p[:, 1])]
+    pa, pb = np.empty((len(a), 2)), np.empty((len(b), 2))
+    for k in (0, 1):
+        pa[:, k] = np.interp(a, s, p[:, k])
+        pb[:, k] = np.interp(b, s, p[:, k])
     d = pb - pa
     n = np.maximum(np.hypot(d[:, 0], d[:, 1]), 1e-9)[:, None]
-    off = np.c_[-d[:, 1], d[:, 0]] / n * (width / 2.0)
+    off = d[:, ::-1] * _PERPENDICULAR / n * (width / 2.0)  # (-dy, dx): a quarter turn
     # pieces of one dash meet end to end: lengthen each by a hair so that no seam shows between them
     ext = d / n * 0.25
-    return np.stack([pa - ext + off, pb + ext + off, pb + ext - off, pa - ext - off], axis=1)
+    quads = np.empty((len(a), 4, 2))
+    quads[:, 0] = pa - ext + off
+    quads[:, 1] = pb + ext + off
+    quads[:, 2] = pb + ext - off
+    quads[:, 3] = pa - ext - off
+    return quads

@@ -145,5 +145,5 @@ def legend_box(entries, *, top: float, centre_x: float, size_px: float, ncol: in
 
 def finite_runs_mask(ok: np.ndarray) -> list[tuple[int, int]]:
     """``(start, stop)`` index pairs of the True runs of a boolean array."""
-    d = np.diff(np.r_[0, ok.astype(np.int8), 0])
+    d = np.diff(np.concatenate(([0], ok.astype(np.int8), [0])))
     return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1)))
