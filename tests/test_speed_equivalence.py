@@ -69,13 +69,14 @@ def _unclipped_whole(m, sigma):
     return z * sigma
 
 
-@pytest.mark.parametrize("sigma", [0.01, 1.0, 3.7])
-def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
+@pytest.mark.parametrize("sigma,rows", [(0.01, 120), (1.0, 120), (3.7, 120), (1.0, 400)])
+def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma, rows):
+    # 400 x 90 cells: more than one block of beamshot.floor._BLOCK
     from beamshot.floor import unclipped_mean
 
     rng = np.random.default_rng(7)
-    m = rng.normal(0.5, 2.0, (120, 90)) * sigma
-    m[60:] = rng.exponential(12.0, (60, 90)) * sigma  # far above the noise: the path without Newton steps
+    m = rng.normal(0.5, 2.0, (rows, 90)) * sigma
+    m[rows // 2:] = rng.exponential(12.0, (rows - rows // 2, 90)) * sigma  # far above the noise: no Newton steps
     m[rng.random(m.shape) < 0.3] = np.nan
     m[0, :6] = [0.0, -9 * sigma, 9 * sigma, 1e-300, -1e-300, 8.0 * sigma]  # table ends, zero, tiny
     m[1, :6] = [10.0 * sigma, np.nextafter(10.0, 11.0) * sigma, 1e300, np.inf, -np.inf, 1e6 * sigma]
@@ -83,6 +84,42 @@ def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
         assert np.array_equal(unclipped_mean(m, sigma), _unclipped_whole(m, sigma), equal_nan=True)
     for value in (-1.5 * sigma, 0.3 * sigma, 12.0 * sigma):  # a single value (0-d) as well
         assert float(unclipped_mean(value, sigma)) == float(_unclipped_whole(value, sigma))
+
+
+def _ndtr_whole(z):
+    """beamshot.normal_cdf.ndtr as first written: the cubic Hermite formula on the whole array."""
+    import math
+
+    from beamshot.normal_cdf import _LO, _HI, _STEPS_PER_UNIT, _table
+
+    z = np.asarray(z, float)
+    values, slopes = _table()
+    h = 1.0 / _STEPS_PER_UNIT
+    with np.errstate(invalid="ignore"):
+        inside = (z >= _LO) & (z < _HI)
+    x = (np.where(inside, z, _LO) - _LO) * _STEPS_PER_UNIT
+    k = np.minimum(x.astype(np.intp), values.size - 2)
+    t = x - k
+    t2, t3 = t * t, t * t * t
+    out = ((2 * t3 - 3 * t2 + 1) * values[k] + (t3 - 2 * t2 + t) * h * slopes[k]
+           + (-2 * t3 + 3 * t2) * values[k + 1] + (t3 - t2) * h * slopes[k + 1])
+    rest = ~inside & ~np.isnan(z)
+    out = np.where(inside, out, np.nan)
+    out[rest] = [0.5 * math.erfc(-v / math.sqrt(2.0)) for v in z[rest]]
+    return out
+
+
+@pytest.mark.parametrize("shape", [(7,), (1000,), (300, 180), (40001,)])
+def test_ndtr_in_blocks_equals_the_formula_on_the_whole_array(shape):
+    # blocks of beamshot.normal_cdf._BLOCK elements, worked in place: the same numbers
+    from beamshot.normal_cdf import ndtr as ours
+
+    rng = np.random.default_rng(11)
+    z = rng.normal(0.0, 4.0, shape)
+    flat = z.reshape(-1)
+    flat[:7] = [np.nan, np.inf, -np.inf, 8.0, -8.0, np.nextafter(8.0, 0.0), 9.5]  # table ends and beyond
+    assert np.array_equal(ours(z), _ndtr_whole(z), equal_nan=True)
+    assert float(ours(1.3)) == float(_ndtr_whole(np.array([1.3]))[0])
 
 
 def _gain_whole(shape, b, full_shape, focal_px, natural, corner_depth):
