@@ -37,6 +37,7 @@ at ``MAX_SIGMA_DEG``.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -58,6 +59,7 @@ EDGE_SHARPNESS = 4.0
 #: Fallback threshold for a beam with no sharp cut-off, as a fraction of peak (project choice).
 SPILL_FLOOR_FRACTION = 0.005
 _SMOOTH_DEG = 0.15
+_SQRT_PI = float(np.sqrt(np.pi))
 #: Widths (deg) of the azimuth ranges pooled, in turn, for sectors whose own profile shows no
 #: cut-off above the noise; 360 = the azimuthal mean (project choice).
 POOL_DEG = (30.0, 90.0, 360.0)
@@ -192,9 +194,11 @@ def _median(d: np.ndarray) -> float:
     element, or the two middle ones added and halved, as numpy's mean of two does), less overhead."""
     n = d.size
     h = n // 2
+    p = d.copy()  # np.partition's copy, partitioned in place
     if n % 2:
-        return np.partition(d, h)[h]
-    p = np.partition(d, (h - 1, h))
+        p.partition(h)
+        return p[h]
+    p.partition((h - 1, h))
     return (p[h - 1] + p[h]) / 2.0
 
 
@@ -230,6 +234,18 @@ class _WindowSumVariances:
         self.d2, self.n, self.seen = d2, n, {}
 
     def __call__(self, segments: list[tuple[int, int]]) -> float:
+        return self.of_two(*segments[0], *segments[1]) if len(segments) == 2 else self._of(segments)
+
+    def of_two(self, lo1: int, hi1: int, lo2: int, hi2: int) -> float:
+        """The variance on the two segments ``(lo1, hi1)`` and ``(lo2, hi2)``."""
+        m = 3 * self.n - 1
+        key = (max(lo1, 0), max(hi1 - m, 0), max(lo2, 0), max(hi2 - m, 0))
+        v = self.seen.get(key)
+        if v is None:
+            v = self.seen[key] = _window_sum_variance(self.d2, self.n, [(lo1, hi1), (lo2, hi2)])
+        return v
+
+    def _of(self, segments: list[tuple[int, int]]) -> float:
         n = self.n
         key = tuple((max(lo, 0), max(hi - 3 * n + 1, 0)) for lo, hi in segments)
         if key not in self.seen:
@@ -259,10 +275,14 @@ def _window_sum_variance(d2: np.ndarray, n: int, segments: list[tuple[int, int]]
     """
     parts = [d2[max(lo, 0): max(hi - 3 * n + 1, 0)] for lo, hi in segments]
     d = np.concatenate(parts) if parts else np.empty(0)
-    d = d[np.isfinite(d)]
+    finite = np.isfinite(d)
+    if not finite.all():
+        d = d[finite]
     if len(d) < 3:
         return float("nan")
-    return float((MAD_TO_SIGMA * _median(np.abs(d - _median(d)))) ** 2 / 6.0)
+    dev = d - _median(d)
+    np.abs(dev, out=dev)
+    return float((MAD_TO_SIGMA * _median(dev)) ** 2 / 6.0)
 
 
 def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
@@ -294,23 +314,26 @@ def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: Be
     n = w1 - w0
     if not np.isfinite(raw[w0 - h:w1 + h]).all():  # inner levels, window and outer levels together
         return None
-    win = raw[w0:w1]
-    # inner and outer hold h samples each (w0 >= h, w1 + h <= last): sum / h is numpy's mean
-    a, b = float(raw[w0 - h:w0].sum() / h), float(max(raw[w1:w1 + h].sum() / h, 0.0))
+    # inner and outer hold h samples each (w0 >= h, w1 + h <= last): sum / h is numpy's mean;
+    # np.add.reduce is what ndarray.sum calls (the same pairwise sum), less overhead
+    a, b = float(_sum(raw[w0 - h:w0])) / h, max(float(_sum(raw[w1:w1 + h])) / h, 0.0)
     d = a - b
     if d <= 0:
         return None
-    ratio = float(min(max((win.sum() - n * b) / d, 0.0), n))
+    ratio = float(min(max((float(_sum(raw[w0:w1])) - n * b) / d, 0.0), n))
     d_theta = beam.d_theta
-    t = beam.theta[w0] - d_theta / 2 + ratio * d_theta
-    v_h = variances([(lo, w0 - h), (w1 + h, last)])  # lag h
-    if not np.isfinite(v_h):
+    t = float(beam.theta[w0]) - d_theta / 2 + ratio * d_theta
+    v_h = variances.of_two(lo, w0 - h, w1 + h, last)  # lag h
+    if not math.isfinite(v_h):
         return None
     v_n = v_h * n / h
     var_mean = v_h / h**2
     var = (d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
-    significance = d / np.sqrt(2.0 * var_mean) if var_mean > 0 else np.inf
-    return float(t), float(np.sqrt(var + d_theta**2 / 12.0)), float(significance)
+    significance = d / math.sqrt(2.0 * var_mean) if var_mean > 0 else math.inf
+    return t, math.sqrt(var + d_theta**2 / 12.0), significance
+
+
+_sum = np.add.reduce
 
 
 def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, variances: _WindowSumVariances, k: int,
@@ -335,10 +358,10 @@ def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, varian
     flips = np.flatnonzero(below[1:] != below[:-1])  # where the profile crosses the level
     if len(flips) != 1 or not seg[flips[0] + 1] < level:
         return step[0], step[1]
-    v_h = variances([(start, c - k - h), (c + k + 1 + h, last)])  # lag h
-    if not np.isfinite(v_h):
+    v_h = variances.of_two(start, c - k - h, c + k + 1 + h, last)  # lag h
+    if not math.isfinite(v_h):
         return step[0], step[1]
-    noise = np.sqrt(1.5 * v_h / h / (2.0 * np.sqrt(np.pi) * sm))
+    noise = math.sqrt(1.5 * v_h / h / (2.0 * _SQRT_PI * sm))
     t, sig = _crossing(ps, c - k + flips[0] + 1, level, beam, noise)
     return (t, sig) if sig < step[1] else (step[0], step[1])
 
