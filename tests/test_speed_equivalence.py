@@ -397,3 +397,36 @@ def test_one_blas_thread_measures_the_same_shape():
     with one_blas_thread():
         one = shape_values(measure_shape(measured.beam))
     assert one == shape_values(measure_shape(measured.beam))
+
+
+@pytest.mark.parametrize("mode", ["reflect", "nearest", "wrap"])
+def test_smoothing_padding_equals_numpys_pad(mode):
+    # reference: numpy.pad with the mode SciPy's name stands for; paddings shorter, as long as and longer than a row
+    from beamshot.smoothing import _PAD_MODES, _padded
+
+    rng = np.random.default_rng(4)
+    for n in (1, 5, 180):
+        rows = rng.normal(size=(3, n))
+        for r in (0, 1, 4, 5, 6, 17):
+            assert np.array_equal(_padded(rows, r, mode), np.pad(rows, ((0, 0), (r, r)), mode=_PAD_MODES[mode]))
+
+
+def test_hotspot_subset_moments_equal_selecting_each_subset_from_the_map():
+    # reference: each interleaved azimuth subset (columns k mod 4) selected from the whole map
+    from beamshot.shape_iso import _Disc, _moments_once, ae_grid
+
+    from conftest import analytic_map
+
+    beam = analytic_map(lambda t, p: np.exp(-(np.degrees(t) / 4.0) ** 2) * (1 + 0.1 * np.cos(2 * p)),
+                        theta_max_deg=20.0, d_phi_deg=2.0)
+    x, y, area = ae_grid(beam)
+    rng = np.random.default_rng(9)
+    e = beam.intensity + rng.normal(0.0, 0.01, beam.intensity.shape)
+    keep = e > 0.05
+    centre, radius = (0.3, -0.2), 6.0
+    m, subs = _Disc(x, y, centre, radius).moments_with_subsets(area, e, keep, 4)
+    assert m == _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, radius)
+    cols = np.arange(e.shape[1])
+    for k, ms in enumerate(subs):
+        on = (cols % 4 == k)[None, :]
+        assert ms == _moments_once(x, y, area, np.where(keep & on, e, 0.0), keep & on, centre, radius)
