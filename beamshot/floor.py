@@ -143,23 +143,23 @@ def unclipped_mean(m, sigma):
     # elementwise, so the values are those of the whole array.  Above _FAR_ABOVE the start is z = r
     # and both Newton steps are exactly 0 in floating point (Phi(z) rounds to 1 and phi(z) is below
     # half an ulp of z), so the result there is r sigma as it stands.
-    r_all = np.asarray(m / sigma)
-    out = np.asarray(r_all * sigma)
-    work = (r_all <= _FAR_ABOVE) | (r_all == np.inf)  # NaN: left NaN
-    r_work = r_all[work]
-    z_work = np.empty_like(r_work)
-    # block by block (every step is elementwise, so the same numbers), so that the temporaries of a
-    # block stay in the processor's cache
-    for i in range(0, r_work.size, _BLOCK):
-        r = r_work[i:i + _BLOCK]
+    # block by block (every step is elementwise, so the same numbers): the temporaries of a block stay
+    # in the processor's cache, and only the result is a map-sized allocation
+    out = np.empty(m.shape)
+    flat_m, flat_out = m.reshape(-1), out.reshape(-1)
+    for i in range(0, flat_m.size, _BLOCK):
+        r_all = flat_m[i:i + _BLOCK] / sigma
+        o = r_all * sigma
+        work = (r_all <= _FAR_ABOVE) | (r_all == np.inf)  # NaN: left NaN
+        r = r_all[work]
         z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
         for _ in range(2):
             slope = ndtr(z)
             # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand
             step = (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
             z = np.where(slope > 1e-3, z - step, z)
-        z_work[i:i + _BLOCK] = z
-    out[work] = z_work * sigma
+        o[work] = z * sigma
+        flat_out[i:i + _BLOCK] = o
     return out
 
 
@@ -270,9 +270,12 @@ def remove_floor(beam: BeamMap, floor: BlackFloor, *, gain: np.ndarray | None = 
         return beam
     g = wall_gain(beam) if gain is None else gain
     m = _smooth_map(beam.intensity / g, beam)
-    bias = np.clip(m - unclipped_mean(m, floor.sigma), 0.0, 2.0 * floor.level)
+    bias = unclipped_mean(m, floor.sigma)
+    np.subtract(m, bias, out=bias)  # m - f^-1(m), in place
+    np.clip(bias, 0.0, 2.0 * floor.level, out=bias)
     bias[np.isnan(bias)] = 0.0  # np.nan_to_num's NaN -> 0 (clipped: nothing infinite is left)
-    return replace(beam, intensity=beam.intensity - bias * g)
+    bias *= g
+    return replace(beam, intensity=beam.intensity - bias)
 
 
 def floor_corrected(beam: BeamMap, edge=None, *, bin_factor: int = 1,
