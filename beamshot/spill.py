@@ -366,6 +366,148 @@ def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, varian
     return (t, sig) if sig < step[1] else (step[0], step[1])
 
 
+def _centred_step(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
+                  variances: _WindowSumVariances) -> tuple[float, float, float] | None:
+    """:func:`_step_position` at ``c``, then once more with the window centred on the edge found."""
+    step = _step_position(raw, c, k, lo, last, beam, variances)
+    if step is not None:
+        centred = int(np.floor((step[0] - beam.theta[0]) / beam.d_theta + 0.5))
+        if centred != c:
+            step = _step_position(raw, centred, k, lo, last, beam, variances) or step
+    return step
+
+
+def _first_steps(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, chosen: list[list[int]],
+                 starts: np.ndarray, lasts: np.ndarray, k: int, h: int) -> dict:
+    """:func:`_centred_step` of the first candidate of every sector with one, in batches (the window
+    sums of all sectors as row sums of one array, the variances' medians by partitions of rows):
+    ``{sector: (step or None, {variance key: value})}``, the variances to be kept in the sector's
+    :class:`_WindowSumVariances`.  The same numbers as :func:`_centred_step`: the same sums (a row's
+    sum is numpy's pairwise sum of the row, as a slice's is), the same order statistics, and the
+    same scalar formulas.  A sector the batch does not cover (a window cut short by the photo's
+    border) is left out, for :func:`_centred_step`."""
+    n_t = profiles.shape[1]
+    sectors = np.array([s for s in range(len(chosen)) if chosen[s] and lasts[s] >= 4 * k], int)
+    if sectors.size == 0:
+        return {}
+    seen = {int(s): {} for s in sectors}
+    c0 = np.array([chosen[s][0] for s in sectors], int)
+    lo, last = starts[sectors].astype(int), lasts[sectors].astype(int)
+    step1 = _steps_at(beam, profiles, d2_rows, sectors, c0, k, h, lo, last, seen)
+    out, again = {}, []
+    theta0, d_theta = beam.theta[0], beam.d_theta
+    for i, s in enumerate(sectors.tolist()):
+        st = step1[i]
+        if st is False:
+            continue
+        if st is None:
+            out[s] = (None, seen[s])
+            continue
+        centred = int(np.floor((st[0] - theta0) / d_theta + 0.5))
+        if centred == c0[i]:
+            out[s] = (st, seen[s])
+        else:
+            again.append((i, centred))
+    if again:
+        idx = np.array([i for i, _ in again], int)
+        step2 = _steps_at(beam, profiles, d2_rows, sectors[idx], np.array([c for _, c in again], int), k, h,
+                          lo[idx], last[idx], seen)
+        for (i, _), st in zip(again, step2):
+            if st is not False:
+                s = int(sectors[i])
+                out[s] = (st or step1[i], seen[s])
+    return out
+
+
+def _steps_at(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, sectors: np.ndarray, c: np.ndarray, k: int,
+              h: int, lo: np.ndarray, last: np.ndarray, seen: dict) -> list:
+    """:func:`_step_position` of each sector's profile at ``c`` (arrays over the sectors): per sector
+    the step, None (where _step_position gives None), or False (a window cut short by the photo's
+    border, not done here).  The variances used are put in ``seen[sector]`` under their keys."""
+    n = 2 * k + 1
+    w0, w1 = c - k, c + k + 1
+    res: list = [False] * len(sectors)
+    border = w1 + h > last
+    for i in np.flatnonzero(~border & (w0 - h < 0)):
+        res[i] = None
+    idx = np.flatnonzero(~border & (w0 - h >= 0))
+    if idx.size == 0:
+        return res
+    rows, start = sectors[idx], (w0 - h)[idx]
+    g = profiles[rows[:, None], start[:, None] + np.arange(n + 2 * h)[None, :]]  # inner, window, outer
+    finite = np.isfinite(g).all(axis=1)
+    a = g[:, :h].sum(axis=1) / h
+    b_out = g[:, h + n:].sum(axis=1) / h
+    b = np.where(0.0 > b_out, 0.0, b_out)  # max(b_out, 0.0)
+    win = g[:, h:h + n].sum(axis=1)
+    m = 3 * h - 1
+    segs = np.stack([np.maximum(lo[idx], 0), np.maximum(start - m, 0), np.maximum(w1[idx] + h, 0),
+                     np.maximum(last[idx] - m, 0)], axis=1)
+    v_all = _window_sum_variances(d2_rows[rows], segs)
+    d_theta = beam.d_theta
+    for q, i in enumerate(idx.tolist()):
+        if not finite[q]:
+            res[i] = None
+            continue
+        key = tuple(segs[q].tolist())
+        v_h = float(v_all[q])
+        seen[int(rows[q])][key] = v_h
+        a_q, b_q = float(a[q]), float(b[q])
+        d = a_q - b_q
+        if not d > 0:
+            res[i] = None if d <= 0 else False  # NaN: left to _step_position
+            continue
+        ratio = float(min(max((float(win[q]) - n * b_q) / d, 0.0), n))
+        t = float(beam.theta[w0[i]]) - d_theta / 2 + ratio * d_theta
+        if not math.isfinite(v_h):
+            res[i] = None
+            continue
+        v_n = v_h * n / h
+        var_mean = v_h / h**2
+        var = (d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
+        significance = d / math.sqrt(2.0 * var_mean) if var_mean > 0 else math.inf
+        res[i] = (t, math.sqrt(var + d_theta**2 / 12.0), significance)
+    return res
+
+
+def _window_sum_variances(d2: np.ndarray, segs: np.ndarray) -> np.ndarray:
+    """:func:`_window_sum_variance` of each row of ``d2`` on its two sample ranges ``segs[q] = (lo1,
+    hi1, lo2, hi2)`` (already the ranges of ``d2``, as Python slices read them).  The cells of a row
+    not among its finite values there are filled with equal numbers of -inf and +inf (with one more
+    column where their number is odd), so that one partition of the rows of a parity of count gives
+    every row's middle order statistics (the median of its values); the same for the absolute
+    deviations from it."""
+    q_n, m = d2.shape
+    j = np.arange(m)[None, :]
+    lo1, hi1, lo2, hi2 = (np.minimum(segs[:, i], m)[:, None] for i in range(4))
+    sel = (((j >= lo1) & (j < hi1)) | ((j >= lo2) & (j < hi2))) & np.isfinite(d2)
+    counts = sel.sum(axis=1)
+    out = np.full(q_n, np.nan)
+    for odd in (True, False):
+        grp = np.flatnonzero((counts % 2 == odd) & (counts >= 3))
+        if grp.size == 0:
+            continue
+        width = m + ((m - int(odd)) % 2)  # width - count even for every row of the group
+        g_sel = np.zeros((grp.size, width), bool)
+        g_sel[:, :m] = sel[grp]
+        vals = np.zeros((grp.size, width))
+        vals[:, :m] = d2[grp]
+        half = ((width - counts[grp]) // 2)[:, None]
+        low_pad = ~g_sel & (np.cumsum(~g_sel, axis=1) <= half)  # the first half of the cells left out
+        rows = np.where(g_sel, vals, np.where(low_pad, -np.inf, np.inf))
+        mid = width // 2
+        kth = (mid,) if odd else (mid - 1, mid)
+        part = np.partition(rows, kth, axis=1)
+        med = part[:, mid] if odd else (part[:, mid - 1] + part[:, mid]) / 2.0
+        dev = rows - med[:, None]
+        np.abs(dev, out=dev)  # the pads are +inf now
+        dev[low_pad] = -np.inf
+        part = np.partition(dev, kth, axis=1)
+        mad = part[:, mid] if odd else (part[:, mid - 1] + part[:, mid]) / 2.0
+        out[grp] = [float((MAD_TO_SIGMA * x) ** 2 / 6.0) for x in mad]  # np.float64 scalars, as in the scalar rule
+    return out
+
+
 def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray, lasts: np.ndarray,
                    k: int) -> list[list[int]]:
     """Per sector, the index of the steepest point of each run of sharp cut-off candidates,
@@ -435,6 +577,9 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
     # second differences of h-sample sums of every row at once (row s is used on its first lasts[s]
     # samples only, where it equals _second_differences(profiles[s, :lasts[s]], h))
     d2_rows = _second_differences_rows(profiles, h) if any(chosen) else None
+    # the first (outermost) candidate of every sector at once; the rest, and any sector whose first
+    # candidate the batch cannot place as _centred_step would, one by one below
+    first = _first_steps(beam, profiles, d2_rows, chosen, starts, lasts, k, h) if d2_rows is not None else {}
     for s in range(n_sec):
         last = int(lasts[s])
         coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
@@ -445,13 +590,13 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
         noise, floor, start = noises[s], floors[s], int(starts[s])
         found = None
         variances = _WindowSumVariances(d2_rows[s], h) if chosen[s] else None
-        for c in chosen[s]:  # the outermost cut-off that stands out of the noise
+        pre = first.get(s)
+        if pre is not None:
+            variances.seen.update(pre[1])
+        for i, c in enumerate(chosen[s]):  # the outermost cut-off that stands out of the noise
             # (None: too close to the photo's border to see the outside level)
-            step = _step_position(profiles[s], c, k, start, last, beam, variances)
-            if step is not None:  # once more with the window centred on the edge found
-                centred = int(np.floor((step[0] - beam.theta[0]) / beam.d_theta + 0.5))
-                if centred != c:
-                    step = _step_position(profiles[s], centred, k, start, last, beam, variances) or step
+            step = pre[0] if i == 0 and pre is not None else _centred_step(profiles[s], c, k, start, last, beam,
+                                                                             variances)
             if step is not None and step[2] >= EDGE_MIN_SIGNIFICANCE:
                 found = (*_sharper_of(step, c, ps, variances, k, sm, start, last, beam), "cutoff")
                 break

@@ -430,3 +430,48 @@ def test_hotspot_subset_moments_equal_selecting_each_subset_from_the_map():
     for k, ms in enumerate(subs):
         on = (cols % 4 == k)[None, :]
         assert ms == _moments_once(x, y, area, np.where(keep & on, e, 0.0), keep & on, centre, radius)
+
+
+def test_batched_window_sum_variances_equal_the_one_by_one_rule():
+    # reference: _window_sum_variance, numpy's median of the segments' finite second differences
+    from beamshot.spill import _window_sum_variance, _window_sum_variances
+
+    rng = np.random.default_rng(21)
+    for m in (40, 41, 300):
+        d2 = rng.normal(0.0, 1.0, (30, m)) * rng.uniform(0.01, 100.0, (30, 1))
+        d2[rng.random(d2.shape) < 0.05] = np.nan
+        d2[3] = np.round(d2[3])  # ties
+        segs = np.sort(rng.integers(0, m + 5, (30, 4)), axis=1)
+        segs[4] = (0, 0, 0, 2)  # fewer than 3 values: NaN
+        got = _window_sum_variances(d2, segs)
+        for q in range(30):
+            # the sample ranges (lo, hi) that give d2[l:u] at lag 1: u = hi - 3 + 1
+            ref = _window_sum_variance(d2[q], 1, [(segs[q, 0], segs[q, 1] + 2), (segs[q, 2], segs[q, 3] + 2)])
+            assert got[q] == ref or (np.isnan(got[q]) and np.isnan(ref))
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_spill_edge_with_first_cutoffs_batched_equals_one_by_one(seed, monkeypatch):
+    # reference: every sector's candidates placed one by one (_centred_step), as before the batch
+    import beamshot.spill as spill
+
+    from conftest import analytic_map
+
+    rng = np.random.default_rng(seed)
+    cut = 14.0 + 4.0 * seed
+
+    def pattern(t, p):
+        deg = np.degrees(t)
+        edge = cut * (1.0 + 0.05 * np.cos(2 * p))
+        return np.exp(-(deg / 3.0) ** 2) + 0.02 / (1.0 + np.exp((deg - edge) / 0.3))
+
+    beam = analytic_map(pattern, theta_max_deg=cut + 6.0 - 4.0 * (seed == 2), d_theta_deg=0.1, d_phi_deg=2.0)
+    inten = beam.intensity * (1.0 + rng.normal(0.0, 0.02 + 0.05 * seed, beam.intensity.shape))
+    inten[-40:, 20:60] = np.nan  # a corner of the photo
+    beam = replace(beam, intensity=inten)
+    fast = spill.find_spill_edge(beam, 1.0)
+    monkeypatch.setattr(spill, "_first_steps", lambda *a, **k: {})
+    slow = spill.find_spill_edge(beam, 1.0)
+    assert fast.kind == slow.kind and "cutoff" in fast.kind
+    for a, b in ((fast.theta, slow.theta), (fast.sigma, slow.sigma), (fast.pooled, slow.pooled)):
+        assert np.array_equal(a, b, equal_nan=True)
