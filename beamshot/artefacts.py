@@ -72,8 +72,12 @@ def ellipse_of_points(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float
     ellipse fitted to the points (OpenCV fitEllipse: least-squares conic, Fitzgibbon et al. 1999)."""
     import cv2
 
-    pts = np.stack([x, y], axis=1).astype(np.float32)
-    (_, _), (w, h), ang = cv2.fitEllipse(pts)
+    return _axes(cv2.fitEllipse(np.stack([x, y], axis=1).astype(np.float32)))
+
+
+def _axes(ellipse) -> tuple[float, float, float]:
+    """Full major and minor axes and the major axis's azimuth (deg, 0-180) of an OpenCV ellipse."""
+    (_, _), (w, h), ang = ellipse
     if w >= h:
         return float(w), float(h), float(ang % 180.0)
     return float(h), float(w), float((ang + 90.0) % 180.0)
@@ -109,9 +113,12 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
     major, minor, orient = ellipse_of_points(x, y)
     # the normal deviates of every refit at once: the same numbers, in the same order, as drawing
     # those of x then those of y for each refit in turn
+    import cv2
+
     z = rng.standard_normal((ELLIPSE_DRAWS, 2, len(x)))
-    xs, ys = x + sx * z[:, 0], y + sy * z[:, 1]
-    draws = np.array([ellipse_of_points(a, b) for a, b in zip(xs, ys)])
+    # every refit's points at once, as ellipse_of_points makes them (float32 (x, y) pairs)
+    pts = np.stack([x + sx * z[:, 0], y + sy * z[:, 1]], axis=2).astype(np.float32)
+    draws = np.array([_axes(cv2.fitEllipse(p)) for p in pts])
     s_major, s_minor = np.std(draws[:, 0], ddof=1), np.std(draws[:, 1], ddof=1)
     s_orient = float(np.degrees(np.std(np.angle(np.exp(2j * np.radians(draws[:, 2] - orient))), ddof=1) / 2.0))
     ell = minor / major
