@@ -419,6 +419,61 @@ def _first_steps(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, chose
     return out
 
 
+def _sharper_of_first(first: dict, chosen: list[list[int]], smoothed: np.ndarray, d2_rows: np.ndarray | None,
+                      starts: np.ndarray, lasts: np.ndarray, k: int, h: int, sm: float, beam: BeamMap) -> dict:
+    """:func:`_sharper_of` of each sector's first cut-off placed by :func:`_first_steps` that stands out
+    of the noise, in one batch: ``{sector: (theta, sigma)}``.  The levels, crossings and slopes are
+    the same elementwise operations on the same samples; the noise per sector as there."""
+    items = [(s, st) for s, (st, _) in first.items() if st is not None and st[2] >= EDGE_MIN_SIGNIFICANCE]
+    if not items:
+        return {}
+    sec = np.array([s for s, _ in items], int)
+    c = np.array([chosen[s][0] for s, _ in items], int)
+    last = lasts[sec].astype(int)
+    out = {}
+    inner = (c - k >= 0) & (c + k < last)
+    for q in np.flatnonzero(~inner):
+        st = items[q][1]
+        out[items[q][0]] = (st[0], st[1])
+    idx = np.flatnonzero(inner)
+    if idx.size == 0:
+        return out
+    rows, c0 = sec[idx], c[idx] - k
+    seg = smoothed[rows[:, None], c0[:, None] + np.arange(2 * k + 1)[None, :]]  # ps[c - k: c + k + 1]
+    top = seg[:, -1]
+    level = 0.5 * (seg[:, 0] + np.where(0.0 > top, 0.0, top))  # max(ps[c + k], 0.0)
+    below = seg < level[:, None]
+    flips = below[:, 1:] != below[:, :-1]
+    f0 = np.argmax(flips, axis=1)
+    one = (flips.sum(axis=1) == 1) & (seg[np.arange(idx.size), f0 + 1] < level)
+    # _crossing at sample i = c - k + f0 + 1 of each profile
+    i = c0 + f0 + 1
+    p_prev, p_i = seg[np.arange(idx.size), f0], seg[np.arange(idx.size), f0 + 1]
+    drop = p_prev - p_i
+    d_theta = beam.d_theta
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(drop != 0, (p_prev - level) / drop, 0.5)
+    t = beam.theta[i - 1] + frac * d_theta
+    local_slope = drop / d_theta
+    local_slope = np.where(1e-30 > local_slope, 1e-30, local_slope)  # max(drop / d_theta, 1e-30)
+    for q, j in enumerate(idx.tolist()):
+        s, st = items[j]
+        if not one[q]:
+            out[s] = (st[0], st[1])
+            continue
+        variances = _WindowSumVariances(d2_rows[s], h)
+        variances.seen = first[s][1]
+        ck = int(c[j])
+        v_h = variances.of_two(int(starts[s]), ck - k - h, ck + k + 1 + h, int(lasts[s]))  # lag h
+        if not math.isfinite(v_h):
+            out[s] = (st[0], st[1])
+            continue
+        noise = math.sqrt(1.5 * v_h / h / (2.0 * _SQRT_PI * sm))
+        sig = float(np.hypot(noise / local_slope[q], d_theta / np.sqrt(12)))
+        out[s] = (t[q], sig) if sig < st[1] else (st[0], st[1])
+    return out
+
+
 def _steps_at(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, sectors: np.ndarray, c: np.ndarray, k: int,
               h: int, lo: np.ndarray, last: np.ndarray, seen: dict) -> list:
     """:func:`_step_position` of each sector's profile at ``c`` (arrays over the sectors): per sector
@@ -535,16 +590,19 @@ def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray,
         drop_before = np.log(before / inner_f)
     ok = (drop >= np.log(EDGE_MIN_CONTRAST)) & (inner >= 3 * f) & (drop >= EDGE_SHARPNESS * drop_before)
     ok &= (jj[None, :] >= starts[:, None]) & (jj[None, :] < lasts[:, None] - k)
-    for s in np.nonzero(ok.any(axis=1))[0]:
+    # steepest in linear units: the mid-point of the cut-off
+    slope = smoothed[:, lo - 1:n_t - k - 1] - smoothed[:, lo + 1:n_t - k + 1]  # at jj - 1 and jj + 1
+    runs = (ok[:, 1:] & ~ok[:, :-1]).sum(axis=1) + ok[:, 0]
+    # a row with one contiguous run of candidates (the usual case): its first steepest point at once
+    steepest = np.argmax(np.where(ok, slope, -np.inf), axis=1)
+    for s in np.flatnonzero(runs == 1):
+        out[s] = [int(jj[steepest[s]])]
+    for s in np.flatnonzero(runs > 1):
         cand = jj[ok[s]]
-        if cand[-1] - cand[0] == len(cand) - 1:  # one contiguous run (the usual case): no split
-            runs = [cand]
-        else:
-            runs = np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1]  # outermost run first
         picks = []
-        for run in runs:
-            slope = smoothed[s, run - 1] - smoothed[s, run + 1]  # steepest in linear units: mid-point of the cut-off
-            picks.append(int(run[np.argmax(slope)]))
+        for run in np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1]:  # outermost run first
+            slope_run = smoothed[s, run - 1] - smoothed[s, run + 1]
+            picks.append(int(run[np.argmax(slope_run)]))
         out[s] = picks
     return out
 
@@ -580,6 +638,7 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
     # the first (outermost) candidate of every sector at once; the rest, and any sector whose first
     # candidate the batch cannot place as _centred_step would, one by one below
     first = _first_steps(beam, profiles, d2_rows, chosen, starts, lasts, k, h) if d2_rows is not None else {}
+    sharper = _sharper_of_first(first, chosen, smoothed, d2_rows, starts, lasts, k, h, sm, beam)
     for s in range(n_sec):
         last = int(lasts[s])
         coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
@@ -598,7 +657,10 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
             step = pre[0] if i == 0 and pre is not None else _centred_step(profiles[s], c, k, start, last, beam,
                                                                              variances)
             if step is not None and step[2] >= EDGE_MIN_SIGNIFICANCE:
-                found = (*_sharper_of(step, c, ps, variances, k, sm, start, last, beam), "cutoff")
+                if i == 0 and s in sharper:
+                    found = (*sharper[s], "cutoff")
+                else:
+                    found = (*_sharper_of(step, c, ps, variances, k, sm, start, last, beam), "cutoff")
                 break
         if found is None:
             level = max(SPILL_FLOOR_FRACTION * peak_value, floor)

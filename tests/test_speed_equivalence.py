@@ -475,3 +475,34 @@ def test_spill_edge_with_first_cutoffs_batched_equals_one_by_one(seed, monkeypat
     assert fast.kind == slow.kind and "cutoff" in fast.kind
     for a, b in ((fast.theta, slow.theta), (fast.sigma, slow.sigma), (fast.pooled, slow.pooled)):
         assert np.array_equal(a, b, equal_nan=True)
+
+
+def test_cutoff_points_pick_each_runs_steepest_point_as_one_by_one():
+    # reference: each sector's candidates split into contiguous runs, outermost first, and the
+    # first point of steepest fall of each run (np.argmax), sector by sector
+    from beamshot.spill import _cutoff_points
+
+    rng = np.random.default_rng(5)
+    n_t, k = 400, 5
+    j = np.arange(n_t)
+    smoothed = np.exp(-(j[None, :] / rng.uniform(60, 200, (24, 1))) ** 2)
+    smoothed /= 1.0 + np.exp((j[None, :] - rng.integers(150, 350, (24, 1))) / rng.uniform(0.5, 2.0, (24, 1)))
+    smoothed[5] = np.exp(-(j / 300.0) ** 2) * (0.05 + 0.95 / (1.0 + np.exp((j - 120) / 0.7)))  # two cut-offs:
+    smoothed[5] /= 1.0 + np.exp((j - 300) / 0.7)  # two runs
+    smoothed[6, 200:] = smoothed[6, 199]  # flat ties
+    floors = np.full(24, 1e-6)
+    starts, lasts = np.full(24, 20), np.full(24, n_t)
+    lasts[7] = 250
+    got = _cutoff_points(smoothed, floors, starts, lasts, k)
+    lo = 3 * k
+    jj = j[lo:n_t - k]
+    inner, outer = smoothed[:, jj - k], np.maximum(smoothed[:, jj + k], floors[:, None])
+    before, inner_f = np.maximum(smoothed[:, jj - 3 * k], floors[:, None]), np.maximum(inner, floors[:, None])
+    drop, drop_before = np.log(inner_f / outer), np.log(before / inner_f)
+    ok = (drop >= np.log(3.0)) & (inner >= 3 * floors[:, None]) & (drop >= 4.0 * drop_before)
+    ok &= (jj[None, :] >= starts[:, None]) & (jj[None, :] < lasts[:, None] - k)
+    assert sum(len(p) > 1 for p in got) >= 1 and sum(len(p) == 1 for p in got) >= 10
+    for s in range(24):
+        cand = jj[ok[s]]
+        runs = np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1] if cand.size else []
+        assert got[s] == [int(r[np.argmax(smoothed[s, r - 1] - smoothed[s, r + 1])]) for r in runs]
