@@ -204,11 +204,14 @@ class _NearRows:
         rows = int(np.searchsorted(self.radius_of_row, float(np.hypot(*centre)) + radius, side="right")) + 1
         rows = min(rows, len(self.beam.theta))
         if rows > self.rows:
-            x, y, area = ae_grid(self.beam, rows)
-            inten = self.beam.intensity[:rows]
+            # half as many rows again as asked for: the disc grows over the iterations, and the rows
+            # already computed hold the same values
+            more = min(rows + rows // 2, len(self.beam.theta))
+            x, y, area = ae_grid(self.beam, more)
+            inten = self.beam.intensity[:more]
             self.arrays = (x, y, area, inten, np.isfinite(inten), self.noise.sigma(inten),
-                           np.degrees(self.beam.theta[:rows]))
-            self.rows = rows
+                           np.degrees(self.beam.theta[:more]))
+            self.rows = more
         return tuple(a[:rows] for a in self.arrays)
 
 
