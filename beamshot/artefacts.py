@@ -342,7 +342,8 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     r = np.arange(0.0, reach, step)
     n_az = 180
     bear = np.arange(n_az) * 2 * np.pi / n_az
-    vals = beam.sample(_rays(cvec, bear, np.radians(r)))  # (n_az, n_r)
+    ray_vec = _rays(cvec, bear, np.radians(r))
+    vals = beam.sample(ray_vec)  # (n_az, n_r)
     _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u)
     # ---- rings (beyond a centre hole, which is not a ring)
     rings: tuple = ()
@@ -354,7 +355,7 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     spill_from = (float(np.hypot(*mom.centroid)) + mom.radius if mom is not None and not mom.reason else
                   float(np.degrees(shape.field.full_angle())) if shape.field.complete else float("nan"))
     _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reason, pixel_deg, spill_from)
-    _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u)
+    _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u, ray_vec)
 
     # ---- principal axes of the hotspot (50 % contour) and of the spill (its edge)
     if clipped_reason or not hot.complete:
@@ -606,7 +607,7 @@ def _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reas
                                                         clipped_reason)
 
 
-def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u) -> None:
+def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u, vec=None) -> None:
     """Hotspot-to-spill transition: the angle over which the hotspot's own light (the map minus the
     spill model) falls from 90 % to 10 % of its maximum, on the azimuthal mean about its centroid
     (the 10-90 % edge width of imaging practice, common practice).  A Gaussian gives 1.687 sigma."""
@@ -616,7 +617,8 @@ def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, sc
         figs["hotspot_transition_width"] = not_measured("deg", method, clipped_reason or (mom.reason if mom else
                                                                                            "no hotspot to measure"))
         return
-    vec = _rays(cvec, bear, np.radians(r))
+    if vec is None:  # the rays ``vals`` were sampled along
+        vec = _rays(cvec, bear, np.radians(r))
     th = np.degrees(np.arccos(np.clip(vec[..., 2], -1.0, 1.0)))
     e = vals - mom.spill_at(th)
     with np.errstate(invalid="ignore"):

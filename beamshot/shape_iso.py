@@ -296,9 +296,12 @@ class Iso13694:
     edge_reason: str | None = None
 
 
-def _iso13694_once(inten, area, e_max, var, cols_on):
-    v = np.isfinite(inten) & cols_on
-    hot = v & (inten >= HOTSPOT_CLIP * e_max)
+def _iso13694_once(inten, area, e_max, var, cols_on, levels=None):
+    """The three measures over the cells of the columns ``cols_on``; ``levels`` may hold the masks
+    (finite, at or above the hotspot clip, the low and the high edge clip) already computed."""
+    finite, at_hot, at_low, at_high = levels if levels is not None else _clip_masks(inten, e_max)
+    v = finite & cols_on
+    hot = v & at_hot
     a = area[hot]
     vals = inten[hot]
     if a.sum() <= 0:
@@ -308,10 +311,16 @@ def _iso13694_once(inten, area, e_max, var, cols_on):
     noise_var = float(np.sum(var[hot] * a) / np.sum(a))
     flat = mean / e_max
     unif = float(np.sqrt(max(var_i - noise_var, 0.0)) / mean)
-    a_low = float(np.sum(area[v & (inten >= EDGE_CLIPS[0] * e_max)]))
-    a_high = float(np.sum(area[v & (inten >= EDGE_CLIPS[1] * e_max)]))
+    a_low = float(np.sum(area[v & at_low]))
+    a_high = float(np.sum(area[v & at_high]))
     steep = (a_low - a_high) / a_low if a_low > 0 else np.nan
     return flat, unif, steep
+
+
+def _clip_masks(inten, e_max):
+    """Finite cells, and cells at or above the hotspot clip and the two edge clips of ``e_max``."""
+    return (np.isfinite(inten), inten >= HOTSPOT_CLIP * e_max, inten >= EDGE_CLIPS[0] * e_max,
+            inten >= EDGE_CLIPS[1] * e_max)
 
 
 def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
@@ -329,8 +338,9 @@ def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
     var = noise.sigma(inten) ** 2 if noise is not None else np.zeros_like(inten)
     n = inten.shape[1]
     cols = np.arange(n)
-    full = _iso13694_once(inten, area, e_max, var, np.ones((1, n), bool))
-    subs = np.array([_iso13694_once(inten, area, e_max, var, (cols % N_SUBSETS == k)[None, :])
+    levels = _clip_masks(inten, e_max)  # the same masks for the whole and every subset
+    full = _iso13694_once(inten, area, e_max, var, np.ones((1, n), bool), levels)
+    subs = np.array([_iso13694_once(inten, area, e_max, var, (cols % N_SUBSETS == k)[None, :], levels)
                      for k in range(N_SUBSETS)])
     with quiet_nan():
         spread = np.nanstd(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS)
