@@ -155,10 +155,20 @@ def unclipped_mean(m, sigma):
         z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
         for _ in range(2):
             slope = ndtr(z)
-            # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand
-            step = (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
-            z = np.where(slope > 1e-3, z - step, z)
-        o[work] = z * sigma
+            # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand; in place, the
+            # operations of (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
+            density = z * -0.5
+            density *= z
+            np.exp(density, out=density)
+            density /= _SQRT_2PI
+            step = z * slope
+            step += density
+            step -= r
+            step /= np.maximum(slope, 1e-3)
+            np.subtract(z, step, out=step)
+            z = np.where(slope > 1e-3, step, z)
+        z *= sigma
+        o[work] = z
         flat_out[i:i + _BLOCK] = o
     return out
 
