@@ -386,7 +386,6 @@ def _first_steps(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, chose
     sum is numpy's pairwise sum of the row, as a slice's is), the same order statistics, and the
     same scalar formulas.  A sector the batch does not cover (a window cut short by the photo's
     border) is left out, for :func:`_centred_step`."""
-    n_t = profiles.shape[1]
     sectors = np.array([s for s in range(len(chosen)) if chosen[s] and lasts[s] >= 4 * k], int)
     if sectors.size == 0:
         return {}

@@ -453,7 +453,7 @@ def test_batched_window_sum_variances_equal_the_one_by_one_rule():
 @pytest.mark.parametrize("seed", [0, 1, 2])
 def test_spill_edge_with_first_cutoffs_batched_equals_one_by_one(seed, monkeypatch):
     # reference: every sector's candidates placed one by one (_centred_step), as before the batch
-    import beamshot.spill as spill
+    from beamshot import spill
 
     from conftest import analytic_map
 
