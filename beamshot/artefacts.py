@@ -72,8 +72,12 @@ def ellipse_of_points(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float
     ellipse fitted to the points (OpenCV fitEllipse: least-squares conic, Fitzgibbon et al. 1999)."""
     import cv2
 
-    pts = np.stack([x, y], axis=1).astype(np.float32)
-    (_, _), (w, h), ang = cv2.fitEllipse(pts)
+    return _axes(cv2.fitEllipse(np.stack([x, y], axis=1).astype(np.float32)))
+
+
+def _axes(ellipse) -> tuple[float, float, float]:
+    """Full major and minor axes and the major axis's azimuth (deg, 0-180) of an OpenCV ellipse."""
+    (_, _), (w, h), ang = ellipse
     if w >= h:
         return float(w), float(h), float(ang % 180.0)
     return float(h), float(w), float((ang + 90.0) % 180.0)
@@ -109,9 +113,12 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
     major, minor, orient = ellipse_of_points(x, y)
     # the normal deviates of every refit at once: the same numbers, in the same order, as drawing
     # those of x then those of y for each refit in turn
+    import cv2
+
     z = rng.standard_normal((ELLIPSE_DRAWS, 2, len(x)))
-    xs, ys = x + sx * z[:, 0], y + sy * z[:, 1]
-    draws = np.array([ellipse_of_points(a, b) for a, b in zip(xs, ys)])
+    # every refit's points at once, as ellipse_of_points makes them (float32 (x, y) pairs)
+    pts = np.stack([x + sx * z[:, 0], y + sy * z[:, 1]], axis=2).astype(np.float32)
+    draws = np.array([_axes(cv2.fitEllipse(p)) for p in pts])
     s_major, s_minor = np.std(draws[:, 0], ddof=1), np.std(draws[:, 1], ddof=1)
     s_orient = float(np.degrees(np.std(np.angle(np.exp(2j * np.radians(draws[:, 2] - orient))), ddof=1) / 2.0))
     ell = minor / major
@@ -335,7 +342,8 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     r = np.arange(0.0, reach, step)
     n_az = 180
     bear = np.arange(n_az) * 2 * np.pi / n_az
-    vals = beam.sample(_rays(cvec, bear, np.radians(r)))  # (n_az, n_r)
+    ray_vec = _rays(cvec, bear, np.radians(r))
+    vals = beam.sample(ray_vec)  # (n_az, n_r)
     _hole_figures(figs, r, vals, noise, pixel_deg, hot_full, clipped_reason, scale_u)
     # ---- rings (beyond a centre hole, which is not a ring)
     rings: tuple = ()
@@ -347,7 +355,7 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     spill_from = (float(np.hypot(*mom.centroid)) + mom.radius if mom is not None and not mom.reason else
                   float(np.degrees(shape.field.full_angle())) if shape.field.complete else float("nan"))
     _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reason, pixel_deg, spill_from)
-    _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u)
+    _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u, ray_vec)
 
     # ---- principal axes of the hotspot (50 % contour) and of the spill (its edge)
     if clipped_reason or not hot.complete:
@@ -599,7 +607,7 @@ def _sector_figures(figs, beam, r, vals, noise, hot_full, edge_deg, clipped_reas
                                                         clipped_reason)
 
 
-def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u) -> None:
+def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, scale_u, vec=None) -> None:
     """Hotspot-to-spill transition: the angle over which the hotspot's own light (the map minus the
     spill model) falls from 90 % to 10 % of its maximum, on the azimuthal mean about its centroid
     (the 10-90 % edge width of imaging practice, common practice).  A Gaussian gives 1.687 sigma."""
@@ -609,7 +617,8 @@ def _transition_figure(figs, r, vals, cvec, bear, mom, noise, clipped_reason, sc
         figs["hotspot_transition_width"] = not_measured("deg", method, clipped_reason or (mom.reason if mom else
                                                                                            "no hotspot to measure"))
         return
-    vec = _rays(cvec, bear, np.radians(r))
+    if vec is None:  # the rays ``vals`` were sampled along
+        vec = _rays(cvec, bear, np.radians(r))
     th = np.degrees(np.arccos(np.clip(vec[..., 2], -1.0, 1.0)))
     e = vals - mom.spill_at(th)
     with np.errstate(invalid="ignore"):

@@ -93,9 +93,9 @@ def find_beam_axis(luminance: np.ndarray, mapping: WallMapping, bin_factor: int,
     resid = lum[::4, ::4] - smooth[::4, ::4]
     noise = 1.4826 * float(np.median(np.abs(resid - np.median(resid)))) / (2.0 * np.sqrt(np.pi) * 1.5)
     floor = max(peak * _LOG_FLOOR_FRACTION, 5.0 * noise)
-    logl = np.log(np.maximum(smooth, floor))
-    stride = max(1, int(np.sqrt(logl.size / _OTSU_SAMPLES)))
-    sample = logl[::stride, ::stride].ravel()
+    # the log image is only sampled (elementwise: the log of the sampled pixels is the same)
+    stride = max(1, int(np.sqrt(smooth.size / _OTSU_SAMPLES)))
+    sample = np.log(np.maximum(smooth[::stride, ::stride], floor)).ravel()
     try:
         low, _high = three_class_thresholds(sample)
     except ValueError:

@@ -120,6 +120,8 @@ def clipped_mean(mu, sigma):
 _FAR_ABOVE = 10.0
 _Z_TABLE = np.linspace(-8.0, 8.0, 4001)
 _F_TABLE = _Z_TABLE * ndtr(_Z_TABLE) + np.exp(-0.5 * _Z_TABLE**2) / _SQRT_2PI  # f(z; 1), increasing
+#: Cells worked on at a time by :func:`unclipped_mean` (see beamshot.normal_cdf._BLOCK).
+_BLOCK = 16384
 
 
 def unclipped_mean(m, sigma):
@@ -141,17 +143,33 @@ def unclipped_mean(m, sigma):
     # elementwise, so the values are those of the whole array.  Above _FAR_ABOVE the start is z = r
     # and both Newton steps are exactly 0 in floating point (Phi(z) rounds to 1 and phi(z) is below
     # half an ulp of z), so the result there is r sigma as it stands.
-    r_all = np.asarray(m / sigma)
-    out = np.asarray(r_all * sigma)
-    work = (r_all <= _FAR_ABOVE) | (r_all == np.inf)  # NaN: left NaN
-    r = r_all[work]
-    z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
-    for _ in range(2):
-        slope = ndtr(z)
-        # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand
-        step = (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
-        z = np.where(slope > 1e-3, z - step, z)
-    out[work] = z * sigma
+    # block by block (every step is elementwise, so the same numbers): the temporaries of a block stay
+    # in the processor's cache, and only the result is a map-sized allocation
+    out = np.empty(m.shape)
+    flat_m, flat_out = m.reshape(-1), out.reshape(-1)
+    for i in range(0, flat_m.size, _BLOCK):
+        r_all = flat_m[i:i + _BLOCK] / sigma
+        o = r_all * sigma
+        work = (r_all <= _FAR_ABOVE) | (r_all == np.inf)  # NaN: left NaN
+        r = r_all[work]
+        z = np.where(r > _F_TABLE[-1], r, np.interp(r, _F_TABLE, _Z_TABLE))
+        for _ in range(2):
+            slope = ndtr(z)
+            # clipped_mean(z, 1): z Phi(z) + phi(z), with Phi(z) = slope already at hand; in place, the
+            # operations of (z * slope + np.exp(-0.5 * z * z) / _SQRT_2PI - r) / np.maximum(slope, 1e-3)
+            density = z * -0.5
+            density *= z
+            np.exp(density, out=density)
+            density /= _SQRT_2PI
+            step = z * slope
+            step += density
+            step -= r
+            step /= np.maximum(slope, 1e-3)
+            np.subtract(z, step, out=step)
+            z = np.where(slope > 1e-3, step, z)
+        z *= sigma
+        o[work] = z
+        flat_out[i:i + _BLOCK] = o
     return out
 
 
@@ -262,9 +280,12 @@ def remove_floor(beam: BeamMap, floor: BlackFloor, *, gain: np.ndarray | None = 
         return beam
     g = wall_gain(beam) if gain is None else gain
     m = _smooth_map(beam.intensity / g, beam)
-    bias = np.clip(m - unclipped_mean(m, floor.sigma), 0.0, 2.0 * floor.level)
+    bias = unclipped_mean(m, floor.sigma)
+    np.subtract(m, bias, out=bias)  # m - f^-1(m), in place
+    np.clip(bias, 0.0, 2.0 * floor.level, out=bias)
     bias[np.isnan(bias)] = 0.0  # np.nan_to_num's NaN -> 0 (clipped: nothing infinite is left)
-    return replace(beam, intensity=beam.intensity - bias * g)
+    bias *= g
+    return replace(beam, intensity=beam.intensity - bias)
 
 
 def floor_corrected(beam: BeamMap, edge=None, *, bin_factor: int = 1,

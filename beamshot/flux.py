@@ -104,19 +104,30 @@ def zone_fluxes(beam: BeamMap, hotspot: Contour, peak_vector: np.ndarray, edge: 
     d_omega = np.broadcast_to(d_omega_col[:rows], flux.shape)
     polar = _peak_polar(beam, peak_vector, hot_rows)
     tt = beam.theta[:rows, None]
+    invalid = ~valid
+    saturated = beam.saturated[:rows]
     out = []
+    hots: dict = {}  # per hotspot scale: the zone and its flux, missing fraction and clipping
+    insides: dict = {}  # per edge scale: the fraction of each cell inside the edge
     for hotspot_scale, edge_scale in scales:
-        hot = np.zeros(flux.shape)
-        hot[:hot_rows] = inside_contour(beam, hotspot, peak_vector, hotspot_scale, polar=polar)
-        hot_flux = float((flux * hot).sum())
-        hot_missing = float((d_omega * hot)[~valid].sum() / max((d_omega * hot).sum(), 1e-30))
-        hot_sat = bool(np.any(beam.saturated[:rows] & (hot > 0)))
+        if hotspot_scale not in hots:
+            hot = np.zeros(flux.shape)
+            hot[:hot_rows] = inside_contour(beam, hotspot, peak_vector, hotspot_scale, polar=polar)
+            w = d_omega * hot  # (the same products for the missing part and the whole)
+            hots[hotspot_scale] = (hot, float((flux * hot).sum()), float(w[invalid].sum() / max(w.sum(), 1e-30)),
+                                   bool(np.any(saturated & (hot > 0))))
+        hot, hot_flux, hot_missing, hot_sat = hots[hotspot_scale]
         if edge_theta is not None:
-            inside = np.clip(0.5 - (tt - edge_theta * edge_scale) / beam.d_theta, 0.0, 1.0)
+            if edge_scale not in insides:
+                insides[edge_scale] = np.clip(0.5 - (tt - edge_theta * edge_scale) / beam.d_theta, 0.0, 1.0)
+            inside = insides[edge_scale]
             spill = np.clip(inside - hot, 0.0, 1.0)
             spill_flux = float((flux * spill).sum())
-            spill_missing = float((d_omega * spill)[~valid].sum() / max((d_omega * spill).sum(), 1e-30))
-            outside = total - float((flux * np.maximum(inside, hot)).sum())
+            w = d_omega * spill
+            spill_missing = float(w[invalid].sum() / max(w.sum(), 1e-30))
+            covered = np.maximum(inside, hot)
+            covered *= flux
+            outside = total - float(covered.sum())
         else:
             spill_flux, spill_missing = None, None
             outside = total - hot_flux

@@ -52,7 +52,10 @@ def noise_model(beam: BeamMap, pixel_deg: float = 0.0) -> NoiseModel:
         rows = np.arange(len(beam.theta))
     rows = rows[::ROW_STRIDE] if rows.size >= 15 * ROW_STRIDE else rows
     inten = beam.intensity[rows]
-    resid = inten - 0.5 * (np.roll(inten, 1, axis=1) + np.roll(inten, -1, axis=1))
+    # the neighbours on either side, wrapping in azimuth (np.roll's values)
+    left = np.concatenate([inten[:, -1:], inten[:, :-1]], axis=1)
+    right = np.concatenate([inten[:, 1:], inten[:, :1]], axis=1)
+    resid = inten - 0.5 * (left + right)
     with quiet_nan():  # row_nanmedian: np.nanmedian's values, without its masked arrays
         med = row_nanmedian(resid)[:, None]
         mad = row_nanmedian(np.abs(resid - med))

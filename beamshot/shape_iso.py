@@ -151,10 +151,39 @@ def _spill_fit(tdeg, mean, lo: float, hi: float, order: int):
 def _moments_once(x, y, area, e, keep, centre, radius):
     """Moments of ``e`` over the kept cells within ``radius`` of ``centre`` (only the map rows that
     can reach it are looked at: rows are polar angles, and x = theta cos phi)."""
-    rows = int(np.searchsorted(np.hypot(x[:, 0], y[:, 0]), float(np.hypot(*centre)) + radius, side="right")) + 1
-    x, y, area, e, keep = x[:rows], y[:rows], area[:rows], e[:rows], keep[:rows]
-    sel = keep & ((x - centre[0]) ** 2 + (y - centre[1]) ** 2 <= radius * radius)
-    return second_moments(x[sel], y[sel], e[sel], area[sel])
+    return _Disc(x, y, centre, radius).moments(area, e, keep)
+
+
+class _Disc:
+    """The cells within ``radius`` of ``centre`` (the map rows that can reach it), for the moments of
+    several distributions over the same disc (:func:`_moments_once` of each, computed once)."""
+
+    def __init__(self, x, y, centre, radius):
+        self.rows = int(np.searchsorted(np.hypot(x[:, 0], y[:, 0]), float(np.hypot(*centre)) + radius,
+                                        side="right")) + 1
+        x, y = x[:self.rows], y[:self.rows]
+        self.x, self.y = x, y
+        self.inside = (x - centre[0]) ** 2 + (y - centre[1]) ** 2 <= radius * radius
+
+    def moments(self, area, e, keep) -> SecondMoments:
+        """:func:`_moments_once` of ``e`` over the cells of ``keep`` in the disc."""
+        rows = self.rows
+        sel = keep[:rows] & self.inside
+        return second_moments(self.x[sel], self.y[sel], e[:rows][sel], area[:rows][sel])
+
+    def moments_with_subsets(self, area, e, keep, n_subsets: int) -> tuple[SecondMoments, list[SecondMoments]]:
+        """:meth:`moments`, and those over the interleaved azimuth subsets (columns ``k mod n_subsets``)
+        of the kept cells: each subset's cells are taken, in order, from the selected ones, so the
+        sums are those of selecting each subset from the map."""
+        rows = self.rows
+        sel = keep[:rows] & self.inside
+        xs, ys, es, areas = self.x[sel], self.y[sel], e[:rows][sel], area[:rows][sel]
+        cols = np.broadcast_to(np.arange(sel.shape[1]) % n_subsets, sel.shape)[sel]
+        subs = []
+        for k in range(n_subsets):
+            on = cols == k
+            subs.append(second_moments(xs[on], ys[on], es[on], areas[on]))
+        return second_moments(xs, ys, es, areas), subs
 
 
 class _NearRows:
@@ -175,11 +204,14 @@ class _NearRows:
         rows = int(np.searchsorted(self.radius_of_row, float(np.hypot(*centre)) + radius, side="right")) + 1
         rows = min(rows, len(self.beam.theta))
         if rows > self.rows:
-            x, y, area = ae_grid(self.beam, rows)
-            inten = self.beam.intensity[:rows]
+            # half as many rows again as asked for: the disc grows over the iterations, and the rows
+            # already computed hold the same values
+            more = min(rows + rows // 2, len(self.beam.theta))
+            x, y, area = ae_grid(self.beam, more)
+            inten = self.beam.intensity[:more]
             self.arrays = (x, y, area, inten, np.isfinite(inten), self.noise.sigma(inten),
-                           np.degrees(self.beam.theta[:rows]))
-            self.rows = rows
+                           np.degrees(self.beam.theta[:more]))
+            self.rows = more
         return tuple(a[:rows] for a in self.arrays)
 
 
@@ -215,7 +247,8 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
         x, y, area, inten, valid, sig, t = near.within(centre, d)
         e = inten - (spill[0] + spill[1] * t ** 2)[:, None]
         keep = valid & (e > N_T * sig)
-        m = _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, d)
+        # (the cells moments are taken over are kept ones: e itself, not np.where(keep, e, 0.0))
+        m = _moments_once(x, y, area, e, keep, centre, d)
         if not m.power > 0:
             return HotspotMoments("no part of the hotspot stands above the spill and the noise")
         d_new = principal_diameters(m)[0]
@@ -226,16 +259,11 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
     x, y, area, inten, valid, sig, t = near.within(centre, d)
     e = inten - (spill[0] + spill[1] * t ** 2)[:, None]
     keep = valid & (e > N_T * sig)
-    m = _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, d)
+    disc = _Disc(x, y, centre, d)
+    # noise: interleaved azimuth subsets (columns k mod N_SUBSETS)
+    m, subsets = disc.moments_with_subsets(area, e, keep, N_SUBSETS)
     d_major, d_minor, azimuth = principal_diameters(m)
-    # noise: interleaved azimuth subsets
-    subs = []
-    cols = np.arange(inten.shape[1])
-    for k in range(N_SUBSETS):
-        on = (cols % N_SUBSETS == k)[None, :]
-        ms = _moments_once(x, y, area, np.where(keep & on, e, 0.0), keep & on, centre, d)
-        subs.append(principal_diameters(ms))
-    subs = np.array(subs)
+    subs = np.array([principal_diameters(ms) for ms in subsets])
     spread = np.std(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS)
     az_spread = np.degrees(np.std(np.angle(np.exp(2j * np.radians(subs[:, 2] - azimuth))), ddof=1) / 2.0
                            ) / np.sqrt(N_SUBSETS)
@@ -245,7 +273,7 @@ def hotspot_moments(beam: BeamMap, start_centre: tuple[float, float], start_d: f
     if richer is not None:
         e2 = inten - sum(c * t ** (2 * k) for k, c in enumerate(richer))[:, None]
         keep2 = valid & (e2 > N_T * sig)
-        m2 = _moments_once(x, y, area, np.where(keep2, e2, 0.0), keep2, centre, d)
+        m2 = disc.moments(area, e2, keep2)
         if m2.power > 0:
             p2 = principal_diameters(m2)
             dm = (abs(p2[0] - d_major), abs(p2[1] - d_minor))
@@ -268,9 +296,12 @@ class Iso13694:
     edge_reason: str | None = None
 
 
-def _iso13694_once(inten, area, e_max, var, cols_on):
-    v = np.isfinite(inten) & cols_on
-    hot = v & (inten >= HOTSPOT_CLIP * e_max)
+def _iso13694_once(inten, area, e_max, var, cols_on, levels=None):
+    """The three measures over the cells of the columns ``cols_on``; ``levels`` may hold the masks
+    (finite, at or above the hotspot clip, the low and the high edge clip) already computed."""
+    finite, at_hot, at_low, at_high = levels if levels is not None else _clip_masks(inten, e_max)
+    v = finite & cols_on
+    hot = v & at_hot
     a = area[hot]
     vals = inten[hot]
     if a.sum() <= 0:
@@ -280,10 +311,16 @@ def _iso13694_once(inten, area, e_max, var, cols_on):
     noise_var = float(np.sum(var[hot] * a) / np.sum(a))
     flat = mean / e_max
     unif = float(np.sqrt(max(var_i - noise_var, 0.0)) / mean)
-    a_low = float(np.sum(area[v & (inten >= EDGE_CLIPS[0] * e_max)]))
-    a_high = float(np.sum(area[v & (inten >= EDGE_CLIPS[1] * e_max)]))
+    a_low = float(np.sum(area[v & at_low]))
+    a_high = float(np.sum(area[v & at_high]))
     steep = (a_low - a_high) / a_low if a_low > 0 else np.nan
     return flat, unif, steep
+
+
+def _clip_masks(inten, e_max):
+    """Finite cells, and cells at or above the hotspot clip and the two edge clips of ``e_max``."""
+    return (np.isfinite(inten), inten >= HOTSPOT_CLIP * e_max, inten >= EDGE_CLIPS[0] * e_max,
+            inten >= EDGE_CLIPS[1] * e_max)
 
 
 def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
@@ -301,8 +338,9 @@ def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
     var = noise.sigma(inten) ** 2 if noise is not None else np.zeros_like(inten)
     n = inten.shape[1]
     cols = np.arange(n)
-    full = _iso13694_once(inten, area, e_max, var, np.ones((1, n), bool))
-    subs = np.array([_iso13694_once(inten, area, e_max, var, (cols % N_SUBSETS == k)[None, :])
+    levels = _clip_masks(inten, e_max)  # the same masks for the whole and every subset
+    full = _iso13694_once(inten, area, e_max, var, np.ones((1, n), bool), levels)
+    subs = np.array([_iso13694_once(inten, area, e_max, var, (cols % N_SUBSETS == k)[None, :], levels)
                      for k in range(N_SUBSETS)])
     with quiet_nan():
         spread = np.nanstd(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS)

@@ -37,6 +37,7 @@ at ``MAX_SIGMA_DEG``.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -58,6 +59,7 @@ EDGE_SHARPNESS = 4.0
 #: Fallback threshold for a beam with no sharp cut-off, as a fraction of peak (project choice).
 SPILL_FLOOR_FRACTION = 0.005
 _SMOOTH_DEG = 0.15
+_SQRT_PI = float(np.sqrt(np.pi))
 #: Widths (deg) of the azimuth ranges pooled, in turn, for sectors whose own profile shows no
 #: cut-off above the noise; 360 = the azimuthal mean (project choice).
 POOL_DEG = (30.0, 90.0, 360.0)
@@ -192,9 +194,11 @@ def _median(d: np.ndarray) -> float:
     element, or the two middle ones added and halved, as numpy's mean of two does), less overhead."""
     n = d.size
     h = n // 2
+    p = d.copy()  # np.partition's copy, partitioned in place
     if n % 2:
-        return np.partition(d, h)[h]
-    p = np.partition(d, (h - 1, h))
+        p.partition(h)
+        return p[h]
+    p.partition((h - 1, h))
     return (p[h - 1] + p[h]) / 2.0
 
 
@@ -230,6 +234,18 @@ class _WindowSumVariances:
         self.d2, self.n, self.seen = d2, n, {}
 
     def __call__(self, segments: list[tuple[int, int]]) -> float:
+        return self.of_two(*segments[0], *segments[1]) if len(segments) == 2 else self._of(segments)
+
+    def of_two(self, lo1: int, hi1: int, lo2: int, hi2: int) -> float:
+        """The variance on the two segments ``(lo1, hi1)`` and ``(lo2, hi2)``."""
+        m = 3 * self.n - 1
+        key = (max(lo1, 0), max(hi1 - m, 0), max(lo2, 0), max(hi2 - m, 0))
+        v = self.seen.get(key)
+        if v is None:
+            v = self.seen[key] = _window_sum_variance(self.d2, self.n, [(lo1, hi1), (lo2, hi2)])
+        return v
+
+    def _of(self, segments: list[tuple[int, int]]) -> float:
         n = self.n
         key = tuple((max(lo, 0), max(hi - 3 * n + 1, 0)) for lo, hi in segments)
         if key not in self.seen:
@@ -259,10 +275,14 @@ def _window_sum_variance(d2: np.ndarray, n: int, segments: list[tuple[int, int]]
     """
     parts = [d2[max(lo, 0): max(hi - 3 * n + 1, 0)] for lo, hi in segments]
     d = np.concatenate(parts) if parts else np.empty(0)
-    d = d[np.isfinite(d)]
+    finite = np.isfinite(d)
+    if not finite.all():
+        d = d[finite]
     if len(d) < 3:
         return float("nan")
-    return float((MAD_TO_SIGMA * _median(np.abs(d - _median(d)))) ** 2 / 6.0)
+    dev = d - _median(d)
+    np.abs(dev, out=dev)
+    return float((MAD_TO_SIGMA * _median(dev)) ** 2 / 6.0)
 
 
 def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
@@ -294,23 +314,26 @@ def _step_position(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: Be
     n = w1 - w0
     if not np.isfinite(raw[w0 - h:w1 + h]).all():  # inner levels, window and outer levels together
         return None
-    win = raw[w0:w1]
-    # inner and outer hold h samples each (w0 >= h, w1 + h <= last): sum / h is numpy's mean
-    a, b = float(raw[w0 - h:w0].sum() / h), float(max(raw[w1:w1 + h].sum() / h, 0.0))
+    # inner and outer hold h samples each (w0 >= h, w1 + h <= last): sum / h is numpy's mean;
+    # np.add.reduce is what ndarray.sum calls (the same pairwise sum), less overhead
+    a, b = float(_sum(raw[w0 - h:w0])) / h, max(float(_sum(raw[w1:w1 + h])) / h, 0.0)
     d = a - b
     if d <= 0:
         return None
-    ratio = float(min(max((win.sum() - n * b) / d, 0.0), n))
+    ratio = float(min(max((float(_sum(raw[w0:w1])) - n * b) / d, 0.0), n))
     d_theta = beam.d_theta
-    t = beam.theta[w0] - d_theta / 2 + ratio * d_theta
-    v_h = variances([(lo, w0 - h), (w1 + h, last)])  # lag h
-    if not np.isfinite(v_h):
+    t = float(beam.theta[w0]) - d_theta / 2 + ratio * d_theta
+    v_h = variances.of_two(lo, w0 - h, w1 + h, last)  # lag h
+    if not math.isfinite(v_h):
         return None
     v_n = v_h * n / h
     var_mean = v_h / h**2
     var = (d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
-    significance = d / np.sqrt(2.0 * var_mean) if var_mean > 0 else np.inf
-    return float(t), float(np.sqrt(var + d_theta**2 / 12.0)), float(significance)
+    significance = d / math.sqrt(2.0 * var_mean) if var_mean > 0 else math.inf
+    return t, math.sqrt(var + d_theta**2 / 12.0), significance
+
+
+_sum = np.add.reduce
 
 
 def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, variances: _WindowSumVariances, k: int,
@@ -335,12 +358,208 @@ def _sharper_of(step: tuple[float, float, float], c: int, ps: np.ndarray, varian
     flips = np.flatnonzero(below[1:] != below[:-1])  # where the profile crosses the level
     if len(flips) != 1 or not seg[flips[0] + 1] < level:
         return step[0], step[1]
-    v_h = variances([(start, c - k - h), (c + k + 1 + h, last)])  # lag h
-    if not np.isfinite(v_h):
+    v_h = variances.of_two(start, c - k - h, c + k + 1 + h, last)  # lag h
+    if not math.isfinite(v_h):
         return step[0], step[1]
-    noise = np.sqrt(1.5 * v_h / h / (2.0 * np.sqrt(np.pi) * sm))
+    noise = math.sqrt(1.5 * v_h / h / (2.0 * _SQRT_PI * sm))
     t, sig = _crossing(ps, c - k + flips[0] + 1, level, beam, noise)
     return (t, sig) if sig < step[1] else (step[0], step[1])
+
+
+def _centred_step(raw: np.ndarray, c: int, k: int, lo: int, last: int, beam: BeamMap,
+                  variances: _WindowSumVariances) -> tuple[float, float, float] | None:
+    """:func:`_step_position` at ``c``, then once more with the window centred on the edge found."""
+    step = _step_position(raw, c, k, lo, last, beam, variances)
+    if step is not None:
+        centred = int(np.floor((step[0] - beam.theta[0]) / beam.d_theta + 0.5))
+        if centred != c:
+            step = _step_position(raw, centred, k, lo, last, beam, variances) or step
+    return step
+
+
+def _first_steps(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, chosen: list[list[int]],
+                 starts: np.ndarray, lasts: np.ndarray, k: int, h: int) -> dict:
+    """:func:`_centred_step` of the first candidate of every sector with one, in batches (the window
+    sums of all sectors as row sums of one array, the variances' medians by partitions of rows):
+    ``{sector: (step or None, {variance key: value})}``, the variances to be kept in the sector's
+    :class:`_WindowSumVariances`.  The same numbers as :func:`_centred_step`: the same sums (a row's
+    sum is numpy's pairwise sum of the row, as a slice's is), the same order statistics, and the
+    same scalar formulas.  A sector the batch does not cover (a window cut short by the photo's
+    border) is left out, for :func:`_centred_step`."""
+    sectors = np.array([s for s in range(len(chosen)) if chosen[s] and lasts[s] >= 4 * k], int)
+    if sectors.size == 0:
+        return {}
+    seen = {int(s): {} for s in sectors}
+    c0 = np.array([chosen[s][0] for s in sectors], int)
+    lo, last = starts[sectors].astype(int), lasts[sectors].astype(int)
+    step1 = _steps_at(beam, profiles, d2_rows, sectors, c0, k, h, lo, last, seen)
+    out, again = {}, []
+    theta0, d_theta = beam.theta[0], beam.d_theta
+    for i, s in enumerate(sectors.tolist()):
+        st = step1[i]
+        if st is False:
+            continue
+        if st is None:
+            out[s] = (None, seen[s])
+            continue
+        centred = int(np.floor((st[0] - theta0) / d_theta + 0.5))
+        if centred == c0[i]:
+            out[s] = (st, seen[s])
+        else:
+            again.append((i, centred))
+    if again:
+        idx = np.array([i for i, _ in again], int)
+        step2 = _steps_at(beam, profiles, d2_rows, sectors[idx], np.array([c for _, c in again], int), k, h,
+                          lo[idx], last[idx], seen)
+        for (i, _), st in zip(again, step2):
+            if st is not False:
+                s = int(sectors[i])
+                out[s] = (st or step1[i], seen[s])
+    return out
+
+
+def _sharper_of_first(first: dict, chosen: list[list[int]], smoothed: np.ndarray, d2_rows: np.ndarray | None,
+                      starts: np.ndarray, lasts: np.ndarray, k: int, h: int, sm: float, beam: BeamMap) -> dict:
+    """:func:`_sharper_of` of each sector's first cut-off placed by :func:`_first_steps` that stands out
+    of the noise, in one batch: ``{sector: (theta, sigma)}``.  The levels, crossings and slopes are
+    the same elementwise operations on the same samples; the noise per sector as there."""
+    items = [(s, st) for s, (st, _) in first.items() if st is not None and st[2] >= EDGE_MIN_SIGNIFICANCE]
+    if not items:
+        return {}
+    sec = np.array([s for s, _ in items], int)
+    c = np.array([chosen[s][0] for s, _ in items], int)
+    last = lasts[sec].astype(int)
+    out = {}
+    inner = (c - k >= 0) & (c + k < last)
+    for q in np.flatnonzero(~inner):
+        st = items[q][1]
+        out[items[q][0]] = (st[0], st[1])
+    idx = np.flatnonzero(inner)
+    if idx.size == 0:
+        return out
+    rows, c0 = sec[idx], c[idx] - k
+    seg = smoothed[rows[:, None], c0[:, None] + np.arange(2 * k + 1)[None, :]]  # ps[c - k: c + k + 1]
+    top = seg[:, -1]
+    level = 0.5 * (seg[:, 0] + np.where(0.0 > top, 0.0, top))  # max(ps[c + k], 0.0)
+    below = seg < level[:, None]
+    flips = below[:, 1:] != below[:, :-1]
+    f0 = np.argmax(flips, axis=1)
+    one = (flips.sum(axis=1) == 1) & (seg[np.arange(idx.size), f0 + 1] < level)
+    # _crossing at sample i = c - k + f0 + 1 of each profile
+    i = c0 + f0 + 1
+    p_prev, p_i = seg[np.arange(idx.size), f0], seg[np.arange(idx.size), f0 + 1]
+    drop = p_prev - p_i
+    d_theta = beam.d_theta
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(drop != 0, (p_prev - level) / drop, 0.5)
+    t = beam.theta[i - 1] + frac * d_theta
+    local_slope = drop / d_theta
+    local_slope = np.where(1e-30 > local_slope, 1e-30, local_slope)  # max(drop / d_theta, 1e-30)
+    for q, j in enumerate(idx.tolist()):
+        s, st = items[j]
+        if not one[q]:
+            out[s] = (st[0], st[1])
+            continue
+        variances = _WindowSumVariances(d2_rows[s], h)
+        variances.seen = first[s][1]
+        ck = int(c[j])
+        v_h = variances.of_two(int(starts[s]), ck - k - h, ck + k + 1 + h, int(lasts[s]))  # lag h
+        if not math.isfinite(v_h):
+            out[s] = (st[0], st[1])
+            continue
+        noise = math.sqrt(1.5 * v_h / h / (2.0 * _SQRT_PI * sm))
+        sig = float(np.hypot(noise / local_slope[q], d_theta / np.sqrt(12)))
+        out[s] = (t[q], sig) if sig < st[1] else (st[0], st[1])
+    return out
+
+
+def _steps_at(beam: BeamMap, profiles: np.ndarray, d2_rows: np.ndarray, sectors: np.ndarray, c: np.ndarray, k: int,
+              h: int, lo: np.ndarray, last: np.ndarray, seen: dict) -> list:
+    """:func:`_step_position` of each sector's profile at ``c`` (arrays over the sectors): per sector
+    the step, None (where _step_position gives None), or False (a window cut short by the photo's
+    border, not done here).  The variances used are put in ``seen[sector]`` under their keys."""
+    n = 2 * k + 1
+    w0, w1 = c - k, c + k + 1
+    res: list = [False] * len(sectors)
+    border = w1 + h > last
+    for i in np.flatnonzero(~border & (w0 - h < 0)):
+        res[i] = None
+    idx = np.flatnonzero(~border & (w0 - h >= 0))
+    if idx.size == 0:
+        return res
+    rows, start = sectors[idx], (w0 - h)[idx]
+    g = profiles[rows[:, None], start[:, None] + np.arange(n + 2 * h)[None, :]]  # inner, window, outer
+    finite = np.isfinite(g).all(axis=1)
+    a = g[:, :h].sum(axis=1) / h
+    b_out = g[:, h + n:].sum(axis=1) / h
+    b = np.where(0.0 > b_out, 0.0, b_out)  # max(b_out, 0.0)
+    win = g[:, h:h + n].sum(axis=1)
+    m = 3 * h - 1
+    segs = np.stack([np.maximum(lo[idx], 0), np.maximum(start - m, 0), np.maximum(w1[idx] + h, 0),
+                     np.maximum(last[idx] - m, 0)], axis=1)
+    v_all = _window_sum_variances(d2_rows[rows], segs)
+    d_theta = beam.d_theta
+    for q, i in enumerate(idx.tolist()):
+        if not finite[q]:
+            res[i] = None
+            continue
+        key = tuple(segs[q].tolist())
+        v_h = float(v_all[q])
+        seen[int(rows[q])][key] = v_h
+        a_q, b_q = float(a[q]), float(b[q])
+        d = a_q - b_q
+        if not d > 0:
+            res[i] = None if d <= 0 else False  # NaN: left to _step_position
+            continue
+        ratio = float(min(max((float(win[q]) - n * b_q) / d, 0.0), n))
+        t = float(beam.theta[w0[i]]) - d_theta / 2 + ratio * d_theta
+        if not math.isfinite(v_h):
+            res[i] = None
+            continue
+        v_n = v_h * n / h
+        var_mean = v_h / h**2
+        var = (d_theta / d) ** 2 * (v_n + ratio**2 * var_mean + (ratio - n) ** 2 * var_mean)
+        significance = d / math.sqrt(2.0 * var_mean) if var_mean > 0 else math.inf
+        res[i] = (t, math.sqrt(var + d_theta**2 / 12.0), significance)
+    return res
+
+
+def _window_sum_variances(d2: np.ndarray, segs: np.ndarray) -> np.ndarray:
+    """:func:`_window_sum_variance` of each row of ``d2`` on its two sample ranges ``segs[q] = (lo1,
+    hi1, lo2, hi2)`` (already the ranges of ``d2``, as Python slices read them).  The cells of a row
+    not among its finite values there are filled with equal numbers of -inf and +inf (with one more
+    column where their number is odd), so that one partition of the rows of a parity of count gives
+    every row's middle order statistics (the median of its values); the same for the absolute
+    deviations from it."""
+    q_n, m = d2.shape
+    j = np.arange(m)[None, :]
+    lo1, hi1, lo2, hi2 = (np.minimum(segs[:, i], m)[:, None] for i in range(4))
+    sel = (((j >= lo1) & (j < hi1)) | ((j >= lo2) & (j < hi2))) & np.isfinite(d2)
+    counts = sel.sum(axis=1)
+    out = np.full(q_n, np.nan)
+    for odd in (True, False):
+        grp = np.flatnonzero((counts % 2 == odd) & (counts >= 3))
+        if grp.size == 0:
+            continue
+        width = m + ((m - int(odd)) % 2)  # width - count even for every row of the group
+        g_sel = np.zeros((grp.size, width), bool)
+        g_sel[:, :m] = sel[grp]
+        vals = np.zeros((grp.size, width))
+        vals[:, :m] = d2[grp]
+        half = ((width - counts[grp]) // 2)[:, None]
+        low_pad = ~g_sel & (np.cumsum(~g_sel, axis=1) <= half)  # the first half of the cells left out
+        rows = np.where(g_sel, vals, np.where(low_pad, -np.inf, np.inf))
+        mid = width // 2
+        kth = (mid,) if odd else (mid - 1, mid)
+        part = np.partition(rows, kth, axis=1)
+        med = part[:, mid] if odd else (part[:, mid - 1] + part[:, mid]) / 2.0
+        dev = rows - med[:, None]
+        np.abs(dev, out=dev)  # the pads are +inf now
+        dev[low_pad] = -np.inf
+        part = np.partition(dev, kth, axis=1)
+        mad = part[:, mid] if odd else (part[:, mid - 1] + part[:, mid]) / 2.0
+        out[grp] = [float((MAD_TO_SIGMA * x) ** 2 / 6.0) for x in mad]  # np.float64 scalars, as in the scalar rule
+    return out
 
 
 def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray, lasts: np.ndarray,
@@ -370,16 +589,19 @@ def _cutoff_points(smoothed: np.ndarray, floors: np.ndarray, starts: np.ndarray,
         drop_before = np.log(before / inner_f)
     ok = (drop >= np.log(EDGE_MIN_CONTRAST)) & (inner >= 3 * f) & (drop >= EDGE_SHARPNESS * drop_before)
     ok &= (jj[None, :] >= starts[:, None]) & (jj[None, :] < lasts[:, None] - k)
-    for s in np.nonzero(ok.any(axis=1))[0]:
+    # steepest in linear units: the mid-point of the cut-off
+    slope = smoothed[:, lo - 1:n_t - k - 1] - smoothed[:, lo + 1:n_t - k + 1]  # at jj - 1 and jj + 1
+    runs = (ok[:, 1:] & ~ok[:, :-1]).sum(axis=1) + ok[:, 0]
+    # a row with one contiguous run of candidates (the usual case): its first steepest point at once
+    steepest = np.argmax(np.where(ok, slope, -np.inf), axis=1)
+    for s in np.flatnonzero(runs == 1):
+        out[s] = [int(jj[steepest[s]])]
+    for s in np.flatnonzero(runs > 1):
         cand = jj[ok[s]]
-        if cand[-1] - cand[0] == len(cand) - 1:  # one contiguous run (the usual case): no split
-            runs = [cand]
-        else:
-            runs = np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1]  # outermost run first
         picks = []
-        for run in runs:
-            slope = smoothed[s, run - 1] - smoothed[s, run + 1]  # steepest in linear units: mid-point of the cut-off
-            picks.append(int(run[np.argmax(slope)]))
+        for run in np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1]:  # outermost run first
+            slope_run = smoothed[s, run - 1] - smoothed[s, run + 1]
+            picks.append(int(run[np.argmax(slope_run)]))
         out[s] = picks
     return out
 
@@ -412,6 +634,10 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
     # second differences of h-sample sums of every row at once (row s is used on its first lasts[s]
     # samples only, where it equals _second_differences(profiles[s, :lasts[s]], h))
     d2_rows = _second_differences_rows(profiles, h) if any(chosen) else None
+    # the first (outermost) candidate of every sector at once; the rest, and any sector whose first
+    # candidate the batch cannot place as _centred_step would, one by one below
+    first = _first_steps(beam, profiles, d2_rows, chosen, starts, lasts, k, h) if d2_rows is not None else {}
+    sharper = _sharper_of_first(first, chosen, smoothed, d2_rows, starts, lasts, k, h, sm, beam)
     for s in range(n_sec):
         last = int(lasts[s])
         coverage[s] = beam.theta[last - 1] if last > 0 else 0.0
@@ -422,15 +648,18 @@ def _detect(beam: BeamMap, profiles: np.ndarray, peak_value: float) -> tuple:
         noise, floor, start = noises[s], floors[s], int(starts[s])
         found = None
         variances = _WindowSumVariances(d2_rows[s], h) if chosen[s] else None
-        for c in chosen[s]:  # the outermost cut-off that stands out of the noise
+        pre = first.get(s)
+        if pre is not None:
+            variances.seen.update(pre[1])
+        for i, c in enumerate(chosen[s]):  # the outermost cut-off that stands out of the noise
             # (None: too close to the photo's border to see the outside level)
-            step = _step_position(profiles[s], c, k, start, last, beam, variances)
-            if step is not None:  # once more with the window centred on the edge found
-                centred = int(np.floor((step[0] - beam.theta[0]) / beam.d_theta + 0.5))
-                if centred != c:
-                    step = _step_position(profiles[s], centred, k, start, last, beam, variances) or step
+            step = pre[0] if i == 0 and pre is not None else _centred_step(profiles[s], c, k, start, last, beam,
+                                                                             variances)
             if step is not None and step[2] >= EDGE_MIN_SIGNIFICANCE:
-                found = (*_sharper_of(step, c, ps, variances, k, sm, start, last, beam), "cutoff")
+                if i == 0 and s in sharper:
+                    found = (*sharper[s], "cutoff")
+                else:
+                    found = (*_sharper_of(step, c, ps, variances, k, sm, start, last, beam), "cutoff")
                 break
         if found is None:
             level = max(SPILL_FLOOR_FRACTION * peak_value, floor)

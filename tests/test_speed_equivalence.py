@@ -69,13 +69,14 @@ def _unclipped_whole(m, sigma):
     return z * sigma
 
 
-@pytest.mark.parametrize("sigma", [0.01, 1.0, 3.7])
-def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
+@pytest.mark.parametrize("sigma,rows", [(0.01, 120), (1.0, 120), (3.7, 120), (1.0, 400)])
+def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma, rows):
+    # 400 x 90 cells: more than one block of beamshot.floor._BLOCK
     from beamshot.floor import unclipped_mean
 
     rng = np.random.default_rng(7)
-    m = rng.normal(0.5, 2.0, (120, 90)) * sigma
-    m[60:] = rng.exponential(12.0, (60, 90)) * sigma  # far above the noise: the path without Newton steps
+    m = rng.normal(0.5, 2.0, (rows, 90)) * sigma
+    m[rows // 2:] = rng.exponential(12.0, (rows - rows // 2, 90)) * sigma  # far above the noise: no Newton steps
     m[rng.random(m.shape) < 0.3] = np.nan
     m[0, :6] = [0.0, -9 * sigma, 9 * sigma, 1e-300, -1e-300, 8.0 * sigma]  # table ends, zero, tiny
     m[1, :6] = [10.0 * sigma, np.nextafter(10.0, 11.0) * sigma, 1e300, np.inf, -np.inf, 1e6 * sigma]
@@ -83,6 +84,42 @@ def test_unclipped_mean_on_finite_cells_equals_the_whole_array(sigma):
         assert np.array_equal(unclipped_mean(m, sigma), _unclipped_whole(m, sigma), equal_nan=True)
     for value in (-1.5 * sigma, 0.3 * sigma, 12.0 * sigma):  # a single value (0-d) as well
         assert float(unclipped_mean(value, sigma)) == float(_unclipped_whole(value, sigma))
+
+
+def _ndtr_whole(z):
+    """beamshot.normal_cdf.ndtr as first written: the cubic Hermite formula on the whole array."""
+    import math
+
+    from beamshot.normal_cdf import _LO, _HI, _STEPS_PER_UNIT, _table
+
+    z = np.asarray(z, float)
+    values, slopes = _table()
+    h = 1.0 / _STEPS_PER_UNIT
+    with np.errstate(invalid="ignore"):
+        inside = (z >= _LO) & (z < _HI)
+    x = (np.where(inside, z, _LO) - _LO) * _STEPS_PER_UNIT
+    k = np.minimum(x.astype(np.intp), values.size - 2)
+    t = x - k
+    t2, t3 = t * t, t * t * t
+    out = ((2 * t3 - 3 * t2 + 1) * values[k] + (t3 - 2 * t2 + t) * h * slopes[k]
+           + (-2 * t3 + 3 * t2) * values[k + 1] + (t3 - t2) * h * slopes[k + 1])
+    rest = ~inside & ~np.isnan(z)
+    out = np.where(inside, out, np.nan)
+    out[rest] = [0.5 * math.erfc(-v / math.sqrt(2.0)) for v in z[rest]]
+    return out
+
+
+@pytest.mark.parametrize("shape", [(7,), (1000,), (300, 180), (40001,)])
+def test_ndtr_in_blocks_equals_the_formula_on_the_whole_array(shape):
+    # blocks of beamshot.normal_cdf._BLOCK elements, worked in place: the same numbers
+    from beamshot.normal_cdf import ndtr as ours
+
+    rng = np.random.default_rng(11)
+    z = rng.normal(0.0, 4.0, shape)
+    flat = z.reshape(-1)
+    flat[:7] = [np.nan, np.inf, -np.inf, 8.0, -8.0, np.nextafter(8.0, 0.0), 9.5]  # table ends and beyond
+    assert np.array_equal(ours(z), _ndtr_whole(z), equal_nan=True)
+    assert float(ours(1.3)) == float(_ndtr_whole(np.array([1.3]))[0])
 
 
 def _gain_whole(shape, b, full_shape, focal_px, natural, corner_depth):
@@ -360,3 +397,112 @@ def test_one_blas_thread_measures_the_same_shape():
     with one_blas_thread():
         one = shape_values(measure_shape(measured.beam))
     assert one == shape_values(measure_shape(measured.beam))
+
+
+@pytest.mark.parametrize("mode", ["reflect", "nearest", "wrap"])
+def test_smoothing_padding_equals_numpys_pad(mode):
+    # reference: numpy.pad with the mode SciPy's name stands for; paddings shorter, as long as and longer than a row
+    from beamshot.smoothing import _PAD_MODES, _padded
+
+    rng = np.random.default_rng(4)
+    for n in (1, 5, 180):
+        rows = rng.normal(size=(3, n))
+        for r in (0, 1, 4, 5, 6, 17):
+            assert np.array_equal(_padded(rows, r, mode), np.pad(rows, ((0, 0), (r, r)), mode=_PAD_MODES[mode]))
+
+
+def test_hotspot_subset_moments_equal_selecting_each_subset_from_the_map():
+    # reference: each interleaved azimuth subset (columns k mod 4) selected from the whole map
+    from beamshot.shape_iso import _Disc, _moments_once, ae_grid
+
+    from conftest import analytic_map
+
+    beam = analytic_map(lambda t, p: np.exp(-(np.degrees(t) / 4.0) ** 2) * (1 + 0.1 * np.cos(2 * p)),
+                        theta_max_deg=20.0, d_phi_deg=2.0)
+    x, y, area = ae_grid(beam)
+    rng = np.random.default_rng(9)
+    e = beam.intensity + rng.normal(0.0, 0.01, beam.intensity.shape)
+    keep = e > 0.05
+    centre, radius = (0.3, -0.2), 6.0
+    m, subs = _Disc(x, y, centre, radius).moments_with_subsets(area, e, keep, 4)
+    assert m == _moments_once(x, y, area, np.where(keep, e, 0.0), keep, centre, radius)
+    cols = np.arange(e.shape[1])
+    for k, ms in enumerate(subs):
+        on = (cols % 4 == k)[None, :]
+        assert ms == _moments_once(x, y, area, np.where(keep & on, e, 0.0), keep & on, centre, radius)
+
+
+def test_batched_window_sum_variances_equal_the_one_by_one_rule():
+    # reference: _window_sum_variance, numpy's median of the segments' finite second differences
+    from beamshot.spill import _window_sum_variance, _window_sum_variances
+
+    rng = np.random.default_rng(21)
+    for m in (40, 41, 300):
+        d2 = rng.normal(0.0, 1.0, (30, m)) * rng.uniform(0.01, 100.0, (30, 1))
+        d2[rng.random(d2.shape) < 0.05] = np.nan
+        d2[3] = np.round(d2[3])  # ties
+        segs = np.sort(rng.integers(0, m + 5, (30, 4)), axis=1)
+        segs[4] = (0, 0, 0, 2)  # fewer than 3 values: NaN
+        got = _window_sum_variances(d2, segs)
+        for q in range(30):
+            # the sample ranges (lo, hi) that give d2[l:u] at lag 1: u = hi - 3 + 1
+            ref = _window_sum_variance(d2[q], 1, [(segs[q, 0], segs[q, 1] + 2), (segs[q, 2], segs[q, 3] + 2)])
+            assert got[q] == ref or (np.isnan(got[q]) and np.isnan(ref))
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_spill_edge_with_first_cutoffs_batched_equals_one_by_one(seed, monkeypatch):
+    # reference: every sector's candidates placed one by one (_centred_step), as before the batch
+    from beamshot import spill
+
+    from conftest import analytic_map
+
+    rng = np.random.default_rng(seed)
+    cut = 14.0 + 4.0 * seed
+
+    def pattern(t, p):
+        deg = np.degrees(t)
+        edge = cut * (1.0 + 0.05 * np.cos(2 * p))
+        return np.exp(-(deg / 3.0) ** 2) + 0.02 / (1.0 + np.exp((deg - edge) / 0.3))
+
+    beam = analytic_map(pattern, theta_max_deg=cut + 6.0 - 4.0 * (seed == 2), d_theta_deg=0.1, d_phi_deg=2.0)
+    inten = beam.intensity * (1.0 + rng.normal(0.0, 0.02 + 0.05 * seed, beam.intensity.shape))
+    inten[-40:, 20:60] = np.nan  # a corner of the photo
+    beam = replace(beam, intensity=inten)
+    fast = spill.find_spill_edge(beam, 1.0)
+    monkeypatch.setattr(spill, "_first_steps", lambda *a, **k: {})
+    slow = spill.find_spill_edge(beam, 1.0)
+    assert fast.kind == slow.kind and "cutoff" in fast.kind
+    for a, b in ((fast.theta, slow.theta), (fast.sigma, slow.sigma), (fast.pooled, slow.pooled)):
+        assert np.array_equal(a, b, equal_nan=True)
+
+
+def test_cutoff_points_pick_each_runs_steepest_point_as_one_by_one():
+    # reference: each sector's candidates split into contiguous runs, outermost first, and the
+    # first point of steepest fall of each run (np.argmax), sector by sector
+    from beamshot.spill import _cutoff_points
+
+    rng = np.random.default_rng(5)
+    n_t, k = 400, 5
+    j = np.arange(n_t)
+    smoothed = np.exp(-(j[None, :] / rng.uniform(60, 200, (24, 1))) ** 2)
+    smoothed /= 1.0 + np.exp((j[None, :] - rng.integers(150, 350, (24, 1))) / rng.uniform(0.5, 2.0, (24, 1)))
+    smoothed[5] = np.exp(-(j / 300.0) ** 2) * (0.05 + 0.95 / (1.0 + np.exp((j - 120) / 0.7)))  # two cut-offs:
+    smoothed[5] /= 1.0 + np.exp((j - 300) / 0.7)  # two runs
+    smoothed[6, 200:] = smoothed[6, 199]  # flat ties
+    floors = np.full(24, 1e-6)
+    starts, lasts = np.full(24, 20), np.full(24, n_t)
+    lasts[7] = 250
+    got = _cutoff_points(smoothed, floors, starts, lasts, k)
+    lo = 3 * k
+    jj = j[lo:n_t - k]
+    inner, outer = smoothed[:, jj - k], np.maximum(smoothed[:, jj + k], floors[:, None])
+    before, inner_f = np.maximum(smoothed[:, jj - 3 * k], floors[:, None]), np.maximum(inner, floors[:, None])
+    drop, drop_before = np.log(inner_f / outer), np.log(before / inner_f)
+    ok = (drop >= np.log(3.0)) & (inner >= 3 * floors[:, None]) & (drop >= 4.0 * drop_before)
+    ok &= (jj[None, :] >= starts[:, None]) & (jj[None, :] < lasts[:, None] - k)
+    assert sum(len(p) > 1 for p in got) >= 1 and sum(len(p) == 1 for p in got) >= 10
+    for s in range(24):
+        cand = jj[ok[s]]
+        runs = np.split(cand, np.nonzero(np.diff(cand) > 1)[0] + 1)[::-1] if cand.size else []
+        assert got[s] == [int(r[np.argmax(smoothed[s, r - 1] - smoothed[s, r + 1])]) for r in runs]
