@@ -302,9 +302,10 @@ def test_second_differences_of_all_rows_equal_each_rows_head():
 
 
 def test_iso13694_on_the_lit_rows_equals_the_whole_map():
-    # reference: the measures over every row of the map (cells below the lowest clip are never selected)
+    # reference: the measures over every row of the map (no region reaches below the lowest clip)
+    from beamshot.level_integrals import above_level
     from beamshot.map_noise import NoiseModel
-    from beamshot.shape_iso import N_SUBSETS, _iso13694_once, ae_grid, iso13694
+    from beamshot.shape_iso import EDGE_CLIPS, HOTSPOT_CLIP, N_SUBSETS, _iso13694_of, ae_grid, iso13694
 
     from conftest import analytic_map
 
@@ -313,13 +314,14 @@ def test_iso13694_on_the_lit_rows_equals_the_whole_map():
                         d_phi_deg=2.0)
     beam = replace(beam, intensity=beam.intensity + rng.normal(0.0, 0.01, beam.intensity.shape))
     noise = NoiseModel(1e-4, 1e-3)
-    _, _, area = ae_grid(beam)
     var = noise.sigma(beam.intensity) ** 2
+    t = np.degrees(beam.theta)
+    hot = above_level(beam.intensity, t, beam.d_phi, HOTSPOT_CLIP, var)
+    a_low, a_high = (above_level(beam.intensity, t, beam.d_phi, c).area for c in EDGE_CLIPS)
     n = beam.intensity.shape[1]
     cols = np.arange(n)
-    full = _iso13694_once(beam.intensity, area, 1.0, var, np.ones((1, n), bool))
-    subs = np.array([_iso13694_once(beam.intensity, area, 1.0, var, (cols % N_SUBSETS == k)[None, :])
-                     for k in range(N_SUBSETS)])
+    full = _iso13694_of(hot, a_low, a_high, 1.0, slice(None))
+    subs = np.array([_iso13694_of(hot, a_low, a_high, 1.0, cols % N_SUBSETS == k) for k in range(N_SUBSETS)])
     got = iso13694(beam, 1.0, noise)
     assert (got.flatness, got.uniformity, got.edge_steepness) == tuple(full)
     assert got.flatness_sigma == float(np.nanstd(subs, axis=0, ddof=1)[0] / np.sqrt(N_SUBSETS))
