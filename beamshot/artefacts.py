@@ -452,11 +452,16 @@ def _resolution_changed(beam: BeamMap, pk, noise, res, pixel_deg: float) -> tupl
         return 0.0, 0.0, 0.0
     from .smoothing import gaussian_filter1d
 
-    inten = beam.intensity
+    sigma_rows = FOOTPRINT_RMS_PIXELS * pixel_deg / step
+    # the rows the measures look at (down to the lowest clip level, below 10 % of the peak) and the
+    # blur's reach beyond them; the rest of the map does not enter
+    lit = np.flatnonzero((beam.intensity >= 0.05 * pk.value).any(axis=1))
+    rows = min(beam.intensity.shape[0], (int(lit[-1]) if lit.size else 0) + int(np.ceil(4 * sigma_rows)) + 3)
+    inten = beam.intensity[:rows]
     bad = ~np.isfinite(inten)
-    blurred = gaussian_filter1d(np.where(bad, 0.0, inten), FOOTPRINT_RMS_PIXELS * pixel_deg / step, axis=0,
-                                mode="nearest")
+    blurred = gaussian_filter1d(np.where(bad, 0.0, inten), sigma_rows, axis=0, mode="nearest")
     blurred[bad] = np.nan
+    beam = replace(beam, theta=beam.theta[:rows], intensity=inten, saturated=beam.saturated[:rows])
     i = int(np.clip(np.searchsorted(beam.theta, pk.theta), 0, inten.shape[0] - 1))
     j = int(np.argmin(np.abs(np.angle(np.exp(1j * (beam.phi - pk.phi))))))
     rows = slice(max(i - 2, 0), i + 3)

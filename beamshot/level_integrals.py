@@ -39,13 +39,26 @@ class LevelIntegrals:
 
 def _powers(a: np.ndarray, b: np.ndarray, n: int) -> list[np.ndarray]:
     """``(b^k - a^k) / k`` for k = 1..n: the integrals of s^(k-1) over [a, b]."""
-    return [(b ** k - a ** k) / k for k in range(1, n + 1)]
+    out, pa, pb = [], a, b
+    for k in range(1, n + 1):
+        if k > 1:
+            pa, pb = pa * a, pb * b
+        out.append((pb - pa) / k)
+    return out
 
 
 def above_level(inten: np.ndarray, theta_deg: np.ndarray, d_phi: float, level: float,
-                var: np.ndarray | None = None) -> LevelIntegrals:
+                var: np.ndarray | None = None, *, area_only: bool = False) -> LevelIntegrals:
     """Integrals over ``inten >= level`` of a ``(rows, columns)`` map on polar angles ``theta_deg``
-    (increasing, deg) and equal azimuth steps ``d_phi`` (rad); see the module docstring."""
+    (increasing, deg) and equal azimuth steps ``d_phi`` (rad); see the module docstring.  With
+    ``area_only`` the other integrals are left at zero."""
+    lit = np.flatnonzero((inten >= level).any(axis=1))
+    if not lit.size:
+        zero = np.zeros(inten.shape[1])
+        return LevelIntegrals(zero, zero, zero, zero)
+    rows = min(int(lit[-1]) + 2, inten.shape[0])  # no segment beyond the last lit row and the next one is lit
+    inten, theta_deg = inten[:rows], theta_deg[:rows]
+    var = None if var is None else var[:rows]
     i0, i1 = inten[:-1], inten[1:]
     t0 = np.asarray(theta_deg[:-1], float)[:, None]
     h = np.diff(np.asarray(theta_deg, float))[:, None]
@@ -58,10 +71,15 @@ def above_level(inten: np.ndarray, theta_deg: np.ndarray, d_phi: float, level: f
     b = np.where(up1, 1.0, np.where(up0, cross, 0.0))
     a, b = np.where(ok, np.clip(a, 0.0, 1.0), 0.0), np.where(ok, np.clip(b, 0.0, 1.0), 0.0)
     b = np.maximum(a, b)
+    w = h * d_phi
+    if area_only:
+        s1, s2 = _powers(a, b, 2)
+        area = (w * (t0 * s1 + h * s2)).sum(axis=0)
+        zero = np.zeros_like(area)
+        return LevelIntegrals(area, zero, zero, zero)
     s1, s2, s3, s4 = _powers(a, b, 4)
     p = np.where(ok, i0, 0.0)
     q = np.where(ok, q, 0.0)
-    w = h * d_phi
     area = w * (t0 * s1 + h * s2)
     m1 = w * (p * t0 * s1 + (p * h + q * t0) * s2 + q * h * s3)
     m2 = w * (p * p * t0 * s1 + (p * p * h + 2 * p * q * t0) * s2 + (2 * p * q * h + q * q * t0) * s3

@@ -332,8 +332,8 @@ def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
     tdeg = np.degrees(beam.theta[:rows])
     var = noise.sigma(inten) ** 2 if noise is not None else np.zeros_like(inten)
     hot = above_level(inten, tdeg, beam.d_phi, HOTSPOT_CLIP * e_max, var)
-    a_low = above_level(inten, tdeg, beam.d_phi, EDGE_CLIPS[0] * e_max).area
-    a_high = above_level(inten, tdeg, beam.d_phi, EDGE_CLIPS[1] * e_max).area
+    a_low = above_level(inten, tdeg, beam.d_phi, EDGE_CLIPS[0] * e_max, area_only=True).area
+    a_high = above_level(inten, tdeg, beam.d_phi, EDGE_CLIPS[1] * e_max, area_only=True).area
     cols = np.arange(inten.shape[1])
     full = _iso13694_of(hot, a_low, a_high, e_max, slice(None))
     subs = np.array([_iso13694_of(hot, a_low, a_high, e_max, cols % N_SUBSETS == k) for k in range(N_SUBSETS)])
