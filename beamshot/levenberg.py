@@ -42,6 +42,39 @@ class LeastSquaresFit:
     iterations: int
 
 
+def _bounded_step(A, g, mu, x, scale, lower, upper, free) -> tuple[np.ndarray, bool]:
+    """The damped step ``(A + mu I) h = -g`` over the variables a bound does not hold.  Without
+    bounds, the plain step.  With bounds, of the variables the step would carry past a bound the one
+    that meets its bound first is put on it and held, and the others are solved again with that move
+    given (an active set grown one variable at a time until no free variable leaves the box).
+    Returns the step and whether a bound cut it short (then a short step is no sign of a minimum:
+    a coupled variable may still have room inside the box, which a larger damping lets it take)."""
+    n = x.size
+    if lower is None:
+        return np.linalg.solve(A + mu * np.eye(n), -g), False
+    h = np.zeros(n)
+    cut = False
+    held = free(g) == 0  # held at a bound by the gradient
+    for _ in range(n + 1):
+        fr = ~held
+        if not fr.any():
+            break
+        rhs = -g[fr] - A[fr][:, held] @ h[held]
+        h[fr] = np.linalg.solve(A[fr][:, fr] + mu * np.eye(int(fr.sum())), rhs)
+        target = x + h * scale
+        past = fr & ((target < lower) | (target > upper))
+        if not past.any():
+            break
+        # the variable that meets its bound first along the step is put on it and held
+        with np.errstate(divide="ignore", invalid="ignore"):
+            reach = np.where(past, (np.clip(target, lower, upper) - x) / (target - x), np.inf)
+        i = int(np.argmin(reach))
+        h[i] = (float(np.clip(target[i], lower[i], upper[i])) - x[i]) / scale[i]
+        held[i] = True
+        cut = True
+    return h, cut
+
+
 def levenberg_marquardt(fun: Callable, x0, jac: Callable, *, x_scale=None, gtol: float = 1e-12,
                         xtol: float = 1e-12, max_iterations: int = 500, bounds=None,
                         ftol: float = 0.0) -> LeastSquaresFit:
@@ -69,19 +102,16 @@ def levenberg_marquardt(fun: Callable, x0, jac: Callable, *, x_scale=None, gtol:
     k = 0
     while not converged and k < max_iterations:
         k += 1
-        fr = free(g) != 0 if lower is not None else slice(None)  # variables not held by a bound
-        h = np.zeros_like(x)
         try:
-            h[fr] = np.linalg.solve(A[fr][:, fr] + mu * np.eye(int(np.count_nonzero(fr)) if lower is not None
-                                                             else x.size), -g[fr])
+            h, cut = _bounded_step(A, g, mu, x, scale, lower, upper, free)
         except np.linalg.LinAlgError:
             break
         x_new = x + h * scale
         if lower is not None:
-            x_new = np.clip(x_new, lower, upper)
+            x_new = np.clip(x_new, lower, upper)  # rounding only: the step ends on or inside the box
             h = (x_new - x) / scale
         u = x / scale
-        if np.linalg.norm(h) <= xtol * (np.linalg.norm(u) + xtol):
+        if not cut and np.linalg.norm(h) <= xtol * (np.linalg.norm(u) + xtol):
             converged = True
             break
         r_new = np.asarray(fun(x_new), float)

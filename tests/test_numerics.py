@@ -163,6 +163,23 @@ def test_bounded_levenberg_marquardt_stops_on_the_bound_scipy_finds():
     np.testing.assert_allclose(ours.x, ref.x, rtol=1e-7)
 
 
+def test_bounded_levenberg_marquardt_does_not_stop_where_a_coupled_variable_has_room():
+    # a strongly coupled quadratic 1/2 |M x - c|^2 in the box x >= 10, started on the bound: the
+    # first variable's gradient points into the box, the second's out of it; the unbounded step
+    # would carry both out, and cutting it at the bounds gives a zero step that is no minimum.
+    # The minimum is SciPy's bounded least_squares' (the reference implementation).
+    a = np.array([[1.0, -0.99], [-0.99, 1.0]])
+    m = np.linalg.cholesky(a).T
+    x0 = np.array([10.0, 10.0 + 1e-12])
+    c = np.linalg.solve(m.T, m.T @ m @ x0 - np.array([-0.1, 1.0]))
+    lo, hi = [10.0, 10.0], [np.inf, np.inf]
+    ours = levenberg_marquardt(lambda x: m @ x - c, x0, lambda x: m, bounds=(lo, hi), ftol=1e-15)
+    ref = optimize.least_squares(lambda x: m @ x - c, x0, jac=lambda x: m, bounds=(lo, hi), xtol=1e-15,
+                                 ftol=1e-15, gtol=1e-15)
+    assert ours.converged
+    np.testing.assert_allclose(ours.x, ref.x, atol=1e-9)
+
+
 @pytest.mark.parametrize("amp, mu, fwhm", [(0.3, 0.2, 1.0), (-0.15, -0.3, 0.6), (0.05, 0.0, 2.0)])
 def test_ring_fit_finds_the_minimum_of_the_full_model(amp, mu, fwhm):
     # a log-parabola hotspot (a Gaussian profile) times a Gaussian ring, with noise: the separable
