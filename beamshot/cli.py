@@ -387,18 +387,19 @@ def analyze(ctx, photos, distance_m, distance_u, ambient, flat, lux, lux_at, lux
     try:
         from .analysis import analyze as run
         from .report.output import write_report
-
-        report = run(beam if len(beam) > 1 else beam[0], distance_m=distance_m,
-                     distance_uncertainty_m=None if _defaulted(ctx, "distance_u") else distance_u,
-                     ambient=ambient, flat=flat, lux_at_peak=lux, lux_meter_accuracy=meter_u,
-                     reflectance=None if _defaulted(ctx, "reflectance") else reflectance,
-                     use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
-                     camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
-                     camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
-                     target_scale=target_scale, assume_square=assume_square, light_name=light_name,
-                     **({"colour": True} if colour else {}), **kw)
-    finally:
-        ahead.settle()  # before anything is printed: the decoder's stderr capture has ended
+    except BaseException:
+        ahead.settle(interrupted=True)
+        raise
+    ahead.settle()  # before anything else runs or prints: the decoder's stderr capture has ended
+    report = run(beam if len(beam) > 1 else beam[0], distance_m=distance_m,
+                 distance_uncertainty_m=None if _defaulted(ctx, "distance_u") else distance_u,
+                 ambient=ambient, flat=flat, lux_at_peak=lux, lux_meter_accuracy=meter_u,
+                 reflectance=None if _defaulted(ctx, "reflectance") else reflectance,
+                 use_exif_scale=not no_exif_scale, focal_35mm=focal_35mm, hfov_deg=hfov,
+                 camera_distance_m=camera_distance, response=response, head_diameter_mm=head_mm,
+                 camera=camera, dark=dark, geometry=geometry, wall_points=wall_points,
+                 target_scale=target_scale, assume_square=assume_square, light_name=light_name,
+                 **({"colour": True} if colour else {}), **kw)
     if spec is not None:
         from dataclasses import replace
 

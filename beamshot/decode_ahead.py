@@ -10,9 +10,15 @@ path or a :class:`~beamshot.photo.Photo` is taken (beamshot.prepare.load_input):
 gives the Photo, or raises the same BeamshotError the load would have raised, at the point the
 analysis would have loaded it, so the order of errors does not change.
 
-While the decoder runs, file descriptor 2 is redirected to catch the decoder's own messages
-(beamshot.photo._decoder_messages); :meth:`DecodeAhead.settle` waits for the worker, and the
-command calls it before it prints anything, so that no line of ours lands in that capture.
+While the decoder runs, file descriptor 2 of the whole process is redirected to catch the
+decoder's own messages (beamshot.photo._decoder_messages), so anything written to stderr by the
+other thread meanwhile would be lost: the command calls :meth:`DecodeAhead.settle` right after the
+imports (the work the decode overlaps), before the analysis runs and anything is printed.  On an
+interruption (Ctrl-C) the photos not yet begun are dropped and only the one decoding is waited
+for, through a second Ctrl-C too: leaving the interpreter while OpenCV decodes on the worker
+aborts the process.  The worker may import a decoder's own modules lazily (rawpy, Pillow's
+plugins) while the main thread imports beamshot's; Python's per-module import locks keep that
+safe.
 """
 
 from __future__ import annotations
@@ -47,9 +53,19 @@ class DecodeAhead:
         self.pending = [PendingPhoto(p, self._pool.submit(load_photo, p)) for p in paths]
         self._pool.shutdown(wait=False)
 
-    def settle(self) -> None:
-        """Wait until every load has ended (with a photo or an error); errors stay in the pending photos."""
-        self._pool.shutdown(wait=True)
+    def settle(self, *, interrupted: bool = False) -> None:
+        """Wait until every load has ended (with a photo or an error); errors stay in the pending
+        photos.  ``interrupted``: drop the loads not yet begun.  The running load is waited for
+        even through KeyboardInterrupts; one that came during the wait is raised after it."""
+        caught = None
+        while True:
+            try:
+                self._pool.shutdown(wait=True, cancel_futures=interrupted)
+                break
+            except KeyboardInterrupt as exc:
+                interrupted, caught = True, exc
+        if caught is not None:
+            raise caught
 
 
 def decode_ahead(*groups):

@@ -65,3 +65,25 @@ def test_the_command_line_still_refuses_a_damaged_jpeg_in_one_line(tmp_path):
     assert out.returncode == 2
     lines = out.stderr.strip().splitlines()
     assert len(lines) == 1 and "damaged" in lines[0] and "Corrupt" in lines[0]
+
+
+def test_an_interrupted_command_drops_the_photos_not_yet_begun(tmp_path):
+    # Ctrl-C: the command waits only for the photo being decoded, the others are cancelled
+    from concurrent.futures import CancelledError
+
+    pixels = np.random.default_rng(9).integers(0, 255, (1500, 2000, 3), dtype=np.uint8)
+    data = encode_jpeg(pixels, SynthCamera(width_px=2000, height_px=1500))
+    paths = []
+    for k in range(6):  # each takes tens of milliseconds to decode: far longer than settling takes
+        (tmp_path / f"{k}.jpg").write_bytes(data)
+        paths.append(str(tmp_path / f"{k}.jpg"))
+    ahead, (beam,) = decode_ahead(paths)
+    ahead.settle(interrupted=True)
+    done, dropped = 0, 0
+    for pending in beam:
+        try:
+            pending.result()
+            done += 1
+        except CancelledError:
+            dropped += 1
+    assert done + dropped == 6 and dropped >= 1
