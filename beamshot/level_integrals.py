@@ -13,9 +13,16 @@ azimuthal-equidistant plane the area element is ``theta dtheta dphi``, so for a 
 polynomials in ``s`` (below); a disc of radius ``R`` fully above the level has the area
 ``pi R^2`` exactly.
 
+When the first row is not on the axis (maps sample rows at ``(k + 1/2) dtheta``), a row on the
+axis is put before it, holding the mean of the first row over the azimuths (the value a smooth
+map takes there), so that the disc about the axis is counted too.
+
 Returned per column (summed over rows), in deg^2 (theta in degrees, phi in radians): the area,
-``int I dA``, ``int I^2 dA`` and ``int v dA`` for a second map ``v`` (a noise variance), each
-linear between rows like ``I``.  Segments with a NaN end (outside the photo) are left out.
+``int I dA``, ``int I^2 dA`` and ``int v dA`` for a map ``v`` of the cells' noise variance.  Between
+rows the map is ``(1 - s) I0 + s I1``; with independent noise in the two rows its noise variance
+there is ``(1 - s)^2 v0 + s^2 v1`` (variance of a weighted sum), which ``int v dA`` integrates, so
+that it is the noise share of ``int I^2 dA``.  Segments with a NaN end (outside the photo) are left
+out.
 """
 
 from __future__ import annotations
@@ -32,9 +39,9 @@ class LevelIntegrals:
     """Per-column integrals over the region at or above the level (arrays of the map's columns)."""
 
     area: np.ndarray
-    i1: np.ndarray
-    i2: np.ndarray
-    v1: np.ndarray
+    sum_i: np.ndarray
+    sum_i2: np.ndarray
+    sum_var: np.ndarray
 
 
 def _powers(a: np.ndarray, b: np.ndarray, n: int) -> list[np.ndarray]:
@@ -52,6 +59,15 @@ def above_level(inten: np.ndarray, theta_deg: np.ndarray, d_phi: float, level: f
     """Integrals over ``inten >= level`` of a ``(rows, columns)`` map on polar angles ``theta_deg``
     (increasing, deg) and equal azimuth steps ``d_phi`` (rad); see the module docstring.  With
     ``area_only`` the other integrals are left at zero."""
+    theta_deg = np.asarray(theta_deg, float)
+    if theta_deg.size and theta_deg[0] > 0:  # the axis row (module docstring)
+        with np.errstate(invalid="ignore"):
+            axis = np.nanmean(inten[:1], axis=1) if np.isfinite(inten[0]).any() else np.full(1, np.nan)
+        inten = np.vstack([np.repeat(axis[:, None], inten.shape[1], axis=1), inten])
+        theta_deg = np.r_[0.0, theta_deg]
+        if var is not None:  # the mean of n cells: variance / n
+            n = max(int(np.isfinite(var[0]).sum()), 1)
+            var = np.vstack([np.full((1, var.shape[1]), np.nansum(var[0]) / n / n), var])
     lit = np.flatnonzero((inten >= level).any(axis=1))
     if not lit.size:
         zero = np.zeros(inten.shape[1])
@@ -86,8 +102,8 @@ def above_level(inten: np.ndarray, theta_deg: np.ndarray, d_phi: float, level: f
               + q * q * h * s4)
     if var is None:
         v = np.zeros_like(area)
-    else:
+    else:  # (1 - s)^2 v0 + s^2 v1 = v0 - 2 v0 s + (v0 + v1) s^2, times theta = t0 + h s
         v0 = np.where(ok, var[:-1], 0.0)
-        dv = np.where(ok, var[1:] - var[:-1], 0.0)
-        v = w * (v0 * t0 * s1 + (v0 * h + dv * t0) * s2 + dv * h * s3)
+        c2 = v0 + np.where(ok, var[1:], 0.0)
+        v = w * (v0 * t0 * s1 + (v0 * h - 2 * v0 * t0) * s2 + (c2 * t0 - 2 * v0 * h) * s3 + c2 * h * s4)
     return LevelIntegrals(area.sum(axis=0), m1.sum(axis=0), m2.sum(axis=0), v.sum(axis=0))

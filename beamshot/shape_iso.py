@@ -301,9 +301,9 @@ def _iso13694_of(hot, a_low, a_high, e_max, cols):
     area = float(hot.area[cols].sum())
     if area <= 0:
         return np.nan, np.nan, np.nan
-    mean = float(hot.i1[cols].sum()) / area
-    var_i = float(hot.i2[cols].sum()) / area - mean * mean
-    noise_var = float(hot.v1[cols].sum()) / area
+    mean = float(hot.sum_i[cols].sum()) / area
+    var_i = float(hot.sum_i2[cols].sum()) / area - mean * mean
+    noise_var = float(hot.sum_var[cols].sum()) / area
     flat = mean / e_max
     unif = float(np.sqrt(max(var_i - noise_var, 0.0)) / mean)
     low, high = float(a_low[cols].sum()), float(a_high[cols].sum())
