@@ -220,21 +220,32 @@ def _lock(parent: str, key: str, out_dir: str):
         fcntl = None
     while True:
         if fcntl is not None:
-            fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+            # SIGTERM and SIGINT wait while the file is made and locked, until the block that removes
+            # it is entered: a run stopped in between left the lock file behind
+            _mask_signals(True)
+            held = False
             try:
-                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-            except BlockingIOError:
-                os.close(fd)
-            else:
+                fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
                 try:
-                    same = os.path.samestat(os.fstat(fd), os.stat(path))
-                except FileNotFoundError:
-                    same = False
-                if same:  # not a file the previous holder removed while we waited
-                    os.write(fd, f"{os.getpid()}\n".encode())
-                    break
-                os.close(fd)
-                continue
+                    fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                except BlockingIOError:
+                    os.close(fd)
+                else:
+                    try:
+                        same = os.path.samestat(os.fstat(fd), os.stat(path))
+                    except FileNotFoundError:
+                        same = False
+                    if same:  # not a file the previous holder removed while we waited
+                        os.write(fd, f"{os.getpid()}\n".encode())
+                        held = True
+                    else:
+                        os.close(fd)
+                        continue
+            finally:
+                if not held:
+                    _mask_signals(False)
+            if held:
+                break
         else:  # pragma: no cover - not POSIX
             try:
                 fd = os.open(path, os.O_RDWR | os.O_CREAT | os.O_EXCL, 0o644)
@@ -250,6 +261,7 @@ def _lock(parent: str, key: str, out_dir: str):
                                 "wait for it to finish or choose another --out")
         time.sleep(0.05)
     try:
+        _mask_signals(False)  # (held since the lock was taken, on POSIX)
         yield
     finally:
         with contextlib.suppress(OSError):
