@@ -441,8 +441,13 @@ def _peak_changed(beam: BeamMap, pk, noise, res) -> tuple[float, float, float]:
     divided by it."""
     if not pk.rel_noise > 0:
         return 0.0, 0.0, 0.0
-    b = iso13694(beam, pk.value * (1.0 + pk.rel_noise), noise)
-    deltas = (b.flatness - res.flatness, b.uniformity - res.uniformity, b.edge_steepness - res.edge_steepness)
+    return _iso_change(iso13694(beam, pk.value * (1.0 + pk.rel_noise), noise), res)
+
+
+def _iso_change(moved, res) -> tuple[float, float, float]:
+    """Absolute changes of flatness, uniformity and edge steepness from ``res`` to ``moved`` (0 if unknown)."""
+    deltas = (moved.flatness - res.flatness, moved.uniformity - res.uniformity,
+              moved.edge_steepness - res.edge_steepness)
     return tuple(float(abs(d)) if np.isfinite(d) else 0.0 for d in deltas)
 
 
@@ -489,9 +494,7 @@ def _resolution_changed(beam: BeamMap, pk, noise, res, pixel_deg: float) -> tupl
         ratio = float(np.nansum(blurred[rows][:, cols]) / np.nansum(inten[rows][:, cols]))
     if not np.isfinite(ratio) or ratio <= 0:
         return 0.0, 0.0, 0.0
-    b = iso13694(replace(beam, intensity=blurred), pk.value * ratio, noise)
-    deltas = (b.flatness - res.flatness, b.uniformity - res.uniformity, b.edge_steepness - res.edge_steepness)
-    return tuple(float(abs(d)) if np.isfinite(d) else 0.0 for d in deltas)
+    return _iso_change(iso13694(replace(beam, intensity=blurred), pk.value * ratio, noise), res)
 
 
 def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:

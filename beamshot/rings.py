@@ -170,8 +170,17 @@ def _fit_ring(t, lp, s, guess_mu, smooth_at, step, degree=POLY_DEGREE):
     def off_basis(v):  # (I - Q Q^T) v
         return v - qbasis @ (qbasis.T @ v)
 
-    fit = levenberg_marquardt(lambda th: off_basis(_ring_log(th, tc)[0] * wt - target),
-                              theta0, lambda th: off_basis(_ring_log(th, tc)[1] * wt[:, None]),
+    last: dict = {}
+
+    def ring_at(th):  # the fit asks for residuals and Jacobian at the same point: computed once
+        key = tuple(th)
+        if key not in last:
+            last.clear()
+            last[key] = _ring_log(th, tc)
+        return last[key]
+
+    fit = levenberg_marquardt(lambda th: off_basis(ring_at(th)[0] * wt - target),
+                              theta0, lambda th: off_basis(ring_at(th)[1] * wt[:, None]),
                               bounds=([-0.95, -1.0, lo_w], [10.0, 1.0, hi_w]), gtol=0.0, xtol=1e-10, ftol=1e-12)
     if not fit.converged or not np.all(np.isfinite(fit.x)):
         return None

@@ -120,10 +120,10 @@ def test_three_class_otsu_on_three_spikes_and_too_few_values():
         three_class_thresholds(np.r_[np.zeros(5), np.ones(5)])
 
 
-def test_levenberg_marquardt_finds_scipys_minimum():
-    # the exponential-decay fit y = a exp(-b t) + c (a textbook non-linear least-squares case),
-    # against SciPy's MINPACK Levenberg-Marquardt
-    rng = np.random.default_rng(3)
+def _decay_fit(seed: int):
+    """Residuals and Jacobian of the exponential-decay fit y = a exp(-b t) + c to noisy samples (a
+    textbook non-linear least-squares case)."""
+    rng = np.random.default_rng(seed)
     t = np.linspace(0, 4, 60)
     y = 2.5 * np.exp(-1.3 * t) + 0.5 + rng.normal(0, 0.02, t.size)
 
@@ -134,6 +134,12 @@ def test_levenberg_marquardt_finds_scipys_minimum():
         e = np.exp(-q[1] * t)
         return np.c_[e, -q[0] * t * e, np.ones_like(t)]
 
+    return fun, jac
+
+
+def test_levenberg_marquardt_finds_scipys_minimum():
+    # the decay fit against SciPy's MINPACK Levenberg-Marquardt
+    fun, jac = _decay_fit(3)
     ours = levenberg_marquardt(fun, [1.0, 0.5, 0.0], jac)
     ref = optimize.least_squares(fun, [1.0, 0.5, 0.0], jac=jac, method="lm", xtol=1e-14, ftol=1e-14, gtol=1e-14)
     assert ours.converged
@@ -144,17 +150,7 @@ def test_levenberg_marquardt_finds_scipys_minimum():
 def test_bounded_levenberg_marquardt_stops_on_the_bound_scipy_finds():
     # the same decay fit with the rate held below its free optimum: SciPy's bounded trust-region
     # fit ends on the bound, and so must ours (the gradient pushes against it)
-    rng = np.random.default_rng(4)
-    t = np.linspace(0, 4, 60)
-    y = 2.5 * np.exp(-1.3 * t) + 0.5 + rng.normal(0, 0.02, t.size)
-
-    def fun(q):
-        return q[0] * np.exp(-q[1] * t) + q[2] - y
-
-    def jac(q):
-        e = np.exp(-q[1] * t)
-        return np.c_[e, -q[0] * t * e, np.ones_like(t)]
-
+    fun, jac = _decay_fit(4)
     lo, hi = [-np.inf, 0.0, -np.inf], [np.inf, 1.0, np.inf]
     ours = levenberg_marquardt(fun, [1.0, 0.5, 0.0], jac, bounds=(lo, hi), ftol=1e-15)
     ref = optimize.least_squares(fun, [1.0, 0.5, 0.0], jac=jac, bounds=(lo, hi), xtol=1e-15, ftol=1e-15,
