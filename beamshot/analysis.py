@@ -418,7 +418,8 @@ def shape_of(req: Request, linear: Linear, mapped: Mapped, measured: "_Measured"
     shape = shape_figures(measured.beam, measured.shape, pixel_deg=unc.pixel_deg, scale_u=mapped.f_u,
                           correlation_deg=block, tone_eps=ratio_delta / np.log(RATIO_SPAN),
                           tone_assumed=getattr(unc, "ratio_source", "") == "assumed",
-                          bent=getattr(getattr(unc, "budget", None), "tone_bent", None)).figures
+                          bent=getattr(getattr(unc, "budget", None), "tone_bent", None),
+                          coding_rel=_coding_rel(linear, measured)).figures
     # a homography (points or a target) may scale its two axes differently; a pinhole scales both alike
     anisotropy = mapped.f_u if mapped.f_px is None else 0.0
     return with_known_limits(with_mapping_anisotropy(with_shared_terms(shape, figures or {}), anisotropy))
@@ -829,6 +830,38 @@ def _shading_plan(prep, flat_note) -> dict:
 
 #: JPEG codes 8x8 blocks of luma (ITU-T T.81, sec. A.2): errors are correlated within a block.
 JPEG_BLOCK_PX = 8
+
+
+def _coding_rel(linear: Linear, measured: "_Measured") -> np.ndarray | None:
+    """Per row of the measured map, the relative 1-sigma of the concentric error a JPEG's coding
+    leaves in an azimuthal mean (beamshot/jpeg_coding.py), at the photo's level on that row; None
+    unless the beam photo is one 8-bit JPEG (a bracket's merge takes each level from frames coded
+    at other codes, mostly brighter ones, where the error is smaller: not counted).  The level is the
+    working image's, with the ambient taken off and divided by a flat: the code is about the photo's."""
+    from ._quiet import quiet_nan
+    from .beammap import sampled_image
+    from .jpeg_coding import coding_rms_codes, concentric_sigma_rel, is_jpeg
+    from .smoothing import gaussian_filter1d
+
+    photos = linear.prep.beam_photos
+    if len(photos) != 1 or not is_jpeg(photos[0]) or photos[0].max_code != 255:
+        return None
+    img = measured.image
+    where = (img, measured.mapping, measured.foot_mm, measured.distance_m)
+    lum = sampled_image(img.luminance, *where, axis_dir=measured.axis_dir)
+    colour = img.rgb_counts if img.rgb_counts is not None else img.rgb_values
+    rgb = sampled_image(colour, *where, axis_dir=measured.axis_dir).astype(np.float64)
+    inside = np.isfinite(lum)
+    with quiet_nan():
+        level = np.nanmean(lum, axis=1)
+        red, blue = (np.sum(rgb[..., c] * inside, axis=1) for c in (0, 2))
+        # the colour's change along the profile, where the light is at least 5 % of the brightest row
+        # (dimmer rows' ratios are noise), smoothed over 1 deg of rows
+        lit = np.isfinite(level) & (level >= 0.05 * np.nanmax(level)) & (red > 0) & (blue > 0)
+    ratio = np.log(red[lit] / blue[lit]) if lit.sum() >= 3 else np.zeros(1)
+    ratio = gaussian_filter1d(ratio, max(1.0, 0.5 / np.degrees(measured.beam.d_theta)), mode="nearest")
+    sigma_codes = coding_rms_codes(float(np.ptp(ratio)))
+    return concentric_sigma_rel(level, linear.prep.resp, sigma_codes=sigma_codes)
 
 
 def _block_deg(pixel_deg: float, image: LinearImage, photos) -> float:

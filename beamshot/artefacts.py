@@ -244,7 +244,7 @@ def with_mapping_anisotropy(shape: dict, anisotropy: float) -> dict:
 
 def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: float = 0.0,
                   correlation_deg: float = 0.0, tone_eps: float = 0.0, tone_assumed: bool = False,
-                  seed: int = 0, bent=None) -> ShapeResult:
+                  seed: int = 0, bent=None, coding_rel: np.ndarray | None = None) -> ShapeResult:
     """Every shape figure of a measured beam (``shape``: :class:`beamshot.measure.BeamShape`).
 
     ``pixel_deg`` is the angular size of a working pixel (for the noise of means), ``scale_u`` the
@@ -256,8 +256,10 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
     figure whose variance is mostly that term is an ``estimate``.  ``bent`` may hold that bent map
     and its shape already measured (:class:`beamshot.uncertainty.ToneBent`, from the uncertainty
     budget's tone term); it is used only if it is the bend of this ``beam`` by ``tone_eps``.
+    ``coding_rel``: per map row, the relative 1-sigma of the photo's concentric coding error (a
+    JPEG's, beamshot.jpeg_coding), counted in the rings' amplitudes (:func:`beamshot.rings.find_rings`).
     """
-    result = _shape_once(beam, shape, pixel_deg, scale_u, correlation_deg, seed)
+    result = _shape_once(beam, shape, pixel_deg, scale_u, correlation_deg, seed, coding_rel=coding_rel)
     if not tone_eps:
         return result
     from .measure import measure_shape
@@ -293,7 +295,7 @@ def shape_figures(beam: BeamMap, shape, *, pixel_deg: float = 0.0, scale_u: floa
 
 
 def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlation_deg: float,
-                seed: int, with_rings: bool = True) -> ShapeResult:
+                seed: int, with_rings: bool = True, coding_rel: np.ndarray | None = None) -> ShapeResult:
     """:func:`shape_figures` without the tone-curve term (and without the rings if not ``with_rings``)."""
     rng = np.random.default_rng(seed)
     figs: dict[str, Figure] = {}
@@ -358,7 +360,8 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     rings: tuple = ()
     if with_rings:
         search = find_rings(beam, noise, outer_deg=edge_deg, pixel_deg=pixel_deg,
-                            exclude_below_deg=figs["centre_hole_width"].value or 0.0, correlation_deg=correlation_deg)
+                            exclude_below_deg=figs["centre_hole_width"].value or 0.0, correlation_deg=correlation_deg,
+                            coding_rel=coding_rel)
         _ring_figures(figs, search, clipped_reason, scale_u)
         rings = search.rings
     spill_from = (float(np.hypot(*mom.centroid)) + mom.radius if mom is not None and not mom.reason else
@@ -516,7 +519,8 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
     searched = (f"searched from {search.searched_deg[0]:.1f} to {search.searched_deg[1]:.1f} deg from the axis, "
                 f"rings up to {MAX_FWHM_DEG:g} deg wide (wider ones are part of the smooth profile, not seen)")
     if best is None:
-        why = f"no ring distinguishable from noise ({searched})"
+        why = (f"no ring distinguishable from noise and the JPEG's coding errors ({searched})" if search.coding else
+               f"no ring distinguishable from noise ({searched})")
         figs["ring_score"] = Figure(search.limit, None, "", method + "; ring score: the largest |amplitude| of a ring; "
                                     "with none found, the amplitude a 1 deg wide ring would need to be found (a ring "
                                     f"wider than {MAX_FWHM_DEG:g} deg is not searched for)",
@@ -525,17 +529,19 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
         for key, unit in (("ring_angle", "deg"), ("ring_amplitude", ""), ("ring_width", "deg")):
             figs[key] = not_measured(unit, method, why)
         return
-    figs["ring_score"] = Figure(abs(best.amplitude), best.amplitude_sigma, "",
+    amplitude_budget = (("pixel noise", best.amplitude_sigma),) + ((("JPEG coding", best.coding_sigma),)
+                                                                     if best.coding_sigma else ())
+    figs["ring_score"] = Figure(abs(best.amplitude), best.total_sigma, "",
                                 method + "; ring score: the largest |amplitude| of a ring relative to the smooth "
-                                "profile")
+                                "profile", budget=amplitude_budget)
     figs["ring_count"] = Figure(float(len(search.rings)), 0.0, "", method + f"; {searched}")
     su_a, su_w = scale_u * best.angle_deg, scale_u * best.width_deg
     figs["ring_angle"] = Figure(best.angle_deg, float(np.hypot(best.angle_sigma, su_a)), "deg",
                                 method + "; the strongest ring's angle from the beam axis",
                                 budget=(("pixel noise", best.angle_sigma), ("wall scale", su_a)))
-    figs["ring_amplitude"] = Figure(best.amplitude, best.amplitude_sigma, "",
+    figs["ring_amplitude"] = Figure(best.amplitude, best.total_sigma, "",
                                     method + "; the strongest ring's amplitude "
-                                    "relative to the smooth profile (+ bright, - dark)")
+                                    "relative to the smooth profile (+ bright, - dark)", budget=amplitude_budget)
     figs["ring_width"] = Figure(best.width_deg, float(np.hypot(best.width_sigma, su_w)), "deg",
                                 method + "; the strongest ring's full width at half maximum",
                                 budget=(("pixel noise", best.width_sigma), ("wall scale", su_w)))

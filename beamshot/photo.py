@@ -114,6 +114,10 @@ class Photo:
     #: 0xA403), and for raw files ``camera_matrix`` (True if LibRaw has a camera-to-XYZ matrix for the file:
     #: its own, e.g. a DNG's ColorMatrix, or LibRaw's table for the camera; then its camera -> sRGB is not zero).
     colour_facts: dict = field(default_factory=dict, compare=False)
+    #: The file's image format as Pillow names it ("JPEG", "PNG", "TIFF", "MPO"), "raw" for a raw
+    #: file, "" if not known (a photo made in memory).  JPEG's lossy coding leaves concentric errors
+    #: in an azimuthal mean (beamshot.jpeg_coding).
+    file_format: str = ""
 
     @property
     def pixels(self) -> np.ndarray:
@@ -385,7 +389,8 @@ def decode_raw(data: bytes, name: str = "<memory>", *, max_megapixels: float | N
     exif, notes = _plausible(exif, stored)
     return Photo(bgr=np.ascontiguousarray(rgb[..., ::-1]), exif=exif, name=name,
                  sha256=hashlib.sha256(data).hexdigest(), max_code=65535, linear=True, notes=notes,
-                 colour_facts={"white_balance": _white_balance_word(stored), "camera_matrix": has_matrix})
+                 colour_facts={"white_balance": _white_balance_word(stored), "camera_matrix": has_matrix},
+                 file_format="raw")
 
 
 def _jpeg_has_end(data: bytes) -> bool:
@@ -499,6 +504,7 @@ def decode_photo(data: bytes, name: str = "<memory>", *, max_megapixels: float |
         max_code=max_code,
         notes=notes,
         colour_facts={"white_balance": _white_balance_word(raw)},
+        file_format=fmt,
     )
 
 

@@ -31,11 +31,18 @@ Method (this project's, built from textbook pieces):
 the smooth profile (0.05: no ring deviates by more than 5 % from the smooth profile).  When no ring
 is found, it is an upper bound: the amplitude a 1 deg wide ring would need to be found here
 (``RING_SIGNIFICANCE`` times its amplitude noise).
+
+A JPEG's coding leaves errors the same all around the axis (beamshot.jpeg_coding), which the
+azimuthal mean does not average out and the sector scatter does not see: their relative 1-sigma at
+the ring's level is added in quadrature to each ring's amplitude noise, and a ring must be deeper
+than ``hypot(RING_SIGNIFICANCE sigma_fit, CODING_SIGNIFICANCE sigma_coding)`` (so must the
+detection limit).  Without it, a warm spill round a cool hotspot coded at quality 90 gave a "dark
+ring" of -1.5 % at 7 sigma that the beam does not have.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -45,7 +52,7 @@ from .map_noise import NoiseModel
 from .savgol import savgol
 from .smoothing import gaussian_filter1d
 
-__all__ = ["Ring", "RingSearch", "find_rings", "RING_SIGNIFICANCE"]
+__all__ = ["Ring", "RingSearch", "find_rings", "RING_SIGNIFICANCE", "CODING_SIGNIFICANCE"]
 
 #: Width of the smoothing window for the smooth profile, degrees (project choice: wider than a ring).
 SMOOTH_WINDOW_DEG = 3.0
@@ -68,6 +75,10 @@ ROBUST_FRACTION = 0.25
 CANDIDATE_Z = 4.0
 #: Significance a ring needs to be reported (amplitude over its 1-sigma; see the module docstring).
 RING_SIGNIFICANCE = 6.0
+#: A ring must also be deeper than this many times the RMS of the photo's concentric coding error
+#: (beamshot.jpeg_coding): the largest coding error measured was 1.9 times the RMS used there, and
+#: a coding error is one per photo, not one of many noisy candidates (project choice).
+CODING_SIGNIFICANCE = 3.0
 #: Rings closer to the axis than this are not searched (a centre feature; project choice), degrees.
 MIN_RING_DEG = 0.5
 #: Azimuth sectors whose mean profiles give the profile's noise.
@@ -86,7 +97,9 @@ _FWHM = 2.0 * np.sqrt(2.0 * np.log(2.0))
 @dataclass(frozen=True)
 class Ring:
     """One ring: location, amplitude relative to the smooth profile (signed), width (FWHM), each
-    with its 1-sigma, and the significance ``|amplitude| / amplitude_sigma``."""
+    with its 1-sigma from the fit (the profile's noise), the amplitude's 1-sigma from the JPEG's
+    concentric coding errors (``coding_sigma``, beamshot.jpeg_coding; 0 for other files), and the
+    significance ``|amplitude| / total_sigma``."""
 
     angle_deg: float
     angle_sigma: float
@@ -94,10 +107,20 @@ class Ring:
     amplitude_sigma: float
     width_deg: float
     width_sigma: float
+    coding_sigma: float = 0.0
+
+    @property
+    def total_sigma(self) -> float:
+        """The amplitude's 1-sigma: the fit's and the coding's, added in quadrature."""
+        return float(np.hypot(self.amplitude_sigma, self.coding_sigma))
 
     @property
     def significance(self) -> float:
-        return abs(self.amplitude) / self.amplitude_sigma if self.amplitude_sigma > 0 else float("inf")
+        """``|a|`` over the scale the detection test uses: the fit's 1-sigma, and the coding's taken
+        ``RING_SIGNIFICANCE / CODING_SIGNIFICANCE`` times less strictly (so that a ring must exceed
+        ``hypot(6 sigma_fit, 3 sigma_coding)``)."""
+        scale = float(np.hypot(self.amplitude_sigma, self.coding_sigma * CODING_SIGNIFICANCE / RING_SIGNIFICANCE))
+        return abs(self.amplitude) / scale if scale > 0 else float("inf")
 
     @property
     def kind(self) -> str:
@@ -112,6 +135,9 @@ class RingSearch:
     limit: float
     searched_deg: tuple[float, float]
     reason: str | None = None
+    #: The median relative 1-sigma of the photo's concentric coding error over the rows searched
+    #: (part of ``limit``; 0 when the photo has none, e.g. a raw or 16-bit photo).
+    coding: float = 0.0
 
     @property
     def strongest(self) -> Ring | None:
@@ -241,13 +267,20 @@ def profile_noise(inten: np.ndarray, step_deg: float, pixel_deg: float = 0.0) ->
 
 
 def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: float | None, pixel_deg: float = 0.0,
-               exclude_below_deg: float = 0.0, correlation_deg: float = 0.0) -> RingSearch:
+               exclude_below_deg: float = 0.0, correlation_deg: float = 0.0,
+               coding_rel: np.ndarray | None = None) -> RingSearch:
     """Rings of the azimuthal-mean profile out to ``outer_deg`` (the spill edge's nearest point;
     None: as far as the photo covers half the azimuths).  ``exclude_below_deg``: rings centred
     closer to the axis belong to a centre hole (beamshot.artefacts) and are not reported.
     ``correlation_deg``: the angle over which the photo's errors are correlated (a JPEG block):
     closer to the axis than where the noise sectors are ``NOISE_SECTORS`` such lengths around,
     the sectors share their errors and the noise cannot be measured, so no ring is searched there.
+
+    ``coding_rel``: per row of the map, the relative 1-sigma of an error the same all around the
+    axis that the photo's coding leaves (a JPEG's, beamshot.jpeg_coding); the azimuthal mean does
+    not average it out, so it adds to each ring's amplitude noise, ``(1 + a)`` times its value at
+    the ring, and to the detection limit, at ``CODING_SIGNIFICANCE`` (None: no such error, e.g. a
+    raw or 16-bit photo).
 
     Rings are taken one at a time, strongest first, each fitted ring subtracted from the profile
     before the next search (so that a ring's own shoulders are not taken for rings).
@@ -304,6 +337,8 @@ def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: flo
         if fit is None:
             continue
         ring, params = fit
+        if coding_rel is not None:
+            ring = replace(ring, coding_sigma=float((1.0 + ring.amplitude) * np.interp(ring.angle_deg, tdeg, coding_rel)))
         if ring.significance < RING_SIGNIFICANCE or ring.angle_deg < max(inner, ring.width_deg):
             continue
         if ring.angle_deg > t[-1]:
@@ -325,6 +360,10 @@ def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: flo
     rel = sp
     use = t >= max(1.0, inner)
     w_samples = LIMIT_FWHM_DEG / _FWHM / step
-    limit = float(RING_SIGNIFICANCE * 1.5 * np.median(rel[use] if use.any() else rel)
-                  / np.sqrt(np.sqrt(np.pi) * w_samples))
-    return RingSearch(tuple(sorted(rings, key=lambda r: r.angle_deg)), limit, (float(inner), float(t[-1])))
+    noise_limit = 1.5 * np.median(rel[use] if use.any() else rel) / np.sqrt(np.sqrt(np.pi) * w_samples)
+    coding = 0.0
+    if coding_rel is not None:
+        coding = float(np.nanmedian(np.asarray(coding_rel[:end])[use] if use.any() else coding_rel[:end]))
+    limit = float(np.hypot(RING_SIGNIFICANCE * noise_limit, CODING_SIGNIFICANCE * (coding if np.isfinite(coding) else 0.0)))
+    return RingSearch(tuple(sorted(rings, key=lambda r: r.angle_deg)), limit, (float(inner), float(t[-1])),
+                      coding=coding if np.isfinite(coding) else 0.0)

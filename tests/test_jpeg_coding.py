@@ -1,0 +1,95 @@
+"""The concentric errors of JPEG coding in a ring search (beamshot.jpeg_coding, beamshot.rings).
+
+A beam whose colour changes across it (a cool hotspot in a warm spill) coded as a JPEG gave a
+"dark ring" of -1.5 % at 7 sigma that the beam does not have: libjpeg's coding leaves errors the
+same all around the axis (benchmarks/jpeg_concentric_error.py measures them).  The photos here
+come from the project's renderer (beamshot.synth); each truth is the pattern rendered.
+"""
+
+from __future__ import annotations
+
+import io
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from beamshot import analyze
+from beamshot.camera.response import Response, srgb_decode
+from beamshot.jpeg_coding import COLOUR_RMS_CODES, GREY_RMS_CODES, coding_rms_codes, concentric_sigma_rel
+from beamshot.photo import decode_photo
+from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, TwoToneBeam, encode_jpeg, exposure_time_for_peak,
+                            render_two_tone_photo)
+from beamshot.synth_artefacts import RingedBeam
+
+SCENE = Scene(distance_m=4.0)
+SHAPE = dict(peak_cd=7000.0, hotspot_fwhm_deg=7.0, spill_fraction=0.03, spill_falloff=0.3, cutoff_deg=28.0,
+             edge_width_deg=0.5)
+
+
+@pytest.mark.parametrize("gamma", [1.0, 2.2])
+def test_relative_error_of_a_power_law_curve(gamma):
+    # analytic: L = (c / m)^gamma, so a code error s at code c is ln(L(c + s) / L(c)) = gamma ln(1 + s / c)
+    resp = Response("linear") if gamma == 1.0 else Response("gamma", gamma=gamma)
+    codes = np.array([10.0, 40.0, 128.0, 250.0])
+    got = concentric_sigma_rel((codes / 255.0) ** gamma, resp, sigma_codes=0.3)
+    assert got == pytest.approx(gamma * np.log1p(0.3 / codes), rel=1e-9)
+
+
+def test_relative_error_under_srgb_is_large_in_dim_parts_and_small_in_bright_ones():
+    # IEC 61966-2-1 sRGB decoding: at code 40 a third of a code is 1.5 % of the luminance, at 200 0.3 %
+    levels = srgb_decode(np.array([40.0, 200.0]) / 255.0)
+    got = concentric_sigma_rel(levels, Response("srgb"), sigma_codes=1.0 / 3.0)
+    want = np.log(srgb_decode((np.array([40.0, 200.0]) + 1.0 / 3.0) / 255.0) / levels)
+    assert got == pytest.approx(want, rel=1e-9)
+    assert 0.012 < got[0] < 0.018 and got[1] < 0.004
+    assert np.isnan(concentric_sigma_rel(np.array([0.0]), Response("srgb"))[0])  # no light: no level
+
+
+def test_size_by_colour_change():
+    assert coding_rms_codes(0.0) == GREY_RMS_CODES and coding_rms_codes(0.6) == COLOUR_RMS_CODES
+    assert coding_rms_codes(float("nan")) == COLOUR_RMS_CODES  # unknown: the larger
+
+
+def test_the_file_format_is_kept():
+    px = np.full((16, 24, 3), 128, np.uint8)
+    for fmt in ("JPEG", "PNG"):
+        buf = io.BytesIO()
+        Image.fromarray(px).save(buf, fmt)
+        assert decode_photo(buf.getvalue(), "x." + fmt.lower()).file_format == fmt
+
+
+def _two_tone(pattern: TwoToneBeam, seed: int) -> bytes:
+    cam = SynthCamera(width_px=960, height_px=720, focal_35mm_mm=15, sensor_diag_mm=6.0, f_number=2.2, iso=50.0,
+                      supersample=1)
+    grey = HotspotSpillBeam(**SHAPE)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(grey, SCENE, cam, target=0.75))
+    return encode_jpeg(render_two_tone_photo(pattern, SCENE, cam, seed=seed), cam, quality=90)
+
+
+def test_no_ring_from_the_coding_of_a_warm_spill_round_a_cool_hotspot():
+    beam = TwoToneBeam.split(HotspotSpillBeam(**SHAPE), 5700.0, 3500.0)
+    for seed in (7, 8):
+        s = analyze(decode_photo(_two_tone(beam, seed), "beam.jpg"), distance_m=SCENE.distance_m,
+                    use_exif_scale=False).shape_figures
+        assert s["ring_count"].value == 0, s["ring_score"].method
+        assert s["ring_score"].status == "upper_bound"
+        assert "JPEG's coding errors" in s["ring_score"].reason
+        assert s["ring_score"].value < 0.1  # a 10 % ring would still be found
+
+
+def test_a_ring_in_a_two_colour_beam_is_still_found_with_the_coding_in_its_uncertainty():
+    # the ring multiplies both parts (RingedBeam): +12 % relative to the smooth profile at 5 deg
+    rings = ((5.0, 1.0, 0.12),)
+    base = TwoToneBeam.split(HotspotSpillBeam(**SHAPE), 5700.0, 3500.0)
+    beam = TwoToneBeam(RingedBeam(base.hotspot, rings), RingedBeam(base.spill, rings), base.hotspot_k, base.spill_k)
+    s = analyze(decode_photo(_two_tone(beam, 3), "beam.jpg"), distance_m=SCENE.distance_m,
+                use_exif_scale=False).shape_figures
+    assert s["ring_count"].value == 1
+    assert s["ring_angle"].value == pytest.approx(5.0, abs=0.3)
+    amp = s["ring_amplitude"]
+    assert amp.value == pytest.approx(0.12, abs=0.02)
+    terms = dict(amp.budget)
+    assert terms["JPEG coding"] > terms["pixel noise"] > 0  # a bright ring's coding term is still the larger here
+    assert amp.uncertainty == pytest.approx(np.sqrt(sum(v * v for v in terms.values())), rel=1e-9)
