@@ -847,10 +847,11 @@ def _coding_rel(linear: Linear, measured: "_Measured") -> np.ndarray | None:
     if len(photos) != 1 or not is_jpeg(photos[0]) or photos[0].max_code != 255:
         return None
     img = measured.image
-    where = (img, measured.mapping, measured.foot_mm, measured.distance_m)
-    lum = sampled_image(img.luminance, *where, axis_dir=measured.axis_dir)
-    colour = img.rgb_counts if img.rgb_counts is not None else img.rgb_values
-    rgb = sampled_image(colour, *where, axis_dir=measured.axis_dir).astype(np.float64)
+    # every 4th azimuth of the map (45 of 180): a row's mean level and colour, not its detail
+    where = dict(image=img, mapping=measured.mapping, axis_mm=measured.foot_mm, distance_m=measured.distance_m,
+                 axis_dir=measured.axis_dir, every=4)
+    lum = sampled_image(img.luminance, **where)
+    rgb = sampled_image(img.rgb_counts if img.rgb_counts is not None else img.rgb_values, **where).astype(np.float64)
     inside = np.isfinite(lum)
     with quiet_nan():
         level = np.nanmean(lum, axis=1)

@@ -155,14 +155,15 @@ def build_beam_map(image: LinearImage, mapping: WallMapping, axis_mm: tuple[floa
 
 
 def sampled_image(values: np.ndarray, image: LinearImage, mapping: WallMapping, axis_mm: tuple[float, float],
-                  distance_m: float, *, axis_dir: np.ndarray | None = None) -> np.ndarray:
+                  distance_m: float, *, axis_dir: np.ndarray | None = None, every: int = 1) -> np.ndarray:
     """``values`` (the working image's luminance ``(h, w)`` or colour ``(h, w, 3)``) at the cells of the
     map :func:`build_beam_map` makes from ``image`` and the same inputs (default grid), ``(n_theta,
-    n_phi[, 3])``: the photo's own level toward each direction, before the conversion to intensity.
-    Outside the photo: NaN for floats, 0 for integers."""
+    n_phi[, 3])``, or at every ``every``-th azimuth of it: the photo's own level toward each
+    direction, before the conversion to intensity.  Outside the photo: NaN for floats, 0 for integers."""
     geo = _geometry(image, mapping, axis_mm, distance_m, None, None, axis_dir)
+    mx, my = (geo.mx, geo.my) if every == 1 else (np.ascontiguousarray(m[:, ::every]) for m in (geo.mx, geo.my))
     border = float("nan") if values.dtype.kind == "f" else 0
-    return cv2.remap(values, geo.mx, geo.my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT, borderValue=border)
+    return cv2.remap(values, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT, borderValue=border)
 
 
 @dataclass(frozen=True)

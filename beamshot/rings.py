@@ -98,8 +98,9 @@ _FWHM = 2.0 * np.sqrt(2.0 * np.log(2.0))
 class Ring:
     """One ring: location, amplitude relative to the smooth profile (signed), width (FWHM), each
     with its 1-sigma from the fit (the profile's noise), the amplitude's 1-sigma from the JPEG's
-    concentric coding errors (``coding_sigma``, beamshot.jpeg_coding; 0 for other files), and the
-    significance ``|amplitude| / total_sigma``."""
+    concentric coding errors (``coding_sigma``, beamshot.jpeg_coding; 0 for other files), their sum
+    in quadrature (``total_sigma``, the amplitude's reported uncertainty) and the ``significance``
+    the detection test uses."""
 
     angle_deg: float
     angle_sigma: float
@@ -317,6 +318,8 @@ def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: flo
     inner = max(exclude_below_deg, MIN_RING_DEG, NOISE_SECTORS * max(correlation_deg, pixel_deg) / (2.0 * np.pi))
     tried[t < inner] = True
     rings: list[Ring] = []
+    # rows where the coding error is known (rows without light have no level)
+    coding_known = np.zeros(len(tdeg), bool) if coding_rel is None else np.isfinite(coding_rel)
     smooth = savgol(work, window, 3)
     # steep flanks (a flat top's edge, its knee into the spill): no ring search within a fit window of them
     slope = np.abs(savgol(pm, window, 3, deriv=1, delta=step))[half:]
@@ -337,8 +340,9 @@ def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: flo
         if fit is None:
             continue
         ring, params = fit
-        if coding_rel is not None:
-            ring = replace(ring, coding_sigma=float((1.0 + ring.amplitude) * np.interp(ring.angle_deg, tdeg, coding_rel)))
+        if coding_known.any():
+            coding_here = np.interp(ring.angle_deg, tdeg[coding_known], coding_rel[coding_known])
+            ring = replace(ring, coding_sigma=float((1.0 + ring.amplitude) * coding_here))
         if ring.significance < RING_SIGNIFICANCE or ring.angle_deg < max(inner, ring.width_deg):
             continue
         if ring.angle_deg > t[-1]:
@@ -361,9 +365,11 @@ def find_rings(beam: BeamMap, noise: NoiseModel | None = None, *, outer_deg: flo
     use = t >= max(1.0, inner)
     w_samples = LIMIT_FWHM_DEG / _FWHM / step
     noise_limit = 1.5 * np.median(rel[use] if use.any() else rel) / np.sqrt(np.sqrt(np.pi) * w_samples)
-    coding = 0.0
+    coding = 0.0  # the coding error's median relative 1-sigma over the rows searched
     if coding_rel is not None:
-        coding = float(np.nanmedian(np.asarray(coding_rel[:end])[use] if use.any() else coding_rel[:end]))
-    limit = float(np.hypot(RING_SIGNIFICANCE * noise_limit, CODING_SIGNIFICANCE * (coding if np.isfinite(coding) else 0.0)))
+        with quiet_nan():
+            coding = float(np.nanmedian(coding_rel[:end][use] if use.any() else coding_rel[:end]))
+        coding = coding if np.isfinite(coding) else 0.0
+    limit = float(np.hypot(RING_SIGNIFICANCE * noise_limit, CODING_SIGNIFICANCE * coding))
     return RingSearch(tuple(sorted(rings, key=lambda r: r.angle_deg)), limit, (float(inner), float(t[-1])),
-                      coding=coding if np.isfinite(coding) else 0.0)
+                      coding=coding)
