@@ -19,13 +19,12 @@ import numpy as np
 
 from .. import vocabulary
 from ..figure import Figure
-from .plots import FROM_REPORT, ISO_LEVELS  # noqa: F401 - ISO_LEVELS: the levels the map draws, named in its caption
+from .plots import FROM_REPORT, ISO_LEVELS
 from .html_page import esc, number_attr, page, png_data_uri, table, write_text_atomic
 
 __all__ = ["HTML_FILE", "figure_rows", "report_html", "write_comparison_html", "write_report_html"]
 
 HTML_FILE = "report.html"
-#: Iso-intensity lines drawn on the map besides the analysis' own 50 % and 10 % contours (fraction of peak).
 #: Map picture: width in inches and resolution (about 800 px wide, sharp when shown 400-600 px wide).
 MAP_WIDTH_IN, MAP_DPI = 5.4, 150
 
@@ -260,12 +259,18 @@ def _pictures_section(report, d: dict, picture: bool, map_png: bytes | None = No
             f'<figure><img src="{uri}" alt="intensity map of the beam with angle rings and contours" '
             f'width="{int(MAP_WIDTH_IN * MAP_DPI)}"><figcaption>Intensity I(θ, φ) seen from behind the light, '
             f'{esc(unit_note)}, logarithmic colour scale (cividis). Rings mark full cone angles; solid and dashed '
-            'lines the 50 % and 10 % contours; dotted white lines are iso-intensity lines at 1 % and 0.1 % of '
-            'the peak where the map reaches them above its noise floor.</figcaption></figure>'
+            'lines the 50 % and 10 % contours; dotted white lines are iso-intensity lines at '
+            f'{_iso_words()} of the peak where the map reaches them above its noise floor.</figcaption></figure>'
             f'<div><figure>{radial}<figcaption>Mean over azimuth at each angle, with the hotspot, field and '
             f'spill angles.{esc(below)}{esc(clipped)}</figcaption></figure><figure>{planes}<figcaption>Cuts through the beam '
             'axis in the wall\'s horizontal and vertical planes.</figcaption></figure></div>'
             '</div></section>')
+
+
+def _iso_words() -> str:
+    """'1 % and 0.1 %': the iso-intensity levels the map draws (:data:`~beamshot.report.plots.ISO_LEVELS`)."""
+    words = [f"{lv * 100:g} %" for lv in sorted(ISO_LEVELS, reverse=True)]
+    return ", ".join(words[:-1]) + " and " + words[-1] if len(words) > 1 else "".join(words)
 
 
 # ------------------------------------------------------------------------------- inputs, warnings
