@@ -33,6 +33,8 @@ ANGLE_CMAP = "viridis"
 #: Zone marker colours (project choice).
 ZONE_COLOURS = {"hotspot": "#1b4f8a", "corona": "#2a8a5c", "spill": "#b3472d"}
 FONT_PT = 9.0
+#: Height of tint.png (in; 16.5 in wide at 110 dpi).
+TINT_HEIGHT_IN = 7.1
 
 
 def _pyplot():
@@ -199,17 +201,17 @@ def plot_uv_diagram(result, *, ax=None):
     return sc
 
 
-def tint_figure(report, path, *, noise=FROM_REPORT) -> None:
+def tint_figure(report, path, *, noise=FROM_REPORT):
     """Write tint.png: intensity map, tint map and the u'v' diagram (or the reason colour is missing).
 
     The intensity map has beam.png's colour scale and words: the same floor (``noise``, the
     report's :func:`~beamshot.report.plots.report_noise_floor` unless given), so black means what
-    it means there ('below the noise floor')."""
+    it means there ('below the noise floor').  Returns the (closed) figure."""
     from .plots import intensity_label, plot_intensity_map, report_noise_floor
 
     plt = _pyplot()
     result = report.colour_result
-    fig, axes = plt.subplots(1, 3, figsize=(16.5, 6.4), gridspec_kw={"width_ratios": [1, 1, 1]})
+    fig, axes = plt.subplots(1, 3, figsize=(16.5, TINT_HEIGHT_IN), gridspec_kw={"width_ratios": [1, 1, 1]})
     title = report.settings.get("light_name") or (report.inputs[0]["name"] if report.inputs else "beam")
     fig.suptitle(f"{title}: colour across the beam", fontsize=FONT_PT + 3, x=0.01, ha="left")
     half = None
@@ -241,6 +243,9 @@ def tint_figure(report, path, *, noise=FROM_REPORT) -> None:
     fig.text(0.99, 0.97, CAUTION_LINE, ha="right", va="top", fontsize=FONT_PT - 0.5, color="#444444", gid="caution")
 
     fig.text(0.01, 0.01, "\n".join(textwrap.wrap(foot, 190)), fontsize=FONT_PT - 0.5, color="#444444")
-    fig.subplots_adjust(left=0.05, right=0.99, top=0.88, bottom=0.12, wspace=0.28)
+    # the map's legend (up to 6 rows) hangs below it: room for it above the two-line footnote
+    fig.subplots_adjust(left=0.05, right=0.99, top=1 - 0.77 / TINT_HEIGHT_IN, bottom=1.45 / TINT_HEIGHT_IN,
+                        wspace=0.28)
     fig.savefig(path, dpi=110)
     plt.close(fig)
+    return fig

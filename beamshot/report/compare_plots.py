@@ -248,19 +248,20 @@ TABLE_NAME_SHARE = 0.17
 
 
 def _text_width_in(text: str, size_pt: float, bold: bool = False) -> float:
-    """Width (in) of a line of text as matplotlib draws it (Agg at 72 dpi: one pixel per point)."""
+    """Width (in) of a line of text as matplotlib draws it at the pictures' resolution (Agg, DPI;
+    hinting makes small text at a lower resolution measure narrower)."""
     from matplotlib.font_manager import FontProperties
 
     w, _, _ = _renderer().get_text_width_height_descent(
         text, FontProperties(size=size_pt, weight="bold" if bold else "normal"), ismath=False)
-    return w / 72.0
+    return w / DPI
 
 
 @functools.lru_cache(maxsize=1)
 def _renderer():
     from matplotlib.backends.backend_agg import RendererAgg
 
-    return RendererAgg(10, 10, 72)
+    return RendererAgg(10, 10, DPI)
 
 
 def _wrap_to(text: str, width_in: float, size_pt: float, max_lines: int) -> list[str]:
