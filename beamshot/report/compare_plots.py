@@ -191,7 +191,7 @@ def sheet_figure(comp, path=None):
         r, c = divmod(i, cols)
         left = 0.2 + c * (tile + 0.15)
         top = head_h + r * block
-        name = "\n".join(textwrap.wrap(plain(light.label, 56), 28 if cols == 3 else 44)[:2])
+        name = "\n".join(_even_wrap(plain(light.label, 56), 28 if cols == 3 else 44)[:2])
         fig.text((left + tile / 2) / W, 1 - (top + lab_h / 2) / H, name, ha="center", va="center",
                  fontsize=FONT_PT, weight="bold", color="black", linespacing=1.1)
         ax_w = fig.add_axes(box(left, top + lab_h, tile, tile))
@@ -262,6 +262,29 @@ def _renderer():
     from matplotlib.backends.backend_agg import RendererAgg
 
     return RendererAgg(10, 10, DPI)
+
+
+def _even_wrap(text: str, width: int) -> list[str]:
+    """``textwrap.wrap(text, width)`` with its lines made as even as the same number of lines allows
+    (no lone last word)."""
+    import textwrap
+
+    lines = textwrap.wrap(text, width) or [""]
+    for w in range(width - 1, 0, -1):
+        shorter = textwrap.wrap(text, w)
+        if len(shorter) > len(lines):
+            break
+        lines = shorter
+    return lines
+
+
+def _longest_fitting(text: str, width_in: float, size_pt: float) -> str:
+    """``text`` as literal picture text, whole if it fits ``width_in`` (with ' brighter ▶'), else cut with '…'."""
+    for n in range(len(text), 8, -1):
+        s = plain(text, n)
+        if _text_width_in(s + " brighter ▶", size_pt) <= width_in:
+            return s
+    return plain(text, 8)
 
 
 def _wrap_to(text: str, width_in: float, size_pt: float, max_lines: int) -> list[str]:
@@ -395,6 +418,14 @@ def profiles_figure(comp, path=None):
         ax.set_xlim(-half, half)
         ax.set_xlabel("signed angle from the axis (deg)", fontsize=FONT_PT)
     axes[0].set_ylim(bottom=0)
+    # numbers written as everywhere else in the report: 8,000 (not 8000), 10,000 (not 10^4)
+    from matplotlib.ticker import FuncFormatter
+
+    from .plots import _plain_log_ticks
+
+    for ax in (axes[0], axes[2], axes[3]):
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:,g}"))
+    _plain_log_ticks(axes[1].yaxis)
     axes[0].legend(fontsize=FONT_PT * 0.8, ncol=2 if len(comp.lights) > 4 else 1, frameon=False)
     mode = "absolute: every light in cd" if comp.absolute else \
         "normalised to each light's own peak (not every report is in cd): shapes only"
@@ -415,7 +446,12 @@ def difference_figure(comp, path=None):
     from ..compare import RATIO_FLOOR
 
     plt = _pyplot()
-    a, b = (plain(x.label, 26) for x in comp.lights)
+    full_a, full_b = (plain(x.label, 80) for x in comp.lights)
+    # the title with both names whole if they fit the width at some size down to FONT_PT, else cut
+    title_pt = next((FONT_PT * k for k in (1.4, 1.25, 1.1, 1.0)
+                     if _text_width_in(f"{full_a} ÷ {full_b}", FONT_PT * k, True) <= 5.8), None)
+    a, b = (full_a, full_b) if title_pt else (plain(x.label, 26) for x in comp.lights)
+    ends = [_longest_fitting(x.label, 2.3, FONT_PT * 0.85) for x in comp.lights]
     half = comp.exposure["half_angle_deg"]
     fig = plt.figure(figsize=(6.0, 7.2), dpi=DPI)
     ax = fig.add_axes([0.1, 0.24, 0.8, 0.8 * 6.0 / 7.2])
@@ -433,12 +469,15 @@ def difference_figure(comp, path=None):
     cb.ax.tick_params(labelsize=FONT_PT * 0.85)
     # which light is brighter, at the end of the bar where it is (one centred line ran off the picture
     # with long names)
-    cb.set_label(f"ratio {a} / {b}", fontsize=FONT_PT * 0.85)
-    fig.text(0.1, 0.165, f"◀ {b} brighter", ha="left", va="bottom", fontsize=FONT_PT * 0.85, color=RATIO_CMAP_COLOURS[0])
-    fig.text(0.9, 0.165, f"{a} brighter ▶", ha="right", va="bottom", fontsize=FONT_PT * 0.85,
+    label = f"ratio {a} / {b}"
+    if _text_width_in(label, FONT_PT * 0.85) > 5.6:
+        label = "ratio of the first light's intensity to the second's (as in the title)"
+    cb.set_label(label, fontsize=FONT_PT * 0.85)
+    fig.text(0.1, 0.165, f"◀ {ends[1]} brighter", ha="left", va="bottom", fontsize=FONT_PT * 0.85, color=RATIO_CMAP_COLOURS[0])
+    fig.text(0.9, 0.165, f"{ends[0]} brighter ▶", ha="right", va="bottom", fontsize=FONT_PT * 0.85,
              color=RATIO_CMAP_COLOURS[-1])
     mode = "absolute (cd / cd)" if comp.absolute else "shapes: each normalised to its own peak"
-    fig.text(0.5, 0.975, f"{a} ÷ {b}", ha="center", va="top", fontsize=FONT_PT * 1.4, weight="bold")
+    fig.text(0.5, 0.975, f"{a} ÷ {b}", ha="center", va="top", fontsize=title_pt or FONT_PT * 1.4, weight="bold")
     fig.text(0.5, 0.935, f"ratio of intensities in the same direction, {mode}", ha="center", va="top",
              fontsize=FONT_PT * 0.85, color="#333333")
     fig.text(0.5, 0.06, f"grey: either light below {RATIO_FLOOR:.0%} of its own peak, or not in its photo",
