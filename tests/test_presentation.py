@@ -209,3 +209,13 @@ def test_tint_map_says_below_as_beam_png_does(smooth_reflector, tmp_path):
                   for t in ax.get_legend().get_texts() if t.get_text().startswith("below")]
     # beam.png names it in the map's legend (first) and the profile's (with its level)
     assert beam_below[0] == "below the noise floor" and tint_below == [beam_below[0]]
+
+
+@pytest.mark.parametrize("t, text", [(0.0714286, "1/14 s"), (0.004, "1/250 s"), (1 / 3, "1/3 s"), (0.3, "0.3 s"),
+                                     (2.5, "2.5 s")])
+def test_exposure_time_is_written_as_cameras_write_it(t, text):
+    # shutter speeds below a second are written as 1/N s (common practice); EXIF gives 1/14 s as
+    # 0.0714286, which the page once printed as it came
+    from beamshot.report.html import exposure_text
+
+    assert exposure_text(t) == text

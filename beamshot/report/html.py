@@ -303,6 +303,21 @@ def _ambient_text(amb) -> str:
     return esc(str(amb.get("file", "")) + extra)
 
 
+def exposure_text(t_s: float) -> str:
+    """An exposure time as cameras write it: '1/14 s' for a short one that is such a fraction (within
+    0.5 %, common practice), else 3 significant figures ('0.3 s', '2.5 s').
+
+    >>> exposure_text(0.0714286), exposure_text(0.004), exposure_text(2.5), exposure_text(0.3)
+    ('1/14 s', '1/250 s', '2.5 s', '0.3 s')
+    """
+    t = float(t_s)
+    if 0 < t < 0.5:
+        n = round(1.0 / t)
+        if n >= 2 and abs(n * t - 1.0) <= 0.005:
+            return f"1/{n} s"
+    return f"{t:.3g} s"
+
+
 def _inputs_section(d: dict) -> str:
     rows = []
     for i in d.get("inputs", []):
@@ -311,7 +326,7 @@ def _inputs_section(d: dict) -> str:
         if exif.get("make") or exif.get("model"):
             bits.append(" ".join(str(x) for x in (exif.get("make"), exif.get("model")) if x))
         if exif.get("exposure_time_s"):
-            bits.append(f"{exif['exposure_time_s']:g} s")
+            bits.append(exposure_text(exif["exposure_time_s"]))
         if exif.get("f_number"):
             bits.append(f"f/{exif['f_number']:g}")
         if exif.get("iso"):

@@ -104,8 +104,9 @@ def plot_ground(ground, *, ax=None, cbar_ax=None):
     ax.tick_params(labelsize=FONT_PT * 0.85)
     if cbar_ax is not None:
         cb = plt.colorbar(im, cax=cbar_ax, orientation="horizontal", extend="min")
+        below = f"{norm.vmin:g} lx" if absolute else f"{norm.vmin:g} of it"
         cb.set_label(("illuminance on the ground (lx)" if absolute else "illuminance / its largest value") +
-                     "; grey: outside the measured map", fontsize=FONT_PT * 0.85)
+                     f"; black: below {below}; grey: outside the measured map", fontsize=FONT_PT * 0.85)
         _plain_log_ticks(cb.ax.xaxis, norm.vmax / norm.vmin)
         cb.ax.tick_params(labelsize=FONT_PT * 0.8)
     return im
