@@ -219,3 +219,28 @@ def test_exposure_time_is_written_as_cameras_write_it(t, text):
     from beamshot.report.html import exposure_text
 
     assert exposure_text(t) == text
+
+
+@pytest.mark.parametrize("longest, bar", [(1.19, 1.0), (0.6, 0.5), (3.0, 2.0), (0.049, 0.02)])
+def test_card_scale_bar_is_a_round_length(longest, bar):
+    # the card's bar was 0.35 of the half width, labelled "1.2 m" for 1.19 m; now the largest
+    # 1-2-5 length that fits (common practice for scale bars)
+    from beamshot.report.card import scale_bar_m
+
+    assert scale_bar_m(longest) == pytest.approx(bar)
+
+
+def test_comparison_page_tells_photo_distance_from_drawn_distance(tmp_path):
+    from PIL import Image
+
+    from beamshot.report.html_comparison import comparison_html
+
+    Image.new("RGB", (4, 4)).save(tmp_path / "sheet.png")
+    data = {"schema": "beamshot.comparison", "schema_version": "1.0", "absolute": True,
+            "exposure": {"wall_distance_m": 5.0},
+            "lights": [{"label": "a", "distance_m": 4.0, "figures": {}}, {"label": "b", "distance_m": 4.0,
+                                                                          "figures": {}}],
+            "differences": [], "pictures": {"sheet": "sheet.png"}}
+    text = comparison_html(data, tmp_path)
+    assert "re-drawn at a common distance of 5 m" in text
+    assert "<th>photo taken at</th>" in text.replace(' scope="col"', "") and "wall distance</th>" not in text

@@ -30,6 +30,17 @@ _SCALE_WORDS = {"lux_meter": "lux meter at the peak", "lux_meter_point": "lux me
                 "none": "none (relative)"}
 
 
+def scale_bar_m(longest_m: float) -> float:
+    """The scale bar's length: the largest 1, 2 or 5 x 10^k m not above ``longest_m`` (a round length
+    reads at a glance; common practice).
+
+    >>> scale_bar_m(1.19), scale_bar_m(0.6), scale_bar_m(3.0)
+    (1.0, 0.5, 2.0)
+    """
+    k = np.floor(np.log10(longest_m))
+    return float(max(m * 10**k for m in (1, 2, 5) if m * 10**k <= longest_m))
+
+
 def subtitle_text(common_m: float, n_lights: int) -> str:
     """The line under the name: the beam is re-drawn at the comparison's common wall distance."""
     return f"beam re-drawn on a wall at {common_m:g} m, the same distance and exposure for all {n_lights} lights"
@@ -84,8 +95,9 @@ def card_figure(comp, index: int, path=None):
     ax.set_yticks([])
     for s in ax.spines.values():
         s.set_visible(False)
-    ax.plot([half_m * 0.55, half_m * 0.9], [-half_m * 0.9] * 2, color="white", lw=2)
-    ax.text(half_m * 0.725, -half_m * 0.85, f"{half_m * 0.35:.2g} m", color="white", ha="center", va="bottom",
+    bar = scale_bar_m(half_m * 0.35)
+    ax.plot([half_m * 0.9 - bar, half_m * 0.9], [-half_m * 0.9] * 2, color="white", lw=2)
+    ax.text(half_m * 0.9 - bar / 2, -half_m * 0.85, f"{bar:g} m", color="white", ha="center", va="bottom",
             fontsize=8)
     # figure tiles: 3 columns x 2 rows
     top = 1.05 + side + 0.2

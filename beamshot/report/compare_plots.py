@@ -178,7 +178,7 @@ def sheet_figure(comp, path=None):
              weight="bold")
     full = (f"full scale {ex['full_scale']:.3g} lx (the brightest, {plain(ex['full_scale_light'], 30)})"
             if comp.absolute else "full scale: each light's own peak")
-    fig.text(0.5, 1 - 0.58 / H, f"{mode} · wall at {ex['wall_distance_m']:g} m, {full}",
+    fig.text(0.5, 1 - 0.58 / H, f"{mode} · walls re-drawn at {ex['wall_distance_m']:g} m, {full}",
              ha="center", va="center", fontsize=FONT_PT * 0.85, color="#333333")
     fig.text(0.5, 1 - 0.82 / H, f"tone: sRGB encoding (IEC 61966-2-1) · maps: ±{ex['half_angle_deg']:.0f}° "
              f"from the axis, log scale over {ex['map_scale']['decades']:g} decades", ha="center", va="center",
