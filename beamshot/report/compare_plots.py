@@ -191,7 +191,10 @@ def sheet_figure(comp, path=None):
         r, c = divmod(i, cols)
         left = 0.2 + c * (tile + 0.15)
         top = head_h + r * block
-        name = "\n".join(_even_wrap(plain(light.label, 56), 28 if cols == 3 else 44)[:2])
+        width = 28 if cols == 3 else 44
+        lines = _even_wrap(plain(light.label, 400), width)
+        # two even lines, else cut with '…' (the table below shows every name whole)
+        name = "\n".join(lines) if len(lines) <= 2 else legend_name(light.label, width)
         fig.text((left + tile / 2) / W, 1 - (top + lab_h / 2) / H, name, ha="center", va="center",
                  fontsize=FONT_PT, weight="bold", color="black", linespacing=1.1)
         ax_w = fig.add_axes(box(left, top + lab_h, tile, tile))
@@ -214,6 +217,9 @@ def sheet_figure(comp, path=None):
     ax_cb = fig.add_axes(box(0.6, y, W - 1.2, 0.16))
     cb = fig.colorbar(im, cax=ax_cb, orientation="horizontal", extend="min")
     cb.ax.tick_params(labelsize=FONT_PT * 0.8)
+    from .plots import _plain_log_ticks
+
+    _plain_log_ticks(cb.ax.xaxis, norm.vmax / norm.vmin)  # 10, 100, 1,000 as in every other picture
     unit = "cd" if comp.absolute else "fraction of the light's own peak"
     cb.set_label(f"angular maps: intensity, {unit} (black: below the scale; grey: not in the photo)",
                  fontsize=FONT_PT * 0.8)
@@ -242,7 +248,7 @@ def _verdicts_against_first(comp) -> dict:
 
 #: The sheet's table: row height for one or two text lines (in), per extra name line, the space
 #: between columns (in) and the most lines a name may take before it is cut (project choices).
-TABLE_ROW_IN, TABLE_LINE_IN, TABLE_GAP_IN, TABLE_NAME_LINES = 0.3, 0.13, 0.14, 3
+TABLE_ROW_IN, TABLE_LINE_IN, TABLE_GAP_IN, TABLE_NAME_LINES = 0.3, 0.13, 0.14, 5
 #: Smallest share of the table's width left to the names before the cells' text is made smaller.
 TABLE_NAME_SHARE = 0.17
 
@@ -313,7 +319,8 @@ def _table_layout(comp, width_in: float) -> dict:
     """Where the sheet's table puts its text: the font size, each column's centre (in from the
     left; the names' column first, left-aligned at 0), each light's name in lines and each row's
     height (in).  Columns are as wide as their widest text (measured); the names get the rest and
-    wrap in it, so a long name is shown whole (up to TABLE_NAME_LINES lines)."""
+    wrap in it, so a long name is shown whole (up to TABLE_NAME_LINES lines; the tiles'
+    headings hold two)."""
     keys = [k for k in SHEET_KEYS if any(k in x.figures for x in comp.lights)]
     verdicts = _verdicts_against_first(comp)
     heads = []
