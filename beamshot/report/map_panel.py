@@ -21,7 +21,7 @@ from .. import vocabulary
 from ..beammap import BeamMap
 from .colour_table import CIVIDIS_RGB
 from .plots import (_BELOW, _OUTSIDE, _SKY, _VERMILLION, INSET_BELOW_FRACTION, INSET_MIN_ENLARGEMENT,
-                    INSET_ZOOM_REACH, ISO_LEVELS, RING_LABEL_BEARING_DEG, _contour_xy, _inside_outline,
+                    INSET_ZOOM_REACH, ISO_LEVELS, RING_LABEL_BEARING_DEG, _contour_xy, _edge_line, _inside_outline,
                     _ring_step_full_deg, inset_place, map_view)
 from .raster import Canvas
 from .raster_chart import draw_legend, draw_line_sample, draw_mark, log_ticks
@@ -277,14 +277,6 @@ def _draw_marks(c: Canvas, ax: _MapAxes, contours: dict, edge, pk, clipped: bool
     return entries
 
 
-def _edge_xy(edge) -> np.ndarray | None:
-    """The spill edge's line (deg, right/up positive), as drawn."""
-    if edge is None or not np.any(np.isfinite(edge.theta)):
-        return None
-    th = np.degrees(edge.theta)
-    return np.column_stack((th * np.cos(edge.phi), th * np.sin(edge.phi)))
-
-
 #: Height (px) kept clear above the map's lower edge for the 'seen from behind the light' note.
 _NOTE_PX = 40.0
 
@@ -375,7 +367,7 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
         if reach < INSET_BELOW_FRACTION * half:
             zoom = max(INSET_ZOOM_REACH * reach, 1.0)
             (rx0, ry0), (rx1, ry1) = ax.px([(-zoom, zoom), (zoom, -zoom)])
-            place = inset_place(a, vals, floor, edge_xy=_edge_xy(edge),
+            place = inset_place(a, vals, floor, edge_xy=_edge_line(edge),
                                 keep_out=_keep_out(c, box, (rx0, ry0, rx1, ry1)))
             fb = place["box"]
             ibox = (box[0] + fb[0] * side, box[1] + fb[1] * side, box[0] + fb[2] * side, box[1] + fb[3] * side)
