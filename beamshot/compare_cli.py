@@ -42,7 +42,7 @@ def compare(reports, out_dir, labels, wall_distance_m, same_meter):
     ex = comp.exposure
     click.echo(f"{len(comp.lights)} lights: " + ", ".join(x.label for x in comp.lights))
     if comp.absolute:
-        click.echo(f"one exposure: wall at {ex['wall_distance_m']:g} m, full scale {ex['full_scale']:.3g} lx "
+        click.echo(f"one exposure, walls re-drawn at {ex['wall_distance_m']:g} m: full scale {ex['full_scale']:.3g} lx "
                    f"(the brightest, {ex['full_scale_light']}), sRGB tone curve")
     else:
         click.echo("normalised to each light's own peak (not every report is in cd): shapes, not brightness")

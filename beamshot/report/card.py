@@ -3,7 +3,8 @@
 Top to bottom: the light's name; the beam on a wall at the comparison's common exposure (the
 same tone curve and full scale for every card of one comparison, so cards can be set side by
 side); the key figures as tiles with value ± 1σ and status in words; the analysis facts in small
-print (wall distance, absolute scale, camera profile, the common exposure); the safety line.
+print (the photo's wall distance beside the common one drawn at, absolute scale, camera profile,
+the common exposure); the safety line.
 Palette: warm off-white paper, near-black text, one Okabe-Ito accent (#0072B2) for the figure
 values; status words in grey (no meaning carried by colour alone).
 """
@@ -14,7 +15,7 @@ import numpy as np
 
 from .. import vocabulary
 
-__all__ = ["CARD_PX", "CARD_KEYS", "card_figure"]
+__all__ = ["CARD_PX", "CARD_KEYS", "card_figure", "photo_distance_text", "subtitle_text"]
 
 #: Card size in pixels (width, height) and the figure size that gives it at CARD_DPI.
 CARD_PX = (1080, 1350)
@@ -27,6 +28,35 @@ _MUTED = "#5a5a5a"
 _SCALE_WORDS = {"lux_meter": "lux meter at the peak", "lux_meter_point": "lux meter at a wall point",
                 "camera_constant": "camera constant of a profile", "exposure_metadata": "estimated from EXIF (±28 %)",
                 "none": "none (relative)"}
+
+
+def scale_bar_m(longest_m: float) -> float:
+    """The scale bar's length: the largest 1, 2 or 5 x 10^k m not above ``longest_m`` (a round length
+    reads at a glance; common practice).
+
+    >>> scale_bar_m(1.19), scale_bar_m(0.6), scale_bar_m(3.0)
+    (1.0, 0.5, 2.0)
+    """
+    k = np.floor(np.log10(longest_m))
+    return float(max(m * 10**k for m in (1, 2, 5) if m * 10**k <= longest_m))
+
+
+def subtitle_text(common_m: float, n_lights: int) -> str:
+    """The line under the name: the beam is re-drawn at the comparison's common wall distance."""
+    return f"beam re-drawn on a wall at {common_m:g} m, the same distance and exposure for all {n_lights} lights"
+
+
+def photo_distance_text(photo_m, common_m: float) -> str:
+    """Small print: where the photo was taken, against the common distance the picture is drawn at."""
+    if photo_m is None:
+        return f"photo distance not recorded (drawn above at {common_m:g} m)"
+    try:
+        d = float(photo_m)
+    except (TypeError, ValueError):
+        return f"photo taken at {photo_m} m from the wall (drawn above at {common_m:g} m)"
+    if abs(d - float(common_m)) < 1e-9:
+        return f"photo taken at {d:g} m from the wall, as drawn above"
+    return f"photo taken at {d:g} m from the wall; drawn above at {common_m:g} m for comparison"
 
 
 def card_figure(comp, index: int, path=None):
@@ -52,8 +82,8 @@ def card_figure(comp, index: int, path=None):
         title, size = "\n".join(lines[:2]) + ("…" if len(lines) > 2 else ""), 15
     fig.text(0.35 / W, 1 - 0.42 / H, title, ha="left", va="center", fontsize=size, weight="bold", color=_INK,
              linespacing=1.1)
-    fig.text(0.35 / W, 1 - 0.82 / H, "beam on a wall at {:g} m, one exposure for {} lights".format(
-        ex["wall_distance_m"], len(comp.lights)), ha="left", va="center", fontsize=10, color=_MUTED)
+    fig.text(0.35 / W, 1 - 0.82 / H, subtitle_text(ex["wall_distance_m"], len(comp.lights)), ha="left",
+             va="center", fontsize=10, color=_MUTED)
     side = 4.7
     ax = fig.add_axes(box((W - side) / 2, 1.05, side, side))
     tile = comp.wall_tiles[index]
@@ -65,8 +95,9 @@ def card_figure(comp, index: int, path=None):
     ax.set_yticks([])
     for s in ax.spines.values():
         s.set_visible(False)
-    ax.plot([half_m * 0.55, half_m * 0.9], [-half_m * 0.9] * 2, color="white", lw=2)
-    ax.text(half_m * 0.725, -half_m * 0.85, f"{half_m * 0.35:.2g} m", color="white", ha="center", va="bottom",
+    bar = scale_bar_m(half_m * 0.35)
+    ax.plot([half_m * 0.9 - bar, half_m * 0.9], [-half_m * 0.9] * 2, color="white", lw=2)
+    ax.text(half_m * 0.9 - bar / 2, -half_m * 0.85, f"{bar:g} m", color="white", ha="center", va="bottom",
             fontsize=8)
     # figure tiles: 3 columns x 2 rows
     top = 1.05 + side + 0.2
@@ -92,8 +123,9 @@ def card_figure(comp, index: int, path=None):
     when = str(light.report.get("created_utc", ""))[:10]
     full = (f"full scale {ex['full_scale']:.3g} lx at the wall (the brightest light)" if comp.absolute
             else "each light normalised to its own peak (not all in cd)")
-    small = [f"measured on a wall at {settings.get('distance_m', '?')} m · absolute scale: "
-             f"{_SCALE_WORDS.get(scale, scale)} · camera profile: {plain(profile, 30)} · analysed {when}",
+    small = [photo_distance_text(settings.get("distance_m"), ex["wall_distance_m"]),
+             f"absolute scale: {_SCALE_WORDS.get(scale, scale)} · camera profile: {plain(profile, 30)} · "
+             f"analysed {when}",
              f"drawn from the calibrated intensity map: sRGB tone (IEC 61966-2-1), {full}",
              "value ± 1σ standard uncertainty; ≈ estimate, ≥ / ≤ bound. Made with beamshot."]
     fig.text(0.35 / W, 1 - (top + 2 * ch + 0.15) / H, "\n".join(small), ha="left", va="top", fontsize=6.6,

@@ -20,6 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .plots import FROM_REPORT
+
 __all__ = ["ISO_CCT_K", "tint_figure", "plot_tint_map", "plot_uv_diagram"]
 
 #: Temperatures (K) of the iso-CCT lines drawn, and their Duv reach.
@@ -31,6 +33,8 @@ ANGLE_CMAP = "viridis"
 #: Zone marker colours (project choice).
 ZONE_COLOURS = {"hotspot": "#1b4f8a", "corona": "#2a8a5c", "spill": "#b3472d"}
 FONT_PT = 9.0
+#: Height of tint.png (in; 16.5 in wide at 110 dpi).
+TINT_HEIGHT_IN = 7.1
 
 
 def _pyplot():
@@ -137,6 +141,7 @@ def plot_uv_diagram(result, *, ax=None):
     from matplotlib.patches import Ellipse
 
     from ..colour.cct import iso_cct_line
+    from .compare_plots import value_text
 
     plt = _pyplot()
     if ax is None:
@@ -163,7 +168,7 @@ def plot_uv_diagram(result, *, ax=None):
         ax.plot(line[:, 0], line[:, 1], color="#8a8a8a", lw=0.7)
         p = line[len(line) * 3 // 4]  # labelled a little above the locus (Duv about +0.01)
         if lo_u < p[0] < hi_u and lo_v < p[1] < hi_v:
-            ax.text(p[0], p[1], f"{t} K", fontsize=FONT_PT - 1.5, color="#555555", ha="center", va="bottom")
+            ax.text(p[0], p[1], f"{t:,} K", fontsize=FONT_PT - 1.5, color="#555555", ha="center", va="bottom")
     sc = ax.scatter(ru[ok], rv[ok], c=2 * th[ok], cmap=ANGLE_CMAP, s=14, zorder=3, edgecolors="none")
     ax.plot(ru[ok], rv[ok], color="#bbbbbb", lw=0.6, zorder=2)
     cb = ax.figure.colorbar(sc, ax=ax, orientation="horizontal", fraction=0.05, pad=0.12)
@@ -179,7 +184,7 @@ def plot_uv_diagram(result, *, ax=None):
         ax.add_patch(Ellipse(p, 4 * np.sqrt(max(w[1], 0)), 4 * np.sqrt(max(w[0], 0)), angle=ang, fill=False,
                              color=ZONE_COLOURS[z], lw=1.0, zorder=4))
         cct = d["cct"]
-        words = f"{z}" + (f"  {cct.value:,.0f} K" if cct.value is not None else "")
+        words = f"{z}" + (f"  {value_text(cct.value, cct.uncertainty)} K" if cct.value is not None else "")
         ax.plot(*p, marker="o", ms=7, mfc="white", mec=ZONE_COLOURS[z], mew=1.8, zorder=5, ls="none", label=words)
     ax.set_xlim(lo_u, hi_u)
     ax.set_ylim(lo_v, hi_v)
@@ -196,19 +201,26 @@ def plot_uv_diagram(result, *, ax=None):
     return sc
 
 
-def tint_figure(report, path) -> None:
-    """Write tint.png: intensity map, tint map and the u'v' diagram (or the reason colour is missing)."""
-    from .plots import plot_intensity_map
+def tint_figure(report, path, *, noise=FROM_REPORT):
+    """Write tint.png: intensity map, tint map and the u'v' diagram (or the reason colour is missing).
+
+    The intensity map has beam.png's colour scale and words: the same floor (``noise``, the
+    report's :func:`~beamshot.report.plots.report_noise_floor` unless given), so black means what
+    it means there ('below the noise floor').  Returns the (closed) figure."""
+    from .plots import intensity_label, plot_intensity_map, report_noise_floor
 
     plt = _pyplot()
     result = report.colour_result
-    fig, axes = plt.subplots(1, 3, figsize=(16.5, 6.4), gridspec_kw={"width_ratios": [1, 1, 1]})
+    fig, axes = plt.subplots(1, 3, figsize=(16.5, TINT_HEIGHT_IN), gridspec_kw={"width_ratios": [1, 1, 1]})
     title = report.settings.get("light_name") or (report.inputs[0]["name"] if report.inputs else "beam")
     fig.suptitle(f"{title}: colour across the beam", fontsize=FONT_PT + 3, x=0.01, ha="left")
     half = None
     if result is not None and result.measured:
         half = float(result.cells["theta_edges_deg"][-1]) * 1.08
-    plot_intensity_map(report.beam, report.contours, ax=axes[0], half_width_deg=half)
+    if noise is FROM_REPORT:
+        noise = report_noise_floor(report)
+    plot_intensity_map(report.beam, report.contours, ax=axes[0], half_width_deg=half, noise=noise,
+                       label=intensity_label(report, report.beam.unit))
     axes[0].set_title("intensity", fontsize=FONT_PT + 1)
     if result is None or not result.measured:
         for ax in axes[1:]:
@@ -231,6 +243,9 @@ def tint_figure(report, path) -> None:
     fig.text(0.99, 0.97, CAUTION_LINE, ha="right", va="top", fontsize=FONT_PT - 0.5, color="#444444", gid="caution")
 
     fig.text(0.01, 0.01, "\n".join(textwrap.wrap(foot, 190)), fontsize=FONT_PT - 0.5, color="#444444")
-    fig.subplots_adjust(left=0.05, right=0.99, top=0.88, bottom=0.12, wspace=0.28)
+    # the map's legend (up to 6 rows) hangs below it: room for it above the two-line footnote
+    fig.subplots_adjust(left=0.05, right=0.99, top=1 - 0.77 / TINT_HEIGHT_IN, bottom=1.45 / TINT_HEIGHT_IN,
+                        wspace=0.28)
     fig.savefig(path, dpi=110)
     plt.close(fig)
+    return fig

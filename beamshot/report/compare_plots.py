@@ -11,12 +11,14 @@ User text (labels) is drawn literally: ``$`` is escaped so matplotlib's mathtext
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from .. import vocabulary
 from ..figure import value_with_uncertainty
 
-__all__ = ["LINE_COLOURS", "LINE_STYLES", "RATIO_CMAP_COLOURS", "plain", "figure_cell", "sheet_figure",
+__all__ = ["LINE_COLOURS", "LINE_STYLES", "RATIO_CMAP_COLOURS", "plain", "legend_name", "figure_cell", "value_text", "sheet_figure",
            "profiles_figure", "difference_figure", "reach_overlay_figure", "SHEET_KEYS"]
 
 #: Okabe-Ito (2008) colour-blind-safe set, black first.
@@ -49,6 +51,17 @@ def plain(text: str, limit: int = 40) -> str:
     return s.replace("$", r"\$")
 
 
+def legend_name(text: str, width: int = 30) -> str:
+    """A light's name for a legend: whole, on up to two lines of about ``width`` characters (cut with
+    '…' only past that), ``$`` escaped."""
+    import textwrap
+
+    lines = textwrap.wrap(" ".join(str(text).split()), width) or [""]
+    if len(lines) > 2:
+        lines = [lines[0], lines[1][: width - 1] + "…"]
+    return "\n".join(lines).replace("$", r"\$")
+
+
 def style(i: int) -> dict:
     return {"color": LINE_COLOURS[i % len(LINE_COLOURS)], "linestyle": LINE_STYLES[i % len(LINE_STYLES)]}
 
@@ -67,6 +80,20 @@ def figure_cell(f: dict | None, *, with_unit: bool = False) -> str:
     from ..figure import _number
 
     return f"{mark}{_number(float(f['value']), 3)}{sep}{unit}"
+
+
+def value_text(value: float, uncertainty: float | None = None) -> str:
+    """A figure's value alone (for a legend), rounded as the report rounds it: to the place of its
+    uncertainty's second significant digit (GUM 7.2.6), else to 3 significant figures.
+
+    >>> value_text(9504.2, 480.0), value_text(9504.2)
+    ('9,500', '9,500')
+    """
+    from ..figure import _number
+
+    if uncertainty is not None and np.isfinite(uncertainty) and uncertainty > 0:
+        return value_with_uncertainty(float(value), float(uncertainty))[0]
+    return _number(float(value), 3)
 
 
 def _save(fig, path):
@@ -133,8 +160,13 @@ def sheet_figure(comp, path=None):
     head_h, lab_h, gap = 1.05, 0.45, 0.12
     block = lab_h + 2 * tile + gap * 2
     cbar_h = 0.85
-    table_h = 0.55 + 0.3 * (n + 1)
-    notes_h = 0.16 * sum(len(textwrap.wrap(t, 125)) for t in ["Notes:", *comp.notes]) + 0.55
+    table_w = W - 0.3
+    layout = _table_layout(comp, table_w)
+    table_h = layout["height"] + 0.35
+    notes = ["Notes:"]
+    for t in comp.notes:  # a note's later lines indented under its first
+        notes += textwrap.wrap(f"· {t}", 125, subsequent_indent="  ") or [""]
+    notes_h = 0.16 * len(notes) + 0.55
     H = head_h + rows * block + cbar_h + table_h + 0.1 + notes_h
     fig = plt.figure(figsize=(W, H), dpi=DPI)
 
@@ -146,7 +178,7 @@ def sheet_figure(comp, path=None):
              weight="bold")
     full = (f"full scale {ex['full_scale']:.3g} lx (the brightest, {plain(ex['full_scale_light'], 30)})"
             if comp.absolute else "full scale: each light's own peak")
-    fig.text(0.5, 1 - 0.58 / H, f"{mode} · wall at {ex['wall_distance_m']:g} m, {full}",
+    fig.text(0.5, 1 - 0.58 / H, f"{mode} · walls re-drawn at {ex['wall_distance_m']:g} m, {full}",
              ha="center", va="center", fontsize=FONT_PT * 0.85, color="#333333")
     fig.text(0.5, 1 - 0.82 / H, f"tone: sRGB encoding (IEC 61966-2-1) · maps: ±{ex['half_angle_deg']:.0f}° "
              f"from the axis, log scale over {ex['map_scale']['decades']:g} decades", ha="center", va="center",
@@ -159,9 +191,10 @@ def sheet_figure(comp, path=None):
         r, c = divmod(i, cols)
         left = 0.2 + c * (tile + 0.15)
         top = head_h + r * block
-        import textwrap
-
-        name = "\n".join(textwrap.wrap(plain(light.label, 56), 28 if cols == 3 else 44)[:2])
+        width = 28 if cols == 3 else 44
+        lines = _even_wrap(plain(light.label, 400), width)
+        # two even lines, else cut with '…' (the table below shows every name whole)
+        name = "\n".join(lines) if len(lines) <= 2 else legend_name(light.label, width)
         fig.text((left + tile / 2) / W, 1 - (top + lab_h / 2) / H, name, ha="center", va="center",
                  fontsize=FONT_PT, weight="bold", color="black", linespacing=1.1)
         ax_w = fig.add_axes(box(left, top + lab_h, tile, tile))
@@ -184,20 +217,18 @@ def sheet_figure(comp, path=None):
     ax_cb = fig.add_axes(box(0.6, y, W - 1.2, 0.16))
     cb = fig.colorbar(im, cax=ax_cb, orientation="horizontal", extend="min")
     cb.ax.tick_params(labelsize=FONT_PT * 0.8)
+    from .plots import _plain_log_ticks
+
+    _plain_log_ticks(cb.ax.xaxis, norm.vmax / norm.vmin)  # 10, 100, 1,000 as in every other picture
     unit = "cd" if comp.absolute else "fraction of the light's own peak"
     cb.set_label(f"angular maps: intensity, {unit} (black: below the scale; grey: not in the photo)",
                  fontsize=FONT_PT * 0.8)
     y += cbar_h
-    ax_t = fig.add_axes(box(0.15, y, W - 0.3, table_h - 0.1))
-    _figures_table(ax_t, comp)
+    ax_t = fig.add_axes(box(0.15, y, table_w, layout["height"] + 0.25))
+    _figures_table(ax_t, comp, layout, table_w)
     y += table_h + 0.1
-    lines = ["Notes:"] + [f"· {t}" for t in comp.notes]
-    import textwrap
-
-    wrapped = []
-    for t in lines:
-        wrapped += textwrap.wrap(t, 125) or [""]
-    fig.text(0.15 / W, 1 - y / H, "\n".join(plain(w, 200) for w in wrapped), ha="left", va="top",
+    fig.text(0.15 / W, 1 - y / H, "\n".join(w[: len(w) - len(w.lstrip())] + plain(w, 200) for w in notes),
+             ha="left", va="top",
              fontsize=FONT_PT * 0.72, color="#333333", linespacing=1.3)
     fig.text(0.5, 0.05 / H, CAUTION_LINE, ha="center", va="bottom", fontsize=FONT_PT * 0.7, color="#444444")
     # the notes block may be longer than its estimate: grow the canvas rather than clip
@@ -215,40 +246,141 @@ def _verdicts_against_first(comp) -> dict:
     return out
 
 
-def _figures_table(ax, comp):
-    """Lights as rows, the key figures as columns; ``*`` marks a significant difference from the first light."""
-    ax.axis("off")
+#: The sheet's table: row height for one or two text lines (in), per extra name line, the space
+#: between columns (in) and the most lines a name may take before it is cut (project choices).
+TABLE_ROW_IN, TABLE_LINE_IN, TABLE_GAP_IN, TABLE_NAME_LINES = 0.3, 0.13, 0.14, 5
+#: Smallest share of the table's width left to the names before the cells' text is made smaller.
+TABLE_NAME_SHARE = 0.17
+
+
+def _text_width_in(text: str, size_pt: float, bold: bool = False) -> float:
+    """Width (in) of a line of text as matplotlib draws it at the pictures' resolution (Agg, DPI;
+    hinting makes small text at a lower resolution measure narrower)."""
+    from matplotlib.font_manager import FontProperties
+
+    w, _, _ = _renderer().get_text_width_height_descent(
+        text, FontProperties(size=size_pt, weight="bold" if bold else "normal"), ismath=False)
+    return w / DPI
+
+
+@functools.lru_cache(maxsize=1)
+def _renderer():
+    from matplotlib.backends.backend_agg import RendererAgg
+
+    return RendererAgg(10, 10, DPI)
+
+
+def _even_wrap(text: str, width: int) -> list[str]:
+    """``textwrap.wrap(text, width)`` with its lines made as even as the same number of lines allows
+    (no lone last word)."""
+    import textwrap
+
+    lines = textwrap.wrap(text, width) or [""]
+    for w in range(width - 1, 0, -1):
+        shorter = textwrap.wrap(text, w)
+        if len(shorter) > len(lines):
+            break
+        lines = shorter
+    return lines
+
+
+def _longest_fitting(text: str, width_in: float, size_pt: float) -> str:
+    """``text`` as literal picture text, whole if it fits ``width_in`` (with ' brighter ▶'), else cut with '…'."""
+    for n in range(len(text), 8, -1):
+        s = plain(text, n)
+        if _text_width_in(s + " brighter ▶", size_pt) <= width_in:
+            return s
+    return plain(text, 8)
+
+
+def _wrap_to(text: str, width_in: float, size_pt: float, max_lines: int) -> list[str]:
+    """``text`` in lines no wider than ``width_in`` (words kept whole unless one alone is wider); at
+    most ``max_lines``, the last cut with '…' when the text does not fit."""
+    import textwrap
+
+    s = " ".join(str(text).split())
+    fits = None
+    for chars in range(max(len(s), 1), 0, -1):
+        lines = textwrap.wrap(s, chars, break_long_words=True) or [""]
+        if fits is not None and len(lines) > len(fits):
+            break  # the narrowest wrap with the fewest lines: lines of even length, no lone last word
+        if all(_text_width_in(x, size_pt) <= width_in for x in lines):
+            fits = lines
+    lines = fits or [s]
+    if len(lines) > max_lines:
+        last = lines[max_lines - 1]
+        while last and _text_width_in(last + "…", size_pt) > width_in:
+            last = last[:-1]
+        lines = lines[: max_lines - 1] + [last.rstrip() + "…"]
+    return lines
+
+
+def _table_layout(comp, width_in: float) -> dict:
+    """Where the sheet's table puts its text: the font size, each column's centre (in from the
+    left; the names' column first, left-aligned at 0), each light's name in lines and each row's
+    height (in).  Columns are as wide as their widest text (measured); the names get the rest and
+    wrap in it, so a long name is shown whole (up to TABLE_NAME_LINES lines; the tiles'
+    headings hold two)."""
     keys = [k for k in SHEET_KEYS if any(k in x.figures for x in comp.lights)]
-    n = len(comp.lights) + 1
-    ncol = len(keys) + 1
-    x0 = 0.21
-    colw = (1 - x0) / len(keys)
-    y = lambda i: 1.0 - (i + 0.5) / n  # noqa: E731
-    for j, k in enumerate(keys):
+    verdicts = _verdicts_against_first(comp)
+    heads = []
+    for k in keys:
         t = vocabulary.term(k)
         unit = vocabulary.unit_text(t.unit)
-        name = t.label.split(" (")[0]
-        ax.text(x0 + (j + 0.5) * colw, y(0), f"{name}\n{('(' + unit + ')') if unit else ''}", ha="center",
-                va="center", fontsize=FONT_PT * 0.85, weight="bold", color="#333333", transform=ax.transAxes)
-    verdicts = _verdicts_against_first(comp)
+        heads.append([t.label.split(" (")[0]] + ([f"({unit})"] if unit else []))
+    cells = [[figure_cell(x.figures.get(k)) + (" *" if verdicts.get((i, k)) == "significant" else "")
+              for k in keys] for i, x in enumerate(comp.lights)]
+    size = FONT_PT * 0.85
+    while True:
+        widths = [max([_text_width_in(h, size, True) for h in heads[j]] +
+                      [_text_width_in(row[j], size, True) for row in cells]) for j in range(len(keys))]
+        used = sum(widths) + TABLE_GAP_IN * (len(keys) + 0.5)  # half a gap at the right end
+        if width_in - used >= TABLE_NAME_SHARE * width_in or size <= FONT_PT * 0.6:
+            break
+        size *= 0.93
+    name_w = max(width_in - used, 0.5)
+    names = [_wrap_to(plain(x.label, 400), name_w, size, TABLE_NAME_LINES) for x in comp.lights]
+    widest_name = max(_text_width_in(line, size) for lines in names for line in lines)
+    spare = max(width_in - used - widest_name, 0.0) / (len(keys) + 0.5)  # shared out between the columns
+    x, centres = widest_name, []
+    for w in widths:
+        x += TABLE_GAP_IN + spare
+        centres.append(x + w / 2)
+        x += w
+    rows = [TABLE_ROW_IN] + [TABLE_ROW_IN + TABLE_LINE_IN * max(len(lines) - 2, 0) for lines in names]
+    return {"keys": keys, "heads": heads, "cells": cells, "size": size, "centres": centres, "names": names,
+            "rows": rows, "height": sum(rows)}
+
+
+def _figures_table(ax, comp, layout: dict, width_in: float):
+    """Lights as rows, the key figures as columns; ``*`` marks a significant difference from the first
+    light.  ``ax`` spans the table (``width_in`` wide, ``layout['height']`` + the key line high); data
+    units are inches from its top left."""
+    ax.axis("off")
+    rows = layout["rows"]
+    ax.set_xlim(0, width_in)
+    ax.set_ylim(layout["height"] + 0.25, 0)
+    size = layout["size"]
+    tops = np.concatenate([[0.0], np.cumsum(rows)])
+    mid = lambda i: (tops[i] + tops[i + 1]) / 2  # noqa: E731
+    for j, head in enumerate(layout["heads"]):
+        ax.text(layout["centres"][j], mid(0), "\n".join(head), ha="center", va="center", fontsize=size,
+                weight="bold", color="#333333", gid="table-head")
     for i, light in enumerate(comp.lights, start=1):
         if i % 2 == 0:
-            ax.axhspan(y(i) - 0.5 / n, y(i) + 0.5 / n, color="#f0f0f0", lw=0, zorder=0)
-        ax.text(0.0, y(i), plain(light.label, 20), ha="left", va="center", fontsize=FONT_PT * 0.85,
-                transform=ax.transAxes)
-        for j, k in enumerate(keys):
+            ax.axhspan(tops[i], tops[i + 1], color="#f0f0f0", lw=0, zorder=0)
+        ax.text(0.0, mid(i), "\n".join(layout["names"][i - 1]), ha="left", va="center", fontsize=size,
+                linespacing=1.15, gid="table-name")
+        for j, k in enumerate(layout["keys"]):
             f = light.figures.get(k)
-            txt = figure_cell(f)
-            sig = verdicts.get((i - 1, k)) == "significant"
+            txt = layout["cells"][i - 1][j]
             grey = not f or f.get("status") == "not_measured"
-            ax.text(x0 + (j + 0.5) * colw, y(i), txt + (" *" if sig else ""), ha="center", va="center",
-                    fontsize=FONT_PT * 0.85, weight="bold" if sig else "normal",
-                    color="#8a8a8a" if grey else "black", transform=ax.transAxes)
-    ax.set_ylim(0, 1)
-    ax.text(0.0, -0.02, "value ± 1σ; ≈ estimate, ≥ / ≤ bound, — not measured;  * differs from the first light "
-            "beyond k = 2 combined uncertainties (bounds are never compared)", transform=ax.transAxes,
-            fontsize=FONT_PT * 0.7, va="top", color="#333333")
-    return ncol
+            ax.text(layout["centres"][j], mid(i), txt, ha="center", va="center", fontsize=size,
+                    weight="bold" if txt.endswith(" *") else "normal", color="#8a8a8a" if grey else "black",
+                    gid="table-cell")
+    ax.text(0.0, tops[-1] + 0.06, "value ± 1σ; ≈ estimate, ≥ / ≤ bound, — not measured;  * differs from the first "
+            "light beyond k = 2 combined uncertainties (bounds are never compared)", fontsize=FONT_PT * 0.7,
+            va="top", color="#333333")
 
 
 def _profiles(light, scale):
@@ -269,7 +401,7 @@ def profiles_figure(comp, path=None):
     for i, (light, s) in enumerate(zip(comp.lights, comp.scales)):
         (t, m), (ha, hv), (va, vv) = _profiles(light, s)
         st = style(i)
-        lab = plain(light.label, 30)
+        lab = legend_name(light.label, 36)
         every = max(1, len(t) // 12)
         kw = dict(lw=1.4, marker=MARKERS[i % len(MARKERS)], markevery=(i * 3 % every, every), markersize=4, **st)
         axes[0].plot(t, m, label=lab, **kw)
@@ -293,6 +425,14 @@ def profiles_figure(comp, path=None):
         ax.set_xlim(-half, half)
         ax.set_xlabel("signed angle from the axis (deg)", fontsize=FONT_PT)
     axes[0].set_ylim(bottom=0)
+    # numbers written as everywhere else in the report: 8,000 (not 8000), 10,000 (not 10^4)
+    from matplotlib.ticker import FuncFormatter
+
+    from .plots import _plain_log_ticks
+
+    for ax in (axes[0], axes[2], axes[3]):
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:,g}"))
+    _plain_log_ticks(axes[1].yaxis)
     axes[0].legend(fontsize=FONT_PT * 0.8, ncol=2 if len(comp.lights) > 4 else 1, frameon=False)
     mode = "absolute: every light in cd" if comp.absolute else \
         "normalised to each light's own peak (not every report is in cd): shapes only"
@@ -313,7 +453,12 @@ def difference_figure(comp, path=None):
     from ..compare import RATIO_FLOOR
 
     plt = _pyplot()
-    a, b = (plain(x.label, 26) for x in comp.lights)
+    full_a, full_b = (plain(x.label, 80) for x in comp.lights)
+    # the title with both names whole if they fit the width at some size down to FONT_PT, else cut
+    title_pt = next((FONT_PT * k for k in (1.4, 1.25, 1.1, 1.0)
+                     if _text_width_in(f"{full_a} ÷ {full_b}", FONT_PT * k, True) <= 5.8), None)
+    a, b = (full_a, full_b) if title_pt else (plain(x.label, 26) for x in comp.lights)
+    ends = [_longest_fitting(x.label, 2.3, FONT_PT * 0.85) for x in comp.lights]
     half = comp.exposure["half_angle_deg"]
     fig = plt.figure(figsize=(6.0, 7.2), dpi=DPI)
     ax = fig.add_axes([0.1, 0.24, 0.8, 0.8 * 6.0 / 7.2])
@@ -331,12 +476,15 @@ def difference_figure(comp, path=None):
     cb.ax.tick_params(labelsize=FONT_PT * 0.85)
     # which light is brighter, at the end of the bar where it is (one centred line ran off the picture
     # with long names)
-    cb.set_label(f"ratio {a} / {b}", fontsize=FONT_PT * 0.85)
-    fig.text(0.1, 0.165, f"◀ {b} brighter", ha="left", va="bottom", fontsize=FONT_PT * 0.85, color=RATIO_CMAP_COLOURS[0])
-    fig.text(0.9, 0.165, f"{a} brighter ▶", ha="right", va="bottom", fontsize=FONT_PT * 0.85,
+    label = f"ratio {a} / {b}"
+    if _text_width_in(label, FONT_PT * 0.85) > 5.6:
+        label = "ratio of the first light's intensity to the second's (as in the title)"
+    cb.set_label(label, fontsize=FONT_PT * 0.85)
+    fig.text(0.1, 0.165, f"◀ {ends[1]} brighter", ha="left", va="bottom", fontsize=FONT_PT * 0.85, color=RATIO_CMAP_COLOURS[0])
+    fig.text(0.9, 0.165, f"{ends[0]} brighter ▶", ha="right", va="bottom", fontsize=FONT_PT * 0.85,
              color=RATIO_CMAP_COLOURS[-1])
     mode = "absolute (cd / cd)" if comp.absolute else "shapes: each normalised to its own peak"
-    fig.text(0.5, 0.975, f"{a} ÷ {b}", ha="center", va="top", fontsize=FONT_PT * 1.4, weight="bold")
+    fig.text(0.5, 0.975, f"{a} ÷ {b}", ha="center", va="top", fontsize=title_pt or FONT_PT * 1.4, weight="bold")
     fig.text(0.5, 0.935, f"ratio of intensities in the same direction, {mode}", ha="center", va="top",
              fontsize=FONT_PT * 0.85, color="#333333")
     fig.text(0.5, 0.06, f"grey: either light below {RATIO_FLOOR:.0%} of its own peak, or not in its photo",
@@ -354,7 +502,7 @@ def reach_overlay_figure(comp, path=None):
     plt = _pyplot()
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(7.2, 9.4), dpi=DPI, gridspec_kw={"height_ratios": (1, 1.25)})
     peaks = [(x.figures.get("peak_intensity") or {}) for x in comp.lights]
-    plot_axis_illuminance([(plain(x.label, 30), p) for x, p in zip(comp.lights, peaks)], ax=ax1)
+    plot_axis_illuminance([(legend_name(x.label), p) for x, p in zip(comp.lights, peaks)], ax=ax1)
     extents = [lit_extent(x.beam, height_m=DEFAULT_HEIGHT_M, tilt_deg=DEFAULT_TILT_DEG) for x in comp.lights]
     reach_m = max(e[0] for e in extents)
     half_m = max(max(e[1] for e in extents), reach_m / 8)
@@ -367,7 +515,7 @@ def reach_overlay_figure(comp, path=None):
                     linestyles=[":"])
         ax2.contour(g.x_m, g.y_m, e, levels=[BRIGHT_POINT_LUX], colors=[st["color"]], linewidths=1.8,
                     linestyles=[st["linestyle"]])
-        ax2.plot([], [], label=plain(light.label, 30), lw=1.8, **st)
+        ax2.plot([], [], label=legend_name(light.label), lw=1.8, **st)
     ax2.plot([], [], color="#555555", lw=1.8, label=f"{BRIGHT_POINT_LUX:g} lx (solid / own dash)")
     ax2.plot([], [], color="#555555", lw=1.0, ls=":", label=f"{BEAM_DISTANCE_LUX:g} lx (dotted)")
     ax2.plot([0], [0], marker="^", color="black", ms=8, ls="none", label="the light")

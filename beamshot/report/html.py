@@ -19,13 +19,12 @@ import numpy as np
 
 from .. import vocabulary
 from ..figure import Figure
-from .plots import FROM_REPORT, ISO_LEVELS  # noqa: F401 - ISO_LEVELS: the levels the map draws, named in its caption
+from .plots import FROM_REPORT, ISO_LEVELS
 from .html_page import esc, number_attr, page, png_data_uri, table, write_text_atomic
 
 __all__ = ["HTML_FILE", "figure_rows", "report_html", "write_comparison_html", "write_report_html"]
 
 HTML_FILE = "report.html"
-#: Iso-intensity lines drawn on the map besides the analysis' own 50 % and 10 % contours (fraction of peak).
 #: Map picture: width in inches and resolution (about 800 px wide, sharp when shown 400-600 px wide).
 MAP_WIDTH_IN, MAP_DPI = 5.4, 150
 
@@ -260,12 +259,18 @@ def _pictures_section(report, d: dict, picture: bool, map_png: bytes | None = No
             f'<figure><img src="{uri}" alt="intensity map of the beam with angle rings and contours" '
             f'width="{int(MAP_WIDTH_IN * MAP_DPI)}"><figcaption>Intensity I(θ, φ) seen from behind the light, '
             f'{esc(unit_note)}, logarithmic colour scale (cividis). Rings mark full cone angles; solid and dashed '
-            'lines the 50 % and 10 % contours; dotted white lines are iso-intensity lines at 1 % and 0.1 % of '
-            'the peak where the map reaches them above its noise floor.</figcaption></figure>'
+            'lines the 50 % and 10 % contours; dotted white lines are iso-intensity lines at '
+            f'{_iso_words()} of the peak where the map reaches them above its noise floor.</figcaption></figure>'
             f'<div><figure>{radial}<figcaption>Mean over azimuth at each angle, with the hotspot, field and '
             f'spill angles.{esc(below)}{esc(clipped)}</figcaption></figure><figure>{planes}<figcaption>Cuts through the beam '
             'axis in the wall\'s horizontal and vertical planes.</figcaption></figure></div>'
             '</div></section>')
+
+
+def _iso_words() -> str:
+    """'1 % and 0.1 %': the iso-intensity levels the map draws (:data:`~beamshot.report.plots.ISO_LEVELS`)."""
+    words = [f"{lv * 100:g} %" for lv in sorted(ISO_LEVELS, reverse=True)]
+    return ", ".join(words[:-1]) + " and " + words[-1] if len(words) > 1 else "".join(words)
 
 
 # ------------------------------------------------------------------------------- inputs, warnings
@@ -298,6 +303,21 @@ def _ambient_text(amb) -> str:
     return esc(str(amb.get("file", "")) + extra)
 
 
+def exposure_text(t_s: float) -> str:
+    """An exposure time as cameras write it: '1/14 s' for a short one that is such a fraction (within
+    0.5 %, common practice), else 3 significant figures ('0.3 s', '2.5 s').
+
+    >>> exposure_text(0.0714286), exposure_text(0.004), exposure_text(2.5), exposure_text(0.3)
+    ('1/14 s', '1/250 s', '2.5 s', '0.3 s')
+    """
+    t = float(t_s)
+    if 0 < t < 0.5:
+        n = round(1.0 / t)
+        if n >= 2 and abs(n * t - 1.0) <= 0.005:
+            return f"1/{n} s"
+    return f"{t:.3g} s"
+
+
 def _inputs_section(d: dict) -> str:
     rows = []
     for i in d.get("inputs", []):
@@ -306,7 +326,7 @@ def _inputs_section(d: dict) -> str:
         if exif.get("make") or exif.get("model"):
             bits.append(" ".join(str(x) for x in (exif.get("make"), exif.get("model")) if x))
         if exif.get("exposure_time_s"):
-            bits.append(f"{exif['exposure_time_s']:g} s")
+            bits.append(exposure_text(exif["exposure_time_s"]))
         if exif.get("f_number"):
             bits.append(f"f/{exif['f_number']:g}")
         if exif.get("iso"):

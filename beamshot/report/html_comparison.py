@@ -164,6 +164,12 @@ def _clipped_text(clipped) -> str:
 _KEY_UNITS = (("_m", " m"), ("_deg", "°"), ("_px", " px"), ("_lx", " lx"))
 
 
+def _wall_text(data: dict) -> str:
+    """'5 m': the common wall distance the comparison re-draws every beam at."""
+    d = _num(_dict(data.get("exposure")).get("wall_distance_m"))
+    return f"{d:g} m" if d is not None else "one wall distance"
+
+
 def _facts(d: dict) -> str:
     items = []
     for k, v in d.items():
@@ -204,7 +210,9 @@ def comparison_html(data: dict, out_dir) -> str:
                         + "".join(f"<li>{esc(n)}</li>" for n in notes) + "</ul></section>")
     pictures = [_figure_block(_picture(out_dir, pics.get("sheet")), pics.get("sheet"), "beams side by side",
                               "Every beam drawn again from its intensity map with one exposure, one tone curve "
-                              "and one angular scale: the wall as a person would see it, and the angular map.")]
+                              "and one angular scale: the wall as a person would see it, re-drawn at a common "
+                              f"distance of {_wall_text(data)} (whatever distance each photo was taken at), and "
+                              "the angular map.")]
     pictures.append(_figure_block(_picture(out_dir, pics.get("profiles")), pics.get("profiles"), "overlaid profiles",
                                   "Radial profiles (linear and log) and the horizontal and vertical planes, "
                                   + ("in cd." if absolute else "each normalised to its peak.")))
@@ -228,13 +236,13 @@ def comparison_html(data: dict, out_dir) -> str:
                     + (_differences_tables(diffs) if diffs else '<p class="note">None.</p>') + "</section>")
     light_rows = [f'<tr><td data-label="label">{esc(lab)}</td><td data-label="report"><code>'
                   f'{esc(li.get("report", ""))}</code></td><td data-label="unit">{esc(li.get("unit", ""))}</td>'
-                  f'<td data-label="wall distance">{esc(li.get("distance_m", ""))}'
+                  f'<td data-label="photo taken at">{esc(li.get("distance_m", ""))}'
                   f'{" m" if _num(li.get("distance_m")) is not None else ""}</td>'
                   f'<td data-label="scale">{esc(li.get("scale", ""))}</td>'
                   f'<td data-label="clipped">{_clipped_text(li.get("clipped"))}</td></tr>'
                   for lab, li in zip(labels, lights)]
     sections.append('<section id="inputs"><h2>Lights and rendering</h2>'
-                    + table(["label", "report", "unit", "wall distance", "scale", "clipped"], light_rows, cls="stack")
+                    + table(["label", "report", "unit", "photo taken at", "scale", "clipped"], light_rows, cls="stack")
                     + "<h3>Common exposure</h3>" + _facts(_dict(data.get("exposure"))) + "</section>")
     cards = [c for c in _list(pics.get("cards"))]
     if cards:

@@ -8,7 +8,7 @@ it in the 'below' colour, cells outside the photo hatched; rings at round full c
 (labelled with the full angle, twice the radius); iso-intensity lines at
 :data:`~beamshot.report.plots.ISO_LEVELS` x peak; hotspot and field contours, the spill edge, the
 beam axis (ring) and the peak (diamond); the clipped area hatched and outlined; a small hotspot
-enlarged in an inset.
+enlarged in an inset, in the corner where it covers least (:func:`~beamshot.report.plots.inset_place`).
 """
 
 from __future__ import annotations
@@ -20,8 +20,9 @@ import numpy as np
 from .. import vocabulary
 from ..beammap import BeamMap
 from .colour_table import CIVIDIS_RGB
-from .plots import (_BELOW, _OUTSIDE, _SKY, _VERMILLION, INSET_BELOW_FRACTION, ISO_LEVELS,
-                    RING_LABEL_BEARING_DEG, _contour_xy, _inside_outline, _ring_step_full_deg, map_view)
+from .plots import (_BELOW, _OUTSIDE, _SKY, _VERMILLION, INSET_BELOW_FRACTION, INSET_MIN_ENLARGEMENT,
+                    INSET_ZOOM_REACH, ISO_LEVELS, RING_LABEL_BEARING_DEG, _contour_xy, _edge_line, _inside_outline,
+                    _ring_step_full_deg, inset_place, map_view)
 from .raster import Canvas
 from .raster_chart import draw_legend, draw_line_sample, draw_mark, log_ticks
 
@@ -276,6 +277,24 @@ def _draw_marks(c: Canvas, ax: _MapAxes, contours: dict, edge, pk, clipped: bool
     return entries
 
 
+#: Height (px) kept clear above the map's lower edge for the 'seen from behind the light' note.
+_NOTE_PX = 40.0
+
+
+def _keep_out(c: Canvas, box, zoomed) -> list:
+    """What an inset must leave visible, as fractions of the map ``box`` from its top left: the labels
+    drawn on the map so far, the note along its bottom and the area the inset enlarges."""
+    side = box[2] - box[0]
+
+    def frac(b):
+        return ((b[0] - box[0]) / side, (b[1] - box[1]) / side, (b[2] - box[0]) / side, (b[3] - box[1]) / side)
+
+    out = [frac(t.box) for t in c.record.texts if t.role in ("ring-label", "iso-label")]
+    out.append(frac((box[2] - 0.45 * side, box[3] - _NOTE_PX, box[2], box[3])))
+    out.append(frac(zoomed))
+    return out
+
+
 def _draw_colour_bar(c: Canvas, box, vmin: float, vmax: float, label: str, font_px: float) -> float:
     """Horizontal colour bar with a 'below' triangle on the left, plain log ticks and its label;
     returns the bottom of the label."""
@@ -339,29 +358,37 @@ def draw_map_panel(c: Canvas, beam: BeamMap, contours: dict | None, *, box, nois
     entries.append((below_text, "patch", dict(fill=_BELOW, edge="#777777")))
     entries.append(("outside the photo", "patch", dict(fill=_OUTSIDE, edge="#9a9a9a", hatch=("/",), spacing=7.0)))
 
-    # a small hotspot gets an enlarged inset (upper left) so that its contours and marks can be read
+    # a small hotspot gets an enlarged inset, in the corner where it covers least of the measured
+    # light, the spill edge and the labels, so that its contours and marks can be read
     fld = contours.get("field")
     side = box[2] - box[0]
     if not clipped and pk is not None and fld is not None and np.any(np.isfinite(fld.alpha)):
-        reach = np.degrees(pk.theta + np.nanmax(fld.alpha))
+        reach, mag = np.degrees(pk.theta + np.nanmax(fld.alpha)), 0.0
         if reach < INSET_BELOW_FRACTION * half:
-            zoom = max(1.6 * reach, 1.0)
-            zx0, zy0 = box[0] + 0.015 * side, box[1] + 0.02 * side
-            ibox = (zx0, zy0, zx0 + 0.38 * side, zy0 + 0.38 * side)
-            ins = _MapAxes(ibox, zoom)
+            zoom = max(INSET_ZOOM_REACH * reach, 1.0)
             (rx0, ry0), (rx1, ry1) = ax.px([(-zoom, zoom), (zoom, -zoom)])
+            place = inset_place(a, vals, floor, edge_xy=_edge_line(edge),
+                                keep_out=_keep_out(c, box, (rx0, ry0, rx1, ry1)))
+            fb = place["box"]
+            ibox = (box[0] + fb[0] * side, box[1] + fb[1] * side, box[0] + fb[2] * side, box[1] + fb[3] * side)
+            # the enlargement on the page: the inset's side over the side of the box it enlarges
+            mag = (ibox[2] - ibox[0]) / max(abs(rx1 - rx0), 1e-9)
+        if reach < INSET_BELOW_FRACTION * half and mag >= INSET_MIN_ENLARGEMENT:
+            c.record.values["inset_box"] = ibox
+            c.record.values["inset_corner"] = place["corner"]
+            c.record.values["inset_covered"] = place["covered"]
+            ins = _MapAxes(ibox, zoom)
             c.rect(rx0, ry0, rx1, ry1, edge="#ffffff", width=1.0 * PX_PER_PT, alpha=0.9)
             _, v2 = picture_grid(beam, zoom, n=241)
             _draw_image(c, ins, v2, floor, peak, factor)
             _draw_marks(c, ins, contours, None, pk, clipped, record=False)
             c.rect(*ibox, edge="#ffffff", width=1.2 * PX_PER_PT)
-            # the enlargement on the page: the inset's side over the side of the box it enlarges
-            mag = (ibox[2] - ibox[0]) / max(abs(rx1 - rx0), 1e-9)
             c.record.values["inset_deg_per_px"] = 2.0 * zoom / (ibox[2] - ibox[0])
             c.record.values["map_deg_per_px"] = 2.0 * half / side
             c.text(ibox[0] + 8, ibox[3] - 6, f"×{mag:.1f}", font_px * 0.85, role="inset-label", ha="left",
                    va="bottom", colour="#ffffff", stroke=2, stroke_colour="#000000")
     c.rect(*box, edge="#000000", width=1.0)
+    c.record.values["map_box"] = tuple(box)
     c.text(box[2] - 8, box[3] - 6, "seen from behind the light", font_px * 0.8, role="map-note", ha="right",
            va="bottom", colour="#ffffff", stroke=2, stroke_colour="#000000")
 

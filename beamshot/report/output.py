@@ -341,7 +341,7 @@ def write_report(report: BeamReport, out_dir, *, picture: bool = True) -> list[s
         if picture and getattr(report, "colour", None) is not None:  # only when colour was asked for
             from .colour_plots import tint_figure
 
-            tint_figure(report, os.path.join(tmp, "tint.png"))
+            tint_figure(report, os.path.join(tmp, "tint.png"), noise=noise)
             with open(os.path.join(tmp, "tint.png"), "rb") as fh:
                 tint_png = fh.read()
         # the page is always written (without pictures it holds the tables and says so)

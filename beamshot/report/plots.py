@@ -26,7 +26,7 @@ from ..beammap import BeamMap, directions
 from ..figure import value_with_uncertainty
 from ..hotspot import local_basis
 
-__all__ = ["NoiseFloor", "noise_floor", "map_floor", "plot_intensity_map", "figure_value_text", "intensity_label",
+__all__ = ["NoiseFloor", "noise_floor", "map_floor", "inset_place", "plot_intensity_map", "figure_value_text", "intensity_label",
            "row_percentiles", "CAUTION_LINE", "TABLE_KEYS"]
 
 #: Sigmas above the dark wall's median for a value to count as detected (k = 3, IUPAC, from memory).
@@ -51,6 +51,18 @@ RING_LABEL_BEARING_DEG = 35.0
 #: A hotspot whose field contour reaches less than this fraction of the map's half width gets an
 #: enlarged inset (project choice).
 INSET_BELOW_FRACTION = 0.2
+#: The inset's side as a fraction of the map's side, largest first: it takes the largest that covers
+#: no measured light, else the placement covering least (project choice).
+INSET_SIZES = (0.38, 0.34, 0.30, 0.26)
+#: The inset shows the field contour's reach times this (deg from the axis), and is drawn only if it
+#: enlarges at least INSET_MIN_ENLARGEMENT times: a smaller one adds nothing the map does not show
+#: (project choices).
+INSET_ZOOM_REACH = 1.25
+INSET_MIN_ENLARGEMENT = 1.5
+#: Gap between the inset and the map's border, as fractions of the map's side (x, y).
+INSET_MARGIN = (0.015, 0.02)
+#: Corners tried for the inset, in order of preference when several are equally clear.
+INSET_CORNERS = ("upper left", "lower left", "upper right", "lower right")
 #: Figures listed in the picture's table, in the printed table's order.
 TABLE_KEYS = (
     "peak_intensity", "beam_distance", "hotspot_angle", "hotspot_angle_horizontal", "hotspot_angle_vertical",
@@ -208,6 +220,51 @@ def map_floor(beam: BeamMap, edge, peak: float, noise: NoiseFloor | None) -> tup
     return floor, "below half the spill level"
 
 
+def inset_place(a: np.ndarray, vals: np.ndarray, floor: float, *, edge_xy=None, keep_out=()) -> dict:
+    """Where a map's enlarged inset covers least: a corner and a size from :data:`INSET_SIZES`.
+
+    ``a`` (deg, ascending) and ``vals`` (rows bottom to top) are the drawn grid; cells at or above
+    ``floor`` are measured light, and each point of ``edge_xy`` (deg, the spill edge's line) counts
+    as much as 50 such cells.  ``keep_out`` lists boxes ``(x0, y0, x1, y1)`` in fractions of the map
+    from its top left (labels, the zoomed area) that the inset must not touch.  Returns ``{"corner",
+    "box": (x0, y0, x1, y1) in those fractions, "covered": cells covered}``: the largest size that
+    covers nothing, else the placement covering least; ties go by :data:`INSET_CORNERS`' order.
+    """
+    half = (a[-1] - a[0]) / 2.0
+    fx = (a - a[0]) / (2 * half)  # column -> fraction from the left
+    fy = 1.0 - fx                 # row (bottom to top) -> fraction from the top
+    with np.errstate(invalid="ignore"):
+        lit = np.isfinite(vals) & (vals >= floor)
+    rows, cols = np.nonzero(lit)
+    px, py = fx[cols], fy[rows]
+    if edge_xy is not None and len(edge_xy):
+        e = np.asarray(edge_xy, float)
+        e = e[np.all(np.isfinite(e), axis=1)]
+        ex, ey = (e[:, 0] - a[0]) / (2 * half), 1.0 - (e[:, 1] - a[0]) / (2 * half)
+    else:
+        ex = ey = np.zeros(0)
+    mx, my = INSET_MARGIN
+    best = None
+    for size in INSET_SIZES:
+        for order, corner in enumerate(INSET_CORNERS):
+            x0 = mx if "left" in corner else 1.0 - mx - size
+            y0 = my if "upper" in corner else 1.0 - my - size
+            box = (x0, y0, x0 + size, y0 + size)
+            if any(k[0] < box[2] and box[0] < k[2] and k[1] < box[3] and box[1] < k[3] for k in keep_out):
+                continue
+            inside = (px >= box[0]) & (px <= box[2]) & (py >= box[1]) & (py <= box[3])
+            on_edge = (ex >= box[0]) & (ex <= box[2]) & (ey >= box[1]) & (ey <= box[3])
+            covered = int(inside.sum()) + 50 * int(on_edge.sum())
+            # nothing covered: the largest size wins; else the least covered
+            key = (covered > 0, covered if covered else -size, order)
+            if best is None or key < best[0]:
+                best = (key, {"corner": corner, "box": box, "covered": covered})
+    if best is None:  # every placement touches a label: the first corner at the smallest size
+        size, (mx, my) = INSET_SIZES[-1], INSET_MARGIN
+        return {"corner": INSET_CORNERS[0], "box": (mx, my, mx + size, my + size), "covered": -1}
+    return best[1]
+
+
 # ----------------------------------------------------------------------------- the map
 def _azimuthal_grid(beam: BeamMap, half_width_deg: float, n: int = 401):
     """Sample the map on a square grid of azimuthal-equidistant angles (deg, right/up positive).
@@ -353,7 +410,7 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     :func:`map_floor`; cells below it are black, cells outside the photo hatched.  The colour
     bar goes on ``cbar_ax`` (horizontal) if given, else beside the map; the legend, naming every
     line, mark and area, on ``legend_ax`` if given, else below the map.  A hotspot small against
-    the map gets an enlarged inset in the upper left corner.
+    the map gets an enlarged inset in the corner where it covers least (:func:`inset_place`).
     """
     plt = _pyplot()
     from matplotlib.colors import LogNorm
@@ -415,13 +472,19 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     handles.append(_patch(facecolor=_BELOW, edgecolor="#777777", label=below_text))
     handles.append(_patch(facecolor=_OUTSIDE, edgecolor="#9a9a9a", hatch="///", label="outside the photo"))
 
-    # a small hotspot gets an enlarged inset (upper left) so that its contours and marks can be read
+    # a small hotspot gets an enlarged inset, in the corner where it covers least (inset_place), so
+    # that its contours and marks can be read
     fld = contours.get("field")
     if not clipped and pk is not None and fld is not None and np.any(np.isfinite(fld.alpha)):
         reach = np.degrees(pk.theta + np.nanmax(fld.alpha))
+        zoom = max(INSET_ZOOM_REACH * reach, 1.0)
+        x0 = y0 = x1 = y1 = 0.0
         if reach < INSET_BELOW_FRACTION * half:
-            zoom = max(1.6 * reach, 1.0)
-            ins = ax.inset_axes([0.015, 0.60, 0.38, 0.38])
+            place = inset_place(a, vals, floor, edge_xy=_edge_line(edge), keep_out=_map_keep_out(half, zoom, step))
+            x0, y0, x1, y1 = place["box"]
+        if (x1 - x0) * half / zoom >= INSET_MIN_ENLARGEMENT:
+            ins = ax.inset_axes([x0, 1.0 - y1, x1 - x0, y1 - y0])
+            ins.set_gid("inset")
             a2, v2 = _azimuthal_grid(beam, zoom, n=241)
             draw(ins, a2, v2)
             _draw_marks(ins, contours, None, pk, clipped)
@@ -432,7 +495,8 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
             for sp in ins.spines.values():
                 sp.set_edgecolor("white")
                 sp.set_linewidth(1.2)
-            ins.text(0.04, 0.03, f"×{half / zoom:.0f}", transform=ins.transAxes, ha="left", va="bottom",
+            # the enlargement on the page: the inset's side over the side of the area it enlarges
+            ins.text(0.04, 0.03, f"×{(x1 - x0) * half / zoom:.1f}", transform=ins.transAxes, ha="left", va="bottom",
                      gid="inset-label", **_outlined(fontsize * 0.85))
             ax.indicate_inset_zoom(ins, edgecolor="white", alpha=0.9, lw=1.0)
 
@@ -451,6 +515,31 @@ def plot_intensity_map(beam: BeamMap, contours: dict | None = None, *, ax=None, 
     ax.text(0.985, 0.015, "seen from behind the light", transform=ax.transAxes, ha="right", va="bottom",
             zorder=9, **_outlined(fontsize * 0.8))
     return im
+
+
+def _edge_line(edge) -> np.ndarray | None:
+    """The spill edge's line (deg, right/up positive)."""
+    if edge is None or not np.any(np.isfinite(edge.theta)):
+        return None
+    th = np.degrees(edge.theta)
+    return np.column_stack((th * np.cos(edge.phi), th * np.sin(edge.phi)))
+
+
+def _map_keep_out(half: float, zoom: float, ring_step_full: float) -> list:
+    """Boxes (fractions of the map from its top left) an inset must leave clear on the matplotlib map:
+    the ring labels (about 0.16 x 0.06 of the map from their anchor, up and right), the note along
+    the lower right and the area the inset enlarges."""
+    out = []
+    lab = np.radians(RING_LABEL_BEARING_DEG)
+    for full in np.arange(ring_step_full, 2 * half + 1e-9, ring_step_full):
+        r = full / 2.0
+        if r <= half * 0.9:
+            fx, fy = (r * np.cos(lab) + half) / (2 * half), (half - r * np.sin(lab)) / (2 * half)
+            out.append((fx, fy - 0.06, fx + 0.16, fy))
+    out.append((0.55, 0.94, 1.0, 1.0))
+    z = zoom / (2 * half)
+    out.append((0.5 - z, 0.5 - z, 0.5 + z, 0.5 + z))
+    return out
 
 
 def _patch(**kw):

@@ -17,9 +17,10 @@ DPI = 150
 
 
 def plot_axis_illuminance(items, *, ax=None):
-    """``items``: ``[(label, peak figure dict), ...]``; draws E(d) = I/d^2 per light in cd. Returns the axes."""
+    """``items``: ``[(label, peak figure dict), ...]``; draws E(d) = I/d^2 per light in cd, the legend's
+    peak rounded as the report rounds it (:func:`~beamshot.report.compare_plots.value_text`). Returns the axes."""
     from ..reach import BEAM_DISTANCE_LUX, BRIGHT_POINT_LUX
-    from .compare_plots import MARKERS, style
+    from .compare_plots import MARKERS, style, value_text
     from .plots import _plain_log_ticks, _pyplot
 
     plt = _pyplot()
@@ -33,7 +34,8 @@ def plot_axis_illuminance(items, *, ax=None):
             continue
         st = style(i)
         mark = {"lower_bound": "≥ ", "upper_bound": "≤ ", "estimate": "≈ "}.get(p.get("status"), "")
-        ax.plot(d, p["value"] / d**2, lw=1.6, label=f"{lab}: {mark}{p['value']:,.0f} cd", **st)
+        ax.plot(d, p["value"] / d**2, lw=1.6, label=f"{lab}: {mark}{value_text(p['value'], p.get('uncertainty'))} cd",
+                **st)
         for lux, m in ((BEAM_DISTANCE_LUX, MARKERS[i % len(MARKERS)]), (BRIGHT_POINT_LUX, MARKERS[i % len(MARKERS)])):
             ax.plot([np.sqrt(p["value"] / lux)], [lux], marker=m, color=st["color"], ms=6, ls="none")
     for lux, word in ((BEAM_DISTANCE_LUX, "0.25 lx: beam distance (ANSI/PLATO FL 1)"), (BRIGHT_POINT_LUX, "1 lx")):
@@ -102,8 +104,9 @@ def plot_ground(ground, *, ax=None, cbar_ax=None):
     ax.tick_params(labelsize=FONT_PT * 0.85)
     if cbar_ax is not None:
         cb = plt.colorbar(im, cax=cbar_ax, orientation="horizontal", extend="min")
+        below = f"{norm.vmin:g} lx" if absolute else f"{norm.vmin:g} of it"
         cb.set_label(("illuminance on the ground (lx)" if absolute else "illuminance / its largest value") +
-                     "; grey: outside the measured map", fontsize=FONT_PT * 0.85)
+                     f"; black: below {below}; grey: outside the measured map", fontsize=FONT_PT * 0.85)
         _plain_log_ticks(cb.ax.xaxis, norm.vmax / norm.vmin)
         cb.ax.tick_params(labelsize=FONT_PT * 0.8)
     return im
@@ -111,7 +114,7 @@ def plot_ground(ground, *, ax=None, cbar_ax=None):
 
 def reach_figure(reach, label: str, path=None):
     """One light: the axis plot, the ground map and the two distances with their uncertainty."""
-    from .compare_plots import CAUTION_LINE, _save, plain
+    from .compare_plots import CAUTION_LINE, _save, legend_name, plain
     from .plots import _pyplot
 
     plt = _pyplot()
@@ -122,8 +125,9 @@ def reach_figure(reach, label: str, path=None):
     line = f"beam distance (0.25 lx): {bd.text()}   ·   1 lx: {bright.text()}"
     fig.text(0.5, 1 - 0.62 / H, line, ha="center", va="center", fontsize=FONT_PT * 0.9)
     ax1 = fig.add_axes([0.12, 1 - 4.2 / H, 0.82, 3.1 / H])
-    plot_axis_illuminance([(plain(label, 30), {"value": reach.peak.value, "unit": reach.peak.unit,
-                                               "status": reach.peak.status})], ax=ax1)
+    plot_axis_illuminance([(legend_name(label), {"value": reach.peak.value, "unit": reach.peak.unit,
+                                               "uncertainty": reach.peak.uncertainty, "status": reach.peak.status})],
+                          ax=ax1)
     g = reach.ground
     ax2 = fig.add_axes([0.12, 1 - 11.0 / H, 0.82, 6.0 / H])
     cax = fig.add_axes([0.12, 1 - 11.55 / H, 0.82, 0.14 / H])
