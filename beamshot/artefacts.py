@@ -359,6 +359,11 @@ def _with_tone_shape(figs: dict, beam: BeamMap, peak: float) -> dict:
             and figs[k].value is not None and figs[k].uncertainty is not None]
     if not keys or not peak > 0:
         return figs
+    # the rows the measures look at: down to the lowest clip level (10 %), which the re-reading moves to
+    # about 7 % of the original peak; 2 % and three rows beyond leave a margin
+    lit = np.flatnonzero((beam.intensity >= 0.02 * peak).any(axis=1))
+    rows = min(int(lit[-1]) + 3, len(beam.theta)) if lit.size else len(beam.theta)
+    beam = replace(beam, theta=beam.theta[:rows], intensity=beam.intensity[:rows], saturated=beam.saturated[:rows])
     rel = np.clip(beam.intensity / peak, 0.0, None) * TONE_PEAK_LEVEL
     power = Response("gamma", 2.2)
     with np.errstate(invalid="ignore"):
