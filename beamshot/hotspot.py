@@ -33,7 +33,12 @@ _RAY_SMOOTH_SAMPLES = 1.5
 
 @dataclass(frozen=True)
 class Peak:
-    """Peak of the map: value (map unit), direction, relative 1-sigma noise, clipped flag."""
+    """Peak of the map: value (map unit), direction, relative 1-sigma noise, clipped flag.
+
+    ``fit_samples`` and ``fit_area`` (sr) are the number of map samples the final quadratic fit used
+    and the tangent-plane area they cover: ``rel_noise`` treats the samples as independent, which
+    they are not where the map is finer than the photo's pixels (see
+    beamshot.artefacts._peak_rel_noise)."""
 
     value: float
     vector: np.ndarray
@@ -41,6 +46,8 @@ class Peak:
     phi: float
     rel_noise: float
     clipped: bool
+    fit_samples: int = 0
+    fit_area: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -109,6 +116,7 @@ def find_peak(beam: BeamMap) -> Peak:
     centre = directions(beam.theta[k], beam.phi[j])
     coarse = float(acc[k, j])
     value, rel_noise = coarse, 0.02
+    fit_samples, fit_area = 0, 0.0
     radii = (0.75, 1.5, 3.0, 6.0)
     first = 0
     for _ in range(2):  # fit, re-centre on the vertex, fit again (from the radius reached)
@@ -121,11 +129,13 @@ def find_peak(beam: BeamMap) -> Peak:
         if fit is None:
             break
         value, rel_noise, centre = fit[0], fit[1], fit[2]
+        fit_samples, fit_area = fit[4], fit[5]
     theta = float(np.arccos(np.clip(centre[2], -1, 1)))
     phi = float(np.mod(np.arctan2(centre[1], centre[0]), 2 * np.pi))
     near = np.isfinite(inten) & (inten >= 0.9 * value)
     clipped = bool(np.any(beam.saturated & near))
-    return Peak(value=value, vector=centre, theta=theta, phi=phi, rel_noise=max(rel_noise, 1e-4), clipped=clipped)
+    return Peak(value=value, vector=centre, theta=theta, phi=phi, rel_noise=max(rel_noise, 1e-4), clipped=clipped,
+                fit_samples=fit_samples, fit_area=fit_area)
 
 
 @lru_cache(maxsize=16)
@@ -146,7 +156,8 @@ def _patch(radius: float) -> tuple[np.ndarray, ...]:
 def _quadratic_peak(beam: BeamMap, centre: np.ndarray, radius: float, reference: float):
     """Fit ``a + b.u + u^T C u`` to samples >= 95 % of ``reference`` on a patch of ``radius`` (rad).
 
-    Returns ``(value, relative noise, vertex vector, fraction of patch used)`` or None.
+    Returns ``(value, relative noise, vertex vector, fraction of patch used, samples used, their
+    tangent-plane area in sr)`` or None.
     """
     uu, vv, disc, cos_rr, sinc_rr = _patch(float(radius))
     e1, e2 = local_basis(centre)
@@ -173,7 +184,9 @@ def _quadratic_peak(beam: BeamMap, centre: np.ndarray, radius: float, reference:
                   + coef[4] * off[0] * off[1] + coef[5] * off[1] ** 2)
     r0 = np.hypot(*off)
     vec0 = np.cos(r0) * centre + np.sinc(r0 / np.pi) * (off[0] * e1 + off[1] * e2)
-    return value, rel_noise, vec0 / np.linalg.norm(vec0), float(use.sum() / disc.sum())
+    step = 2.0 * float(radius) / (uu.shape[0] - 1)  # the patch's grid spacing (rad)
+    return (value, rel_noise, vec0 / np.linalg.norm(vec0), float(use.sum() / disc.sum()), int(use.sum()),
+            float(use.sum()) * step * step)
 
 
 def trace_contour(beam: BeamMap, centre: np.ndarray, level: float, level_fraction: float,

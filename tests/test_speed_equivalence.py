@@ -305,7 +305,8 @@ def test_iso13694_on_the_lit_rows_equals_the_whole_map():
     # reference: the measures over every row of the map (no region reaches below the lowest clip)
     from beamshot.level_integrals import above_level
     from beamshot.map_noise import NoiseModel
-    from beamshot.shape_iso import EDGE_CLIPS, HOTSPOT_CLIP, N_SUBSETS, _iso13694_of, ae_grid, iso13694
+    from beamshot.shape_iso import (EDGE_CLIPS, HOTSPOT_CLIP, N_SUBSETS, _iso13694_of, _sector_noise, ae_grid,
+                                    iso13694)
 
     from conftest import analytic_map
 
@@ -324,7 +325,10 @@ def test_iso13694_on_the_lit_rows_equals_the_whole_map():
     subs = np.array([_iso13694_of(hot, a_low, a_high, 1.0, cols % N_SUBSETS == k) for k in range(N_SUBSETS)])
     got = iso13694(beam, 1.0, noise)
     assert (got.flatness, got.uniformity, got.edge_steepness) == tuple(full)
-    assert got.flatness_sigma == float(np.nanstd(subs, axis=0, ddof=1)[0] / np.sqrt(N_SUBSETS))
+    # the noise: the larger of the interleaved spread and the contiguous sectors', over the whole map
+    radius = np.sqrt(np.array([hot.area.sum(), hot.area.sum(), a_high.sum()]) / np.pi)
+    sectors = _sector_noise(hot, a_low, a_high, 1.0, beam.phi, radius, 0.0)
+    assert got.flatness_sigma == float(np.fmax(np.nanstd(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS), sectors)[0])
     # the rows a disc reaches, for the D4sigma moments: slices of the whole map's arrays
     from beamshot.shape_iso import _NearRows
 
