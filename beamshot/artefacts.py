@@ -22,7 +22,7 @@ from ._quiet import quiet_nan
 from .beammap import BeamMap, directions
 from .figure import Figure, not_measured
 from .frames import local_basis
-from .hotspot import _rays
+from .hotspot import _rays, peak_rel_noise
 from .map_noise import noise_model
 from .measure import _clipped_edge_reason
 from .rings import MAX_FWHM_DEG, RING_SIGNIFICANCE, find_rings
@@ -542,43 +542,11 @@ def _iso_figure(value: float, noise: float, peak: float, blur: float, method: st
                           ("map sampling", blur)))
 
 
-#: Variance of a bilinear sample of independent pixels over that of one pixel, averaged over the
-#: sample's offset ``f`` on each axis: ``(E[(1 - f)^2 + f^2])^2 = (2/3)^2`` (f uniform on [0, 1]).
-BILINEAR_VARIANCE = 4.0 / 9.0
-#: Variance of the intercept of a quadratic ``a + b.x + x^T C x`` fitted at the centre of a disc
-#: evenly covered by N samples of variance s^2, in units of ``s^2 / N``: with ``u = r^2 / R^2``
-#: uniform on [0, 1], ``1 + mean(u)^2 / var(u) = 1 + (1/4) / (1/12) = 4`` (least-squares intercept;
-#: the linear, cross and ``x^2 - y^2`` terms are orthogonal to it on a disc).
-QUADRATIC_INTERCEPT_VARIANCE = 4.0
-
-
-def _peak_rel_noise(pk, pixel_deg: float) -> float:
-    """Relative 1-sigma noise of the fitted peak ``E_max`` with the photo's pixels counted, not the map's
-    samples.
-
-    :func:`beamshot.hotspot.find_peak` states ``s_res / sqrt(n / 6)`` for ``n`` samples with
-    residual ``s_res``, as if every sample were independent.  Near the axis the map and the fit's
-    patch are much finer than the working pixel (``pixel_deg``), so the samples share pixels: over
-    the fit's area ``A`` there are only ``N = A / pixel^2`` independent pixels, each of variance
-    ``s_res^2 / BILINEAR_VARIANCE`` (a bilinear sample averages its pixels), and the intercept of
-    the quadratic over them has the variance ``QUADRATIC_INTERCEPT_VARIANCE * s_pix^2 / N``.  The
-    larger of the two is kept.  Over 8 noise draws of a narrow (4 deg) beam the fitted peak
-    scattered by 0.19 % where ``rel_noise`` said 0.06 %."""
-    rel = float(pk.rel_noise)
-    if not (pixel_deg > 0 and pk.fit_samples > 0 and pk.fit_area > 0):
-        return rel
-    s_res = rel * np.sqrt(pk.fit_samples / 6.0)
-    n_pix = pk.fit_area / np.radians(pixel_deg) ** 2
-    if n_pix >= pk.fit_samples:
-        return rel
-    return float(max(rel, s_res * np.sqrt(QUADRATIC_INTERCEPT_VARIANCE / BILINEAR_VARIANCE / max(n_pix, 1.0))))
-
-
 def _peak_changed(beam: BeamMap, pk, noise, res, pixel_deg: float = 0.0) -> tuple[float, float, float]:
     """How much flatness, uniformity and edge steepness change when the fitted peak ``E_max`` moves
-    by its own 1-sigma noise (:func:`_peak_rel_noise`): the clip levels move with it, and the
+    by its own 1-sigma noise (:func:`beamshot.hotspot.peak_rel_noise`): the clip levels move with it, and the
     flatness is divided by it."""
-    rel = _peak_rel_noise(pk, pixel_deg)
+    rel = peak_rel_noise(pk, pixel_deg)
     if not rel > 0:
         return 0.0, 0.0, 0.0
     return _iso_change(iso13694(beam, pk.value * (1.0 + rel), noise), res)

@@ -21,7 +21,8 @@ from .beammap import BeamMap, directions
 from .frames import local_basis, opposite_index
 from .photometry import equal_cone_full_angle
 
-__all__ = ["Peak", "Contour", "find_peak", "trace_contour", "trace_contours", "local_basis", "N_BEARINGS"]
+__all__ = ["Peak", "Contour", "find_peak", "peak_rel_noise", "trace_contour", "trace_contours", "local_basis",
+           "N_BEARINGS"]
 
 #: Number of rays (bearings) used to trace a contour.
 N_BEARINGS = 72
@@ -38,7 +39,7 @@ class Peak:
     ``fit_samples`` and ``fit_area`` (sr) are the number of map samples the final quadratic fit used
     and the tangent-plane area they cover: ``rel_noise`` treats the samples as independent, which
     they are not where the map is finer than the photo's pixels (see
-    beamshot.artefacts._peak_rel_noise)."""
+    :func:`peak_rel_noise`)."""
 
     value: float
     vector: np.ndarray
@@ -272,3 +273,35 @@ def _crossings(rays, level: float, level_fraction: float) -> Contour:
         slope = np.maximum((p0 - p1) / step, 1e-30)
         sigma[b] = np.hypot(noise / slope, step / np.sqrt(12.0))
     return Contour(level_fraction=level_fraction, bearings=bearings, alpha=alpha, sigma=sigma)
+
+
+#: Variance of a bilinear sample of independent pixels over that of one pixel, averaged over the
+#: sample's offset ``f`` on each axis: ``(E[(1 - f)^2 + f^2])^2 = (2/3)^2`` (f uniform on [0, 1]).
+BILINEAR_VARIANCE = 4.0 / 9.0
+#: Variance of the intercept of a quadratic ``a + b.x + x^T C x`` fitted at the centre of a disc
+#: evenly covered by N samples of variance s^2, in units of ``s^2 / N``: with ``u = r^2 / R^2``
+#: uniform on [0, 1], ``1 + mean(u)^2 / var(u) = 1 + (1/4) / (1/12) = 4`` (least-squares intercept;
+#: the linear, cross and ``x^2 - y^2`` terms are orthogonal to it on a disc).
+QUADRATIC_INTERCEPT_VARIANCE = 4.0
+
+
+def peak_rel_noise(pk: Peak, pixel_deg: float) -> float:
+    """Relative 1-sigma noise of the fitted peak ``E_max`` with the photo's pixels counted, not the map's
+    samples.
+
+    :func:`beamshot.hotspot.find_peak` states ``s_res / sqrt(n / 6)`` for ``n`` samples with
+    residual ``s_res``, as if every sample were independent.  Near the axis the map and the fit's
+    patch are much finer than the working pixel (``pixel_deg``), so the samples share pixels: over
+    the fit's area ``A`` there are only ``N = A / pixel^2`` independent pixels, each of variance
+    ``s_res^2 / BILINEAR_VARIANCE`` (a bilinear sample averages its pixels), and the intercept of
+    the quadratic over them has the variance ``QUADRATIC_INTERCEPT_VARIANCE * s_pix^2 / N``.  The
+    larger of the two is kept.  Over 8 noise draws of a narrow (4 deg) beam the fitted peak
+    scattered by 0.19 % where ``rel_noise`` said 0.06 %."""
+    rel = float(pk.rel_noise)
+    if not (pixel_deg > 0 and pk.fit_samples > 0 and pk.fit_area > 0):
+        return rel
+    s_res = rel * np.sqrt(pk.fit_samples / 6.0)
+    n_pix = pk.fit_area / np.radians(pixel_deg) ** 2
+    if n_pix >= pk.fit_samples:
+        return rel
+    return float(max(rel, s_res * np.sqrt(QUADRATIC_INTERCEPT_VARIANCE / BILINEAR_VARIANCE / max(n_pix, 1.0))))

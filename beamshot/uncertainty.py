@@ -52,7 +52,7 @@ import numpy as np
 
 from .beammap import BeamMap
 from .camera.linearize import LinearImage
-from .hotspot import N_BEARINGS
+from .hotspot import N_BEARINGS, peak_rel_noise
 from .measure import ANGLE_KEYS
 from .spill import SECTOR_DEG
 from .photometry import beam_distance_m, illuminance_on_wall
@@ -457,7 +457,7 @@ def _terms(measured, jobs, base, shape, scale, lux_at_peak, distance_m, distance
     terms.append(Term("pixel noise", "noise of the contour and edge crossings along each ray; zone boundaries "
                       "moved by it", "measured from the photo's own scatter", False, False, noise))
     # ---- the peak fit's noise: the peak (no meter) or every flux (meter matched to the peak)
-    rel_noise = float(shape.peak.rel_noise)
+    rel_noise = peak_rel_noise(shape.peak, pixel_deg)  # the photo's pixels counted, not the map's samples
     if k is not None:
         if scale.kind == "lux_meter":
             pk_d = {key: -rel_noise * base[key] for key in ("hotspot_flux", "spill_flux", "beam_flux")}

@@ -11,14 +11,11 @@ import pytest
 from conftest import analytic_map
 
 from beamshot.artefacts import (
-    BILINEAR_VARIANCE,
-    QUADRATIC_INTERCEPT_VARIANCE,
-    _peak_rel_noise,
     _sector_figure,
     with_shared_terms,
 )
 from beamshot.figure import Figure
-from beamshot.hotspot import find_peak
+from beamshot.hotspot import BILINEAR_VARIANCE, QUADRATIC_INTERCEPT_VARIANCE, find_peak, peak_rel_noise
 from beamshot.shape_iso import iso13694
 
 SIGMA_DEG = 4.0 / (2.0 * np.sqrt(2.0 * np.log(2.0)))  # a 4 deg FWHM Gaussian hotspot
@@ -73,21 +70,21 @@ def test_quadratic_intercept_variance_on_a_disc():
 def test_peak_noise_counts_the_photos_pixels():
     # analytic: a Gaussian hotspot (peak 1) on a map finer than the photo's pixels (0.1 deg cells near the
     # axis, 0.15 deg pixels) with 1 % independent pixel noise: the fitted peak's scatter over noise draws
-    # is what _peak_rel_noise states; find_peak's own rel_noise, which counts map samples, is far smaller
+    # is what peak_rel_noise states; find_peak's own rel_noise, which counts map samples, is far smaller
     rng = np.random.default_rng(3)
     beam, pixel = _gaussian_map(), 0.15
     peaks, stated, own = [], [], []
     for _ in range(40):
         pk = find_peak(_with_pixel_noise(beam, rng, pixel, 0.01))
         peaks.append(pk.value)
-        stated.append(_peak_rel_noise(pk, pixel))
+        stated.append(peak_rel_noise(pk, pixel))
         own.append(pk.rel_noise)
     scatter = np.std(peaks, ddof=1)
     assert 0.7 < scatter / np.mean(stated) < 1.4
     assert scatter / np.mean(own) > 2.5
     # pixels finer than the fit's samples: nothing shared, find_peak's value is kept
-    assert _peak_rel_noise(pk, 1e-4) == pk.rel_noise
-    assert _peak_rel_noise(pk, 0.0) == pk.rel_noise
+    assert peak_rel_noise(pk, 1e-4) == pk.rel_noise
+    assert peak_rel_noise(pk, 0.0) == pk.rel_noise
 
 
 def test_iso13694_noise_from_contiguous_sectors():
