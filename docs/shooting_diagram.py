@@ -53,7 +53,7 @@ def main(path=os.path.join(HERE, "shooting-diagram.png")):
     ax.set_aspect("equal")
     ax.set_xlabel("metres (seen from above)")
     ax.set_yticks([])
-    ax.legend(loc="upper left", fontsize=8)
+    ax.legend(loc="center left", fontsize=8)
     ax.set_title("Shooting a beam for beamshot", fontsize=11)
     fig.tight_layout()
     fig.savefig(path)
