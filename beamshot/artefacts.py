@@ -122,14 +122,9 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
     draws = np.array([_axes(cv2.fitEllipse(p)) for p in pts])
     s_major, s_minor = np.std(draws[:, 0], ddof=1), np.std(draws[:, 1], ddof=1)
     s_orient = float(np.degrees(np.std(np.angle(np.exp(2j * np.radians(draws[:, 2] - orient))), ddof=1) / 2.0))
-    ell = minor / major
     ratios = draws[:, 1] / draws[:, 0]
     s_ell = float(np.std(ratios, ddof=1))
-    # noise makes any outline look less round (minor/major is biased low); the refits, noisier by
-    # the same amount, show that bias again: their mean minus the measured ratio is its bootstrap
-    # estimate (Efron & Tibshirani, An Introduction to the Bootstrap, 1993, section 10.2), counted
-    # as a term of its own
-    bias = float(abs(np.mean(ratios) - ell))
+    ell, h_upper = _debiased_ellipticity(major, minor, orient, draws)
     method = (f"ellipse fitted (least-squares conic) to the {what}, on the azimuthal-equidistant plane about "
               "the beam axis; full axes")
     budget_major = (("pixel noise", s_major), ("wall scale", scale_u * major))
@@ -139,11 +134,17 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
                                         method + ": the major axis", budget=budget_major),
         f"{prefix}_minor_angle": Figure(minor, float(np.hypot(s_minor, scale_u * minor)), "deg",
                                         method + ": the minor axis", budget=budget_minor),
-        f"{prefix}_ellipticity": Figure(ell, float(np.hypot(s_ell, bias)), "", method + ": minor over major axis "
-                                        "(ISO 11146 ratio; 1 is round)",
-                                        budget=(("pixel noise", s_ell), ("noise bias (bootstrap)", bias))),
+        f"{prefix}_ellipticity": Figure(ell, s_ell, "", method + ": minor over major axis (ISO 11146 ratio; 1 is "
+                                        "round), its out-of-roundness freed of the noise's bias (Rice)",
+                                        budget=(("pixel noise", s_ell),)),
     }
-    if s_orient >= 30.0 or 1.0 - ell < max(ROUND_SIGMAS * s_ell, ROUND_MIN):
+    if h_upper is not None:  # round within its noise: only how far from round it can be is known
+        d = 0.5 * (major + minor)
+        out[f"{prefix}_ellipticity"] = Figure(
+            float((d - h_upper) / (d + h_upper)), None, "", method + ": minor over major axis (ISO 11146 ratio; 1 is "
+            "round)", "lower_bound", "round within its noise: the out-of-roundness is below twice its noise, and "
+            "the ratio is at least this")
+    if h_upper is not None or s_orient >= 30.0 or 1.0 - ell < max(ROUND_SIGMAS * s_ell, ROUND_MIN):
         out[f"{prefix}_orientation"] = not_measured(
             "deg", method + ": azimuth of the major axis",
             "the outline is round within its noise, so it has no orientation")
@@ -152,6 +153,36 @@ def _ellipse_figures(prefix: str, x, y, sx, sy, scale_u: float, what: str, rng) 
                                               method + ": azimuth of the major axis (0-180 deg, counter-clockwise "
                                               "from the right as seen from behind the light)")
     return out
+
+
+def _debiased_ellipticity(major: float, minor: float, orient: float, draws: np.ndarray) -> tuple[float, float | None]:
+    """Minor over major axis with the noise's bias taken out, and, when the outline is round within
+    its noise, an upper limit of its out-of-roundness (else None).
+
+    An ellipse of mean full axis ``D`` deviates from its circle by ``H = (major - minor) / 2`` along
+    twice the major axis's azimuth: the 2-vector ``h = H (cos 2a, sin 2a)``.  Noise on the outline's
+    points adds a random 2-vector of variance ``s^2`` per component, so the measured length is
+    biased up: ``E|h|^2 = A^2 + 2 s^2`` for a true length ``A`` (the Rice distribution; Rice, Bell
+    Syst. Tech. J. 23, 1944), and a round outline (A = 0) reads ``|h|`` of ``1.25 s`` on average, not
+    0 - an ellipticity biased low by about twice its own scatter.  ``s`` comes from the refits
+    ``draws`` (``(n, 3)``: major, minor, azimuth), whose points were moved by their noise once more.
+    ``A`` is estimated by ``sqrt(max(|h|^2 - 2 s^2, 0))`` and the ratio is ``(D - A) / (D + A)``.
+    When that estimate is below ``2 s`` the outline is round within its noise, and ``|h| + 2 s`` is
+    returned as the upper limit of ``A`` (about 95 %)."""
+    d = 0.5 * (major + minor)
+
+    def vec(mj, mn, az):
+        half, twice = 0.5 * (np.asarray(mj) - np.asarray(mn)), np.radians(2.0 * np.asarray(az))
+        return half * np.cos(twice), half * np.sin(twice)
+
+    hx, hy = vec(major, minor, orient)
+    dx, dy = vec(draws[:, 0], draws[:, 1], draws[:, 2])
+    s2 = 0.5 * (np.var(dx, ddof=1) + np.var(dy, ddof=1))
+    h = float(np.hypot(hx, hy))
+    a = float(np.sqrt(max(h * h - 2.0 * s2, 0.0)))
+    if a < 2.0 * np.sqrt(s2):
+        return float((d - a) / (d + a)), h + 2.0 * float(np.sqrt(s2))
+    return float((d - a) / (d + a)), None
 
 
 #: Shape figures measured on the same outline as a main figure, which therefore share its
@@ -273,6 +304,11 @@ def with_mapping_anisotropy(shape: dict, anisotropy: float) -> dict:
     out = dict(shape)
     for key in AXIS_RATIOS:
         f = shape.get(key)
+        if f is not None and f.value is not None and f.status == "lower_bound":
+            # a bound stays one: lowered by twice the term, as it was set at about two sigma of noise
+            out[key] = replace(f, value=float(f.value * (1.0 - 2.0 * anisotropy)),
+                               reason=f"{f.reason}; lowered by twice the wall mapping's anisotropy")
+            continue
         if f is None or f.value is None or f.uncertainty is None or f.status not in ("measured", "estimate"):
             continue
         term = anisotropy * abs(f.value)
