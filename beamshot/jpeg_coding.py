@@ -65,11 +65,12 @@ def concentric_sigma_rel(level, response, *, max_code: int = 255, sigma_codes: f
 
 
 # --------------------------------------------------------------------------- colour (u', v') of band means
-#: RMS concentric error of an 8-bit JPEG's band means in codes of its chroma, Cb and Cr (ITU-T T.871):
-#: the largest RMS measured by benchmarks/jpeg_colour_bands.py, 0.56 (two-tone beams and a beam of one
-#: colour alike, qualities 75-95, 4:2:0 and 4:4:4; largest single band 1.12), rounded up.  Unlike the
-#: luminance's, it shrinks with the quality (0.3-0.56 at 75, 0.05-0.2 at 95): one size for all
-#: qualities is conservative by up to about 4 times at 95.
+#: RMS concentric error of an 8-bit JPEG's 3 px band means in codes of its chroma, Cb and Cr (ITU-T
+#: T.871): the largest RMS measured by benchmarks/jpeg_colour_bands.py, 0.59 (three two-tone beams,
+#: two seeds, qualities 75-95, 4:2:0 and 4:4:4; a beam of one colour reached 0.41; largest single band
+#: 1.12), rounded up.  Unlike the luminance's, it shrinks with the quality (0.3-0.59 at 75, 0.05-0.2 at
+#: 95): one size for all qualities overstates it by up to about 4 times at 95.  With Y at
+#: COLOUR_RMS_CODES, 98-100 % of the bands' u' and v' errors lie within 2 sigma of chroma_sigma_uv.
 CHROMA_RMS_CODES = 0.6
 #: How R, G, B codes move per code of Y, Cb, Cr: the inverse JFIF matrix (ITU-T T.871 sec. 7).
 YCC_TO_RGB_STEP = ((1.0, 1.0, 1.0), (0.0, -0.344136, 1.772), (1.402, -0.714136, 0.0))

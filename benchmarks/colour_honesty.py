@@ -1,6 +1,6 @@
 """Benchmark: are the colour-across-the-beam figures honest under JPEG coding?
 
-Run:  python benchmarks/colour_honesty.py [--seeds 3] [--qualities 75 85 90 95] [--size 1600]
+Run:  python benchmarks/colour_honesty.py [--seeds 3] [--qualities 75 85 90 95] [--size 1600] [--by-quality]
 
 Two-tone beams (beamshot.synth.TwoToneBeam: a blackbody hotspot in a blackbody spill of another
 temperature) are rendered as 8-bit sRGB photos with sensor noise, coded as JPEG (Pillow's libjpeg,
@@ -153,6 +153,7 @@ def main() -> None:
     ap.add_argument("--seeds", type=int, default=3)
     ap.add_argument("--qualities", type=int, nargs="+", default=[75, 85, 90, 95])
     ap.add_argument("--size", type=int, default=1600, help="photo width (px), 4:3")
+    ap.add_argument("--by-quality", action="store_true", help="columns per JPEG quality instead of per colour pair")
     args = ap.parse_args()
     scene = Scene(distance_m=4.0)
     results: dict[str, dict] = {}
@@ -174,10 +175,14 @@ def main() -> None:
                 for fig, errs in evaluate(rep, beam, truth).items():
                     results.setdefault(kind, {}).setdefault(fig, []).extend(errs)
                     results.setdefault(f"{kind} {hot_k:.0f}/{spill_k:.0f}", {}).setdefault(fig, []).extend(errs)
+                    if kind == "JPEG":
+                        results.setdefault(name, {}).setdefault(fig, []).extend(errs)
         print(f"  {hot_k:.0f} K in {spill_k:.0f} K done ({time.time() - t0:.0f} s)", flush=True)
     figs = list(results["JPEG"])
     print(f"\nfraction within 2 sigma (n = comparisons); max |error|/sigma")
     cols = ["JPEG", "PNG8", "PNG16"] + [k for k in results if k.startswith("JPEG ")]
+    if args.by_quality:
+        cols = ["JPEG"] + [f"JPEG q{q}" for q in args.qualities]
     print(f"{'figure':>30} " + " ".join(f"{c:>22}" for c in cols))
     for f in figs:
         cells = []

@@ -19,6 +19,12 @@ is ``sigma^2 max(a_px / a_cell, 1)`` (cells smaller than a pixel share its error
 larger areas (a JPEG codes colour in 8 x 8 blocks at half resolution, ITU-T T.81 with 4:2:0)
 are not in that model: the scatter between the azimuth sectors of each ring of the colour map
 against the model gives a variance factor (:func:`correlation_gain`, at least 1) applied to all.
+A JPEG's coding also leaves errors that are the same all around the axis (beamshot.jpeg_coding), which
+no comparison of sectors sees: for a single 8-bit JPEG a "JPEG coding" term
+(``jpeg_coding.chroma_sigma_uv``, sized by benchmarks/jpeg_colour_bands.py) at the mean level of each
+ring, map cell and zone enters the rings' ``sigma_uv``, the map maximum (cells of two rings, taken as
+independent; the cells' ``sigma_uv`` stays the noise, kept apart as ``sigma_uv_coding``) and the zone
+figures (a zone's error did not average down to its noise: benchmarks/colour_honesty.py).
 Zone boundaries: the light near a boundary is a mix of both zones' light, so a zone's colour moves
 with its boundaries; each boundary (hotspot, field, spill edge) is moved in turn by the relative
 1-sigma uncertainty of its angle figure and the change enters as the "zone boundaries" term.  Then ``cov_XYZ = M diag(var S) M^T`` and first-order
