@@ -22,7 +22,8 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["COLOUR_RMS_CODES", "GREY_RMS_CODES", "COLOUR_CHANGE", "coding_rms_codes", "concentric_sigma_rel",
-           "is_jpeg", "CHROMA_RMS_CODES", "YCC_TO_RGB_STEP", "chroma_sigma_uv"]
+           "is_jpeg", "CHROMA_RMS_CODES", "ZONE_LUMA_RMS_CODES",
+           "ZONE_CHROMA_RMS_CODES", "YCC_TO_RGB_STEP", "chroma_sigma_uv"]
 
 #: RMS of the concentric error of an 8-bit JPEG's azimuthal mean, in codes of the luminance, for a
 #: beam whose colour changes across it (the largest RMS measured by
@@ -72,6 +73,12 @@ def concentric_sigma_rel(level, response, *, max_code: int = 255, sigma_codes: f
 #: 95): one size for all qualities overstates it by up to about 4 times at 95.  With Y at
 #: COLOUR_RMS_CODES, 98-100 % of the bands' u' and v' errors lie within 2 sigma of chroma_sigma_uv.
 CHROMA_RMS_CODES = 0.6
+#: RMS coding error of the mean of a whole zone of the beam (all pixels at >= 50 %, 10-50 % or 0.5-10 %
+#: of the peak), in codes of Y and of Cb and Cr: the largest RMS per zone measured by
+#: benchmarks/jpeg_colour_bands.py (Y 0.12, Cb 0.22; largest single zone 0.52), rounded up.  A zone
+#: averages many bands whose errors partly cancel: a third to a half of a band's.
+ZONE_LUMA_RMS_CODES = 0.15
+ZONE_CHROMA_RMS_CODES = 0.25
 #: How R, G, B codes move per code of Y, Cb, Cr: the inverse JFIF matrix (ITU-T T.871 sec. 7).
 YCC_TO_RGB_STEP = ((1.0, 1.0, 1.0), (0.0, -0.344136, 1.772), (1.402, -0.714136, 0.0))
 

@@ -71,7 +71,17 @@ def band_errors(source: np.ndarray, quality: int, subsampling: int, band_px: flo
     keep = ok & (lum_code > 15) & (lum_code < 230)
     d_codes = (m_dec - m_src)[keep] / slope[keep]
     d_uv = uv_prime_of(m_dec[keep] @ SRGB_TO_XYZ.T) - uv_prime_of(m_src[keep] @ SRGB_TO_XYZ.T)
-    return m_src[keep], d_codes @ RGB_TO_YCC.T, d_uv
+    # zones of the source's luminance (fraction of its brightest band): >= 50 %, 10-50 %, and 0.5-10 %
+    # (the lit spill); a zone's mean is the mean of all its pixels
+    rel = (lum / np.max(m_src @ SRGB_TO_XYZ[1])).ravel()
+    z_err = []
+    for lo, hi in ((0.5, np.inf), (0.1, 0.5), (0.005, 0.1)):
+        sel = (rel >= lo) & (rel < hi) & (source.reshape(-1, 3).max(axis=1) < 255)
+        zs, zd = lin_src[sel].mean(axis=0), lin_dec[sel].mean(axis=0)
+        zc = 255.0 * np.interp(zs, srgb_decode(grid), grid)
+        zslope = srgb_decode(np.minimum(zc + 0.5, 255) / 255) - srgb_decode(np.maximum(zc - 0.5, 0) / 255)
+        z_err.append(((zd - zs) / zslope) @ RGB_TO_YCC.T)
+    return m_src[keep], d_codes @ RGB_TO_YCC.T, d_uv, np.array(z_err)
 
 
 def main() -> None:
@@ -92,6 +102,7 @@ def main() -> None:
     print(f"{'beam':>18} {'chroma':>6} {'q':>3} {'Y rms':>6} {'Y max':>6} {'Cb rms':>6} {'Cb max':>6} {'Cr rms':>6} "
           f"{'Cr max':>6} {'uv rms':>8} {'uv max':>8} {'model 2sig':>10}")
     worst = {"Y": 0.0, "C": 0.0}
+    zone_errors = []
     for k, (name, beam) in enumerate(beams):
         grey = HotspotSpillBeam(**shape)
         cam = _camera(exposure_time_s=exposure_time_for_peak(grey, scene, _camera(), target=0.75))
@@ -99,7 +110,8 @@ def main() -> None:
             photo = render_two_tone_photo(beam, scene, cam, seed=100 * k + seed)
             for sub in SUBSAMPLING:
                 for q in args.qualities:
-                    lin, ycc, duv = band_errors(photo, q, SUBSAMPLING[sub])
+                    lin, ycc, duv, zone = band_errors(photo, q, SUBSAMPLING[sub])
+                    zone_errors.append(zone)
                     rms = np.sqrt(np.mean(ycc**2, axis=0))
                     mx = np.max(np.abs(ycc), axis=0)
                     sig = chroma_sigma_uv(lin, srgb, SRGB_TO_XYZ)
@@ -112,6 +124,13 @@ def main() -> None:
                           f"{within:10.1%}", flush=True)
     print(f"largest RMS over the two-tone beams: Y {worst['Y']:.3f}, Cb/Cr {worst['C']:.3f} codes "
           f"(luminance term used for Y: {COLOUR_RMS_CODES})")
+    z = np.array(zone_errors)  # (photos, zone, Y/Cb/Cr)
+    print("error of the zone means (all pixels at >= 50 %, 10-50 %, 0.5-10 % of the peak), codes, over all photos:")
+    for k, name in enumerate(("hotspot", "corona", "spill")):
+        rms = np.sqrt(np.mean(z[:, k] ** 2, axis=0))
+        mx = np.max(np.abs(z[:, k]), axis=0)
+        print(f"  {name:>8}: RMS Y {rms[0]:.3f} Cb {rms[1]:.3f} Cr {rms[2]:.3f}; max Y {mx[0]:.3f} Cb {mx[1]:.3f} "
+              f"Cr {mx[2]:.3f}")
 
 
 if __name__ == "__main__":

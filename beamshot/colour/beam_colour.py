@@ -24,7 +24,8 @@ no comparison of sectors sees: for a single 8-bit JPEG a "JPEG coding" term
 (``jpeg_coding.chroma_sigma_uv``, sized by benchmarks/jpeg_colour_bands.py) at the mean level of each
 ring, map cell and zone enters the rings' ``sigma_uv``, the map maximum (cells of two rings, taken as
 independent; the cells' ``sigma_uv`` stays the noise, kept apart as ``sigma_uv_coding``) and the zone
-figures (a zone's error did not average down to its noise: benchmarks/colour_honesty.py).
+figures (a zone's error did not average down to its noise, benchmarks/colour_honesty.py; it is sized
+from zone means, a third to a half of a band's).
 Zone boundaries: the light near a boundary is a mix of both zones' light, so a zone's colour moves
 with its boundaries; each boundary (hotspot, field, spill edge) is moved in turn by the relative
 1-sigma uncertainty of its angle figure and the change enters as the "zone boundaries" term.  Then ``cov_XYZ = M diag(var S) M^T`` and first-order
@@ -381,7 +382,7 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool,
             continue
         xyz0 = m @ sums.s
         shifted = [m @ _sums(w[z], maps[:3], factor, d_omega, noise, share, sat).s for w in moved if z in w]
-        coded = float(_coding_sigma_uv(coding, sums.level[None, :], m)[0])
+        coded = float(_coding_sigma_uv(coding, sums.level[None, :], m, zone=True)[0])
         zones[z] = _zone_figures(sums, transform, wb, z, [xy_of(x) - xy_of(xyz0) for x in shifted],
                                  [uv_prime_of(x) - uv_prime_of(xyz0) for x in shifted], coded)
         zone_uv[z] = (np.array([zones[z]["u_prime"].value, zones[z]["v_prime"].value]),
@@ -458,13 +459,17 @@ def _grid_levels(w_cells, vals, factor, d_omega, sat, n: int) -> np.ndarray:
         return np.stack([np.bincount(lab, wu * vals[..., c][use], minlength=n)[:n] / wsum for c in range(3)], -1)
 
 
-def _coding_sigma_uv(coding, levels: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """The JPEG coding term in (u', v') (1-sigma per axis) at each row of mean levels ``(n, 3)``; zeros
-    unless ``coding`` (the tone curve of a single 8-bit JPEG, :func:`_coding_response`) is given."""
+def _coding_sigma_uv(coding, levels: np.ndarray, m: np.ndarray, *, zone: bool = False) -> np.ndarray:
+    """The JPEG coding term in (u', v') (1-sigma per axis) at each row of mean levels ``(n, 3)``: a band's
+    (rings, map cells), or with ``zone`` a whole zone's (its errors partly cancel, jpeg_coding.ZONE_*);
+    zeros unless ``coding`` (the tone curve of a single 8-bit JPEG, :func:`_coding_response`) is given."""
     if coding is None:
         return np.zeros(len(levels))
-    from ..jpeg_coding import chroma_sigma_uv
+    from ..jpeg_coding import ZONE_CHROMA_RMS_CODES, ZONE_LUMA_RMS_CODES, chroma_sigma_uv
 
+    if zone:
+        return chroma_sigma_uv(levels, coding, m, sigma_luma_codes=ZONE_LUMA_RMS_CODES,
+                               sigma_chroma_codes=ZONE_CHROMA_RMS_CODES)
     return chroma_sigma_uv(levels, coding, m)
 
 
