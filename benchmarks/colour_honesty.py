@@ -153,12 +153,14 @@ def main() -> None:
     ap.add_argument("--seeds", type=int, default=3)
     ap.add_argument("--qualities", type=int, nargs="+", default=[75, 85, 90, 95])
     ap.add_argument("--size", type=int, default=1600, help="photo width (px), 4:3")
+    ap.add_argument("--pairs", default=None, help="colour pairs hot/spill in K, comma-separated (e.g. 5000/5000)")
     ap.add_argument("--by-quality", action="store_true", help="columns per JPEG quality instead of per colour pair")
     args = ap.parse_args()
     scene = Scene(distance_m=4.0)
     results: dict[str, dict] = {}
     t0 = time.time()
-    for hot_k, spill_k in PAIRS:
+    pairs = PAIRS if not args.pairs else [tuple(float(t) for t in p.split("/")) for p in args.pairs.split(",")]
+    for hot_k, spill_k in pairs:
         beam = TwoToneBeam.split(HotspotSpillBeam(**SHAPE), hot_k, spill_k)
         truth = two_tone_truth(beam, d_theta_deg=0.02, d_phi_deg=2.0)
         cam = _camera(args.size)
