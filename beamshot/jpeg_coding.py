@@ -72,6 +72,8 @@ def concentric_sigma_rel(level, response, *, max_code: int = 255, sigma_codes: f
 #: 1.12), rounded up.  Unlike the luminance's, it shrinks with the quality (0.3-0.59 at 75, 0.05-0.2 at
 #: 95): one size for all qualities overstates it by up to about 4 times at 95.  With Y at
 #: COLOUR_RMS_CODES, 98-100 % of the bands' u' and v' errors lie within 2 sigma of chroma_sigma_uv.
+#: Wider bands carry nearly the same error (up to 0.55 code RMS at 8 px, 0.52 at 16 px): the errors
+#: are correlated along the radius, so a ring's width does not reduce them.
 CHROMA_RMS_CODES = 0.6
 #: RMS coding error of the mean of a whole zone of the beam (all pixels at >= 50 %, 10-50 % or 0.5-10 %
 #: of the peak), in codes of Y and of Cb and Cr: the largest RMS per zone measured by

@@ -90,6 +90,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--qualities", type=int, nargs="+", default=[75, 85, 90, 95])
     ap.add_argument("--seeds", type=int, default=2)
+    ap.add_argument("--band-px", type=float, default=3.0, help="width of the radial bands (px)")
     args = ap.parse_args()
     scene = Scene(distance_m=4.0)
     shape = dict(peak_cd=7000.0, hotspot_fwhm_deg=7.0, spill_fraction=0.03, spill_falloff=0.3, cutoff_deg=28.0,
@@ -110,7 +111,7 @@ def main() -> None:
             photo = render_two_tone_photo(beam, scene, cam, seed=100 * k + seed)
             for sub in SUBSAMPLING:
                 for q in args.qualities:
-                    lin, ycc, duv, zone = band_errors(photo, q, SUBSAMPLING[sub])
+                    lin, ycc, duv, zone = band_errors(photo, q, SUBSAMPLING[sub], args.band_px)
                     zone_errors.append(zone)
                     rms = np.sqrt(np.mean(ycc**2, axis=0))
                     mx = np.max(np.abs(ycc), axis=0)
