@@ -181,7 +181,7 @@ def main() -> None:
                         results.setdefault(name, {}).setdefault(fig, []).extend(errs)
         print(f"  {hot_k:.0f} K in {spill_k:.0f} K done ({time.time() - t0:.0f} s)", flush=True)
     figs = list(results["JPEG"])
-    print(f"\nfraction within 2 sigma (n = comparisons); max |error|/sigma")
+    print("\nfraction within 2 sigma (n = comparisons); max |error|/sigma")
     cols = ["JPEG", "PNG8", "PNG16"] + [k for k in results if k.startswith("JPEG ")]
     if args.by_quality:
         cols = ["JPEG"] + [f"JPEG q{q}" for q in args.qualities]
