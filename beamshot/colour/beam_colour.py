@@ -19,6 +19,13 @@ is ``sigma^2 max(a_px / a_cell, 1)`` (cells smaller than a pixel share its error
 larger areas (a JPEG codes colour in 8 x 8 blocks at half resolution, ITU-T T.81 with 4:2:0)
 are not in that model: the scatter between the azimuth sectors of each ring of the colour map
 against the model gives a variance factor (:func:`correlation_gain`, at least 1) applied to all.
+A JPEG's coding also leaves errors that are the same all around the axis (beamshot.jpeg_coding), which
+no comparison of sectors sees: for a single 8-bit JPEG a "JPEG coding" term
+(``jpeg_coding.chroma_sigma_uv``, sized by benchmarks/jpeg_colour_bands.py) at the mean level of each
+ring, map cell and zone enters the rings' ``sigma_uv``, the map maximum (cells of two rings, taken as
+independent; the cells' ``sigma_uv`` stays the noise, kept apart as ``sigma_uv_coding``) and the zone
+figures (a zone's error did not average down to its noise, benchmarks/colour_honesty.py; it is sized
+from zone means, a third to a half of a band's).
 Zone boundaries: the light near a boundary is a mix of both zones' light, so a zone's colour moves
 with its boundaries; each boundary (hotspot, field, spill edge) is moved in turn by the relative
 1-sigma uncertainty of its angle figure and the change enters as the "zone boundaries" term.  Then ``cov_XYZ = M diag(var S) M^T`` and first-order
@@ -180,6 +187,7 @@ class _Sums:
     var: np.ndarray     # their variances (3,)
     solid_angle: float  # sr used
     clipped: float      # fraction of the zone's solid angle clipped
+    level: np.ndarray | None = None  # mean linear level of each channel (3,): sum(w v f) / sum(w f)
 
 
 def _sums(w: np.ndarray, maps, factor: np.ndarray, d_omega: np.ndarray, noise: ChannelNoise, share: np.ndarray,
@@ -198,7 +206,9 @@ def _sums(w: np.ndarray, maps, factor: np.ndarray, d_omega: np.ndarray, noise: C
     for c in range(3):
         v = vals[..., c][use] / f
         var[c] = float(np.sum((wu * f) ** 2 * _cell_variance(noise, c, v, share[use])))
-    return _Sums(s, var, float(np.sum(wu)), clipped)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        level = s / float(np.sum(wu * f))
+    return _Sums(s, var, float(np.sum(wu)), clipped, level)
 
 
 def _numeric_jacobian(fn, x: np.ndarray) -> np.ndarray:
@@ -226,10 +236,12 @@ def _chromaticity(sums: _Sums, m: np.ndarray):
     return xyz, out
 
 
-def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str, shifts_xy=(), shifts_uv=()) -> dict:
+def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str, shifts_xy=(), shifts_uv=(),
+                  coding_uv: float = 0.0) -> dict:
     """The figures of one zone: x, y, u', v', CCT, Duv (each value, uncertainty, status), the checks.
     ``shifts_xy``/``shifts_uv``: the zone's (x, y) and (u', v') moves when each zone boundary moves by
-    its 1-sigma uncertainty (the "zone boundaries" term)."""
+    its 1-sigma uncertainty (the "zone boundaries" term); ``coding_uv``: the JPEG coding term in
+    (u', v') (1-sigma per axis, at the zone's mean level; the "JPEG coding" term)."""
     from .cct import cct_duv_with_uncertainty
 
     _, ch = _chromaticity(sums, np.asarray(transform.matrix, float))
@@ -244,12 +256,13 @@ def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str, s
     jxy = _numeric_jacobian(lambda p: np.array([9 * p[0] / (6 * p[0] - 16 * p[1] + 12),
                                                 4 * p[1] / (6 * p[0] - 16 * p[1] + 12)]), uv)
     t_xy = np.sqrt(np.diag(jxy @ (np.eye(2) * t_uv**2) @ jxy.T))
+    k_xy = np.sqrt(np.diag(jxy @ (np.eye(2) * coding_uv**2) @ jxy.T))
     for i, key in enumerate(("x", "y")):
         figs[key] = _chroma_figure(float(xy[i]), float(np.sqrt(cxy[i, i])), float(t_xy[i]), absolute_status, wb,
-                                   method + " (CIE 1931 x, y)", float(np.sqrt(bxy[i, i])))
+                                   method + " (CIE 1931 x, y)", float(np.sqrt(bxy[i, i])), float(k_xy[i]))
     for i, key in enumerate(("u_prime", "v_prime")):
         figs[key] = _chroma_figure(float(uv[i]), float(np.sqrt(cuv[i, i])), t_uv, absolute_status, wb,
-                                   method + " (CIE 1976 u', v')", float(np.sqrt(buv[i, i])))
+                                   method + " (CIE 1976 u', v')", float(np.sqrt(buv[i, i])), coding_uv)
     res = cct_duv_with_uncertainty(uv, cuv)
     cct_method = "Ohno (2013, LEUKOS 10(1):47-55) on CIE 1960 (u, v), colour-science; Robertson (1968) cross-check"
     if wb == "auto":
@@ -261,10 +274,11 @@ def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str, s
     else:
         ct = cct_duv_with_uncertainty(uv, np.eye(2) * t_uv**2) if t_uv else None
         cb = cct_duv_with_uncertainty(uv, buv)
+        ck = cct_duv_with_uncertainty(uv, np.eye(2) * coding_uv**2) if coding_uv else None
         figs["cct"] = _with_budget(res.cct_k, res.cct_sigma_k, ct.cct_sigma_k if ct else 0.0, "K", cct_method,
-                                   absolute_status, cb.cct_sigma_k)
+                                   absolute_status, cb.cct_sigma_k, ck.cct_sigma_k if ck else 0.0)
         figs["duv"] = _with_budget(res.duv, res.duv_sigma, ct.duv_sigma if ct else 0.0, "", cct_method,
-                                   absolute_status, cb.duv_sigma)
+                                   absolute_status, cb.duv_sigma, ck.duv_sigma if ck else 0.0)
     known = figs["cct"].value is not None
     return {**figs,
             "cct_robertson_k": res.robertson_cct_k if known else None,
@@ -275,15 +289,16 @@ def _zone_figures(sums: _Sums, transform: ColourTransform, wb: str, zone: str, s
             "uv_covariance": [[float(v) for v in row] for row in cuv]}
 
 
-def _with_budget(value, noise, transform_term, unit, method, status, boundary_term=0.0) -> Figure:
+def _with_budget(value, noise, transform_term, unit, method, status, boundary_term=0.0, coding_term=0.0) -> Figure:
     budget = ((("channel noise", noise),) + ((("zone boundaries", boundary_term),) if boundary_term else ())
+              + ((("JPEG coding", coding_term),) if coding_term else ())
               + ((("colour transform assumed", transform_term),) if transform_term else ()))
-    total = float(np.sqrt(noise**2 + transform_term**2 + boundary_term**2))
+    total = float(np.sqrt(noise**2 + transform_term**2 + boundary_term**2 + coding_term**2))
     return Figure(float(value), total, unit, method, status, budget=budget)
 
 
-def _chroma_figure(value, noise, transform_term, status, wb, method, boundary_term=0.0) -> Figure:
-    fig = _with_budget(value, noise, transform_term, "", method, status, boundary_term)
+def _chroma_figure(value, noise, transform_term, status, wb, method, boundary_term=0.0, coding_term=0.0) -> Figure:
+    fig = _with_budget(value, noise, transform_term, "", method, status, boundary_term, coding_term)
     if wb == "auto":
         from dataclasses import replace
 
@@ -337,7 +352,8 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool,
     share = _share(beam, measured.mapping, image, measured.distance_m, measured.foot_mm)
     sat = maps[0].saturated
     m = np.asarray(transform.matrix, float)
-    cells = _cells(beam, shape, maps[:3], factor, d_omega, noise, share, sat, m)
+    coding = _coding_response(photos, profile)
+    cells = _cells(beam, shape, maps[:3], factor, d_omega, noise, share, sat, m, coding)
     gain = correlation_gain(cells)
     cells = {**cells, "sigma_uv": cells["sigma_uv"] * np.sqrt(gain)}
     weights, reasons = _zone_weights(beam, shape)
@@ -356,7 +372,7 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool,
             zones[z] = _zone_not_measured(reasons[z])
             continue
         sums = _sums(weights[z], maps[:3], factor, d_omega, noise, share, sat)
-        sums = _Sums(sums.s, sums.var * gain, sums.solid_angle, sums.clipped)
+        sums = _Sums(sums.s, sums.var * gain, sums.solid_angle, sums.clipped, sums.level)
         if sums.clipped > CLIPPED_ZONE_LIMIT:
             zones[z] = _zone_not_measured(f"{sums.clipped:.0%} of the {z} is clipped in at least one channel; lower "
                                           "the exposure or bracket")
@@ -366,16 +382,16 @@ def beam_colour(image: LinearImage, measured, *, photos, profile, raw: bool,
             continue
         xyz0 = m @ sums.s
         shifted = [m @ _sums(w[z], maps[:3], factor, d_omega, noise, share, sat).s for w in moved if z in w]
+        coded = float(_coding_sigma_uv(coding, sums.level[None, :], m, zone=True)[0])
         zones[z] = _zone_figures(sums, transform, wb, z, [xy_of(x) - xy_of(xyz0) for x in shifted],
-                                 [uv_prime_of(x) - uv_prime_of(xyz0) for x in shifted])
+                                 [uv_prime_of(x) - uv_prime_of(xyz0) for x in shifted], coded)
         zone_uv[z] = (np.array([zones[z]["u_prime"].value, zones[z]["v_prime"].value]),
-                      np.array(zones[z]["uv_covariance"]))
+                      np.array(zones[z]["uv_covariance"]), coded)
         zone_moved[z] = [uv_prime_of(x) for x in shifted]
     tint = _zone_tint(zone_uv, zone_moved)
     tint.update(_map_tint(cells))
     tint["noise_correlation_gain"] = gain
-    rings = _rings(beam, shape, maps[:3], factor, d_omega, noise, share, sat, m)
-    rings["sigma_uv"] = (np.asarray(rings["sigma_uv"]) * np.sqrt(gain)).tolist()
+    rings = _rings(beam, shape, maps[:3], factor, d_omega, noise, share, sat, m, coding, gain)
     return BeamColour(True, None, transform, wb, zones, tint, rings, cells, tuple(notes))
 
 
@@ -397,20 +413,21 @@ def _zone_tint(zone_uv: dict, zone_moved: dict | None = None) -> dict:
     best = None
     for i, a in enumerate(names):
         for b in names[i + 1:]:
-            (pa, ca), (pb, cb) = zone_uv[a], zone_uv[b]
+            (pa, ca, ka), (pb, cb, kb) = zone_uv[a], zone_uv[b]
             d = float(delta_uv_prime(pa, pb))
             g = (pa - pb) / d if d > 0 else np.array([1.0, 0.0]) / np.sqrt(2)
             s = float(np.sqrt(max(g @ (ca + cb) @ g, 0.0)))
             if best is None or d > best[0]:
-                best = (d, s, a, b)
+                best = (d, s, a, b, float(np.hypot(ka, kb)))
     if best is None:
         return {"zones_max_delta_uv": not_measured("", method, "fewer than two zones have a measured colour"),
                 "zones_pair": None}
-    d, s, a, b = best
+    d, s, a, b, coded = best
     moved_a, moved_b = (zone_moved or {}).get(a, []), (zone_moved or {}).get(b, [])
     bound = float(np.sqrt(sum((float(delta_uv_prime(pa, pb)) - d) ** 2 for pa, pb in zip(moved_a, moved_b))))
-    budget = (("channel noise", s),) + ((("zone boundaries", bound),) if bound else ())
-    return {"zones_max_delta_uv": Figure(d, float(np.hypot(s, bound)), "", method, budget=budget),
+    budget = ((("channel noise", s),) + ((("zone boundaries", bound),) if bound else ())
+              + ((("JPEG coding", coded),) if coded else ()))
+    return {"zones_max_delta_uv": Figure(d, float(np.sqrt(s**2 + bound**2 + coded**2)), "", method, budget=budget),
             "zones_pair": [a, b]}
 
 
@@ -429,6 +446,43 @@ def _grid_sums(w_cells, vals, factor, d_omega, noise, share, sat):
         var[:, c] = np.bincount(lab, (wu * f) ** 2 * _cell_variance(noise, c, v / f, share[use]), minlength=n)
     clipped = np.bincount(w_cells[(w_cells >= 0) & sat], minlength=n) > 0
     return s, var, clipped
+
+
+def _grid_levels(w_cells, vals, factor, d_omega, sat, n: int) -> np.ndarray:
+    """Mean linear level (1 = clipping) of each channel per super-cell label: ``sum(w v f) / sum(w f)``
+    over the cells used by :func:`_grid_sums` (``v f`` the map value, ``f`` = r^2/cos); ``(n, 3)``."""
+    use = (w_cells >= 0) & np.all(np.isfinite(vals), axis=-1) & np.isfinite(factor) & (factor > 0) & ~sat
+    lab = w_cells[use]
+    wu = d_omega[use]
+    wsum = np.bincount(lab, wu * factor[use], minlength=n)[:n]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.stack([np.bincount(lab, wu * vals[..., c][use], minlength=n)[:n] / wsum for c in range(3)], -1)
+
+
+def _coding_sigma_uv(coding, levels: np.ndarray, m: np.ndarray, *, zone: bool = False) -> np.ndarray:
+    """The JPEG coding term in (u', v') (1-sigma per axis) at each row of mean levels ``(n, 3)``: a band's
+    (rings, map cells), or with ``zone`` a whole zone's (its errors partly cancel, jpeg_coding.ZONE_*);
+    zeros unless ``coding`` (the tone curve of a single 8-bit JPEG, :func:`_coding_response`) is given."""
+    if coding is None:
+        return np.zeros(len(levels))
+    from ..jpeg_coding import ZONE_CHROMA_RMS_CODES, ZONE_LUMA_RMS_CODES, chroma_sigma_uv
+
+    if zone:
+        return chroma_sigma_uv(levels, coding, m, sigma_luma_codes=ZONE_LUMA_RMS_CODES,
+                               sigma_chroma_codes=ZONE_CHROMA_RMS_CODES)
+    return chroma_sigma_uv(levels, coding, m)
+
+
+def _coding_response(photos, profile):
+    """The tone curve (``profile.response``, the analysis's default) under which a JPEG's concentric coding
+    error is sized, or None unless the beam photo is a single 8-bit JPEG (beamshot.jpeg_coding; a bracket's
+    merge takes its levels from several frames, mostly at brighter codes: not counted, as for the rings)."""
+    from ..camera.response import Response
+    from ..jpeg_coding import is_jpeg
+
+    if len(photos) != 1 or not is_jpeg(photos[0]) or getattr(photos[0], "max_code", 255) != 255:
+        return None
+    return getattr(profile, "response", None) or Response()
 
 
 def _uv_and_sigma(s, var, m):
@@ -458,8 +512,9 @@ def _reach(beam, shape) -> float:
     return float(beam.theta[-1])
 
 
-def _cells(beam, shape, maps, factor, d_omega, noise, share, sat, m) -> dict:
-    """(u', v') over (theta, phi) super-cells of RING_STEP_DEG x SECTOR_STEP_DEG inside the reach."""
+def _cells(beam, shape, maps, factor, d_omega, noise, share, sat, m, coding=None) -> dict:
+    """(u', v') over (theta, phi) super-cells of RING_STEP_DEG x SECTOR_STEP_DEG inside the reach, the
+    noise's 1-sigma ``sigma_uv`` and the JPEG coding term ``sigma_uv_coding`` (:func:`_coding_sigma_uv`)."""
     vals = np.stack([mm.intensity for mm in maps], axis=-1)
     reach = _reach(beam, shape)
     n_r = max(1, int(np.ceil(np.degrees(reach) / RING_STEP_DEG)))
@@ -479,10 +534,11 @@ def _cells(beam, shape, maps, factor, d_omega, noise, share, sat, m) -> dict:
     uv, sig = _uv_and_sigma(s, var, m)
     uv[clipped] = np.nan
     sig[clipped] = np.nan
+    coded = _coding_sigma_uv(coding, _grid_levels(label, vals, factor, d_omega, sat, n), m)
     return {"theta_edges_deg": (np.arange(n_r + 1) * RING_STEP_DEG).tolist(),
             "phi_edges_deg": (np.arange(n_s + 1) * SECTOR_STEP_DEG).tolist(),
             "u_prime": uv[:, 0].reshape(n_r, n_s), "v_prime": uv[:, 1].reshape(n_r, n_s),
-            "sigma_uv": sig.reshape(n_r, n_s)}
+            "sigma_uv": sig.reshape(n_r, n_s), "sigma_uv_coding": coded.reshape(n_r, n_s)}
 
 
 def correlation_gain(cells: dict) -> float:
@@ -525,15 +581,23 @@ def _map_tint(cells: dict) -> dict:
         return {"map_max_delta_uv": not_measured("", method, "fewer than two map cells are bright enough for colour"),
                 "map_cells_used": int(ok.sum())}
     p, s = uv[ok], sig[ok]
+    coded = np.asarray(cells.get("sigma_uv_coding", np.zeros_like(cells["sigma_uv"])), float).ravel()[ok]
     d = np.hypot(p[:, None, 0] - p[None, :, 0], p[:, None, 1] - p[None, :, 1])
     i, j = np.unravel_index(int(np.argmax(d)), d.shape)
     u = float(np.hypot(s[i], s[j]))
-    return {"map_max_delta_uv": Figure(float(d[i, j]), u, "", method, budget=(("channel noise", u),)),
+    # each cell's coding error is its ring's (the same all around: it cancels between two cells of one
+    # ring); two rings' errors are taken as independent
+    rings_of = np.flatnonzero(ok) // cells["sigma_uv"].shape[-1]
+    c = float(np.hypot(coded[i], coded[j])) if rings_of[i] != rings_of[j] else 0.0
+    budget = (("channel noise", u),) + ((("JPEG coding", c),) if c > 0 else ())
+    return {"map_max_delta_uv": Figure(float(d[i, j]), float(np.hypot(u, c)), "", method, budget=budget),
             "map_cells_used": int(ok.sum())}
 
 
-def _rings(beam, shape, maps, factor, d_omega, noise, share, sat, m) -> dict:
-    """(u', v') of whole rings (all azimuths) of RING_STEP_DEG / 2 against polar angle, to the reach."""
+def _rings(beam, shape, maps, factor, d_omega, noise, share, sat, m, coding=None, gain: float = 1.0) -> dict:
+    """(u', v') of whole rings (all azimuths) of RING_STEP_DEG / 2 against polar angle, to the reach, and
+    their 1-sigma: the noise (times the variance factor ``gain``) and the JPEG coding term in quadrature.
+    The coding error is the same all around a ring (beamshot.jpeg_coding), so the ring's mean keeps it."""
     step = RING_STEP_DEG / 2.0
     vals = np.stack([mm.intensity for mm in maps], axis=-1)
     reach = _reach(beam, shape)
@@ -546,5 +610,7 @@ def _rings(beam, shape, maps, factor, d_omega, noise, share, sat, m) -> dict:
     uv, sig = _uv_and_sigma(s, var, m)
     uv[clipped[:len(uv)]] = np.nan
     sig[clipped[:len(sig)]] = np.nan
+    coded = _coding_sigma_uv(coding, _grid_levels(label, vals, factor, d_omega, sat, len(s)), m)
+    sig = np.hypot(sig * np.sqrt(gain), coded)
     return {"theta_deg": ((np.arange(len(uv)) + 0.5) * step).tolist(), "u_prime": uv[:, 0].tolist(),
             "v_prime": uv[:, 1].tolist(), "sigma_uv": sig.tolist()}
