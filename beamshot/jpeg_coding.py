@@ -7,12 +7,13 @@ tell from the beam's own rings (beamshot.rings).  ``benchmarks/jpeg_concentric_e
 them with libjpeg (through Pillow) on 8-bit sRGB photos rendered with sensor noise: for a beam
 whose colour changes across it (a cool hotspot in a warm spill), the means of 3-pixel radial bands
 of the decoded photo's linear BT.709 luminance differ from the photo's before coding by 0.05-0.27
-of a luminance code RMS, at most 0.56, at qualities 75-95 with 4:2:0 and 4:4:4 chroma; for a grey
-beam by 0.03-0.08 RMS, at most 0.17.  The error does not shrink with the quantisation step (0.24
+of a luminance code RMS, at most 0.56, at qualities 75-95 with 4:2:0 and 4:4:4 chroma; for a beam
+of one colour by 0.03-0.18 RMS, at most 0.46 (grey: at most 0.08 RMS; 5000 K and 3000 K throughout,
+whose channels differ, up to 0.18).  The error does not shrink with the quantisation step (0.24
 code RMS at quality 75 and 0.16-0.20 at 95 on the same beam), so it is taken as one size in codes,
 the largest RMS measured, rounded up: ``COLOUR_RMS_CODES`` when the beam's colour changes across it
 by more than ``COLOUR_CHANGE`` (the ratio of red to blue along the azimuthal-mean profile), else
-``GREY_RMS_CODES``.  As a relative error of the
+``ONE_COLOUR_RMS_CODES``.  As a relative error of the
 luminance ``L = f(c / c_max)`` (the tone curve ``f``) it is ``sigma_c d ln L / dc``, large in dim
 parts of the photo (at code 40 of sRGB a third of a code is 1.5 %) and small in bright ones.
 """
@@ -21,7 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["COLOUR_RMS_CODES", "GREY_RMS_CODES", "COLOUR_CHANGE", "coding_rms_codes", "concentric_sigma_rel",
+__all__ = ["COLOUR_RMS_CODES", "ONE_COLOUR_RMS_CODES", "COLOUR_CHANGE", "coding_rms_codes", "concentric_sigma_rel",
            "is_jpeg", "CHROMA_RMS_CODES", "ZONE_LUMA_RMS_CODES",
            "ZONE_CHROMA_RMS_CODES", "YCC_TO_RGB_STEP", "chroma_sigma_uv"]
 
@@ -29,8 +30,8 @@ __all__ = ["COLOUR_RMS_CODES", "GREY_RMS_CODES", "COLOUR_CHANGE", "coding_rms_co
 #: beam whose colour changes across it (the largest RMS measured by
 #: benchmarks/jpeg_concentric_error.py, 0.27, rounded up; see the module doc) ...
 COLOUR_RMS_CODES = 0.3
-#: ... and for a beam of one colour (largest measured 0.084, rounded up).
-GREY_RMS_CODES = 0.1
+#: ... and for a beam of one colour (largest measured 0.18, for 5000 K throughout at quality 75, rounded up).
+ONE_COLOUR_RMS_CODES = 0.2
 #: The change of ``ln(R / B)`` along the profile above which a beam counts as changing colour
 #: (project choice: 5 %; the beams measured changed by 0 or by more than 0.3).
 COLOUR_CHANGE = 0.05
@@ -38,7 +39,7 @@ COLOUR_CHANGE = 0.05
 
 def coding_rms_codes(colour_change: float) -> float:
     """The RMS concentric coding error (codes) of a beam whose ``ln(R / B)`` changes by ``colour_change``."""
-    return COLOUR_RMS_CODES if not (colour_change <= COLOUR_CHANGE) else GREY_RMS_CODES
+    return COLOUR_RMS_CODES if not (colour_change <= COLOUR_CHANGE) else ONE_COLOUR_RMS_CODES
 
 
 def is_jpeg(photo) -> bool:

@@ -76,7 +76,7 @@ CANDIDATE_Z = 4.0
 #: Significance a ring needs to be reported (amplitude over its 1-sigma; see the module docstring).
 RING_SIGNIFICANCE = 6.0
 #: A ring must also be deeper than this many times the RMS of the photo's concentric coding error
-#: (beamshot.jpeg_coding): the largest coding error measured was 1.9 times the RMS used there, and
+#: (beamshot.jpeg_coding): the largest coding error measured was 2.3 times the RMS used there, and
 #: a coding error is one per photo, not one of many noisy candidates (project choice).
 CODING_SIGNIFICANCE = 3.0
 #: Rings closer to the axis than this are not searched (a centre feature; project choice), degrees.

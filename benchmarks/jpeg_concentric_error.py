@@ -10,7 +10,8 @@ photo before coding (both through the sRGB decoding, IEC 61966-2-1).  Noise aver
 of thousands of pixels; what is left is the coding's error, the same all around a band (concentric),
 which a ring search cannot tell from a ring.  It is given in codes of the luminance (the relative
 error over d ln L / dc at the band's level) and in units of the file's chroma DC quantisation step
-``Q / 8`` (the step of a block mean; ITU-T T.81 A.3), with a grey beam of the same shape beside it.
+``Q / 8`` (the step of a block mean; ITU-T T.81 A.3), with beams of one colour (grey, 5000 K and
+3000 K throughout) of the same shape beside them.
 """
 
 from __future__ import annotations
@@ -70,6 +71,8 @@ def main() -> None:
     shape = dict(peak_cd=7000.0, hotspot_fwhm_deg=7.0, spill_fraction=0.03, spill_falloff=0.3, cutoff_deg=28.0,
                  edge_width_deg=0.5)
     beams = [("grey", HotspotSpillBeam(**shape), None)]
+    for k in (5000.0, 3000.0):  # one colour, but not grey: the channels differ
+        beams.append((f"{k:.0f} K throughout", TwoToneBeam.split(HotspotSpillBeam(**shape), k, k), True))
     for hot, spill in ((5700.0, 3500.0), (6500.0, 4000.0), (4500.0, 2700.0)):
         beams.append((f"{hot:.0f} K in {spill:.0f} K", TwoToneBeam.split(HotspotSpillBeam(**shape), hot, spill), True))
     print("concentric error of 3 px band means of linear luminance, decoded JPEG vs the photo before coding")

@@ -17,7 +17,7 @@ from PIL import Image
 
 from beamshot import analyze
 from beamshot.camera.response import Response, srgb_decode
-from beamshot.jpeg_coding import COLOUR_RMS_CODES, GREY_RMS_CODES, coding_rms_codes, concentric_sigma_rel
+from beamshot.jpeg_coding import COLOUR_RMS_CODES, ONE_COLOUR_RMS_CODES, coding_rms_codes, concentric_sigma_rel
 from beamshot.photo import decode_photo
 from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, TwoToneBeam, encode_jpeg, exposure_time_for_peak,
                             render_two_tone_photo)
@@ -48,7 +48,7 @@ def test_relative_error_under_srgb_is_large_in_dim_parts_and_small_in_bright_one
 
 
 def test_size_by_colour_change():
-    assert coding_rms_codes(0.0) == GREY_RMS_CODES and coding_rms_codes(0.6) == COLOUR_RMS_CODES
+    assert coding_rms_codes(0.0) == ONE_COLOUR_RMS_CODES and coding_rms_codes(0.6) == COLOUR_RMS_CODES
     assert coding_rms_codes(float("nan")) == COLOUR_RMS_CODES  # unknown: the larger
 
 
