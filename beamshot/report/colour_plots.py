@@ -24,6 +24,10 @@ from .plots import FROM_REPORT
 
 __all__ = ["ISO_CCT_K", "tint_figure", "plot_tint_map", "plot_uv_diagram"]
 
+#: Rings whose u'v' is known to better than this (1 sigma) are drawn filled; up to ``RING_ROUGH_UV``
+#: open; beyond it they are left out (project choice: 0.003 is about the step between two CCT
+#: lines 100 K apart near 4000 K, from memory; 0.02 is a colour change anyone sees).
+RING_SURE_UV, RING_ROUGH_UV = 0.003, 0.02
 #: Temperatures (K) of the iso-CCT lines drawn, and their Duv reach.
 ISO_CCT_K = (2200, 2700, 3000, 3500, 4000, 5000, 6500, 10000)
 ISO_DUV_REACH = 0.02
@@ -149,7 +153,11 @@ def plot_uv_diagram(result, *, ax=None):
     rings = result.rings
     th = np.asarray(rings["theta_deg"], float)
     ru, rv, rs = (np.asarray(rings[k], float) for k in ("u_prime", "v_prime", "sigma_uv"))
-    ok = np.isfinite(ru) & np.isfinite(rv) & np.isfinite(rs) & (rs < 0.003)
+    known = np.isfinite(ru) & np.isfinite(rv) & np.isfinite(rs)
+    ok = known & (rs < RING_SURE_UV)
+    # rings known only roughly (a dim spill, a JPEG's coding) are drawn open, not left out; the view is
+    # set by the others
+    rough = known & (rs >= RING_SURE_UV) & (rs < RING_ROUGH_UV)
     pts = [np.c_[ru[ok], rv[ok]]]
     for z, d in result.zones.items():
         if d.get("u_prime") is not None and d["u_prime"].value is not None:
@@ -169,8 +177,15 @@ def plot_uv_diagram(result, *, ax=None):
         p = line[len(line) * 3 // 4]  # labelled a little above the locus (Duv about +0.01)
         if lo_u < p[0] < hi_u and lo_v < p[1] < hi_v:
             ax.text(p[0], p[1], f"{t:,} K", fontsize=FONT_PT - 1.5, color="#555555", ha="center", va="bottom")
-    sc = ax.scatter(ru[ok], rv[ok], c=2 * th[ok], cmap=ANGLE_CMAP, s=14, zorder=3, edgecolors="none")
-    ax.plot(ru[ok], rv[ok], color="#bbbbbb", lw=0.6, zorder=2)
+    track = ok | rough
+    full = 2 * th[track] if track.any() else np.array([0.0, 1.0])
+    sc = ax.scatter(ru[ok], rv[ok], c=2 * th[ok], cmap=ANGLE_CMAP, s=14, zorder=3, edgecolors="none",
+                    vmin=float(np.min(full)), vmax=float(np.max(full)))
+    ax.plot(ru[track], rv[track], color="#bbbbbb", lw=0.6, zorder=2)
+    if rough.any():
+        ax.scatter(ru[rough], rv[rough], s=14, zorder=3, facecolors="none", linewidths=0.9,
+                   edgecolors=sc.cmap(sc.norm(2 * th[rough])),
+                   label=f"open: ring known to {RING_SURE_UV:g}–{RING_ROUGH_UV:g} in u′v′ (1σ)")
     cb = ax.figure.colorbar(sc, ax=ax, orientation="horizontal", fraction=0.05, pad=0.12)
     cb.set_label("rings: full cone angle (deg)", fontsize=FONT_PT)
     cb.ax.tick_params(labelsize=FONT_PT - 1)
