@@ -93,3 +93,27 @@ def test_a_ring_in_a_two_colour_beam_is_still_found_with_the_coding_in_its_uncer
     terms = dict(amp.budget)
     assert terms["JPEG coding"] > terms["pixel noise"] > 0  # a bright ring's coding term is still the larger here
     assert amp.uncertainty == pytest.approx(np.sqrt(sum(v * v for v in terms.values())), rel=1e-9)
+
+
+def test_colour_change_is_read_alike_with_an_ambient_photo_on_a_tight_frame(monkeypatch):
+    # a light-off photo makes the working image float, NaN outside the photo; with a long lens the
+    # rows of the lit hotspot run out of the frame: they must still count toward the colour change
+    # (they were dropped whole, 0.48 -> 0.16). Truth: the same photo without the ambient.
+    import beamshot.jpeg_coding as coding
+
+    seen = []
+    real = coding.coding_rms_codes
+    monkeypatch.setattr(coding, "coding_rms_codes", lambda change: (seen.append(change), real(change))[1])
+    scene = Scene(distance_m=4.0, ambient_lux=0.5)
+    cam = SynthCamera(width_px=960, height_px=720, focal_35mm_mm=120, sensor_diag_mm=6.0, f_number=2.2, iso=50.0,
+                      supersample=1)
+    grey = HotspotSpillBeam(**SHAPE)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(grey, scene, cam, target=0.75))
+    beam = TwoToneBeam.split(grey, 5700.0, 3500.0)
+    off = TwoToneBeam.split(HotspotSpillBeam(**dict(SHAPE, peak_cd=1e-9)), 5700.0, 3500.0)
+    photo = encode_jpeg(render_two_tone_photo(beam, scene, cam, seed=7), cam, quality=90)
+    ambient = encode_jpeg(render_two_tone_photo(off, scene, cam, seed=8), cam, quality=90)
+    for kw in ({}, {"ambient": decode_photo(ambient, "off.jpg")}):
+        analyze(decode_photo(photo, "beam.jpg"), distance_m=4.0, use_exif_scale=False, **kw)
+    assert len(seen) == 2 and seen[0] > 0.3
+    assert seen[1] == pytest.approx(seen[0], abs=0.05)
