@@ -117,3 +117,15 @@ def test_colour_change_is_read_alike_with_an_ambient_photo_on_a_tight_frame(monk
         analyze(decode_photo(photo, "beam.jpg"), distance_m=4.0, use_exif_scale=False, **kw)
     assert len(seen) == 2 and seen[0] > 0.3
     assert seen[1] == pytest.approx(seen[0], abs=0.05)
+
+
+def test_the_docs_state_the_term_at_codes_40_and_200_as_computed():
+    # docs/artefacts.md gives the term (COLOUR_RMS_CODES through IEC 61966-2-1 sRGB) at two codes
+    import pathlib
+    import re
+
+    text = (pathlib.Path(__file__).parents[1] / "docs" / "artefacts.md").read_text(encoding="utf-8")
+    stated = re.search(r"([\d.]+) % at code 40 of sRGB, ([\d.]+) % at code 200", " ".join(text.split()))
+    assert stated, "the sentence giving the term at codes 40 and 200 is gone from docs/artefacts.md"
+    got = concentric_sigma_rel(srgb_decode(np.array([40.0, 200.0]) / 255.0), Response("srgb"))
+    assert [float(v) for v in stated.groups()] == [round(100 * float(g), 1) for g in got]
