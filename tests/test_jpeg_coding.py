@@ -129,3 +129,23 @@ def test_the_docs_state_the_term_at_codes_40_and_200_as_computed():
     assert stated, "the sentence giving the term at codes 40 and 200 is gone from docs/artefacts.md"
     got = concentric_sigma_rel(srgb_decode(np.array([40.0, 200.0]) / 255.0), Response("srgb"))
     assert [float(v) for v in stated.groups()] == [round(100 * float(g), 1) for g in got]
+
+
+def test_the_method_says_which_test_a_jpeg_ring_passed():
+    # a ring held to hypot(6 sigma_fit, 3 sigma_coding) (beamshot.rings) may stand only ~3 of its total
+    # 1-sigma clear of 0: its method must not say "reported at 6 sigma" alone
+    from beamshot.artefacts import _ring_figures
+    from beamshot.rings import CODING_SIGNIFICANCE, RING_SIGNIFICANCE, Ring, RingSearch
+
+    ring = Ring(angle_deg=9.0, angle_sigma=0.05, amplitude=-0.035, amplitude_sigma=0.001, width_deg=1.0,
+                width_sigma=0.1, coding_sigma=0.011)
+    assert ring.significance >= RING_SIGNIFICANCE  # it passes the test ...
+    assert abs(ring.amplitude) / ring.total_sigma < 4.0  # ... at ~3 of its reported 1-sigma
+    figs = {}
+    _ring_figures(figs, RingSearch((ring,), 0.04, (1.0, 25.0), coding=0.01), None)
+    method = figs["ring_amplitude"].method
+    assert f"hypot({RING_SIGNIFICANCE:g} x the fit's 1-sigma, {CODING_SIGNIFICANCE:g} x" in method
+    assert figs["ring_amplitude"].uncertainty == pytest.approx(ring.total_sigma)
+    plain = {}
+    _ring_figures(plain, RingSearch((replace(ring, coding_sigma=0.0, amplitude_sigma=0.005),), 0.03, (1.0, 25.0)), None)
+    assert f"at {RING_SIGNIFICANCE:g} sigma" in plain["ring_amplitude"].method and "JPEG" not in plain["ring_amplitude"].method
