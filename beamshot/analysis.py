@@ -855,7 +855,8 @@ def _coding_rel(linear: Linear, measured: "_Measured") -> np.ndarray | None:
     inside = np.isfinite(lum)
     with quiet_nan():
         level = np.nanmean(lum, axis=1)
-        red, blue = (np.sum(rgb[..., c] * inside, axis=1) for c in (0, 2))
+        # cells outside the photo are NaN in a float image (ambient taken off, a flat): 0, as in counts
+        red, blue = (np.sum(np.where(inside, rgb[..., c], 0.0), axis=1) for c in (0, 2))
         # the colour's change along the profile, where the light is at least 5 % of the brightest row
         # (dimmer rows' ratios are noise), smoothed over 1 deg of rows
         lit = np.isfinite(level) & (level >= 0.05 * np.nanmax(level)) & (red > 0) & (blue > 0)

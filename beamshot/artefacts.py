@@ -25,7 +25,7 @@ from .frames import local_basis
 from .hotspot import _rays, peak_rel_noise
 from .map_noise import noise_model
 from .measure import _clipped_edge_reason
-from .rings import MAX_FWHM_DEG, RING_SIGNIFICANCE, find_rings
+from .rings import CODING_SIGNIFICANCE, MAX_FWHM_DEG, RING_SIGNIFICANCE, find_rings
 from .savgol import savgol
 from .shape_iso import N_T, hotspot_moments, iso13694
 
@@ -642,10 +642,14 @@ def _resolution_changed(beam: BeamMap, pk, noise, res, pixel_deg: float) -> tupl
 
 
 def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:
+    # a JPEG's rings are held to hypot(6 sigma_fit, 3 sigma_coding) (beamshot.rings): their amplitude
+    # over its total 1-sigma may be as low as 3, so the method says which test it was
+    threshold = (f"when deeper than hypot({RING_SIGNIFICANCE:g} x the fit's 1-sigma, {CODING_SIGNIFICANCE:g} x the "
+                 "1-sigma of the JPEG's coding errors)" if search.coding or any(r.coding_sigma for r in search.rings)
+                 else f"at {RING_SIGNIFICANCE:g} sigma")
     method = ("rings: ripple of the azimuthal-mean profile about the beam axis beyond a smooth profile "
               "(Savitzky-Golay, 3 deg) and the noise; log profile fitted with a quintic and a Gaussian ring, "
-              "reported at "
-              f"{RING_SIGNIFICANCE:g} sigma")
+              f"reported {threshold}")
     listed = "; ".join(f"{r.kind} {r.amplitude:+.1%} at {r.angle_deg:.1f} deg, {r.width_deg:.1f} deg wide"
                        for r in search.rings)
     if listed:

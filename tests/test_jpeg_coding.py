@@ -93,3 +93,59 @@ def test_a_ring_in_a_two_colour_beam_is_still_found_with_the_coding_in_its_uncer
     terms = dict(amp.budget)
     assert terms["JPEG coding"] > terms["pixel noise"] > 0  # a bright ring's coding term is still the larger here
     assert amp.uncertainty == pytest.approx(np.sqrt(sum(v * v for v in terms.values())), rel=1e-9)
+
+
+def test_colour_change_is_read_alike_with_an_ambient_photo_on_a_tight_frame(monkeypatch):
+    # a light-off photo makes the working image float, NaN outside the photo; with a long lens the
+    # rows of the lit hotspot run out of the frame: they must still count toward the colour change
+    # (they were dropped whole, 0.48 -> 0.16). Truth: the same photo without the ambient.
+    import beamshot.jpeg_coding as coding
+
+    seen = []
+    real = coding.coding_rms_codes
+    monkeypatch.setattr(coding, "coding_rms_codes", lambda change: (seen.append(change), real(change))[1])
+    scene = Scene(distance_m=4.0, ambient_lux=0.5)
+    cam = SynthCamera(width_px=960, height_px=720, focal_35mm_mm=120, sensor_diag_mm=6.0, f_number=2.2, iso=50.0,
+                      supersample=1)
+    grey = HotspotSpillBeam(**SHAPE)
+    cam = replace(cam, exposure_time_s=exposure_time_for_peak(grey, scene, cam, target=0.75))
+    beam = TwoToneBeam.split(grey, 5700.0, 3500.0)
+    off = TwoToneBeam.split(HotspotSpillBeam(**dict(SHAPE, peak_cd=1e-9)), 5700.0, 3500.0)
+    photo = encode_jpeg(render_two_tone_photo(beam, scene, cam, seed=7), cam, quality=90)
+    ambient = encode_jpeg(render_two_tone_photo(off, scene, cam, seed=8), cam, quality=90)
+    for kw in ({}, {"ambient": decode_photo(ambient, "off.jpg")}):
+        analyze(decode_photo(photo, "beam.jpg"), distance_m=4.0, use_exif_scale=False, **kw)
+    assert len(seen) == 2 and seen[0] > 0.3
+    assert seen[1] == pytest.approx(seen[0], abs=0.05)
+
+
+def test_the_docs_state_the_term_at_codes_40_and_200_as_computed():
+    # docs/artefacts.md gives the term (COLOUR_RMS_CODES through IEC 61966-2-1 sRGB) at two codes
+    import pathlib
+    import re
+
+    text = (pathlib.Path(__file__).parents[1] / "docs" / "artefacts.md").read_text(encoding="utf-8")
+    stated = re.search(r"([\d.]+) % at code 40 of sRGB, ([\d.]+) % at code 200", " ".join(text.split()))
+    assert stated, "the sentence giving the term at codes 40 and 200 is gone from docs/artefacts.md"
+    got = concentric_sigma_rel(srgb_decode(np.array([40.0, 200.0]) / 255.0), Response("srgb"))
+    assert [float(v) for v in stated.groups()] == [round(100 * float(g), 1) for g in got]
+
+
+def test_the_method_says_which_test_a_jpeg_ring_passed():
+    # a ring held to hypot(6 sigma_fit, 3 sigma_coding) (beamshot.rings) may stand only ~3 of its total
+    # 1-sigma clear of 0: its method must not say "reported at 6 sigma" alone
+    from beamshot.artefacts import _ring_figures
+    from beamshot.rings import CODING_SIGNIFICANCE, RING_SIGNIFICANCE, Ring, RingSearch
+
+    ring = Ring(angle_deg=9.0, angle_sigma=0.05, amplitude=-0.035, amplitude_sigma=0.001, width_deg=1.0,
+                width_sigma=0.1, coding_sigma=0.011)
+    assert ring.significance >= RING_SIGNIFICANCE  # it passes the test ...
+    assert abs(ring.amplitude) / ring.total_sigma < 4.0  # ... at ~3 of its reported 1-sigma
+    figs = {}
+    _ring_figures(figs, RingSearch((ring,), 0.04, (1.0, 25.0), coding=0.01), None)
+    method = figs["ring_amplitude"].method
+    assert f"hypot({RING_SIGNIFICANCE:g} x the fit's 1-sigma, {CODING_SIGNIFICANCE:g} x" in method
+    assert figs["ring_amplitude"].uncertainty == pytest.approx(ring.total_sigma)
+    plain = {}
+    _ring_figures(plain, RingSearch((replace(ring, coding_sigma=0.0, amplitude_sigma=0.005),), 0.03, (1.0, 25.0)), None)
+    assert f"at {RING_SIGNIFICANCE:g} sigma" in plain["ring_amplitude"].method and "JPEG" not in plain["ring_amplitude"].method
