@@ -835,16 +835,18 @@ JPEG_BLOCK_PX = 8
 def _coding_rel(linear: Linear, measured: "_Measured") -> np.ndarray | None:
     """Per row of the measured map, the relative 1-sigma of the concentric error a JPEG's coding
     leaves in an azimuthal mean (beamshot/jpeg_coding.py), at the photo's level on that row; None
-    unless the beam photo is one 8-bit JPEG (a bracket's merge takes each level from frames coded
-    at other codes, mostly brighter ones, where the error is smaller: not counted).  The level is the
-    working image's, with the ambient taken off and divided by a flat: the code is about the photo's."""
+    unless every beam photo is an 8-bit JPEG.  In a bracket, merged in units of its shortest frame
+    (camera/hdr.py), a level is taken at the code of the longest frame that holds it below the clip,
+    whose error is the smallest the merge can have there (the merge's averaging of frames is not
+    credited).  The level is the working image's, with the ambient taken off and divided by a flat:
+    the code is about the photo's (a little lower, so the term a little larger than the photo's)."""
     from ._quiet import quiet_nan
     from .beammap import sampled_image
-    from .jpeg_coding import coding_rms_codes, concentric_sigma_rel, is_jpeg
-    from .smoothing import gaussian_filter1d
+    from .camera.linearize import SATURATION_CODE_FRACTION
+    from .jpeg_coding import COLOUR_RMS_CODES, coding_rms_codes, concentric_sigma_rel, is_jpeg
 
     photos = linear.prep.beam_photos
-    if len(photos) != 1 or not is_jpeg(photos[0]) or photos[0].max_code != 255:
+    if not photos or not all(is_jpeg(p) and p.max_code == 255 for p in photos):
         return None
     img = measured.image
     # every 4th azimuth of the map (45 of 180): a row's mean level and colour, not its detail
@@ -857,13 +859,27 @@ def _coding_rel(linear: Linear, measured: "_Measured") -> np.ndarray | None:
         level = np.nanmean(lum, axis=1)
         # cells outside the photo are NaN in a float image (ambient taken off, a flat): 0, as in counts
         red, blue = (np.sum(np.where(inside, rgb[..., c], 0.0), axis=1) for c in (0, 2))
-        # the colour's change along the profile, where the light is at least 5 % of the brightest row
-        # (dimmer rows' ratios are noise), smoothed over 1 deg of rows
-        lit = np.isfinite(level) & (level >= 0.05 * np.nanmax(level)) & (red > 0) & (blue > 0)
-    ratio = np.log(red[lit] / blue[lit]) if lit.sum() >= 3 else np.zeros(1)
-    ratio = gaussian_filter1d(ratio, max(1.0, 0.5 / np.degrees(measured.beam.d_theta)), mode="nearest")
-    sigma_codes = coding_rms_codes(float(np.ptp(ratio)))
-    return concentric_sigma_rel(level, linear.prep.resp, sigma_codes=sigma_codes)
+        lit = np.isfinite(level) & (level >= COLOUR_LIT_FRACTION * np.nanmax(level))
+    # the colour's change along the profile: ln(R / B) of bands of rows 2 deg wide (sums over some
+    # 900 cells each, so that a faint spill's colour is not noise), where the light is lit
+    band = max(1, int(round(2.0 / np.degrees(measured.beam.d_theta))))
+    rows = np.flatnonzero(lit)
+    groups = rows // band
+    r_sum = np.bincount(groups, red[rows]) if rows.size else np.zeros(0)
+    b_sum = np.bincount(groups, blue[rows]) if rows.size else np.zeros(0)
+    seen = (r_sum > 0) & (b_sum > 0)
+    change = float(np.ptp(np.log(r_sum[seen] / b_sum[seen]))) if seen.sum() >= 2 else float("nan")
+    sigma_codes = coding_rms_codes(change) if np.isfinite(change) else COLOUR_RMS_CODES
+    ratios = np.asarray((linear.prep.hdr_note or {}).get("ratios_used", [1.0]) if len(photos) > 1 else [1.0], float)
+    clip = float(linear.prep.resp.decode(SATURATION_CODE_FRACTION))
+    in_frames = level[:, None] * ratios[None, :]  # the level in each frame's own units
+    held = np.where(in_frames < clip, in_frames, -np.inf).max(axis=1)
+    return concentric_sigma_rel(np.where(np.isfinite(held), held, level), linear.prep.resp, sigma_codes=sigma_codes)
+
+
+#: Rows at least this fraction of the brightest row's level show the beam's colour (2 deg bands of
+#: them are summed, so a spill of a few tenths of a per cent of the peak still counts).
+COLOUR_LIT_FRACTION = 0.002
 
 
 def _block_deg(pixel_deg: float, image: LinearImage, photos) -> float:

@@ -667,7 +667,8 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
         why = (f"no ring distinguishable from noise and the JPEG's coding errors ({searched})" if search.coding else
                f"no ring distinguishable from noise ({searched})")
         figs["ring_score"] = Figure(search.limit, None, "", method + "; ring score: the largest |amplitude| of a ring; "
-                                    "with none found, the amplitude a 1 deg wide ring would need to be found (a ring "
+                                    "with none found, the amplitude a 1 deg wide ring would need to be found at 9 in 10 of "
+                                    "the angles searched (the dimmest tenth needs more; a ring "
                                     f"wider than {MAX_FWHM_DEG:g} deg is not searched for)",
                                     "upper_bound", why)
         figs["ring_count"] = Figure(0.0, 0.0, "", method + f"; {searched}")

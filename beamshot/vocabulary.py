@@ -108,7 +108,8 @@ def colour_figures_of(report: dict) -> dict:
 SHAPE_FIGURES: dict[str, Term] = {t.key: t for t in (
     Term("ring_score", "ring score", "",
          "largest |amplitude| of a ring relative to the smooth profile; an upper bound when no ring is found"),
-    Term("ring_count", "rings found", "", "number of rings distinguishable from noise (6 sigma)"),
+    Term("ring_count", "rings found", "",
+         "number of rings distinguishable from noise (6 sigma) and, in a JPEG, from its coding (3 sigma)"),
     Term("ring_angle", "strongest ring at", "deg", "polar angle of the strongest ring from the beam axis"),
     Term("ring_amplitude", "strongest ring amplitude", "",
          "the strongest ring's deviation from the smooth profile, + bright, - dark"),

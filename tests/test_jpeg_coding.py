@@ -116,7 +116,7 @@ def test_colour_change_is_read_alike_with_an_ambient_photo_on_a_tight_frame(monk
     for kw in ({}, {"ambient": decode_photo(ambient, "off.jpg")}):
         analyze(decode_photo(photo, "beam.jpg"), distance_m=4.0, use_exif_scale=False, **kw)
     assert len(seen) == 2 and seen[0] > 0.3
-    assert seen[1] == pytest.approx(seen[0], abs=0.05)
+    assert seen[1] == pytest.approx(seen[0], rel=0.1)  # the dimmest rows differ a little by the ambient taken off
 
 
 def test_the_docs_state_the_term_at_codes_40_and_200_as_computed():
