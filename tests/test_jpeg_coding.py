@@ -20,7 +20,7 @@ from beamshot.camera.response import Response, srgb_decode
 from beamshot.jpeg_coding import COLOUR_RMS_CODES, ONE_COLOUR_RMS_CODES, coding_rms_codes, concentric_sigma_rel
 from beamshot.photo import decode_photo
 from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, TwoToneBeam, encode_jpeg, exposure_time_for_peak,
-                            render_two_tone_photo)
+                            render_photo, render_two_tone_photo)
 from beamshot.synth_artefacts import RingedBeam
 
 SCENE = Scene(distance_m=4.0)
@@ -149,3 +149,31 @@ def test_the_method_says_which_test_a_jpeg_ring_passed():
     plain = {}
     _ring_figures(plain, RingSearch((replace(ring, coding_sigma=0.0, amplitude_sigma=0.005),), 0.03, (1.0, 25.0)), None)
     assert f"at {RING_SIGNIFICANCE:g} sigma" in plain["ring_amplitude"].method and "JPEG" not in plain["ring_amplitude"].method
+
+
+def test_a_bracket_of_jpegs_carries_the_term_at_its_longest_unclipped_frame(monkeypatch):
+    # a [0, -2 stop] bracket: the spill comes from the 0-stop frame at the codes a single photo has,
+    # so its rings carry the coding term (beamshot.analysis._coding_rel); the 0-stop frame alone
+    # gives the same term at the spill (the levels in the bracket's units times its ratio 4)
+    from beamshot import analysis as A
+
+    seen = []
+    real = A._coding_rel
+    monkeypatch.setattr(A, "_coding_rel", lambda *a: (seen.append(real(*a)), seen[-1])[1])
+    scene = Scene(distance_m=4.0)
+    cam = SynthCamera(width_px=960, height_px=720, focal_35mm_mm=15, sensor_diag_mm=6.0, f_number=2.2, iso=50.0,
+                      supersample=1)
+    beam = HotspotSpillBeam(**SHAPE)
+    t = exposure_time_for_peak(beam, scene, cam, target=0.75)
+    frames = []
+    for k, scale in enumerate((1.0, 0.25)):
+        c = replace(cam, exposure_time_s=t * scale)
+        frames.append(decode_photo(encode_jpeg(render_photo(beam, scene, c, seed=20 + k), c, quality=90), f"f{k}.jpg"))
+    analyze(frames, distance_m=4.0, use_exif_scale=False)
+    analyze(frames[0], distance_m=4.0, use_exif_scale=False)
+    bracket, single = seen
+    assert bracket is not None and single is not None
+    lit = np.isfinite(bracket) & np.isfinite(single)
+    # the spill's rows (the dimmest half lit): the same term within the frames' noise and merge
+    dim = lit & (single > np.nanmedian(single[lit]))
+    assert np.nanmedian(bracket[dim] / single[dim]) == pytest.approx(1.0, abs=0.15)
