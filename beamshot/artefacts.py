@@ -407,8 +407,8 @@ def _with_tone_shape(figs: dict, beam: BeamMap, peak: float) -> dict:
     with np.errstate(invalid="ignore"):
         reread = power.decode(Response().encode(rel))
     peak2 = float(power.decode(Response().encode(TONE_PEAK_LEVEL)))
-    base = iso13694(beam, peak)
-    moved = iso13694(replace(beam, intensity=reread), peak2)
+    base = iso13694(beam, peak, values_only=True)
+    moved = iso13694(replace(beam, intensity=reread), peak2, values_only=True)
     change = dict(zip(ISO_FIGURES, _iso_change(moved, base), strict=True))
     out = dict(figs)
     for key in keys:
@@ -585,7 +585,7 @@ def _peak_changed(beam: BeamMap, pk, noise, res, pixel_deg: float = 0.0) -> tupl
     rel = peak_rel_noise(pk, pixel_deg)
     if not rel > 0:
         return 0.0, 0.0, 0.0
-    return _iso_change(iso13694(beam, pk.value * (1.0 + rel), noise), res)
+    return _iso_change(iso13694(beam, pk.value * (1.0 + rel), noise, values_only=True), res)
 
 
 def _iso_change(moved, res) -> tuple[float, float, float]:
@@ -638,7 +638,7 @@ def _resolution_changed(beam: BeamMap, pk, noise, res, pixel_deg: float) -> tupl
         ratio = float(np.nansum(blurred[rows][:, cols]) / np.nansum(inten[rows][:, cols]))
     if not np.isfinite(ratio) or ratio <= 0:
         return 0.0, 0.0, 0.0
-    return _iso_change(iso13694(replace(beam, intensity=blurred), pk.value * ratio, noise), res)
+    return _iso_change(iso13694(replace(beam, intensity=blurred), pk.value * ratio, noise, values_only=True), res)
 
 
 def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> None:
@@ -667,8 +667,8 @@ def _ring_figures(figs: dict, search, clipped_reason, scale_u: float = 0.0) -> N
         why = (f"no ring distinguishable from noise and the JPEG's coding errors ({searched})" if search.coding else
                f"no ring distinguishable from noise ({searched})")
         figs["ring_score"] = Figure(search.limit, None, "", method + "; ring score: the largest |amplitude| of a ring; "
-                                    "with none found, the amplitude a 1 deg wide ring would need to be found at 9 in 10 of "
-                                    "the angles searched (the dimmest tenth needs more; a ring "
+                                    "with none found, the amplitude a 1 deg wide ring would need to be found at 9 in "
+                                    "10 of the angles searched (the dimmest tenth needs more; a ring "
                                     f"wider than {MAX_FWHM_DEG:g} deg is not searched for)",
                                     "upper_bound", why)
         figs["ring_count"] = Figure(0.0, 0.0, "", method + f"; {searched}")

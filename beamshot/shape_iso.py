@@ -315,7 +315,7 @@ def _iso13694_of(hot, a_low, a_high, e_max, cols):
 
 def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
              edge_reason: str | None = None, flatness_reason: str | None = None,
-             correlation_deg: float = 0.0) -> Iso13694:
+             correlation_deg: float = 0.0, values_only: bool = False) -> Iso13694:
     """Flatness and uniformity at ``HOTSPOT_CLIP`` and edge steepness between ``EDGE_CLIPS`` of the
     map about its peak value ``e_max`` (module docstring).  The uniformity has the cells' own noise
     variance (from ``noise``) removed: ``U = sqrt(var - noise var) / mean``.
@@ -327,7 +327,8 @@ def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
 
     The noise is the larger of the interleaved-subset spread and the contiguous-sector estimate
     (:func:`_sector_noise`, with ``correlation_deg`` the angle over which the photo's errors are
-    correlated, a JPEG block)."""
+    correlated, a JPEG block).  ``values_only``: the three values alone, their noise left 0 (for
+    the terms that measure how much a value moves; the values are the same)."""
     from .level_integrals import above_level
 
     # every region lies at or above the lowest clip level: the rows up to the last such cell and the
@@ -343,6 +344,8 @@ def iso13694(beam: BeamMap, e_max: float, noise: NoiseModel | None = None, *,
     a_high = above_level(inten, tdeg, beam.d_phi, EDGE_CLIPS[1] * e_max, area_only=True).area
     cols = np.arange(inten.shape[1])
     full = _iso13694_of(hot, a_low, a_high, e_max, slice(None))
+    if values_only:
+        return Iso13694(full[0], 0.0, full[1], 0.0, full[2], 0.0, flatness_reason, edge_reason)
     subs = np.array([_iso13694_of(hot, a_low, a_high, e_max, cols % N_SUBSETS == k) for k in range(N_SUBSETS)])
     with quiet_nan():
         spread = np.nanstd(subs, axis=0, ddof=1) / np.sqrt(N_SUBSETS)
