@@ -534,7 +534,8 @@ def _shape_once(beam: BeamMap, shape, pixel_deg: float, scale_u: float, correlat
     else:
         spill_level = (mom.spill_at(mom.radius + np.hypot(*centroid)) / pk.value
                        if mom is not None and not mom.reason else None)
-        res = iso13694(beam, pk.value, noise, correlation_deg=correlation_deg)
+        # the pass on the tone-bent map (no rings) gives values only: its noise is not used
+        res = iso13694(beam, pk.value, noise, correlation_deg=correlation_deg, values_only=not with_rings)
         edge_reason = None
         if not shape.field.complete:
             edge_reason = "the 10 % contour runs off the photo; step back or use a wider lens"
