@@ -838,8 +838,10 @@ def _coding_rel(linear: Linear, measured: "_Measured") -> np.ndarray | None:
     unless every beam photo is an 8-bit JPEG.  In a bracket, merged in units of its shortest frame
     (camera/hdr.py), a level is taken at the code of the longest frame that holds it below the clip,
     whose error is the smallest the merge can have there (the merge's averaging of frames is not
-    credited).  The level is the working image's, with the ambient taken off and divided by a flat:
-    the code is about the photo's (a little lower, so the term a little larger than the photo's)."""
+    credited).  The level is the working image's, with the ambient taken off and divided by a flat,
+    not the photo's own: where the ambient is a large part of the light, or a flat's gain is below 1,
+    the term comes out too small (by ``(c_photo / c_level)^(gamma - 1)`` for a power-law curve; not
+    counted)."""
     from ._quiet import quiet_nan
     from .beammap import sampled_image
     from .camera.linearize import SATURATION_CODE_FRACTION
