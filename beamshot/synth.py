@@ -488,21 +488,39 @@ def render_two_tone_photo(beam: TwoToneBeam, scene: Scene, camera: SynthCamera, 
     return np.round(camera.response.encode(rgb) * 255.0).astype(np.uint8)
 
 
+def blackbody_xyz1(temperature_k: float) -> np.ndarray:
+    """CIE 1931 XYZ of a blackbody at Y = 1 (Planck's law and the CIE 1931 2 degree functions, colour-science)."""
+    import colour
+
+    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
+    xyz = colour.sd_to_XYZ(colour.sd_blackbody(float(temperature_k), cmfs.shape), cmfs)
+    return xyz / xyz[1]
+
+
+def two_tone_ring_uv(beam: TwoToneBeam, edges_deg, d_theta_deg: float = 0.005) -> np.ndarray:
+    """True CIE 1976 (u', v') of the light in each ring ``[edges[k], edges[k+1])`` (deg) of a beam
+    symmetric about its axis: ``XYZ = sum (I_hot XYZ_hot + I_spill XYZ_spill) sin(theta) dtheta``, and
+    ``u' = 4X / (X + 15Y + 3Z)``, ``v' = 9Y / (X + 15Y + 3Z)`` (CIE 15:2018, 8.1), independent of the
+    analyser.  Shape ``(rings, 2)``."""
+    x_hot, x_spill = blackbody_xyz1(beam.hotspot_k), blackbody_xyz1(beam.spill_k)
+    out = []
+    for a, b in zip(edges_deg[:-1], edges_deg[1:]):
+        th = np.radians(np.arange(a + d_theta_deg / 2, b, d_theta_deg))
+        w = np.sin(th)
+        hot, spill = float(np.sum(beam.hotspot(th, 0 * th) * w)), float(np.sum(beam.spill(th, 0 * th) * w))
+        x, y, z = hot * x_hot + spill * x_spill
+        d = x + 15.0 * y + 3.0 * z
+        out.append((4.0 * x / d, 9.0 * y / d))
+    return np.array(out)
+
+
 def two_tone_truth(beam: TwoToneBeam, *, theta_max_deg: float = 80.0, d_theta_deg: float = 0.01,
                    d_phi_deg: float = 1.0) -> dict:
     """True CIE XYZ of the light in each zone, by dense integration of the two parts (independent of
     the analyser): hotspot = at or above 50 % of the peak, corona = 10-50 %, spill = below 10 % and
     inside the spill edge (the cut-off angle).  ``XYZ = sum (I_hot XYZ_hot + I_spill XYZ_spill) dOmega``
     with each blackbody's XYZ at Y = 1 (Planck's law and the CIE 1931 functions, colour-science)."""
-    import colour
-
-    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
-
-    def xyz1(t):
-        xyz = colour.sd_to_XYZ(colour.sd_blackbody(float(t), cmfs.shape), cmfs)
-        return xyz / xyz[1]
-
-    x_hot, x_spill = xyz1(beam.hotspot_k), xyz1(beam.spill_k)
+    x_hot, x_spill = blackbody_xyz1(beam.hotspot_k), blackbody_xyz1(beam.spill_k)
     th = np.radians(np.arange(d_theta_deg / 2, theta_max_deg, d_theta_deg))
     ph = np.radians(np.arange(d_phi_deg / 2, 360.0, d_phi_deg))
     tt, pp = np.meshgrid(th, ph, indexing="ij")

@@ -37,7 +37,7 @@ from beamshot.colour.cct import cct_duv
 from beamshot.colour.chromaticity import delta_uv_prime, uv_prime_of, xy_of
 from beamshot.photo import decode_photo
 from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, TwoToneBeam, encode_jpeg, encode_png16,
-                            exposure_time_for_peak, render_two_tone_linear, two_tone_truth)
+                            exposure_time_for_peak, render_two_tone_linear, two_tone_ring_uv, two_tone_truth)
 
 #: Colour pairs (hotspot K, spill K): the demo's prototype 4 and two others.
 PAIRS = ((5700.0, 3500.0), (6500.0, 4000.0), (4500.0, 2700.0))
@@ -48,27 +48,6 @@ SHAPE = dict(peak_cd=7000.0, hotspot_fwhm_deg=7.0, spill_fraction=0.03, spill_fa
 def _camera(width: int) -> SynthCamera:
     return SynthCamera(width_px=width, height_px=width * 3 // 4, focal_35mm_mm=15, sensor_diag_mm=6.0,
                        f_number=2.2, iso=50.0, supersample=1)
-
-
-def _xyz1(t: float) -> np.ndarray:
-    import colour
-
-    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
-    xyz = colour.sd_to_XYZ(colour.sd_blackbody(float(t), cmfs.shape), cmfs)
-    return xyz / xyz[1]
-
-
-def ring_truth_uv(beam: TwoToneBeam, edges_deg, d_theta_deg: float = 0.005) -> np.ndarray:
-    """True (u', v') of the light in each ring [edges[k], edges[k+1]) (module doc; azimuthally symmetric beam)."""
-    x_hot, x_spill = _xyz1(beam.hotspot_k), _xyz1(beam.spill_k)
-    out = []
-    for a, b in zip(edges_deg[:-1], edges_deg[1:]):
-        th = np.radians(np.arange(a + d_theta_deg / 2, b, d_theta_deg))
-        w = np.sin(th)
-        hot = float(np.sum(beam.hotspot(th, 0.0 * th) * w))
-        spill = float(np.sum(beam.spill(th, 0.0 * th) * w))
-        out.append(uv_prime_of(hot * x_hot + spill * x_spill))
-    return np.array(out)
 
 
 def _png8(px: np.ndarray, cam: SynthCamera) -> bytes:
@@ -119,7 +98,7 @@ def evaluate(report, beam: TwoToneBeam, zone_truth: dict) -> dict:
     rings = col["rings"]
     th = np.array(rings["theta_deg"])
     step = th[1] - th[0]
-    r_true = ring_truth_uv(beam, np.r_[th - step / 2, th[-1] + step / 2])
+    r_true = two_tone_ring_uv(beam, np.r_[th - step / 2, th[-1] + step / 2])
     r_uv = np.c_[rings["u_prime"], rings["v_prime"]].astype(float)
     r_sig = np.array(rings["sigma_uv"], float)
     ok = np.isfinite(r_sig) & np.all(np.isfinite(r_uv), axis=1)
@@ -127,7 +106,7 @@ def evaluate(report, beam: TwoToneBeam, zone_truth: dict) -> dict:
         for e in np.abs(r_uv[ok, i] - r_true[ok, i]) / r_sig[ok]:
             add("rings u'v'", e)
     cells = report.colour_result.cells
-    c_true = ring_truth_uv(beam, cells["theta_edges_deg"])
+    c_true = two_tone_ring_uv(beam, cells["theta_edges_deg"])
     n_s = cells["u_prime"].shape[1]
     c_uv = np.stack([cells["u_prime"], cells["v_prime"]], -1).astype(float)
     c_noise = np.asarray(cells["sigma_uv"], float)

@@ -24,11 +24,10 @@ import numpy as np
 import pytest
 
 from beamshot import analyze
-from beamshot.colour.chromaticity import uv_prime_of
 from beamshot.jpeg_coding import chroma_sigma_uv
 from beamshot.photo import decode_photo
 from beamshot.synth import (HotspotSpillBeam, Scene, SynthCamera, TwoToneBeam, encode_jpeg, encode_png16,
-                            exposure_time_for_peak, render_two_tone_linear)
+                            exposure_time_for_peak, render_two_tone_linear, two_tone_ring_uv)
 
 pytestmark = pytest.mark.filterwarnings("ignore:.*Aligning")
 
@@ -38,26 +37,6 @@ BEAM = TwoToneBeam.split(HotspotSpillBeam(peak_cd=7000.0, hotspot_fwhm_deg=7.0, 
 SCENE = Scene(distance_m=4.0)
 CAM = SynthCamera(width_px=800, height_px=600, focal_35mm_mm=15, sensor_diag_mm=6.0, f_number=2.2, iso=50.0,
                   supersample=1)
-
-
-def _xyz1(t: float) -> np.ndarray:
-    import colour
-
-    cmfs = colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"]
-    xyz = colour.sd_to_XYZ(colour.sd_blackbody(float(t), cmfs.shape), cmfs)
-    return xyz / xyz[1]
-
-
-def ring_truth_uv(beam: TwoToneBeam, edges_deg, d_theta_deg: float = 0.005) -> np.ndarray:
-    """True (u', v') of each ring [edges[k], edges[k+1]) (the module doc's formula; a round beam)."""
-    x_hot, x_spill = _xyz1(beam.hotspot_k), _xyz1(beam.spill_k)
-    out = []
-    for a, b in zip(edges_deg[:-1], edges_deg[1:]):
-        th = np.radians(np.arange(a + d_theta_deg / 2, b, d_theta_deg))
-        w = np.sin(th)
-        out.append(uv_prime_of(float(np.sum(beam.hotspot(th, 0 * th) * w)) * x_hot
-                               + float(np.sum(beam.spill(th, 0 * th) * w)) * x_spill))
-    return np.array(out)
 
 
 @pytest.fixture(scope="module")
@@ -84,7 +63,7 @@ def _ring_errors(report) -> np.ndarray:
     r = report.colour["rings"]
     th = np.array(r["theta_deg"])
     step = th[1] - th[0]
-    truth = ring_truth_uv(BEAM, np.r_[th - step / 2, th[-1] + step / 2])
+    truth = two_tone_ring_uv(BEAM, np.r_[th - step / 2, th[-1] + step / 2])
     uv = np.c_[r["u_prime"], r["v_prime"]].astype(float)
     sig = np.array(r["sigma_uv"], float)
     ok = np.isfinite(sig) & np.all(np.isfinite(uv), axis=1)
@@ -98,7 +77,7 @@ def _map_max_error(report) -> float:
     from beamshot.colour.beam_colour import MAP_SIGMA_UV_LIMIT
 
     cells = report.colour_result.cells
-    truth = ring_truth_uv(BEAM, cells["theta_edges_deg"])
+    truth = two_tone_ring_uv(BEAM, cells["theta_edges_deg"])
     used = np.isfinite(cells["u_prime"]) & (np.asarray(cells["sigma_uv"]) <= MAP_SIGMA_UV_LIMIT)
     p = truth[np.nonzero(used)[0]]
     d_true = float(np.max(np.hypot(p[:, None, 0] - p[None, :, 0], p[:, None, 1] - p[None, :, 1])))
